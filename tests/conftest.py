@@ -27,3 +27,16 @@ settings.load_profile("random" if os.environ.get("FLATCHECK_HYPOTHESIS") == "ran
 def rng():
     """A seeded random generator (seed 1234) for reproducible synthetic data."""
     return np.random.default_rng(1234)
+
+
+@pytest.fixture
+def cli(capsys):
+    """Run the command line in-process; returns ``(exit_code, stdout, stderr)``."""
+    from flatcheck.cli.main import run
+
+    def _run(*argv):
+        code = run([str(a) for a in argv])
+        out, err = capsys.readouterr()
+        return code, out, err
+
+    return _run

@@ -1,0 +1,143 @@
+"""Helpers shared by the commands: consoles, JSON output, progress bars, input loading."""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from contextlib import contextmanager
+from enum import Enum
+from pathlib import Path
+
+import numpy as np
+from rich.console import Console
+
+from ..errors import InputFormatError
+
+__all__ = [
+    "Units",
+    "stdout_console",
+    "stderr_console",
+    "emit_json",
+    "jsonable",
+    "progress_bar",
+    "load_surface",
+    "SAFETY_LINES",
+]
+
+
+class Units(str, Enum):
+    """Display units: micrometres or inches (heights then in µin)."""
+
+    um = "um"
+    inch = "in"
+
+
+def stdout_console() -> Console:
+    """Console on standard output (summaries)."""
+    return Console(file=sys.stdout, highlight=False, soft_wrap=False)
+
+
+def stderr_console() -> Console:
+    """Console on standard error (progress, warnings)."""
+    return Console(file=sys.stderr, highlight=False)
+
+
+def jsonable(obj):
+    """Convert numpy scalars/arrays, dataclasses, tuples and non-finite floats for JSON.
+
+    NaN and infinities become ``null``: JSON has no such numbers.
+    """
+    import dataclasses
+
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {f.name: jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if not f.name.startswith("_")}
+    if isinstance(obj, dict):
+        return {str(k): jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return jsonable(obj.tolist())
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (np.floating, float)):
+        v = float(obj)
+        return v if math.isfinite(v) else None
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, Enum):
+        return obj.value
+    if isinstance(obj, Path):
+        return str(obj)
+    return obj
+
+
+def emit_json(obj) -> None:
+    """Print exactly one JSON object on standard output."""
+    sys.stdout.write(json.dumps(jsonable(obj), indent=2, ensure_ascii=False, allow_nan=False) + "\n")
+    sys.stdout.flush()
+
+
+@contextmanager
+def progress_bar(description: str, total: int, *, enabled: bool = True):
+    """A rich progress bar on standard error; yields ``advance(n)``.
+
+    Disabled (a no-op) when ``enabled`` is false, e.g. for small jobs.
+    """
+    if not enabled:
+        yield lambda n=1: None
+        return
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+
+    with Progress(
+        TextColumn("{task.description}"),
+        BarColumn(),
+        TextColumn("{task.percentage:>3.0f}%"),
+        TimeElapsedColumn(),
+        TimeRemainingColumn(),
+        console=stderr_console(),
+        transient=True,
+    ) as prog:
+        task = prog.add_task(description, total=total)
+        yield lambda n=1: prog.advance(task, n)
+
+
+def load_surface(path: Path, *, method: str = "least-squares"):
+    """Load an input file as a height map.
+
+    A ``.csv`` file is read as a height map; anything else is read as a TOML
+    survey and reduced with ``method``.
+
+    Returns
+    -------
+    (HeightMap, Reduction or None)
+        The surface and, for surveys, the full reduction result.
+    """
+    from ..io.heightmap_csv import read_heightmap_csv
+
+    path = Path(path)
+    if path.suffix.lower() == ".csv":
+        return read_heightmap_csv(path), None
+    from ..io.survey_toml import read_survey
+    from ..reduction import reduce_survey
+
+    survey = read_survey(path)
+    red = reduce_survey(survey, method=method)
+    return red.heightmap, red
+
+
+#: Cautions shown by commands whose work involves handling, lapping or air.
+SAFETY_LINES = {
+    "lifting": (
+        "Granite plates weigh hundreds of kilograms to tonnes: lift and move them only with rated lifting gear "
+        "and trained people, and support them on their marked points; follow local regulations."
+    ),
+    "dust": (
+        "Grinding or lapping granite can release respirable crystalline silica: use wet methods or local "
+        "extraction and respiratory protection as local rules require; never dry-sweep or blow dust with compressed air."
+    ),
+    "air": (
+        "Compressed air: depressurise before working on air bearings or lines, never point air at people, and follow "
+        "local codes for pressure equipment."
+    ),
+}

@@ -1,0 +1,81 @@
+"""Entry point of the ``flatcheck`` command.
+
+``main()`` parses and handles errors; the command modules do the work with no
+error handling of their own. Every :class:`~flatcheck.errors.FlatcheckError`
+becomes one line on standard error and exit code 2; any other exception is a
+bug and prints a one-line hint (the traceback only with ``--traceback``).
+"""
+
+from __future__ import annotations
+
+import sys
+
+import typer
+
+try:  # recent typer vendors its own copy of click
+    from typer._click import exceptions as _cx
+except ImportError:  # pragma: no cover - older typer uses click itself
+    from click import exceptions as _cx
+
+from ..errors import ExitStatus, FlatcheckError
+from ._app import app
+
+# Each command module registers its commands on `app` when imported (one line per module).
+from . import (  # noqa: F401,E402
+    info_cmd,
+)
+
+__all__ = ["app", "run", "main"]
+
+
+def run(argv: list[str] | None = None) -> int:
+    """Run the command line with ``argv`` (without the program name); return the exit code."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    show_traceback = "--traceback" in argv
+    argv = [a for a in argv if a != "--traceback"]
+    command = typer.main.get_command(app)
+    try:
+        rv = command.main(args=argv, prog_name="flatcheck", standalone_mode=False)
+        return int(rv) if isinstance(rv, int) else int(ExitStatus.OK)
+    except FlatcheckError as exc:
+        _error(exc.one_line())
+        return int(ExitStatus.BAD_INPUT)
+    except typer.Exit as exc:
+        return int(exc.exit_code)
+    except typer.Abort:
+        _error("interrupted")
+        return 130  # 128 + SIGINT, the shell convention
+    except _cx.UsageError as exc:
+        if type(exc).__name__ == "NoArgsIsHelpError":  # help was shown for a bare command
+            return int(ExitStatus.BAD_INPUT)
+        hint = f" (see 'flatcheck {exc.ctx.info_name} --help')" if exc.ctx is not None else ""
+        _error(" ".join(exc.format_message().split()) + hint)
+        return int(ExitStatus.BAD_INPUT)
+    except _cx.ClickException as exc:
+        _error(" ".join(exc.format_message().split()))
+        return int(ExitStatus.BAD_INPUT)
+    except KeyboardInterrupt:
+        _error("interrupted")
+        return 130
+    except BrokenPipeError:
+        return int(ExitStatus.OK)
+    except Exception as exc:  # a bug: keep operators' screens clean
+        if show_traceback:
+            import traceback
+
+            traceback.print_exc()
+        _error(
+            f"internal error: {type(exc).__name__}: {' '.join(str(exc).split())} "
+            "(this is a bug in flatcheck; run again with --traceback and report it)"
+        )
+        return int(ExitStatus.INTERNAL)
+
+
+def _error(message: str) -> None:
+    sys.stderr.write(f"flatcheck: error: {message}\n")
+    sys.stderr.flush()
+
+
+def main() -> None:
+    """Console-script entry point."""
+    sys.exit(run())

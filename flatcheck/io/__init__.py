@@ -1,0 +1,1 @@
+"""File formats: one module per format, each turning files into core objects."""

@@ -1,0 +1,68 @@
+"""Atomic output: a failure never leaves a half-written file or destroys an earlier one.
+
+Everything is written to a temporary file in the destination's folder and moved
+over the destination with :func:`os.replace`, which is atomic on POSIX and
+Windows when both paths are on the same file system.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from pathlib import Path
+
+from ..errors import OutputError
+
+__all__ = ["atomic_path", "write_text_atomic", "write_bytes_atomic"]
+
+
+@contextlib.contextmanager
+def atomic_path(path, *, suffix: str | None = None):
+    """Yield a temporary path beside ``path``; move it over ``path`` only on success.
+
+    Parameters
+    ----------
+    path : str or Path
+        The final destination.
+    suffix : str, optional
+        Suffix of the temporary file (matplotlib picks the format from it);
+        defaults to the destination's suffix.
+
+    Raises
+    ------
+    OutputError
+        If the folder does not exist or cannot be written.
+    """
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(
+            f"cannot write {path}: folder {folder} does not exist", fix="create the folder or choose another path"
+        )
+    if path.is_dir():
+        raise OutputError(f"cannot write {path}: it is a folder", fix="give a file name")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix or path.suffix, dir=folder)
+    except OSError as exc:
+        raise OutputError(f"cannot write in {folder}: {exc.strerror}", fix="check the folder's permissions") from exc
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+
+
+def write_text_atomic(path, text: str) -> None:
+    """Write ``text`` (UTF-8) to ``path`` atomically."""
+    with atomic_path(path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+
+
+def write_bytes_atomic(path, data: bytes) -> None:
+    """Write ``data`` to ``path`` atomically."""
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(data)

@@ -1,0 +1,142 @@
+"""Height-map CSV files: ``x_mm,y_mm,height_um`` per line, ``#`` starts a comment line.
+
+Example::
+
+    # graphite pad face, 80 mm diameter, indicator grid
+    x_mm,y_mm,height_um
+    0,0,0.12
+    5,0,0.08
+    ...
+
+The header is required and must name exactly these three columns in this order
+(so that a file in other units is never read silently as µm). Values are plain
+decimal numbers; blank lines are ignored.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputFormatError, InputValueError
+from ..heightmap import HeightMap
+from .atomic import write_text_atomic
+from .text import read_text
+
+__all__ = ["HEADER", "read_heightmap_csv", "write_heightmap_csv", "format_heightmap_csv"]
+
+HEADER = ("x_mm", "y_mm", "height_um")
+
+
+def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
+    """Read a height-map CSV file into a :class:`~flatcheck.heightmap.HeightMap`.
+
+    Raises
+    ------
+    InputFormatError
+        Empty, binary or non-CSV file; missing or wrong header; wrong number of fields.
+    InputValueError
+        A value that is not a finite number; duplicate positions; fewer than three points.
+    """
+    path = Path(path)
+    text = read_text(path)
+    lines = text.splitlines()
+    header_no = None
+    for no, raw in enumerate(lines, start=1):
+        s = raw.strip()
+        if not s or s.startswith("#"):
+            continue
+        header_no = no
+        break
+    if header_no is None:
+        raise InputFormatError(
+            "the file has no data", where=str(path), fix="add the header x_mm,y_mm,height_um and one point per line"
+        )
+    names = tuple(f.strip().lower() for f in lines[header_no - 1].split(","))
+    if names != HEADER:
+        raise InputFormatError(
+            f"the header is {lines[header_no - 1].strip()!r}",
+            where=f"{path}, line {header_no}",
+            fix="the first non-comment line must be exactly x_mm,y_mm,height_um (convert other units first)",
+        )
+    # Fast path: numpy parses the numeric body; fall back to a line-by-line scan for a precise message.
+    body_rows = [(no, raw) for no, raw in enumerate(lines[header_no:], start=header_no + 1)]
+    data_lines = [raw for no, raw in body_rows if raw.strip() and not raw.lstrip().startswith("#")]
+    if not data_lines:
+        raise InputFormatError("the file has a header but no points", where=str(path), fix="add one point per line")
+    try:
+        arr = np.loadtxt(data_lines, delimiter=",", dtype=float, ndmin=2)
+        if arr.shape[1] != 3:
+            raise ValueError
+    except ValueError:
+        arr = None
+    if arr is None or not np.isfinite(arr).all():
+        _locate_bad_row(path, body_rows)
+    x, y, z = arr[:, 0], arr[:, 1], arr[:, 2]
+    if x.size < 3:
+        raise InputValueError(
+            f"only {x.size} point(s)", where=str(path), fix="a height map needs at least three points"
+        )
+    key = np.round(np.column_stack([x, y]), 9)
+    _, first, counts = np.unique(key, axis=0, return_index=True, return_counts=True)
+    if (counts > 1).any():
+        dup = int(np.sort(first[counts > 1])[0])
+        raise InputValueError(
+            f"position ({x[dup]:g}, {y[dup]:g}) mm appears more than once",
+            where=f"{path}, line {_line_of_point(body_rows, dup)}",
+            fix="average repeated readings into one point per position",
+        )
+    return HeightMap(x, y, z, label=label if label is not None else path.stem)
+
+
+def _line_of_point(body_rows, k: int) -> int:
+    j = -1
+    for no, raw in body_rows:
+        if raw.strip() and not raw.lstrip().startswith("#"):
+            j += 1
+            if j == k:
+                return no
+    return body_rows[-1][0]
+
+
+def _locate_bad_row(path, body_rows):
+    for no, raw in body_rows:
+        s = raw.strip()
+        if not s or s.startswith("#"):
+            continue
+        fields = [f.strip() for f in s.split(",")]
+        if len(fields) != 3:
+            raise InputFormatError(
+                f"{len(fields)} fields where 3 are needed",
+                where=f"{path}, line {no}",
+                fix="write x_mm,y_mm,height_um separated by commas",
+            )
+        for name, f in zip(HEADER, fields):
+            try:
+                v = float(f)
+            except ValueError:
+                raise InputValueError(
+                    f"{name} {f!r} is not a number", where=f"{path}, line {no}", fix="write a plain decimal number"
+                ) from None
+            if not np.isfinite(v):
+                raise InputValueError(
+                    f"{name} is {f}", where=f"{path}, line {no}", fix="remove the point or give a measured value"
+                )
+    raise InputFormatError("cannot parse the file as CSV", where=str(path), fix="check the separators")
+
+
+def format_heightmap_csv(hm: HeightMap, *, comment: str = "") -> str:
+    """The height map as CSV text with the standard header (heights to 1 nm)."""
+    out = []
+    for ln in comment.splitlines():
+        out.append(f"# {ln}".rstrip())
+    out.append(",".join(HEADER))
+    for x, y, z in zip(hm.x_mm, hm.y_mm, hm.height_um):
+        out.append(f"{x:.6g},{y:.6g},{z:.4f}")
+    return "\n".join(out) + "\n"
+
+
+def write_heightmap_csv(path, hm: HeightMap, *, comment: str = "") -> None:
+    """Write the height map to ``path`` atomically."""
+    write_text_atomic(path, format_heightmap_csv(hm, comment=comment))
