@@ -48,7 +48,10 @@ def run(argv: list[str] | None = None) -> int:
     except _cx.UsageError as exc:
         if type(exc).__name__ == "NoArgsIsHelpError":  # help was shown for a bare command
             return int(ExitStatus.BAD_INPUT)
-        hint = f" (see 'flatcheck {exc.ctx.info_name} --help')" if exc.ctx is not None else ""
+        hint = ""
+        if exc.ctx is not None:
+            where = "flatcheck" if exc.ctx.parent is None else f"flatcheck {exc.ctx.info_name}"
+            hint = f" (see '{where} --help')"
         _error(" ".join(exc.format_message().split()) + hint)
         return int(ExitStatus.BAD_INPUT)
     except _cx.ClickException as exc:
