@@ -79,11 +79,13 @@ def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
             f"only {x.size} point(s)", where=str(path), fix="a height map needs at least three points"
         )
     key = np.round(np.column_stack([x, y]), 9)
-    _, first, counts = np.unique(key, axis=0, return_index=True, return_counts=True)
-    if (counts > 1).any():
-        dup = int(np.sort(first[counts > 1])[0])
+    _, first, inverse = np.unique(key, axis=0, return_index=True, return_inverse=True)
+    repeats = np.flatnonzero(first[inverse.ravel()] != np.arange(x.size))
+    if repeats.size:
+        dup = int(repeats[0])
         raise InputValueError(
-            f"position ({x[dup]:g}, {y[dup]:g}) mm appears more than once",
+            f"position ({x[dup]:g}, {y[dup]:g}) mm appears more than once (first on line "
+            f"{_line_of_point(body_rows, int(first[inverse.ravel()[dup]]))})",
             where=f"{path}, line {_line_of_point(body_rows, dup)}",
             fix="average repeated readings into one point per position",
         )
