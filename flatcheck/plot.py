@@ -1,0 +1,782 @@
+"""Pictures of surfaces, surveys, bearings and lapping plans.
+
+This is the only module of flatcheck that imports matplotlib. Every figure is a
+plain :class:`matplotlib.figure.Figure` drawn by the Agg backend (attached
+explicitly, so pyplot's global state and the user's interactive backend are
+never touched). Drawing functions take an ``ax`` (or a figure for multi-panel
+pictures) and the data, draw, and return what they were given; nothing is
+shown and nothing is written except by :func:`save_png` and :class:`PdfBook`.
+
+Design rules of the pictures
+----------------------------
+- Colour scales are perceptually uniform (``cividis`` for heights, ``viridis``
+  for local flatness and dwell) so that a grey print keeps the order of values.
+- Every filled map also carries labelled contour lines, so a grey print or a
+  colour-blind reader can still read the values without the colour bar.
+- Every axis names its quantity and unit. Heights are in µm (or µin with
+  ``units="in"``), positions in mm (or inches with ``units="in"``).
+"""
+
+from __future__ import annotations
+
+import contextlib
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+# Figures are drawn on an explicitly attached Agg canvas: no pyplot, no global backend switch.
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Rectangle
+from matplotlib.ticker import MaxNLocator
+
+from .errors import InputValueError
+from .units import MM_PER_INCH, UM_PER_UIN
+
+__all__ = [
+    "HEIGHT_CMAP",
+    "FIELD_CMAP",
+    "A4_PORTRAIT_IN",
+    "LineProfile",
+    "new_figure",
+    "save_png",
+    "PdfBook",
+    "contour_map",
+    "surface_view",
+    "line_profiles",
+    "survey_layout",
+    "field_map",
+    "local_flatness_map",
+    "removal_map",
+    "dwell_map",
+    "carriage_path",
+    "residual_histogram",
+    "text_block",
+    "table",
+    "page_frame",
+]
+
+HEIGHT_CMAP = "cividis"  #: heights: perceptually uniform, legible in grey and for red-green colour blindness
+FIELD_CMAP = "viridis"  #: derived fields (local flatness, dwell): perceptually uniform
+A4_PORTRAIT_IN = (8.27, 11.69)  #: ISO 216 A4, 210 x 297 mm, in inches
+_INK = "#1a1a1a"
+_ACCENT = "#b5473a"  # one warm accent for limits and warnings; dark enough to print grey
+
+
+# ---------------------------------------------------------------------------- units
+def _height_scale(units: str) -> tuple[float, str]:
+    """Factor from µm to the display unit and its symbol."""
+    if units == "um":
+        return 1.0, "µm"
+    if units == "in":
+        return 1.0 / UM_PER_UIN, "µin"
+    raise InputValueError(f"unknown display units {units!r}", fix="use 'um' or 'in'")
+
+
+def _pos_scale(units: str) -> tuple[float, str]:
+    """Factor from mm to the display position unit and its symbol."""
+    if units == "um":
+        return 1.0, "mm"
+    if units == "in":
+        return 1.0 / MM_PER_INCH, "in"
+    raise InputValueError(f"unknown display units {units!r}", fix="use 'um' or 'in'")
+
+
+def _fmt(v: float, unit: str) -> str:
+    """A height with a sensible number of decimals for its size."""
+    a = abs(v)
+    dec = 3 if a < 1 else 2 if a < 100 else 1 if a < 1000 else 0
+    return f"{v:+.{dec}f} {unit}" if v else f"0 {unit}"
+
+
+def _fmt_abs(v: float, unit: str) -> str:
+    a = abs(v)
+    dec = 3 if a < 1 else 2 if a < 100 else 1 if a < 1000 else 0
+    return f"{v:.{dec}f} {unit}"
+
+
+# ---------------------------------------------------------------------------- figures and files
+def new_figure(size_in=A4_PORTRAIT_IN, *, dpi: float = 100) -> Figure:
+    """A blank figure on the Agg canvas.
+
+    Parameters
+    ----------
+    size_in : (float, float)
+        Width and height in inches (default A4 portrait).
+    dpi : float
+        Dots per inch for raster output.
+    """
+    fig = Figure(figsize=size_in, dpi=dpi)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def save_png(fig: Figure, path, *, dpi: float = 150) -> Path:
+    """Write ``fig`` as a PNG file atomically; returns the path.
+
+    Raises
+    ------
+    OutputError
+        If the file cannot be written.
+    """
+    from .io.atomic import atomic_path
+
+    path = Path(path)
+    with atomic_path(path, suffix=".png") as tmp:
+        fig.savefig(tmp, format="png", dpi=dpi)
+    return path
+
+
+class PdfBook:
+    """A multi-page PDF written atomically: pages are added one figure at a time.
+
+    Use as a context manager; the PDF replaces ``path`` only when the block ends
+    without an error, so a failure never leaves a half-written report::
+
+        with PdfBook("report.pdf", title="...") as book:
+            book.add(fig)
+    """
+
+    def __init__(self, path, *, title: str = "", subject: str = "", creator: str = "flatcheck"):
+        self.path = Path(path)
+        self._meta = {"Title": title, "Subject": subject, "Creator": creator}
+        self.pages = 0
+        self._stack = None
+        self._pdf = None
+
+    def __enter__(self) -> "PdfBook":
+        from matplotlib.backends.backend_pdf import PdfPages
+
+        from .io.atomic import atomic_path
+
+        self._stack = contextlib.ExitStack()
+        tmp = self._stack.enter_context(atomic_path(self.path, suffix=".pdf"))
+        self._pdf = self._stack.enter_context(PdfPages(tmp, metadata=self._meta))
+        return self
+
+    def add(self, fig: Figure) -> None:
+        """Append ``fig`` as the next page."""
+        self._pdf.savefig(fig)
+        self.pages += 1
+
+    def __exit__(self, *exc) -> bool:
+        return bool(self._stack.__exit__(*exc))
+
+
+# ---------------------------------------------------------------------------- maps
+def _fine_grid(hm, n_long: int = 160):
+    """The surface sampled on a fine regular grid (NaN outside the surveyed area)."""
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    lx, ly = max(xmax - xmin, 1e-9), max(ymax - ymin, 1e-9)
+    nx = n_long if lx >= ly else max(8, int(round(n_long * lx / ly)))
+    ny = n_long if ly > lx else max(8, int(round(n_long * ly / lx)))
+    xs = np.linspace(xmin, xmax, nx)
+    ys = np.linspace(ymin, ymax, ny)
+    X, Y = np.meshgrid(xs, ys)
+    Z = hm.sample(X, Y, method="linear")
+    return X, Y, Z
+
+
+def _deviation_um(hm, reference):
+    """Heights about a reference plane (any object with a_um, b_um_per_mm, c_um_per_mm), µm."""
+    if reference is None:
+        return np.asarray(hm.height_um, float)
+    plane = reference.a_um + reference.b_um_per_mm * hm.x_mm + reference.c_um_per_mm * hm.y_mm
+    return hm.height_um - plane
+
+
+def _levels(zmin: float, zmax: float, n: int = 12) -> np.ndarray:
+    if not np.isfinite(zmin) or not np.isfinite(zmax) or zmax - zmin < 1e-12:
+        c = 0.0 if not np.isfinite(zmin) else zmin
+        return np.array([c - 0.5, c + 0.5])
+    lev = MaxNLocator(nbins=n, steps=[1, 2, 2.5, 5, 10]).tick_values(zmin, zmax)
+    return lev
+
+
+def contour_map(
+    ax,
+    hm,
+    *,
+    reference=None,
+    units: str = "um",
+    show_stations: bool = True,
+    station_names: bool | None = None,
+    title: str | None = None,
+    colorbar: bool = True,
+):
+    """Filled contour map of a surface with stations and its high and low points.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+        Where to draw (2D axes).
+    hm : HeightMap
+        The surface; positions in mm, heights in µm.
+    reference : PlaneFit, optional
+        A plane ``a_um + b_um_per_mm*x + c_um_per_mm*y`` (µm) to subtract first,
+        e.g. the minimum-zone plane, so the map shows deviations from it.
+    units : {"um", "in"}
+        Display units: µm and mm, or µin and inches.
+    show_stations : bool
+        Mark the measured stations (small open circles).
+    station_names : bool, optional
+        Write station names beside the marks (default: when there are at most 40).
+    title : str, optional
+        Axes title.
+    colorbar : bool
+        Draw a colour bar labelled with the height unit.
+
+    Returns
+    -------
+    Axes
+        ``ax``. The high and low points are annotated with their values in the
+        display unit (the annotations carry ``gid`` "high" and "low").
+    """
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    dev_um = _deviation_um(hm, reference)
+    shown = hm.with_heights(dev_um)
+    X, Y, Z = _fine_grid(shown)
+    Zd = Z * hs
+    zmin, zmax = float(np.min(dev_um) * hs), float(np.max(dev_um) * hs)
+    lev = _levels(zmin, zmax)
+    Zm = np.ma.masked_invalid(Zd)
+    cf = ax.contourf(X * ps, Y * ps, Zm, levels=lev, cmap=HEIGHT_CMAP, extend="neither")
+    cs = ax.contour(X * ps, Y * ps, Zm, levels=lev, colors=_INK, linewidths=0.45, alpha=0.8)
+    if len(lev) > 2:
+        ax.clabel(cs, levels=cs.levels[::2], fmt=lambda v: f"{v:g}", fontsize=6, inline=True, inline_spacing=2)
+    if colorbar:
+        cb = ax.figure.colorbar(cf, ax=ax, shrink=0.9, pad=0.02)
+        cb.set_label(f"height ({hu})" if reference is None else f"deviation from reference plane ({hu})")
+    if show_stations:
+        ax.plot(hm.x_mm * ps, hm.y_mm * ps, "o", ms=3, mfc="white", mec=_INK, mew=0.6, ls="none", zorder=4)
+        if station_names is None:
+            station_names = hm.names is not None and hm.n <= 40
+        if station_names and hm.names is not None:
+            for x, y, s in zip(hm.x_mm, hm.y_mm, hm.names):
+                ax.annotate(s, (x * ps, y * ps), xytext=(3, 3), textcoords="offset points", fontsize=5.5,
+                            color=_INK, zorder=5)
+    ih, il = int(np.argmax(dev_um)), int(np.argmin(dev_um))
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    for i, tag, marker in ((ih, "high", "^"), (il, "low", "v")):
+        x, y, v = hm.x_mm[i] * ps, hm.y_mm[i] * ps, dev_um[i] * hs
+        # put the label on the side facing the middle of the surface so it is never clipped
+        fx = (hm.x_mm[i] - xmin) / max(xmax - xmin, 1e-9)
+        fy = (hm.y_mm[i] - ymin) / max(ymax - ymin, 1e-9)
+        ha = "left" if fx < 0.25 else "right" if fx > 0.75 else "center"
+        va = "bottom" if fy < 0.5 else "top"
+        dx = 6 if ha == "left" else -6 if ha == "right" else 0
+        dy = 9 if va == "bottom" else -9
+        ax.plot([x], [y], marker, ms=8, mfc="white", mec=_INK, mew=1.2, zorder=6)
+        ann = ax.annotate(
+            f"{tag} {_fmt(v, hu)}",
+            (x, y),
+            xytext=(dx, dy),
+            textcoords="offset points",
+            ha=ha,
+            va=va,
+            fontsize=7.5,
+            fontweight="bold",
+            color=_INK,
+            bbox=dict(boxstyle="round,pad=0.2", fc="white", ec=_INK, lw=0.5, alpha=0.9),
+            zorder=7,
+            annotation_clip=False,
+        )
+        ann.set_gid(tag)
+    if hm.length_mm and hm.width_mm:
+        L, W = hm.length_mm * ps, hm.width_mm * ps
+        ax.plot([0, L, L, 0, 0], [0, 0, W, W, 0], color=_INK, lw=1.0)
+        pad = 0.03 * max(L, W)
+        ax.set_xlim(-pad, L + pad)
+        ax.set_ylim(-pad, W + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel(f"x, along the length ({pu})")
+    ax.set_ylabel(f"y, across ({pu})")
+    if title:
+        ax.set_title(title, fontsize=10, loc="left")
+    return ax
+
+
+def surface_view(ax3d, hm, *, reference=None, units: str = "um", title: str | None = None):
+    """Three-dimensional view of the surface (heights greatly exaggerated).
+
+    Parameters
+    ----------
+    ax3d : matplotlib 3D Axes
+        Axes created with ``projection="3d"``.
+    hm : HeightMap
+        Positions in mm, heights in µm.
+    reference : PlaneFit, optional
+        Plane (µm) subtracted before drawing.
+    units : {"um", "in"}
+        Display units.
+
+    Returns
+    -------
+    Axes3D
+        ``ax3d``.
+    """
+    if getattr(ax3d, "name", "") != "3d":
+        raise InputValueError("surface_view needs 3D axes", fix="create them with projection='3d'")
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    shown = hm.with_heights(_deviation_um(hm, reference))
+    X, Y, Z = _fine_grid(shown, n_long=60)
+    Zd = np.ma.masked_invalid(Z * hs)
+    ax3d.plot_surface(X * ps, Y * ps, Zd, cmap=HEIGHT_CMAP, rstride=1, cstride=1, linewidth=0.15,
+                      edgecolor=(0.1, 0.1, 0.1, 0.25), antialiased=True)
+    ax3d.scatter(hm.x_mm * ps, hm.y_mm * ps, shown.height_um * hs, s=4, c=_INK, depthshade=False)
+    lx = np.ptp(X) or 1.0
+    ly = np.ptp(Y) or 1.0
+    ax3d.set_box_aspect((lx, ly, 0.35 * max(lx, ly)))
+    ax3d.set_xlabel(f"x ({pu})", labelpad=2)
+    ax3d.set_ylabel(f"y ({pu})", labelpad=2)
+    ax3d.set_zlabel(f"height ({hu})", labelpad=4)
+    ax3d.tick_params(labelsize=6, pad=0)
+    ax3d.view_init(elev=28, azim=-58)
+    if title:
+        ax3d.set_title(title, fontsize=10, loc="left")
+    return ax3d
+
+
+# ---------------------------------------------------------------------------- line profiles
+@dataclass(frozen=True)
+class LineProfile:
+    """A measured line's heights and its straightness, ready to draw.
+
+    Attributes
+    ----------
+    name : str
+        Line name.
+    s_mm : ndarray, shape (k,)
+        Distance along the line from its first station, mm.
+    height_um : ndarray, shape (k,)
+        Heights of the stations, µm (in the map's datum).
+    straightness_um : float
+        Straightness (width of the zone between two parallel lines), µm.
+    ref_offset_um, ref_slope_um_per_mm : float
+        The reference line of the straightness ``offset + slope*s`` (µm); the
+        profile is drawn as deviations from it.
+    method : str
+        Name of the reference ("minimum zone", "least squares").
+    uncertainty_um : float or None
+        Expanded uncertainty of the straightness, µm (k = 2), when known.
+    """
+
+    name: str
+    s_mm: np.ndarray
+    height_um: np.ndarray
+    straightness_um: float
+    ref_offset_um: float = 0.0
+    ref_slope_um_per_mm: float = 0.0
+    method: str = "minimum zone"
+    uncertainty_um: float | None = None
+
+    def deviation_um(self) -> np.ndarray:
+        """Heights minus the reference line, µm, shape (k,)."""
+        s = np.asarray(self.s_mm, float)
+        return np.asarray(self.height_um, float) - (self.ref_offset_um + self.ref_slope_um_per_mm * s)
+
+
+def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: str | None = None):
+    """One small panel per measured line: deviation from its reference line and its straightness.
+
+    Each panel draws the stations, the zone of the straightness (two parallel
+    lines bounding the deviations, shaded) and states the straightness in its
+    title. All panels share one height scale so lines can be compared.
+
+    Parameters
+    ----------
+    fig : matplotlib Figure
+        An empty figure (or subfigure) to fill.
+    profiles : sequence of LineProfile
+        The lines, drawn in order.
+    units : {"um", "in"}
+        Display units.
+    ncols : int
+        Panels per row.
+
+    Returns
+    -------
+    list of Axes
+        One per profile.
+    """
+    profiles = list(profiles)
+    if not profiles:
+        raise InputValueError("no line profiles to draw", fix="give at least one measured line")
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    nrows = int(np.ceil(len(profiles) / ncols))
+    devs = [p.deviation_um() * hs for p in profiles]
+    lo = min(float(d.min()) for d in devs)
+    hi = max(float(d.max()) for d in devs)
+    span = max(hi - lo, 1e-9)
+    axes = fig.subplots(nrows, ncols, squeeze=False, sharex=False,
+                        gridspec_kw=dict(hspace=0.55, wspace=0.22, left=0.09, right=0.97, top=0.9, bottom=0.07))
+    out = []
+    for k, ax in enumerate(axes.ravel()):
+        if k >= len(profiles):
+            ax.set_visible(False)
+            continue
+        p, d = profiles[k], devs[k]
+        s = np.asarray(p.s_mm, float) * ps
+        ax.fill_between(s, d.min(), d.max(), color="0.88", lw=0, zorder=0)
+        ax.axhline(d.min(), color=_INK, lw=0.6, ls="--")
+        ax.axhline(d.max(), color=_INK, lw=0.6, ls="--")
+        ax.plot(s, d, "-", color=_INK, lw=1.0)
+        ax.plot(s, d, "o", ms=3, mfc="white", mec=_INK, mew=0.7)
+        unc = "" if p.uncertainty_um is None else f" ± {_fmt_abs(p.uncertainty_um * hs, hu)}"
+        ax.set_title(f"{p.name}: straightness {_fmt_abs(p.straightness_um * hs, hu)}{unc}", fontsize=8, loc="left")
+        ax.set_ylim(lo - 0.12 * span, hi + 0.12 * span)
+        ax.tick_params(labelsize=7)
+        ax.grid(True, lw=0.3, color="0.75")
+        if k % ncols == 0:
+            ax.set_ylabel(f"deviation ({hu})", fontsize=7)
+        if k + ncols >= len(profiles):
+            ax.set_xlabel(f"along the line ({pu})", fontsize=7)
+        out.append(ax)
+    if title:
+        fig.suptitle(title, fontsize=11, x=0.02, ha="left")
+    return out
+
+
+# ---------------------------------------------------------------------------- survey layout
+def survey_layout(
+    ax,
+    stations_xy_mm,
+    lines,
+    *,
+    length_mm: float | None = None,
+    width_mm: float | None = None,
+    closures=(),
+    line_notes=None,
+    units: str = "um",
+    title: str | None = None,
+):
+    """The survey's lines on the surface, with closure errors written where they close.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+    stations_xy_mm : ndarray, shape (n, 2)
+        Station positions in mm.
+    lines : sequence of (str, ndarray of int)
+        Each line's name and the indices of its stations in order.
+    length_mm, width_mm : float, optional
+        Outline of the surface in mm.
+    closures : sequence of (str, float, float, float)
+        ``(label, x_mm, y_mm, closure_um)``: a closure error (µm) and where it is
+        written (e.g. the centre station for the two centre lines).
+    line_notes : dict of str -> str, optional
+        Short text written at each line's midpoint (e.g. its RMS residual).
+    units : {"um", "in"}
+
+    Returns
+    -------
+    Axes
+        ``ax``.
+    """
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    xy = np.asarray(stations_xy_mm, float) * ps
+    if length_mm and width_mm:
+        L, W = length_mm * ps, width_mm * ps
+        ax.add_patch(Rectangle((0, 0), L, W, fc="0.95", ec=_INK, lw=1.0, zorder=0))
+        pad = 0.04 * max(L, W)
+        ax.set_xlim(-pad, L + pad)
+        ax.set_ylim(-pad, W + pad)
+    dash = ["-", "--", "-.", ":"]
+    for k, (name, idx) in enumerate(lines):
+        idx = np.asarray(idx, int)
+        p = xy[idx]
+        ax.plot(p[:, 0], p[:, 1], dash[k % len(dash)], color=_INK, lw=1.0, zorder=2)
+        ax.annotate("", xy=p[-1], xytext=p[-2], arrowprops=dict(arrowstyle="-|>", color=_INK, lw=1.0), zorder=3)
+        mid = p[len(p) // 2] if len(p) % 2 else 0.5 * (p[len(p) // 2 - 1] + p[len(p) // 2])
+        note = name if not line_notes or name not in line_notes else f"{name}\n{line_notes[name]}"
+        d = p[-1] - p[0]
+        ang = float(np.degrees(np.arctan2(d[1], d[0])))
+        if ang > 90:
+            ang -= 180
+        if ang < -90:
+            ang += 180
+        ax.text(mid[0], mid[1], note, fontsize=6, rotation=ang, rotation_mode="anchor", ha="center", va="bottom",
+                color=_INK, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.8), zorder=4)
+    ax.plot(xy[:, 0], xy[:, 1], "o", ms=2.5, mfc="white", mec=_INK, mew=0.6, ls="none", zorder=5)
+    for label, x, y, c_um in closures:
+        ax.annotate(
+            f"{label}\nclosure {_fmt(c_um * hs, hu)}",
+            (x * ps, y * ps),
+            xytext=(10, -14),
+            textcoords="offset points",
+            fontsize=7,
+            color=_ACCENT,
+            fontweight="bold",
+            arrowprops=dict(arrowstyle="-", color=_ACCENT, lw=0.8),
+            bbox=dict(boxstyle="round,pad=0.25", fc="white", ec=_ACCENT, lw=0.6),
+            zorder=8,
+        )
+    ax.set_aspect("equal")
+    ax.set_xlabel(f"x ({pu})")
+    ax.set_ylabel(f"y ({pu})")
+    if title:
+        ax.set_title(title, fontsize=10, loc="left")
+    return ax
+
+
+# ---------------------------------------------------------------------------- derived fields
+def field_map(ax, x_mm, y_mm, values, *, label: str, cmap: str = FIELD_CMAP, units: str = "um",
+              limit=None, title: str | None = None, scale: float = 1.0):
+    """Filled map of a derived field on a regular grid, with labelled contours.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+    x_mm : ndarray, shape (nx,)
+        Grid x positions, mm.
+    y_mm : ndarray, shape (ny,)
+        Grid y positions, mm.
+    values : ndarray, shape (ny, nx)
+        Field values already in the unit named by ``label`` (NaN = no value).
+    label : str
+        Colour-bar label including the unit, e.g. "local flatness (µm)".
+    limit : float, optional
+        A tolerance in the same unit: drawn as a thick accent contour and
+        hatched where exceeded.
+    scale : float
+        Factor applied to ``values`` and ``limit`` before drawing (unit change).
+
+    Returns
+    -------
+    Axes
+        ``ax``.
+    """
+    ps, pu = _pos_scale(units)
+    V = np.ma.masked_invalid(np.asarray(values, float) * scale)
+    x = np.asarray(x_mm, float) * ps
+    y = np.asarray(y_mm, float) * ps
+    if V.shape != (y.size, x.size):
+        raise InputValueError(f"field of shape {V.shape} does not match the grid ({y.size}, {x.size})",
+                              fix="give values[j, i] at (x[i], y[j])")
+    if V.count() == 0:
+        raise InputValueError("the field has no finite values", fix="check the window size against the surface")
+    lev = _levels(float(V.min()), float(V.max()), 10)
+    if x.size >= 2 and y.size >= 2:
+        cf = ax.contourf(x, y, V, levels=lev, cmap=cmap)
+        cs = ax.contour(x, y, V, levels=lev, colors=_INK, linewidths=0.4, alpha=0.7)
+        if len(lev) > 2:
+            ax.clabel(cs, levels=cs.levels[::2], fmt=lambda v: f"{v:g}", fontsize=6)
+    else:
+        cf = ax.pcolormesh(x, y, V, cmap=cmap)
+    cb = ax.figure.colorbar(cf, ax=ax, shrink=0.9, pad=0.02)
+    cb.set_label(label)
+    if limit is not None and x.size >= 2 and y.size >= 2:
+        lim = float(limit) * scale
+        if float(V.max()) > lim:
+            ax.contourf(x, y, V, levels=[lim, float(V.max()) + 1e-9], colors="none", hatches=["////"])
+            ax.contour(x, y, V, levels=[lim], colors=_ACCENT, linewidths=1.6)
+        cb.ax.axhline(lim, color=_ACCENT, lw=2)
+    ax.set_aspect("equal")
+    ax.set_xlabel(f"x ({pu})")
+    ax.set_ylabel(f"y ({pu})")
+    if title:
+        ax.set_title(title, fontsize=10, loc="left")
+    return ax
+
+
+def local_flatness_map(ax, x_mm, y_mm, local_um, *, window_mm: float, limit_um=None, units: str = "um",
+                       title: str | None = None):
+    """Map of local flatness (flatness within a moving window centred at each node).
+
+    ``local_um`` has shape (ny, nx) in µm at the window centres ``x_mm`` (nx,)
+    and ``y_mm`` (ny,); ``window_mm`` is the window's side in mm; ``limit_um``
+    an optional local tolerance (µm) drawn and hatched where exceeded.
+    """
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    if title is None:
+        title = f"local flatness in a {window_mm * ps:g} {pu} window"
+    return field_map(ax, x_mm, y_mm, local_um, label=f"local flatness ({hu})", cmap=FIELD_CMAP, units=units,
+                     limit=limit_um, title=title, scale=hs)
+
+
+def removal_map(ax, x_mm, y_mm, removal_um, *, units: str = "um", title: str | None = "planned removal"):
+    """Map of the material to remove by lapping, µm on a (ny, nx) grid."""
+    hs, hu = _height_scale(units)
+    return field_map(ax, x_mm, y_mm, removal_um, label=f"removal ({hu})", cmap=HEIGHT_CMAP, units=units,
+                     title=title, scale=hs)
+
+
+def dwell_map(ax, x_mm, y_mm, dwell, *, dwell_unit: str = "s", units: str = "um", title: str | None = "dwell"):
+    """Map of the lap's dwell (time or passes per area) on a (ny, nx) grid, in ``dwell_unit``."""
+    return field_map(ax, x_mm, y_mm, dwell, label=f"dwell ({dwell_unit})", cmap=FIELD_CMAP, units=units,
+                     title=title)
+
+
+# ---------------------------------------------------------------------------- carriage
+def carriage_path(
+    fig,
+    travel_mm,
+    rail_um,
+    carriage_um,
+    *,
+    pitch_urad=None,
+    local_um=None,
+    local_limit_um=None,
+    local_window_mm=None,
+    units: str = "um",
+    title: str | None = None,
+):
+    """The rail profile beside the carriage's path over the travel, and local flatness along it.
+
+    Parameters
+    ----------
+    fig : matplotlib Figure
+        An empty figure (or subfigure) to fill.
+    travel_mm : ndarray, shape (m,)
+        Carriage position along the travel, mm.
+    rail_um : ndarray, shape (m,)
+        Raw profile of the guideway under the carriage's centre, µm.
+    carriage_um : ndarray, shape (m,)
+        Height of the carriage's reference point over the travel, µm.
+    pitch_urad : ndarray, shape (m,), optional
+        Carriage pitch, µrad (drawn on a second axis).
+    local_um : ndarray, shape (m,), optional
+        Local flatness along the travel (µm), e.g. under the pad footprint.
+    local_limit_um : float, optional
+        Its limit, drawn as an accent line.
+
+    Returns
+    -------
+    list of Axes
+    """
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    t = np.asarray(travel_mm, float) * ps
+    n = 2 if local_um is not None else 1
+    axes = fig.subplots(n, 1, sharex=True, squeeze=False)[:, 0]
+    ax = axes[0]
+    ax.plot(t, np.asarray(rail_um, float) * hs, color="0.55", lw=1.0, label="guideway profile (raw)")
+    ax.plot(t, np.asarray(carriage_um, float) * hs, color=_INK, lw=1.8, label="carriage path")
+    ax.set_ylabel(f"height ({hu})")
+    ax.grid(True, lw=0.3, color="0.8")
+    handles, labels = ax.get_legend_handles_labels()
+    if pitch_urad is not None:
+        ax2 = ax.twinx()
+        ax2.plot(t, np.asarray(pitch_urad, float), color=_ACCENT, lw=0.9, ls="--", label="carriage pitch")
+        ax2.set_ylabel("pitch (µrad)", color=_ACCENT)
+        h2, l2 = ax2.get_legend_handles_labels()
+        handles += h2
+        labels += l2
+    ax.legend(handles, labels, fontsize=7, loc="best", framealpha=0.9)
+    if local_um is not None:
+        a = axes[1]
+        a.plot(t, np.asarray(local_um, float) * hs, color=_INK, lw=1.2)
+        if local_limit_um is not None:
+            a.axhline(local_limit_um * hs, color=_ACCENT, lw=1.4, ls="--", label="limit")
+            a.legend(fontsize=7, loc="best")
+        w = "" if local_window_mm is None else f" over {local_window_mm * ps:g} {pu}"
+        a.set_ylabel(f"local flatness{w} ({hu})", fontsize=8)
+        a.grid(True, lw=0.3, color="0.8")
+    axes[-1].set_xlabel(f"carriage position along the travel ({pu})")
+    if title:
+        axes[0].set_title(title, fontsize=10, loc="left")
+    return list(axes)
+
+
+def residual_histogram(ax, residual_um, *, units: str = "um", title: str | None = "reduction residuals"):
+    """Histogram of the reduction's residuals (µm) with their RMS marked."""
+    hs, hu = _height_scale(units)
+    r = np.asarray(residual_um, float).ravel() * hs
+    r = r[np.isfinite(r)]
+    if r.size == 0:
+        raise InputValueError("no residuals to draw", fix="reduce a survey with redundant readings")
+    rms = float(np.sqrt(np.mean(r**2)))
+    ax.hist(r, bins=max(5, min(30, r.size // 3)), color="0.6", ec=_INK, lw=0.5)
+    for s in (-rms, rms):
+        ax.axvline(s, color=_ACCENT, lw=1.0, ls="--")
+    ax.set_xlabel(f"residual ({hu})")
+    ax.set_ylabel("readings")
+    ax.text(0.98, 0.95, f"RMS {_fmt_abs(rms, hu)}\n{r.size} readings", transform=ax.transAxes, ha="right",
+            va="top", fontsize=7)
+    if title:
+        ax.set_title(title, fontsize=10, loc="left")
+    return ax
+
+
+# ---------------------------------------------------------------------------- text and tables
+def text_block(ax, lines, *, fontsize: float = 8.5, y0: float = 1.0, line_height: float | None = None,
+               wrap_chars: int = 100):
+    """Write paragraphs top-down in an axes with no frame; returns the y where writing stopped.
+
+    ``lines`` is a sequence of strings or ``(text, style)`` pairs with style one
+    of "h" (heading), "b" (bold), "s" (small) or "" (plain). Long lines are
+    wrapped at ``wrap_chars`` characters.
+    """
+    import textwrap
+
+    ax.set_axis_off()
+    lh = line_height if line_height is not None else fontsize * 1.45 / 72 / ax.get_position().height / ax.figure.get_figheight()
+    y = y0
+    for item in lines:
+        text, style = (item, "") if isinstance(item, str) else item
+        size = fontsize * (1.25 if style == "h" else 0.85 if style == "s" else 1.0)
+        weight = "bold" if style in ("h", "b") else "normal"
+        width = int(wrap_chars * fontsize / size)
+        parts = textwrap.wrap(text, width=width) or [""]
+        if style == "h":
+            y -= 0.4 * lh
+        for part in parts:
+            ax.text(0.0, y, part, transform=ax.transAxes, fontsize=size, fontweight=weight, va="top", ha="left",
+                    color=_INK)
+            y -= lh * size / fontsize
+    return y
+
+
+def table(ax, rows, *, col_labels, col_widths=None, fontsize: float = 8, title: str | None = None,
+          highlight_col: int | None = None):
+    """A plain ruled table filling ``ax`` (axes frame hidden).
+
+    ``rows`` is a sequence of equal-length sequences of strings. The table is
+    drawn top-aligned in the axes; returns the matplotlib Table.
+    """
+    ax.set_axis_off()
+    rows = [[str(c) for c in r] for r in rows]
+    if not rows:
+        rows = [["—"] * len(col_labels)]
+    tab = ax.table(cellText=rows, colLabels=list(col_labels), colWidths=col_widths, loc="upper left",
+                   cellLoc="left", colLoc="left", edges="horizontal")
+    tab.auto_set_font_size(False)
+    tab.set_fontsize(fontsize)
+    tab.scale(1.0, 1.35)
+    for (r, c), cell in tab.get_celld().items():
+        cell.set_edgecolor("0.6")
+        cell.set_linewidth(0.5)
+        if r == 0:
+            cell.set_text_props(fontweight="bold")
+            cell.set_facecolor("0.92")
+        elif highlight_col is not None and c == highlight_col:
+            cell.set_text_props(fontweight="bold")
+    if title:
+        ax.set_title(title, fontsize=10, loc="left", pad=4)
+    return tab
+
+
+def page_frame(fig, *, left_head: str, right_head: str, title: str, footer=(), page_text: str = "",
+               margin: float = 0.06):
+    """Header (running head, rule, page title) and footer (rule, small print, page number) of a report page.
+
+    Positions are fractions of the figure; the drawing area left free is
+    roughly ``margin`` to ``1 - margin`` across and 0.06 to 0.93 down.
+    """
+    fig.text(margin, 0.975, left_head, fontsize=8, fontweight="bold", va="top", color="0.25")
+    fig.text(1 - margin, 0.975, right_head, fontsize=8, va="top", ha="right", color="0.25")
+    fig.add_artist(Line2D([margin, 1 - margin], [0.963, 0.963], transform=fig.transFigure, color="0.3", lw=0.6))
+    fig.text(margin, 0.955, title, fontsize=14, fontweight="bold", va="top", color=_INK)
+    fig.add_artist(Line2D([margin, 1 - margin], [0.047, 0.047], transform=fig.transFigure, color="0.3", lw=0.6))
+    for k, ln in enumerate(footer):
+        fig.text(margin, 0.040 - 0.013 * k, ln, fontsize=6.5, va="top", color="0.3")
+    if page_text:
+        fig.text(1 - margin, 0.040, page_text, fontsize=8, va="top", ha="right", color=_INK)
+    return fig

@@ -1,0 +1,505 @@
+"""The PDF report: a calibration-style record of one surface as measured.
+
+Two steps, so that the numbers can be checked without drawing anything:
+
+1. :func:`analyse` runs the evaluations on a height map (and the survey and
+   reduction it came from, when there is one) and returns a frozen
+   :class:`ReportContent` with every number the report states.
+2. :func:`write_report` draws the pages from that content (through
+   :mod:`flatcheck.plot`, the only module that imports matplotlib) and writes
+   the PDF atomically, optionally with each picture as a PNG file.
+
+Neither step prints or reads files; :func:`write_report` writes only the files
+it is asked to write.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputValueError, OutputError
+from .flatness import least_squares_plane, minimum_zone
+from .heightmap import HeightMap
+
+__all__ = ["LineResult", "GradeRow", "ReportContent", "ReportFiles", "analyse", "write_report", "page_titles"]
+
+#: Statement printed on every report (the scope of the results).
+SCOPE_STATEMENT = (
+    "These results describe the surface only as it was when and where it was measured, supported as stated, "
+    "with the instrument and method named here; they say nothing of the surface at other times, on other "
+    "supports or at other temperatures."
+)
+
+
+@dataclass(frozen=True)
+class LineResult:
+    """One measured line: where its stations are and its straightness.
+
+    Attributes
+    ----------
+    name : str
+    s_mm : ndarray, shape (k,)
+        Distance along the line from its first station, mm.
+    height_um : ndarray, shape (k,)
+        Station heights from the height map, µm.
+    straightness_um : float
+        Minimum-zone straightness, µm.
+    ref_offset_um, ref_slope_um_per_mm : float
+        Reference line of the straightness (µm, µm/mm).
+    rms_residual_um : float or None
+        RMS of the reduction residuals of this line's readings, µm.
+    """
+
+    name: str
+    s_mm: np.ndarray
+    height_um: np.ndarray
+    straightness_um: float
+    ref_offset_um: float
+    ref_slope_um_per_mm: float
+    rms_residual_um: float | None = None
+
+
+@dataclass(frozen=True)
+class GradeRow:
+    """One grade verdict as the report states it (all heights in µm)."""
+
+    standard: str
+    grade: str
+    tolerance_um: float
+    verdict: str
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class ReportContent:
+    """Everything the report states, computed by :func:`analyse` (heights µm, positions mm).
+
+    Attributes
+    ----------
+    heightmap : HeightMap
+        The evaluated surface.
+    identity : tuple of (str, str)
+        Rows describing the surface (what, identity, size, material).
+    method : tuple of (str, str)
+        Rows describing the instrument, layout and reduction.
+    mz, ls : PlaneFit
+        Minimum-zone and least-squares reference planes and flatness (µm).
+    u_mz_um, u_ls_um : float or None
+        Expanded uncertainties (k = 2 or 95 % coverage) of the two flatness values, µm.
+    uncertainty_note : str
+        How the uncertainty was obtained (or why it is missing).
+    lines : tuple of LineResult
+        The measured lines (or grid rows/columns for a height map).
+    closures : tuple of (str, float, float, float)
+        ``(label, x_mm, y_mm, closure_um)``.
+    residual_um : ndarray or None
+        Reduction residuals of every reading, µm.
+    grades : tuple of GradeRow
+    decision_rule : str
+    local : object or None
+        Local-flatness result (grid of window centres and values).
+    bearing : object or None
+        Bearing verdict and carriage path.
+    lapping : object or None
+        Lapping plan.
+    notes : tuple of str
+        Warnings and remarks stated in the report.
+    date : str
+        Measurement date (or "not stated").
+    issued : str
+        Date the report was made (ISO 8601).
+    sources : tuple of str
+        References of the methods used.
+    """
+
+    heightmap: HeightMap
+    identity: tuple
+    method: tuple
+    mz: object
+    ls: object
+    u_mz_um: float | None = None
+    u_ls_um: float | None = None
+    uncertainty_note: str = ""
+    lines: tuple = ()
+    closures: tuple = ()
+    residual_um: np.ndarray | None = None
+    survey: object | None = None
+    grades: tuple = ()
+    decision_rule: str = ""
+    local: object | None = None
+    bearing: object | None = None
+    lapping: object | None = None
+    notes: tuple = ()
+    date: str = "not stated"
+    issued: str = ""
+    sources: tuple = ()
+    extra: dict = field(default_factory=dict, compare=False)
+
+
+@dataclass(frozen=True)
+class ReportFiles:
+    """What :func:`write_report` wrote: the PDF, its page count and the PNG pictures."""
+
+    pdf: Path
+    pages: int
+    pngs: tuple = ()
+
+
+# =============================================================================== analysis
+def _straightness_1d(s_mm, h_um):
+    """Minimum-zone straightness of a profile and its reference line: (width_um, offset_um, slope_um_per_mm).
+
+    Chebyshev line fit by a linear program (scipy HiGHS): minimise t subject to
+    0 <= h - (a + b s) <= t, the definition of the minimum-zone straightness
+    (two parallel lines, vertical separation, ISO 12780-1 terms).
+    """
+    from scipy.optimize import linprog
+
+    s = np.asarray(s_mm, float)
+    h = np.asarray(h_um, float)
+    if s.size < 3:
+        return 0.0, float(h[0]) if h.size else 0.0, float((h[-1] - h[0]) / (s[-1] - s[0])) if s.size == 2 else 0.0
+    sc = s - s.mean()
+    A = np.column_stack([np.ones_like(sc), sc])
+    n = s.size
+    A_ub = np.vstack([np.column_stack([A, np.zeros(n)]), np.column_stack([-A, -np.ones(n)])])
+    b_ub = np.concatenate([h, -h])
+    res = linprog([0, 0, 1], A_ub=A_ub, b_ub=b_ub, bounds=[(None, None)] * 3, method="highs")
+    a, b, t = res.x
+    return float(t), float(a - b * s.mean()), float(b)
+
+
+def _lines_from_survey(hm: HeightMap, survey) -> list:
+    index = {name: i for i, name in enumerate(hm.names or ())}
+    out = []
+    for ln in survey.lines:
+        idx = [index.get(s) for s in ln.stations]
+        if any(i is None for i in idx):
+            continue
+        idx = np.asarray(idx, int)
+        x, y, h = hm.x_mm[idx], hm.y_mm[idx], hm.height_um[idx]
+        s = np.concatenate([[0.0], np.cumsum(np.hypot(np.diff(x), np.diff(y)))])
+        out.append((ln.name, s, h))
+    return out
+
+
+def _lines_from_grid(hm: HeightMap, max_lines: int = 8) -> list:
+    g = hm.grid
+    if g is None:
+        return []
+    xs, ys, index = g
+    out = []
+    rows = np.unique(np.linspace(0, ys.size - 1, min(ys.size, max_lines - 2)).round().astype(int))
+    for j in rows:
+        idx = index[j]
+        out.append((f"y = {ys[j]:g} mm", xs - xs[0], hm.height_um[idx]))
+    for i in np.unique([0, xs.size // 2]):
+        idx = index[:, i]
+        out.append((f"x = {xs[i]:g} mm", ys - ys[0], hm.height_um[idx]))
+    return out
+
+
+def analyse(
+    hm: HeightMap,
+    *,
+    survey=None,
+    reduction=None,
+    notes=(),
+    today: _dt.date | None = None,
+) -> ReportContent:
+    """Evaluate a surface for the report.
+
+    Parameters
+    ----------
+    hm : HeightMap
+        The surface (positions mm, heights µm).
+    survey : Survey, optional
+        The survey the map was reduced from (identity, instrument, lines).
+    reduction : Reduction, optional
+        The reduction result (closures, residuals).
+    notes : sequence of str
+        Remarks to state in the report.
+    today : date, optional
+        Issue date (default: today).
+
+    Returns
+    -------
+    ReportContent
+    """
+    if hm.n < 3:
+        raise InputValueError("a report needs at least three points", fix="measure more stations")
+    mz = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
+    ls = least_squares_plane(hm.x_mm, hm.y_mm, hm.height_um)
+    identity, method = _identity_rows(hm, survey, reduction)
+    raw = _lines_from_survey(hm, survey) if survey is not None else _lines_from_grid(hm)
+    lines = []
+    for name, s, h in raw:
+        t, a, b = _straightness_1d(s, h)
+        lines.append(LineResult(name, s, h, t, a, b))
+    issued = (today or _dt.date.today()).isoformat()
+    date = survey.date if survey is not None and survey.date else "not stated"
+    return ReportContent(
+        heightmap=hm,
+        identity=tuple(identity),
+        method=tuple(method),
+        mz=mz,
+        ls=ls,
+        uncertainty_note="no uncertainty evaluation available for this input",
+        lines=tuple(lines),
+        survey=survey,
+        notes=tuple(notes),
+        date=date,
+        issued=issued,
+        sources=_SOURCES,
+    )
+
+
+def _size_text(length_mm, width_mm) -> str:
+    if not length_mm or not width_mm:
+        return "not stated"
+    return f"{length_mm:g} x {width_mm:g} mm"
+
+
+def _identity_rows(hm, survey, reduction):
+    if survey is not None:
+        sf = survey.surface
+        identity = [
+            ("surface", sf.description or hm.label or "not stated"),
+            ("identity", sf.ident or "not stated"),
+            ("size (length x width)", _size_text(sf.length_mm, sf.width_mm)),
+            ("material", sf.material or "not stated"),
+            ("measured on", survey.date or "not stated"),
+            ("temperature", "not stated" if survey.temperature_c is None else f"{survey.temperature_c:g} °C"),
+            ("operator", survey.operator or "not stated"),
+        ]
+        inst = survey.instrument
+        method = [
+            ("instrument", f"{inst.kind}{' ' + inst.model if inst.model else ''}, read in {inst.unit}"),
+            ("reference", "gravity (one zero for all lines)" if inst.gravity_referenced else
+             "optical, re-aimed per line" if inst.kind == "autocollimator" else "common datum"),
+            ("layout", f"{survey.pattern}: {len(survey.stations)} stations on {len(survey.lines)} lines"),
+            ("foot spacing", ", ".join(sorted({f"{ln.foot_spacing_mm:g} mm" for ln in survey.lines}))),
+            ("reduction", getattr(reduction, "method", None) or "least-squares network adjustment"),
+            ("source file", survey.source or "not stated"),
+        ]
+    else:
+        identity = [
+            ("surface", hm.label or "height map"),
+            ("size (length x width)", _size_text(hm.length_mm, hm.width_mm)),
+            ("points", f"{hm.n}"),
+        ]
+        g = hm.grid
+        method = [
+            ("input", "height map (positions in mm, heights in µm)"),
+            ("layout", "regular grid" if g is not None else "scattered points"),
+        ]
+    return identity, method
+
+
+# =============================================================================== sources
+_SOURCES = (
+    "Minimum zone and least-squares reference planes: ISO 12781-1:2011 (flatness terms and parameters).",
+    "Straightness of lines: ISO 12780-1:2011 (straightness terms), minimum-zone reference line.",
+    "Union Jack layout and closure errors: J. C. Moody, 'How to calibrate surface plates in the plant', "
+    "The Tool Engineer, Oct. 1955.",
+    "Least-squares network reduction: 'Moody revisited: least-squares solutions of the Union Jack surface plate "
+    "measurement method', Metrology 6(2) 27 (2026), doi:10.3390/metrology6020027.",
+    "Uncertainty by Monte Carlo propagation: JCGM 101:2008 (Supplement 1 to the GUM).",
+    "Decision rules: ISO 14253-1:2017 (conformity with specifications, guard bands).",
+    "Granite plate grades: DIN 876-1:1984; ISO 8512-2:1990; ASME B89.3.7-2013 (formerly Fed. Spec. GGG-P-463c).",
+)
+
+
+# =============================================================================== drawing
+def page_titles(content: ReportContent) -> list:
+    """Titles of the pages :func:`write_report` makes for ``content``, in order."""
+    return [title for title, _ in _page_plan(content)]
+
+
+def _page_plan(content):
+    plan = [("Summary", _page_summary), ("Surface map", _page_map)]
+    per_page = 8
+    for k in range(0, len(content.lines), per_page):
+        chunk = content.lines[k : k + per_page]
+        plan.append((f"Line profiles ({k + 1}-{k + len(chunk)} of {len(content.lines)})",
+                     lambda fig, c, u, chunk=chunk: _page_profiles(fig, c, u, chunk)))
+    if content.survey is not None:
+        plan.append(("Survey layout and closure", _page_layout))
+    plan.append(("Methods, sources and cautions", _page_sources))
+    return plan
+
+
+def _frame(fig, content, title, page, pages):
+    """Header and footer drawn on every page."""
+    from . import plot
+
+    hm = content.heightmap
+    ident = dict(content.identity).get("identity", "")
+    head = hm.label if not ident or ident == "not stated" else f"{hm.label} · {ident}"
+    plot.page_frame(
+        fig,
+        left_head="FLATNESS REPORT",
+        right_head=head,
+        title=title,
+        footer=(
+            "Results apply to the surface as measured; see the statement on page 1.",
+            f"measured {content.date} · report issued {content.issued} · flatcheck",
+        ),
+        page_text=f"page {page} of {pages}",
+    )
+
+
+def _h(v_um, units):
+    from .units import UM_PER_UIN
+
+    if units == "in":
+        return f"{v_um / UM_PER_UIN:.1f} µin"
+    return f"{v_um:.3f} µm"
+
+
+def _page_summary(fig, c, units):
+    from . import plot
+
+    ax = fig.add_axes([0.06, 0.70, 0.88, 0.22])
+    plot.table(ax, list(c.identity), col_labels=("surface", ""), col_widths=[0.3, 0.7], title="What was measured")
+    ax = fig.add_axes([0.06, 0.50, 0.88, 0.17])
+    plot.table(ax, list(c.method), col_labels=("method", ""), col_widths=[0.3, 0.7], title="How it was measured")
+    rows = [
+        ("minimum zone (MZ)", _h(c.mz.flatness_um, units),
+         "not evaluated" if c.u_mz_um is None else _h(c.u_mz_um, units)),
+        ("least squares (LS), peak to valley", _h(c.ls.flatness_um, units),
+         "not evaluated" if c.u_ls_um is None else _h(c.u_ls_um, units)),
+    ]
+    for label, x, y, v in c.closures:
+        rows.append((f"closure {label}", _h(v, units), ""))
+    ax = fig.add_axes([0.06, 0.30, 0.88, 0.17])
+    plot.table(ax, rows, col_labels=("flatness", "value", "expanded uncertainty"), col_widths=[0.45, 0.25, 0.30],
+               title="Results", highlight_col=1)
+    lines = []
+    if c.uncertainty_note:
+        lines.append(("Uncertainty: " + c.uncertainty_note, "s"))
+    if c.grades:
+        for g in c.grades:
+            lines.append((f"{g.standard} grade {g.grade} (tolerance {_h(g.tolerance_um, units)}): {g.verdict}", "b"))
+        if c.decision_rule:
+            lines.append(("Decision rule: " + c.decision_rule, "s"))
+    for n in c.notes:
+        lines.append(("Note: " + n, "s"))
+    lines.append(("Statement", "h"))
+    lines.append(SCOPE_STATEMENT)
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.22])
+    plot.text_block(ax, lines, fontsize=8.5, wrap_chars=110)
+
+
+def _page_map(fig, c, units):
+    from . import plot
+
+    ax = fig.add_axes([0.09, 0.50, 0.80, 0.40])
+    plot.contour_map(ax, c.heightmap, reference=c.mz, units=units,
+                     title="deviation from the minimum-zone plane (open circles: stations)")
+    ax3 = fig.add_axes([0.06, 0.07, 0.88, 0.40], projection="3d")
+    plot.surface_view(ax3, c.heightmap, reference=c.mz, units=units,
+                      title="the same surface in three dimensions (heights exaggerated)")
+
+
+def _page_profiles(fig, c, units, chunk):
+    from . import plot
+
+    profs = [
+        plot.LineProfile(ln.name, ln.s_mm, ln.height_um, ln.straightness_um, ln.ref_offset_um, ln.ref_slope_um_per_mm)
+        for ln in chunk
+    ]
+    sub = fig.add_subfigure(fig.add_gridspec(1, 1, left=0.06, right=0.94, top=0.92, bottom=0.06)[0, 0])
+    plot.line_profiles(sub, profs, units=units)
+
+
+def _page_layout(fig, c, units):
+    from . import plot
+
+    sv = c.survey
+    hm = c.heightmap
+    index = {s.name: i for i, s in enumerate(sv.stations)}
+    lines = [(ln.name, np.array([index[s] for s in ln.stations])) for ln in sv.lines]
+    notes = {ln.name: f"{ln.rms_residual_um:.3f} µm rms" for ln in c.lines if ln.rms_residual_um is not None}
+    ax = fig.add_axes([0.08, 0.50, 0.86, 0.40])
+    plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, length_mm=sv.surface.length_mm,
+                       width_mm=sv.surface.width_mm, closures=c.closures, line_notes=notes, units=units,
+                       title="lines walked (arrow: direction of the first run)")
+    if c.residual_um is not None and np.size(c.residual_um):
+        ax = fig.add_axes([0.10, 0.10, 0.80, 0.30])
+        plot.residual_histogram(ax, c.residual_um, units=units)
+
+
+def _page_sources(fig, c, units):
+    from . import plot
+    from .cli.common import SAFETY_LINES
+
+    lines = [("Sources of the methods", "h")]
+    lines += [f"• {s}" for s in c.sources]
+    lines.append(("Cautions", "h"))
+    lines += [f"• {v}" for v in SAFETY_LINES.values()]
+    lines.append("• flatcheck's numbers do not make handling, lapping or air work safe: local codes, the "
+                 "employer's procedures and licensed practice take precedence over anything in this report.")
+    lines.append(("Statement", "h"))
+    lines.append(SCOPE_STATEMENT)
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.86])
+    plot.text_block(ax, lines, fontsize=8.5, wrap_chars=105)
+
+
+def write_report(path, content: ReportContent, *, units: str = "um", png_dir=None, on_page=None,
+                 png_dpi: float = 150) -> ReportFiles:
+    """Draw the report's pages and write the PDF (and optionally each page's picture as PNG).
+
+    Parameters
+    ----------
+    path : str or Path
+        The PDF to write; replaced atomically.
+    content : ReportContent
+        From :func:`analyse`.
+    units : {"um", "in"}
+        Display units (µm and mm, or µin and inches).
+    png_dir : str or Path, optional
+        An existing folder for the pictures as PNG files (``page-NN-<topic>.png``).
+    on_page : callable, optional
+        Called with no argument after each page is drawn (progress).
+
+    Returns
+    -------
+    ReportFiles
+
+    Raises
+    ------
+    OutputError
+        If a file cannot be written (missing folder, no permission).
+    """
+    from . import plot
+
+    if units not in ("um", "in"):
+        raise InputValueError(f"unknown display units {units!r}", fix="use 'um' or 'in'")
+    path = Path(path)
+    if png_dir is not None:
+        png_dir = Path(png_dir)
+        if not png_dir.is_dir():
+            raise OutputError(f"cannot write pictures in {png_dir}: no such folder",
+                              fix="create the folder first or choose another")
+    plan = _page_plan(content)
+    pngs = []
+    title = f"Flatness report: {content.heightmap.label}"
+    with plot.PdfBook(path, title=title, subject="flatness of a surface as measured") as book:
+        for k, (page_title, draw) in enumerate(plan, start=1):
+            fig = plot.new_figure()
+            draw(fig, content, units)
+            _frame(fig, content, page_title, k, len(plan))
+            book.add(fig)
+            if png_dir is not None and k > 1:
+                slug = "".join(ch if ch.isalnum() else "-" for ch in page_title.lower()).strip("-")
+                while "--" in slug:
+                    slug = slug.replace("--", "-")
+                pngs.append(plot.save_png(fig, png_dir / f"page-{k:02d}-{slug}.png", dpi=png_dpi))
+            if on_page is not None:
+                on_page()
+    return ReportFiles(path, len(plan), tuple(pngs))
