@@ -91,7 +91,7 @@ def _positive(value, name: str, where: str | None = None) -> float:
     except (TypeError, ValueError):
         raise InputValueError(f"{name} must be a number, got {value!r}", where=where, fix=f"give {name} as a number") from None
     if not math.isfinite(v) or v <= 0.0:
-        raise InputValueError(f"{name} must be a positive number, got {value!r}", where=where, fix=f"give a {name} above 0")
+        raise InputValueError(f"{name} must be a positive number, got {value!r}", where=where, fix=f"give {name} above 0")
     return v
 
 
@@ -1035,7 +1035,8 @@ def evaluate_bearing(
         elif series is None:
             where = ((float(x_ok[0]), float(x_ok[-1])),)
         else:
-            where = ((float(x_ok[int(np.argmin(series))]), float(x_ok[int(np.argmax(series))])),)
+            lo_x, hi_x = float(x_ok[int(np.argmin(series))]), float(x_ok[int(np.argmax(series))])
+            where = ((lo_x, lo_x), (hi_x, hi_x))  # positions of the lowest and highest value
         checks.append(Check(name, value, lim, unit, r, status, where, "motion budget (user)"))
     order = {"fit": 0, "marginal": 1, "unfit": 2}
     verdict = max((c.status for c in checks), key=order.__getitem__)

@@ -1,0 +1,257 @@
+"""``flatcheck bearing``: is the measured surface fit for an air-bearing pad or carriage, and how will it move?"""
+
+from __future__ import annotations
+
+import dataclasses
+from enum import Enum
+from pathlib import Path
+
+import typer
+from rich.table import Table
+
+from ..bearing import (
+    DEFAULT_GAP_FRACTION,
+    DEFAULT_MARGINAL_FROM,
+    BearingResult,
+    Carriage,
+    MotionBudget,
+    Pad,
+    evaluate_bearing,
+    station_positions,
+)
+from ..errors import InputValueError
+from ..io.bearing_toml import parse_pad_size, read_bearing_toml
+from ..units import height_unit_label, um_to
+from ._app import app
+from .common import SAFETY_LINES, Units, emit_json, load_surface, progress_bar, stdout_console
+
+
+class PadKind(str, Enum):
+    porous = "porous"
+    orifice = "orifice"
+
+
+class Interp(str, Enum):
+    linear = "linear"
+    cubic = "cubic"
+
+
+def build_carriage(
+    *,
+    bearing: Path | None,
+    pad: str | None,
+    gap_um: float | None,
+    kind: str,
+    y_mm: float | None,
+    travel_start_mm: float | None,
+    travel_end_mm: float | None,
+    step_mm: float | None,
+):
+    """Carriage, gap fraction, marginal fraction and budget from a bearing file and/or options.
+
+    Options override the file: ``--pad``/``--gap-um`` replace every pad's size/gap.
+    """
+    if bearing is not None:
+        desc = read_bearing_toml(bearing)
+        carriage, fraction, marginal, budget = desc.carriage, desc.gap_fraction, desc.marginal_from, desc.budget
+        if pad is not None or gap_um is not None:
+            placed = []
+            for p in carriage.pads:
+                shape, length, width = (p.pad.shape, p.pad.length_mm, p.pad.width_mm)
+                if pad is not None:
+                    shape, length, width = parse_pad_size(pad, where="--pad")
+                g = p.pad.gap_um if gap_um is None else gap_um
+                placed.append(dataclasses.replace(p, pad=_pad(shape, length, width, g, p.pad.kind)))
+            carriage = dataclasses.replace(carriage, pads=tuple(placed))
+    else:
+        if pad is None or gap_um is None:
+            raise InputValueError(
+                "no pad described", where="--pad/--gap-um", fix="give --pad LxW (or dD) and --gap-um, or --bearing FILE.toml"
+            )
+        shape, length, width = parse_pad_size(pad, where="--pad")
+        carriage = Carriage.single(_pad(shape, length, width, gap_um, kind))
+        fraction, marginal, budget = None, None, MotionBudget()
+    changes = {
+        k: v
+        for k, v in (("y_mm", y_mm), ("travel_start_mm", travel_start_mm), ("travel_end_mm", travel_end_mm), ("step_mm", step_mm))
+        if v is not None
+    }
+    if changes:
+        carriage = dataclasses.replace(carriage, **changes)
+    return carriage, fraction, marginal, budget
+
+
+def _pad(shape, length, width, gap_um, kind) -> Pad:
+    try:
+        return Pad(shape, length, width, gap_um, kind)
+    except InputValueError as exc:
+        raise InputValueError(exc.message, where="--pad/--gap-um", fix=exc.fix) from None
+
+
+def result_json(result: BearingResult, *, input_path: Path, label: str, units: str) -> dict:
+    """The pinned JSON object of ``flatcheck bearing`` (heights always in µm, angles in arcsec, positions in mm)."""
+    m = result.motion
+    return {
+        "command": "bearing",
+        "input": str(input_path),
+        "surface": label,
+        "json_units": "heights um, positions mm, angles arcsec (whatever --units says)",
+        "display_units": units,
+        "carriage": result.carriage,
+        "limit_um": result.limit_um,
+        "gap_fraction": result.gap_fraction,
+        "limit_basis": "fraction of the air gap: common practice, no published ratio",
+        "marginal_from": result.marginal_from,
+        "local_flatness_max_um": result.local_flatness_max_um,
+        "clearance_min_um": result.clearance_min_um,
+        "verdict": result.verdict,
+        "checks": result.checks,
+        "motion": {
+            "straightness_um": m.straightness_um,
+            "pitch_arcsec": m.pitch_arcsec,
+            "roll_arcsec": m.roll_arcsec,
+            "raw_straightness_um": m.raw_straightness_um,
+            "x_mm": m.x_mm,
+            "path_um": m.path_um,
+            "pitch_path_arcsec": m.pitch_path_arcsec,
+            "roll_path_arcsec": m.roll_path_arcsec,
+            "raw_profile_um": m.raw_profile_um,
+        },
+        "stations": result.stations,
+        "excluded": [{"x_mm": x, "reason": why} for x, why in result.excluded],
+        "skipped_pads": result.skipped_pads,
+        "pad_face": result.pad_face,
+        "sampling_pitch_mm": result.sampling_pitch_mm,
+        "step_mm": result.step_mm,
+        "notes": result.notes,
+        "safety": SAFETY_LINES["air"],
+    }
+
+
+def _fmt_where(where) -> str:
+    if not where:
+        return ""
+    parts = [f"{a:.0f}" if abs(a - b) < 1e-9 else f"{a:.0f}–{b:.0f}" for a, b in where[:6]]
+    more = f" (+{len(where) - 6} more)" if len(where) > 6 else ""
+    return "x = " + ", ".join(parts) + " mm" + more
+
+
+def render_summary(result: BearingResult, *, label: str, units: str) -> None:
+    """Human summary on standard output (rich)."""
+    con = stdout_console()
+    hu = height_unit_label(units)
+
+    def h(v):
+        return f"{um_to(v, units):.3f} {hu}"
+
+    colour = {"fit": "green", "marginal": "yellow", "unfit": "red"}[result.verdict]
+    pads = result.carriage.active_pads
+    con.print(f"[bold]Air-bearing fitness[/bold]  {label}")
+    for p in pads:
+        con.print(f"  {p.name}: {p.pad.describe()}, at {p.along_mm:g} / {p.across_mm:g} mm (along / across)")
+    if result.skipped_pads:
+        con.print(f"  not evaluated (other face): {', '.join(result.skipped_pads)}")
+    m = result.motion
+    con.print(
+        f"  {len(result.stations)} positions x = {m.x_mm[0]:.1f}–{m.x_mm[-1]:.1f} mm, step {result.step_mm:.2f} mm; "
+        f"surface sampled under each pad at ≤ {result.sampling_pitch_mm:.2f} mm"
+    )
+    if result.excluded:
+        xs = [x for x, _ in result.excluded]
+        con.print(
+            f"  [yellow]{len(xs)} position(s) not evaluated (a pad leaves the surveyed area): "
+            f"x = {min(xs):.1f}–{max(xs):.1f} mm[/yellow]"
+        )
+    table = Table(title="Checks", title_justify="left")
+    for col in ("check", "result", "limit", "of limit", "status", "where"):
+        table.add_column(col)
+    for c in result.checks:
+        if c.unit == "um":
+            val, lim = h(c.value), h(c.limit)
+        else:
+            val, lim = f"{c.value:.2f} arcsec", f"{c.limit:.2f} arcsec"
+        st = {"fit": "green", "marginal": "yellow", "unfit": "red"}[c.status]
+        table.add_row(c.name, val, lim, f"{100 * c.ratio:.0f} %", f"[{st}]{c.status}[/{st}]", _fmt_where(c.where))
+    con.print(table)
+    raw = "n/a" if not (m.raw_straightness_um == m.raw_straightness_um) else h(m.raw_straightness_um)
+    con.print(
+        f"Carriage motion: straightness {h(m.straightness_um)} (minimum zone; raw surface on the centre line {raw}), "
+        f"pitch {m.pitch_arcsec:.2f} arcsec, roll {m.roll_arcsec:.2f} arcsec (peak-to-valley)"
+    )
+    con.print(
+        f"Local flatness under the pads: max {h(result.local_flatness_max_um)}; least clearance "
+        f"{h(result.clearance_min_um)}"
+    )
+    con.print(f"Verdict: [bold {colour}]{result.verdict.upper()}[/bold {colour}]")
+    for note in result.notes:
+        con.print(f"[dim]{note}[/dim]")
+    con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['air']}")
+
+
+@app.command("bearing")
+def bearing_cmd(
+    input: Path = typer.Argument(..., help="Survey TOML or height-map CSV of the guide surface."),
+    pad: str = typer.Option(None, "--pad", help="Pad size: LxW in mm (L along the travel), or dD for a circular pad."),
+    gap_um: float = typer.Option(None, "--gap-um", help="Nominal air gap in µm."),
+    kind: PadKind = typer.Option(PadKind.porous, "--kind", help="How the pad is fed with air."),
+    bearing: Path = typer.Option(None, "--bearing", help="Bearing description (TOML): pads, carriage, travel, budget."),
+    gap_fraction: float = typer.Option(
+        None, "--gap-fraction", help=f"Local form limit as a fraction of the gap [default {DEFAULT_GAP_FRACTION:g}, common practice]."
+    ),
+    marginal_from: float = typer.Option(
+        None, "--marginal-from", help=f"Marginal from this fraction of a limit [default {DEFAULT_MARGINAL_FROM:g}]."
+    ),
+    pad_face: Path = typer.Option(None, "--pad-face", help="Height-map CSV of the pad face (µm, + towards the guide)."),
+    y_mm: float = typer.Option(None, "--y-mm", help="Carriage centre across the face in mm [default: centred]."),
+    travel_start_mm: float = typer.Option(None, "--travel-start-mm", help="First carriage position, mm."),
+    travel_end_mm: float = typer.Option(None, "--travel-end-mm", help="Last carriage position, mm."),
+    step_mm: float = typer.Option(None, "--step-mm", help="Travel step in mm (at most a tenth of the pad length)."),
+    budget_straightness_um: float = typer.Option(None, "--budget-straightness-um", help="Motion budget: straightness, µm."),
+    budget_pitch_arcsec: float = typer.Option(None, "--budget-pitch-arcsec", help="Motion budget: pitch (P-V), arcsec."),
+    budget_roll_arcsec: float = typer.Option(None, "--budget-roll-arcsec", help="Motion budget: roll (P-V), arcsec."),
+    sample_pitch_mm: float = typer.Option(None, "--sample-pitch-mm", help="Largest spacing of samples under a pad, mm."),
+    interp: Interp = typer.Option(Interp.linear, "--interp", help="Interpolation between surveyed stations."),
+    units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
+    json_out: bool = typer.Option(False, "--json", help="Print one JSON object (µm, mm, arcsec) instead of the summary."),
+) -> None:
+    """Judge the surface for an air-bearing pad or carriage: local flatness against a fraction of the gap,
+    least clearance, and the carriage's straightness, pitch and roll over the travel."""
+    from ..io.heightmap_csv import read_heightmap_csv
+
+    carriage, fraction, marginal, budget = build_carriage(
+        bearing=bearing,
+        pad=pad,
+        gap_um=gap_um,
+        kind=kind.value,
+        y_mm=y_mm,
+        travel_start_mm=travel_start_mm,
+        travel_end_mm=travel_end_mm,
+        step_mm=step_mm,
+    )
+    budget = MotionBudget(
+        budget.straightness_um if budget_straightness_um is None else budget_straightness_um,
+        budget.pitch_arcsec if budget_pitch_arcsec is None else budget_pitch_arcsec,
+        budget.roll_arcsec if budget_roll_arcsec is None else budget_roll_arcsec,
+    )
+    fraction = gap_fraction if gap_fraction is not None else (fraction if fraction is not None else DEFAULT_GAP_FRACTION)
+    marginal = marginal_from if marginal_from is not None else (marginal if marginal is not None else DEFAULT_MARGINAL_FROM)
+    surface, _ = load_surface(input)
+    face = read_heightmap_csv(pad_face) if pad_face is not None else None
+    n = len(station_positions(surface, carriage)[0])
+    with progress_bar("bearing positions", n, enabled=n * len(carriage.active_pads) > 200) as advance:
+        result = evaluate_bearing(
+            surface,
+            carriage,
+            gap_fraction=fraction,
+            marginal_from=marginal,
+            budget=budget,
+            pad_face=face,
+            sample_pitch_mm=sample_pitch_mm,
+            method=interp.value,
+            progress=advance,
+        )
+    label = surface.label or input.name
+    if json_out:
+        emit_json(result_json(result, input_path=input, label=label, units=units.value))
+    else:
+        render_summary(result, label=label, units=units.value)
