@@ -354,8 +354,9 @@ def plan_union_jack(
     lines = []
     for name, a, b, kind in UNION_JACK_LINES:
         n = {"diagonal": nd, "x": nx, "y": ny}[kind]
-        st, spacing = _line_stations(reg, name, named[a], named[b], n, a, b)
-        lines.append(SurveyLine(name, st, spacing))
+        st, _ = _line_stations(reg, name, named[a], named[b], n, a, b)
+        # nominal bases exactly (the geometric spacing agrees to rounding error)
+        lines.append(SurveyLine(name, st, bd if kind == "diagonal" else B))
     meta = {
         "layout": {
             "pattern": "union-jack",
