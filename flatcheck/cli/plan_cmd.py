@@ -1,0 +1,194 @@
+"""``flatcheck plan``: lay out a survey and write the blank survey file to fill in."""
+
+from __future__ import annotations
+
+import enum
+from pathlib import Path
+
+import typer
+from rich.table import Table
+
+from ..errors import OutputError
+from ..io.survey_toml import write_survey
+from ..layout import DEFAULT_MARGIN_MM, plan_grid, plan_union_jack, reading_sequence, summarize_layout
+from ..survey import Instrument, Surface
+from ..units import angle_unit, length_unit
+from ._app import app
+from .common import emit_json, stdout_console
+
+
+class Pattern(str, enum.Enum):
+    union_jack = "union-jack"
+    grid = "grid"
+
+
+class Kind(str, enum.Enum):
+    autocollimator = "autocollimator"
+    level = "level"
+    differential_level = "differential-level"
+    indicator = "indicator"
+
+
+class Reports(str, enum.Enum):
+    mirror_tilt = "mirror-tilt"
+    beam_deviation = "beam-deviation"
+
+
+_DEFAULT_UNIT = {"autocollimator": "arcsec", "level": "um/m", "differential-level": "um/m", "indicator": "um"}
+
+
+@app.command("plan")
+def plan_cmd(
+    pattern: Pattern = typer.Option(Pattern.union_jack, "--pattern", help="Survey pattern."),
+    length_mm: float = typer.Option(..., "--length-mm", help="Length of the surface along x (west-east), mm."),
+    width_mm: float = typer.Option(..., "--width-mm", help="Width of the surface along y (south-north), mm."),
+    foot_spacing_mm: float = typer.Option(..., "--foot-spacing-mm", help="Foot spacing (base) of the instrument, mm."),
+    margin_mm: float = typer.Option(DEFAULT_MARGIN_MM, "--margin-mm", help="Inset of the lines from the edges, mm."),
+    instrument: Kind = typer.Option(Kind.autocollimator, "--instrument", help="Instrument kind."),
+    unit: str = typer.Option(None, "--unit", help="Reading unit (default: arcsec, um/m for levels, um for indicators)."),
+    reports: Reports = typer.Option(Reports.mirror_tilt, "--reports", help="Autocollimators: what the scale shows."),
+    diagonals: bool = typer.Option(False, "--diagonals", help="Grid: add the corner-to-corner diagonals (square grids)."),
+    description: str = typer.Option("surface plate", "--description", help="What the surface is."),
+    ident: str = typer.Option("", "--ident", help="Identity of the surface (serial or asset number)."),
+    material: str = typer.Option("", "--material", help="Material, e.g. granite."),
+    output: Path = typer.Option(None, "-o", "--output", help="Write the blank survey file here (TOML)."),
+    force: bool = typer.Option(False, "--force", help="Overwrite an existing output file."),
+    json_out: bool = typer.Option(False, "--json", help="Print the layout as one JSON object."),
+) -> None:
+    """Lay out a Union Jack or grid survey, show the reading order and write the blank survey file."""
+    kind = instrument.value
+    unit = unit or _DEFAULT_UNIT[kind]
+    unit = (length_unit(unit, where="--unit") if kind == "indicator" else angle_unit(unit, where="--unit")).name
+    if kind != "autocollimator" and reports is Reports.beam_deviation:
+        from ..errors import InputValueError
+
+        raise InputValueError("--reports beam-deviation applies to autocollimators only", where="--reports", fix="omit it")
+    inst = Instrument(kind, unit, reports=reports.value)
+    surface = Surface(description, length_mm, width_mm, ident=ident, material=material)
+    if pattern is Pattern.union_jack:
+        if diagonals:
+            from ..errors import InputValueError
+
+            raise InputValueError("--diagonals applies to grids only", where="--diagonals", fix="omit it (a Union Jack has them)")
+        survey = plan_union_jack(length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface)
+    else:
+        survey = plan_grid(
+            length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface, diagonals=diagonals
+        )
+    if output is not None:
+        if output.exists() and not force:
+            raise OutputError(f"{output} exists", where="--output", fix="choose another name or add --force to overwrite it")
+        write_survey(output, survey)
+    summary = summarize_layout(survey)
+    seq = reading_sequence(survey)
+    lay = survey.meta["layout"]
+    if json_out:
+        emit_json(
+            {
+                "pattern": survey.pattern,
+                "surface": survey.surface,
+                "instrument": survey.instrument,
+                "layout": lay,
+                "n_stations": summary.n_stations,
+                "n_lines": summary.n_lines,
+                "readings_per_pass": summary.readings_per_pass,
+                "foot_spacings_mm": summary.foot_spacings_mm,
+                "extent_mm": summary.extent_mm,
+                "stations": [{"name": s.name, "x_mm": s.x_mm, "y_mm": s.y_mm} for s in survey.stations],
+                "lines": [
+                    {"name": ln.name, "steps": ln.steps, "foot_spacing_mm": ln.foot_spacing_mm, "stations": ln.stations}
+                    for ln in survey.lines
+                ],
+                "sequence": [
+                    {"number": r.number, "line": r.line, "from": r.from_station, "to": r.to_station} for r in seq
+                ],
+                "output": str(output) if output is not None else None,
+            }
+        )
+        return
+    con = stdout_console()
+    s = survey.surface
+    con.print(f"[bold]{survey.pattern} survey[/bold] of {s.description} {s.length_mm:g} x {s.width_mm:g} mm, "
+              f"{inst.kind} reading {inst.unit}")
+    con.print(_diagram(survey), markup=False, highlight=False)
+    con.print(
+        f"lines inset {lay['margin_mm']:g} mm or more; surveyed area x {summary.extent_mm[0]:.1f}-{summary.extent_mm[1]:.1f} mm, "
+        f"y {summary.extent_mm[2]:.1f}-{summary.extent_mm[3]:.1f} mm"
+    )
+    if survey.pattern == "union-jack":
+        con.print(
+            f"foot spacing: sides and centre lines {lay['foot_spacing_mm']:g} mm; "
+            f"diagonals [bold]{lay['diagonal_foot_spacing_mm']:.2f} mm[/bold] (a second base)"
+        )
+    elif not inst.reads_heights:
+        con.print("foot spacing: " + ", ".join(f"{b:.2f} mm" for b in summary.foot_spacings_mm))
+    table = Table(title="Lines, each walked first -> last station", title_justify="left")
+    for col in ("line", "from", "to", "steps", "base mm", "readings"):
+        table.add_column(col, justify="right" if col in ("steps", "base mm", "readings") else "left")
+    for ln in survey.lines:
+        n_read = len(ln.stations) if inst.reads_heights else ln.steps
+        base = "-" if inst.reads_heights else f"{ln.foot_spacing_mm:.2f}"
+        table.add_row(ln.name, ln.stations[0], ln.stations[-1], str(ln.steps), base, str(n_read))
+    con.print(table)
+    con.print(
+        f"{summary.n_stations} stations, {summary.n_lines} lines, {summary.readings_per_pass} readings per pass "
+        "(forward and back runs double it)"
+    )
+    con.print("[bold]Reading sequence[/bold]")
+    by_line: dict[str, list] = {}
+    for r in seq:
+        by_line.setdefault(r.line, []).append(r)
+    for name, steps in by_line.items():
+        if inst.reads_heights:
+            path = " ".join(r.to_station for r in steps)
+        else:
+            path = " > ".join([steps[0].from_station] + [r.to_station for r in steps])
+        con.print(f"  {name}: {path}", markup=False, highlight=False)
+    if output is not None:
+        con.print(f"blank survey written to {output}; fill in readings = [...] for every line")
+
+
+def _diagram(survey, width: int = 49) -> str:
+    """A small character drawing of the stations and lines (north up)."""
+    x, y = survey.x_mm, survey.y_mm
+    x0, x1, y0, y1 = x.min(), x.max(), y.min(), y.max()
+    span_x = max(x1 - x0, 1e-9)
+    span_y = max(y1 - y0, 1e-9)
+    height = int(round(width * span_y / span_x / 2.2)) + 1
+    height = max(5, min(height, 21))
+    cols, rows = width, height
+    canvas = [[" "] * cols for _ in range(rows)]
+
+    def cell(px, py):
+        c = int(round((px - x0) / span_x * (cols - 1)))
+        r = rows - 1 - int(round((py - y0) / span_y * (rows - 1)))
+        return r, c
+
+    idx = survey.station_index
+    for ln in survey.lines:
+        a = survey.stations[idx[ln.stations[0]]]
+        b = survey.stations[idx[ln.stations[-1]]]
+        (ra, ca), (rb, cb) = cell(a.x_mm, a.y_mm), cell(b.x_mm, b.y_mm)
+        if ra == rb:
+            ch = "-"
+        elif ca == cb:
+            ch = "|"
+        else:
+            ch = "/" if (rb - ra) * (cb - ca) < 0 else "\\"
+        n = max(abs(rb - ra), abs(cb - ca), 1)
+        for k in range(n + 1):
+            r = int(round(ra + (rb - ra) * k / n))
+            c = int(round(ca + (cb - ca) * k / n))
+            if canvas[r][c] == " ":
+                canvas[r][c] = ch
+    for st in survey.stations:
+        r, c = cell(st.x_mm, st.y_mm)
+        canvas[r][c] = "o"
+    if survey.pattern == "union-jack":
+        for name in ("SW", "S", "SE", "E", "NE", "N", "NW", "W", "C"):
+            st = survey.stations[idx[name]]
+            r, c = cell(st.x_mm, st.y_mm)
+            c = min(max(c - (len(name) - 1 if c > cols // 2 else 0), 0), cols - len(name))
+            for k, ch in enumerate(name):
+                canvas[r][c + k] = ch
+    return "\n".join("  " + "".join(row).rstrip() for row in canvas)
