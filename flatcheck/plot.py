@@ -56,6 +56,7 @@ __all__ = [
     "text_block",
     "table",
     "page_frame",
+    "flow_table",
 ]
 
 HEIGHT_CMAP = "cividis"  #: heights: perceptually uniform, legible in grey and for red-green colour blindness
@@ -88,13 +89,14 @@ def _fmt(v: float, unit: str) -> str:
     """A height with a sensible number of decimals for its size."""
     a = abs(v)
     dec = 3 if a < 1 else 2 if a < 100 else 1 if a < 1000 else 0
-    return f"{v:+.{dec}f} {unit}" if v else f"0 {unit}"
+    v = round(v, dec) + 0.0  # no "-0.000"
+    return f"{v:+.{dec}f} {unit}" if v else f"{0:.{dec}f} {unit}"
 
 
 def _fmt_abs(v: float, unit: str) -> str:
     a = abs(v)
     dec = 3 if a < 1 else 2 if a < 100 else 1 if a < 1000 else 0
-    return f"{v:.{dec}f} {unit}"
+    return f"{round(v, dec) + 0.0:.{dec}f} {unit}"
 
 
 # ---------------------------------------------------------------------------- figures and files
@@ -323,7 +325,7 @@ def surface_view(ax3d, hm, *, reference=None, units: str = "um", title: str | No
     hs, hu = _height_scale(units)
     ps, pu = _pos_scale(units)
     shown = hm.with_heights(_deviation_um(hm, reference))
-    X, Y, Z = _fine_grid(shown, n_long=60)
+    X, Y, Z = _fine_grid(shown, n_long=40)
     Zd = np.ma.masked_invalid(Z * hs)
     ax3d.plot_surface(X * ps, Y * ps, Zd, cmap=HEIGHT_CMAP, rstride=1, cstride=1, linewidth=0.15,
                       edgecolor=(0.1, 0.1, 0.1, 0.25), antialiased=True)
@@ -380,7 +382,8 @@ class LineProfile:
         return np.asarray(self.height_um, float) - (self.ref_offset_um + self.ref_slope_um_per_mm * s)
 
 
-def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: str | None = None):
+def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: str | None = None,
+                  rect=(0.09, 0.08, 0.97, 0.95)):
     """One small panel per measured line: deviation from its reference line and its straightness.
 
     Each panel draws the stations, the zone of the straightness (two parallel
@@ -390,7 +393,9 @@ def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: st
     Parameters
     ----------
     fig : matplotlib Figure
-        An empty figure (or subfigure) to fill.
+        The figure to draw in.
+    rect : (left, bottom, right, top)
+        Part of the figure the panels fill (figure fractions).
     profiles : sequence of LineProfile
         The lines, drawn in order.
     units : {"um", "in"}
@@ -413,13 +418,11 @@ def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: st
     lo = min(float(d.min()) for d in devs)
     hi = max(float(d.max()) for d in devs)
     span = max(hi - lo, 1e-9)
-    axes = fig.subplots(nrows, ncols, squeeze=False, sharex=False,
-                        gridspec_kw=dict(hspace=0.55, wspace=0.22, left=0.09, right=0.97, top=0.9, bottom=0.07))
+    left, bottom, right, top = rect
+    gs = fig.add_gridspec(nrows, ncols, hspace=0.6, wspace=0.22, left=left, right=right, top=top, bottom=bottom)
     out = []
-    for k, ax in enumerate(axes.ravel()):
-        if k >= len(profiles):
-            ax.set_visible(False)
-            continue
+    for k in range(len(profiles)):
+        ax = fig.add_subplot(gs[k // ncols, k % ncols])
         p, d = profiles[k], devs[k]
         s = np.asarray(p.s_mm, float) * ps
         ax.fill_between(s, d.min(), d.max(), color="0.88", lw=0, zorder=0)
@@ -621,27 +624,33 @@ def carriage_path(
     rail_um,
     carriage_um,
     *,
-    pitch_urad=None,
+    pitch=None,
+    pitch_unit: str = "arcsec",
     local_um=None,
     local_limit_um=None,
     local_window_mm=None,
     units: str = "um",
     title: str | None = None,
+    rect=(0.1, 0.1, 0.9, 0.92),
 ):
     """The rail profile beside the carriage's path over the travel, and local flatness along it.
 
     Parameters
     ----------
     fig : matplotlib Figure
-        An empty figure (or subfigure) to fill.
+        The figure to draw in.
+    rect : (left, bottom, right, top)
+        Part of the figure the panels fill (figure fractions).
     travel_mm : ndarray, shape (m,)
         Carriage position along the travel, mm.
     rail_um : ndarray, shape (m,)
         Raw profile of the guideway under the carriage's centre, µm.
     carriage_um : ndarray, shape (m,)
         Height of the carriage's reference point over the travel, µm.
-    pitch_urad : ndarray, shape (m,), optional
-        Carriage pitch, µrad (drawn on a second axis).
+    pitch : ndarray, shape (m,), optional
+        Carriage pitch in ``pitch_unit`` (drawn on a second axis).
+    pitch_unit : str
+        Unit of ``pitch`` for the axis label ("arcsec", "µrad").
     local_um : ndarray, shape (m,), optional
         Local flatness along the travel (µm), e.g. under the pad footprint.
     local_limit_um : float, optional
@@ -655,17 +664,23 @@ def carriage_path(
     ps, pu = _pos_scale(units)
     t = np.asarray(travel_mm, float) * ps
     n = 2 if local_um is not None else 1
-    axes = fig.subplots(n, 1, sharex=True, squeeze=False)[:, 0]
+    left, bottom, right, top = rect
+    gs = fig.add_gridspec(n, 1, hspace=0.12, left=left, right=right, top=top, bottom=bottom,
+                          height_ratios=[2, 1][:n])
+    axes = [fig.add_subplot(gs[0, 0])]
+    if n == 2:
+        axes.append(fig.add_subplot(gs[1, 0], sharex=axes[0]))
+        axes[0].tick_params(labelbottom=False)
     ax = axes[0]
     ax.plot(t, np.asarray(rail_um, float) * hs, color="0.55", lw=1.0, label="guideway profile (raw)")
     ax.plot(t, np.asarray(carriage_um, float) * hs, color=_INK, lw=1.8, label="carriage path")
     ax.set_ylabel(f"height ({hu})")
     ax.grid(True, lw=0.3, color="0.8")
     handles, labels = ax.get_legend_handles_labels()
-    if pitch_urad is not None:
+    if pitch is not None:
         ax2 = ax.twinx()
-        ax2.plot(t, np.asarray(pitch_urad, float), color=_ACCENT, lw=0.9, ls="--", label="carriage pitch")
-        ax2.set_ylabel("pitch (µrad)", color=_ACCENT)
+        ax2.plot(t, np.asarray(pitch, float), color=_ACCENT, lw=0.9, ls="--", label="carriage pitch")
+        ax2.set_ylabel(f"pitch ({pitch_unit})", color=_ACCENT)
         h2, l2 = ax2.get_legend_handles_labels()
         handles += h2
         labels += l2
@@ -717,7 +732,7 @@ def text_block(ax, lines, *, fontsize: float = 8.5, y0: float = 1.0, line_height
     import textwrap
 
     ax.set_axis_off()
-    lh = line_height if line_height is not None else fontsize * 1.45 / 72 / ax.get_position().height / ax.figure.get_figheight()
+    lh = line_height if line_height is not None else _line_step(ax, fontsize)
     y = y0
     for item in lines:
         text, style = (item, "") if isinstance(item, str) else item
@@ -780,3 +795,48 @@ def page_frame(fig, *, left_head: str, right_head: str, title: str, footer=(), p
     if page_text:
         fig.text(1 - margin, 0.040, page_text, fontsize=8, va="top", ha="right", color=_INK)
     return fig
+
+
+def _line_step(ax, fontsize: float) -> float:
+    """Height of one text line of ``fontsize`` points as a fraction of the axes height."""
+    return fontsize * 1.45 / 72 / (ax.get_position().height * ax.figure.get_figheight())
+
+
+def flow_table(ax, y: float, rows, *, col_x, col_labels=None, fontsize: float = 8.5, title: str | None = None,
+               bold_cols=(), wrap_chars=None) -> float:
+    """Draw a ruled table top-down from height ``y`` (axes fraction); return the y below it.
+
+    Used to stack several tables and paragraphs on one page without gaps.
+    ``col_x`` are the left edges of the columns (axes fraction); ``wrap_chars``
+    optionally gives, per column, the characters after which a cell wraps.
+    """
+    import textwrap
+
+    ax.set_axis_off()
+    lh = _line_step(ax, fontsize)
+    if title:
+        y -= 0.5 * lh
+        ax.text(0.0, y, title, transform=ax.transAxes, fontsize=fontsize * 1.25, fontweight="bold", va="top",
+                color=_INK)
+        y -= 1.35 * lh
+    def rule(yy, lw=0.5):
+        ax.plot([0, 1], [yy, yy], transform=ax.transAxes, color="0.55", lw=lw)
+    if col_labels:
+        rule(y + 0.2 * lh, 0.8)
+        for x, lab in zip(col_x, col_labels):
+            ax.text(x, y, str(lab), transform=ax.transAxes, fontsize=fontsize * 0.9, fontweight="bold", va="top",
+                    color="0.2")
+        y -= lh
+        rule(y + 0.2 * lh, 0.8)
+    for row in rows:
+        n_lines = 1
+        for c, (x, cell) in enumerate(zip(col_x, row)):
+            text = str(cell)
+            if wrap_chars and c < len(wrap_chars) and wrap_chars[c]:
+                text = "\n".join(textwrap.wrap(text, wrap_chars[c])) or ""
+            n_lines = max(n_lines, text.count("\n") + 1)
+            ax.text(x, y, text, transform=ax.transAxes, fontsize=fontsize, va="top", color=_INK,
+                    fontweight="bold" if c in bold_cols else "normal", linespacing=1.3)
+        y -= lh * (1 + 0.93 * (n_lines - 1)) + 0.2 * lh
+        rule(y + 0.25 * lh, 0.3)
+    return y - 0.3 * lh

@@ -170,7 +170,7 @@ def _straightness_1d(s_mm, h_um):
     b_ub = np.concatenate([h, -h])
     res = linprog([0, 0, 1], A_ub=A_ub, b_ub=b_ub, bounds=[(None, None)] * 3, method="highs")
     a, b, t = res.x
-    return float(t), float(a - b * s.mean()), float(b)
+    return max(float(t), 0.0), float(a - b * s.mean()), float(b)
 
 
 def _lines_from_survey(hm: HeightMap, survey) -> list:
@@ -196,10 +196,10 @@ def _lines_from_grid(hm: HeightMap, max_lines: int = 8) -> list:
     rows = np.unique(np.linspace(0, ys.size - 1, min(ys.size, max_lines - 2)).round().astype(int))
     for j in rows:
         idx = index[j]
-        out.append((f"y = {ys[j]:g} mm", xs - xs[0], hm.height_um[idx]))
+        out.append((f"y = {ys[j]:.4g} mm", xs - xs[0], hm.height_um[idx]))
     for i in np.unique([0, xs.size // 2]):
         idx = index[:, i]
-        out.append((f"x = {xs[i]:g} mm", ys - ys[0], hm.height_um[idx]))
+        out.append((f"x = {xs[i]:.4g} mm", ys - ys[0], hm.height_um[idx]))
     return out
 
 
@@ -208,8 +208,18 @@ def analyse(
     *,
     survey=None,
     reduction=None,
+    standard: str | None = None,
+    rule: str = "iso14253",
+    carriage=None,
+    gap_fraction: float | None = None,
+    marginal_from: float | None = None,
+    budget=None,
+    target_um: float | None = None,
+    seed: int | None = None,
+    trials: int | None = None,
     notes=(),
     today: _dt.date | None = None,
+    progress=None,
 ) -> ReportContent:
     """Evaluate a surface for the report.
 
@@ -220,26 +230,74 @@ def analyse(
     survey : Survey, optional
         The survey the map was reduced from (identity, instrument, lines).
     reduction : Reduction, optional
-        The reduction result (closures, residuals).
+        The reduction of ``survey`` (closures, residuals).
+    standard : str, optional
+        Standard to grade against (``"din-876"``, ``"iso-8512-2"``, ``"asme-b89.3.7"``); every
+        grade of it is decided.
+    rule : {"iso14253", "simple"}
+        Decision rule for the grades.
+    carriage : Carriage, optional
+        Air-bearing pad or carriage to judge the surface for.
+    gap_fraction, marginal_from, budget
+        Bearing limits (library defaults when ``None``).
+    target_um : float, optional
+        Target flatness in µm: adds a lapping plan.
+    seed : int, optional
+        Seed of the Monte Carlo uncertainty evaluation (reproducible when given).
+    trials : int, optional
+        Number of Monte Carlo trials.
     notes : sequence of str
         Remarks to state in the report.
     today : date, optional
         Issue date (default: today).
+    progress : callable, optional
+        Called with a short text before each long step (never prints itself).
 
     Returns
     -------
     ReportContent
     """
+    say = progress or (lambda text: None)
     if hm.n < 3:
         raise InputValueError("a report needs at least three points", fix="measure more stations")
+    say("flatness")
     mz = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
     ls = least_squares_plane(hm.x_mm, hm.y_mm, hm.height_um)
     identity, method = _identity_rows(hm, survey, reduction)
     raw = _lines_from_survey(hm, survey) if survey is not None else _lines_from_grid(hm)
+    rms = _line_rms(survey, reduction)
     lines = []
     for name, s, h in raw:
         t, a, b = _straightness_1d(s, h)
-        lines.append(LineResult(name, s, h, t, a, b))
+        lines.append(LineResult(name, s, h, t, a, b, rms.get(name)))
+    all_notes = list(notes)
+    closures = ()
+    residual = None
+    if reduction is not None:
+        closures = tuple(reduction.closures)
+        residual = np.asarray(reduction.residual_um, float)
+        all_notes += list(getattr(reduction, "warnings", ()))
+        n_out = len(getattr(reduction, "outliers", ()))
+        if n_out:
+            all_notes.append(f"{n_out} reading(s) flagged as possible outliers by the reduction; see the residuals")
+    u_mz = u_ls = None
+    u_note = "no uncertainty evaluation was made"
+    grades = ()
+    rule_text = ""
+    if standard is not None:
+        say("grades")
+        grades, rule_text = _grades(hm, standard, mz.flatness_um, u_mz, rule)
+    bearing = None
+    if carriage is not None:
+        say("air bearing")
+        from .bearing import evaluate_bearing
+
+        kw = {}
+        if gap_fraction is not None:
+            kw["gap_fraction"] = gap_fraction
+        if marginal_from is not None:
+            kw["marginal_from"] = marginal_from
+        bearing = evaluate_bearing(hm, carriage, budget=budget, **kw)
     issued = (today or _dt.date.today()).isoformat()
     date = survey.date if survey is not None and survey.date else "not stated"
     return ReportContent(
@@ -248,14 +306,59 @@ def analyse(
         method=tuple(method),
         mz=mz,
         ls=ls,
-        uncertainty_note="no uncertainty evaluation available for this input",
+        u_mz_um=u_mz,
+        u_ls_um=u_ls,
+        uncertainty_note=u_note,
         lines=tuple(lines),
+        closures=closures,
+        residual_um=residual,
         survey=survey,
-        notes=tuple(notes),
+        grades=grades,
+        decision_rule=rule_text,
+        bearing=bearing,
+        notes=tuple(all_notes),
         date=date,
         issued=issued,
         sources=_SOURCES,
     )
+
+
+def _line_rms(survey, reduction) -> dict:
+    """RMS residual of each line's readings (µm), from the reduction."""
+    if survey is None or reduction is None:
+        return {}
+    from .survey import observations
+
+    obs = observations(survey)
+    r = np.asarray(reduction.residual_um, float)
+    if r.shape != obs.line.shape:
+        return {}
+    out = {}
+    for li, ln in enumerate(survey.lines):
+        sel = obs.line == li
+        if sel.any():
+            out[ln.name] = float(np.sqrt(np.mean(r[sel] ** 2)))
+    return out
+
+
+def _grades(hm, standard, flatness_um, u_um, rule):
+    from .conformity import assess_grades
+    from .tolerance import get_standard, plate_size, tolerances
+
+    std = get_standard(standard)
+    size = plate_size(hm)
+    verdicts = assess_grades(flatness_um, tolerances(std, size.length_mm, size.width_mm), u_um, rule)
+    rows = []
+    for v in verdicts:
+        t = v.tolerance
+        rows.append(GradeRow(std.title, t.grade, t.tolerance_um, v.decision.verdict.replace("-", " "),
+                             "; ".join(t.notes)))
+    size_note = {"option": "as given", "surface": "as stated for the surface",
+                 "point-extent": "extent of the measured points (the plate itself may be larger)"}[size.source]
+    rule_text = (verdicts[0].decision.statement.rstrip(". ") + ". " if verdicts else "") + (
+        f"Plate size used: {size.length_mm:g} x {size.width_mm:g} mm, {size_note}. Flatness decided: minimum zone."
+    )
+    return tuple(rows), rule_text
 
 
 def _size_text(length_mm, width_mm) -> str:
@@ -329,6 +432,10 @@ def _page_plan(content):
                      lambda fig, c, u, chunk=chunk: _page_profiles(fig, c, u, chunk)))
     if content.survey is not None:
         plan.append(("Survey layout and closure", _page_layout))
+    if content.grades:
+        plan.append(("Grades and decision rule", _page_grades))
+    if content.bearing is not None:
+        plan.append(("Air bearing: fitness and carriage motion", _page_bearing))
     plan.append(("Methods, sources and cautions", _page_sources))
     return plan
 
@@ -347,7 +454,7 @@ def _frame(fig, content, title, page, pages):
         title=title,
         footer=(
             "Results apply to the surface as measured; see the statement on page 1.",
-            f"measured {content.date} · report issued {content.issued} · flatcheck",
+            f"measurement date: {content.date} · report issued {content.issued} · flatcheck",
         ),
         page_text=f"page {page} of {pages}",
     )
@@ -364,35 +471,35 @@ def _h(v_um, units):
 def _page_summary(fig, c, units):
     from . import plot
 
-    ax = fig.add_axes([0.06, 0.70, 0.88, 0.22])
-    plot.table(ax, list(c.identity), col_labels=("surface", ""), col_widths=[0.3, 0.7], title="What was measured")
-    ax = fig.add_axes([0.06, 0.50, 0.88, 0.17])
-    plot.table(ax, list(c.method), col_labels=("method", ""), col_widths=[0.3, 0.7], title="How it was measured")
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.86])
+    y = 1.0
+    y = plot.flow_table(ax, y, c.identity, col_x=(0.0, 0.3), title="What was measured", wrap_chars=(None, 80))
+    y = plot.flow_table(ax, y, c.method, col_x=(0.0, 0.3), title="How it was measured", wrap_chars=(None, 80))
     rows = [
         ("minimum zone (MZ)", _h(c.mz.flatness_um, units),
          "not evaluated" if c.u_mz_um is None else _h(c.u_mz_um, units)),
         ("least squares (LS), peak to valley", _h(c.ls.flatness_um, units),
          "not evaluated" if c.u_ls_um is None else _h(c.u_ls_um, units)),
     ]
-    for label, x, y, v in c.closures:
-        rows.append((f"closure {label}", _h(v, units), ""))
-    ax = fig.add_axes([0.06, 0.30, 0.88, 0.17])
-    plot.table(ax, rows, col_labels=("flatness", "value", "expanded uncertainty"), col_widths=[0.45, 0.25, 0.30],
-               title="Results", highlight_col=1)
-    lines = []
+    for label, _x, _y, v in c.closures:
+        rows.append((f"closure error, {label}", _h(v, units), ""))
+    y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.45, 0.65), col_labels=("flatness", "value", "expanded uncertainty"),
+                        title="Results", bold_cols=(1,))
     if c.uncertainty_note:
-        lines.append(("Uncertainty: " + c.uncertainty_note, "s"))
+        y = plot.text_block(ax, [("Uncertainty: " + c.uncertainty_note, "s")], y0=y, wrap_chars=110)
     if c.grades:
-        for g in c.grades:
-            lines.append((f"{g.standard} grade {g.grade} (tolerance {_h(g.tolerance_um, units)}): {g.verdict}", "b"))
-        if c.decision_rule:
-            lines.append(("Decision rule: " + c.decision_rule, "s"))
-    for n in c.notes:
-        lines.append(("Note: " + n, "s"))
-    lines.append(("Statement", "h"))
-    lines.append(SCOPE_STATEMENT)
-    ax = fig.add_axes([0.06, 0.06, 0.88, 0.22])
-    plot.text_block(ax, lines, fontsize=8.5, wrap_chars=110)
+        rows = [(g.grade, _h(g.tolerance_um, units), g.verdict) for g in c.grades]
+        y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.3, 0.55), col_labels=("grade", "tolerance", "verdict"),
+                            title=f"Grades: {c.grades[0].standard}", bold_cols=(2,))
+        y = plot.text_block(ax, [("Decision rule and details: see the grades page.", "s")], y0=y, wrap_chars=110)
+    if c.bearing is not None:
+        b = c.bearing
+        y = plot.flow_table(ax, y, [("verdict", b.verdict), ("largest local flatness under a pad",
+                                                            f"{_h(b.local_flatness_max_um, units)} (limit {_h(b.limit_um, units)})")],
+                            col_x=(0.0, 0.45), title="Air bearing", bold_cols=(1,))
+    lines = [("Note: " + n, "s") for n in c.notes]
+    lines += [("Statement", "h"), SCOPE_STATEMENT]
+    plot.text_block(ax, lines, y0=y, fontsize=8.5, wrap_chars=110)
 
 
 def _page_map(fig, c, units):
@@ -413,8 +520,7 @@ def _page_profiles(fig, c, units, chunk):
         plot.LineProfile(ln.name, ln.s_mm, ln.height_um, ln.straightness_um, ln.ref_offset_um, ln.ref_slope_um_per_mm)
         for ln in chunk
     ]
-    sub = fig.add_subfigure(fig.add_gridspec(1, 1, left=0.06, right=0.94, top=0.92, bottom=0.06)[0, 0])
-    plot.line_profiles(sub, profs, units=units)
+    plot.line_profiles(fig, profs, units=units, rect=(0.1, 0.08, 0.94, 0.90))
 
 
 def _page_layout(fig, c, units):
@@ -432,6 +538,49 @@ def _page_layout(fig, c, units):
     if c.residual_um is not None and np.size(c.residual_um):
         ax = fig.add_axes([0.10, 0.10, 0.80, 0.30])
         plot.residual_histogram(ax, c.residual_um, units=units)
+
+
+def _page_grades(fig, c, units):
+    from . import plot
+
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.86])
+    rows = [("minimum-zone flatness F", _h(c.mz.flatness_um, units)),
+            ("expanded uncertainty U", "not evaluated" if c.u_mz_um is None else _h(c.u_mz_um, units))]
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45), title="Result decided", bold_cols=(1,))
+    rows = [(g.grade, _h(g.tolerance_um, units), g.verdict, g.note or "") for g in c.grades]
+    y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.1, 0.27, 0.47), col_labels=("grade", "tolerance", "verdict", "note"),
+                        title=c.grades[0].standard, bold_cols=(2,), wrap_chars=(None, None, None, 55))
+    lines = [("Decision rule", "h"), c.decision_rule,
+             "Verdicts: 'conforms' = proven inside the tolerance; 'does not conform' = proven outside; "
+             "'undecided' = the uncertainty interval straddles the limit (ISO 14253-1 default rule).",
+             ]
+    plot.text_block(ax, lines, y0=y, wrap_chars=105)
+
+
+def _page_bearing(fig, c, units):
+    from . import plot
+
+    b = c.bearing
+    m = b.motion
+    st = [s for s in b.stations]
+    local = np.array([s.local_flatness_um for s in st]) if len(st) == len(m.x_mm) else None
+    plot.carriage_path(fig, m.x_mm, m.raw_profile_um, m.path_um, pitch=m.pitch_path_arcsec, pitch_unit="arcsec",
+                       local_um=local, local_limit_um=b.limit_um, units=units,
+                       title=f"carriage over its travel: path straightness {_h(m.straightness_um, units)} "
+                             f"(surface alone {_h(m.raw_straightness_um, units)})",
+                       rect=(0.1, 0.50, 0.88, 0.90))
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.36])
+    rows = []
+    for ch in b.checks:
+        val = _h(ch.value, units) if ch.unit == "um" else f"{ch.value:.2f} arcsec"
+        lim = _h(ch.limit, units) if ch.unit == "um" else f"{ch.limit:.2f} arcsec"
+        rows.append((ch.name, val, lim, ch.status))
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45, 0.62, 0.8), col_labels=("check", "value", "limit", "status"),
+                        title=f"Verdict: {b.verdict}", bold_cols=(3,), wrap_chars=(60, None, None, None))
+    pads = ", ".join(f"{p.pad.shape} {p.pad.length_mm:g} x {p.pad.width_mm:g} mm, gap {p.pad.gap_um:g} µm"
+                     for p in b.carriage.active_pads)
+    lines = [f"Pads: {pads}."] + list(b.notes)
+    plot.text_block(ax, [(t, "s") for t in lines], y0=y, wrap_chars=110)
 
 
 def _page_sources(fig, c, units):
