@@ -25,6 +25,7 @@ from . import (  # noqa: F401,E402
     info_cmd,
     plan_cmd,
     bearing_cmd,
+    report_cmd,
 )
 
 __all__ = ["app", "run", "main"]
