@@ -249,7 +249,7 @@ STANDARDS = {
         size_range="160 x 100 mm to 2500 x 1600 mm",
         has_table=True,
         source="scope of ISO 8512-2; coefficients inferred from a maker's table as per IS 7327-2003",
-        aliases=("iso8512-2", "iso-8512", "iso8512", "is-7327", "is7327"),
+        aliases=("iso8512-2", "iso-8512", "iso8512", "iso", "is-7327", "is7327"),
     ),
     "asme-b89.3.7": Standard(
         key="asme-b89.3.7",
@@ -334,7 +334,7 @@ def reference_length_mm(length_mm: float, width_mm: float, basis: str) -> float:
     Examples
     --------
     >>> round(reference_length_mm(1000, 630, "diagonal"), 2)
-    1181.9
+    1181.91
     >>> reference_length_mm(630, 1000, "side")
     1000.0
     """
