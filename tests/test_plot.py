@@ -1,0 +1,164 @@
+"""Pictures: the numbers a picture writes on itself, its colour scale and its files.
+
+The drawings are checked through what they state (labels, annotations, data
+of the drawn lines) against values computed outside the drawing code, and the
+rendered files for content (not blank).
+"""
+
+import numpy as np
+import pytest
+from matplotlib.image import imread
+
+from flatcheck import plot
+from flatcheck.errors import InputValueError, OutputError
+from flatcheck.flatness import minimum_zone
+from flatcheck.heightmap import HeightMap
+
+
+def _grid_3x3_corner():
+    """3 x 3 grid, x, y in {0, 1, 2} (mm), z = 0 except z(2, 2) = 1 µm."""
+    x, y = np.meshgrid([0.0, 1.0, 2.0], [0.0, 1.0, 2.0])
+    z = np.zeros_like(x)
+    z[2, 2] = 1.0
+    return HeightMap(x.ravel(), y.ravel(), z.ravel(), names=[f"P{i}" for i in range(9)], label="3x3")
+
+
+def _annotations(ax):
+    return {a.get_gid(): a.get_text() for a in ax.texts if a.get_gid() in ("high", "low")}
+
+
+def test_contour_map_labels_high_and_low_about_the_minimum_zone_plane():
+    hm = _grid_3x3_corner()
+    mz = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
+    fig = plot.new_figure((5, 4))
+    ax = plot.contour_map(fig.add_subplot(), hm, reference=mz)
+    ann = _annotations(ax)
+    # Source: REFERENCE.md check value 7 (derived with numpy): minimum zone of this grid is 0.75 µm with plane
+    # -0.75 + 0.25x + 0.25y; the corner (2, 2) is 0.75 above it and the lowest points lie on it.
+    assert ann["high"] == "high +0.750 µm"
+    assert ann["low"] == "low 0.000 µm"
+    assert "µm" in ax.get_xlabel() or "mm" in ax.get_xlabel()
+    assert ax.get_xlabel().endswith("(mm)") and ax.get_ylabel().endswith("(mm)")
+
+
+def test_contour_map_in_microinches_and_inches():
+    hm = _grid_3x3_corner()
+    mz = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
+    fig = plot.new_figure((5, 4))
+    ax = plot.contour_map(fig.add_subplot(), hm, reference=mz, units="in")
+    # 1 µin = 0.0254 µm exactly (international inch, 1959): 0.75 µm = 29.53 µin
+    assert _annotations(ax)["high"] == f"high +{0.75 / 0.0254:.2f} µin"
+    assert ax.get_xlabel().endswith("(in)")
+
+
+def test_contour_map_high_point_is_numpys_argmax(rng):
+    x, y = np.meshgrid(np.linspace(0, 400, 9), np.linspace(0, 300, 7))
+    z = rng.normal(0, 1.0, x.shape)
+    hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), length_mm=400, width_mm=300)
+    fig = plot.new_figure((5, 4))
+    ax = plot.contour_map(fig.add_subplot(), hm)
+    ann = _annotations(ax)
+    # reference: numpy's max/min of the heights, formatted to 2 decimals (values between 1 and 100)
+    zmax, zmin = float(z.max()), float(z.min())
+    assert ann["high"] == f"high {zmax:+.{3 if abs(zmax) < 1 else 2}f} µm"
+    assert ann["low"] == f"low {zmin:+.{3 if abs(zmin) < 1 else 2}f} µm"
+    # the high marker sits on the highest station
+    markers = [ln for ln in ax.lines if ln.get_marker() == "^"]
+    assert markers and markers[0].get_xdata()[0] == pytest.approx(x.ravel()[np.argmax(z)])
+
+
+def test_height_colour_scale_prints_in_grey_in_order():
+    """The height colour map's luminance rises monotonically, so grey prints keep the order of heights."""
+    from matplotlib import colormaps
+
+    for name in (plot.HEIGHT_CMAP, plot.FIELD_CMAP):
+        rgb = colormaps[name](np.linspace(0, 1, 256))[:, :3]
+        # Source: ITU-R BT.709 luma coefficients (0.2126, 0.7152, 0.0722), applied to the colour map's values
+        luma = rgb @ np.array([0.2126, 0.7152, 0.0722])
+        assert np.all(np.diff(luma) > 0), name
+
+
+def test_surface_view_needs_3d_axes():
+    hm = _grid_3x3_corner()
+    fig = plot.new_figure((5, 4))
+    with pytest.raises(InputValueError):
+        plot.surface_view(fig.add_subplot(), hm)
+    ax = plot.surface_view(fig.add_subplot(projection="3d"), hm)
+    assert ax.get_zlabel() == "height (µm)"
+
+
+def test_line_profiles_draw_deviation_from_reference_line():
+    # Analytic: a parabola h = s^2/1000 µm on s in [0, 1000] mm, reference = its chord h = s (µm, slope 1 µm/mm).
+    # The deviation h - s is -s(1000 - s)/1000, lowest -250 µm at mid-length (the chord's minimum-zone width).
+    s = np.linspace(0, 1000, 11)
+    h = s**2 / 1000
+    p = plot.LineProfile("AB", s, h, straightness_um=250.0, ref_offset_um=0.0, ref_slope_um_per_mm=1.0)
+    fig = plot.new_figure((6, 4))
+    (ax,) = plot.line_profiles(fig, [p])
+    drawn = ax.lines[-1].get_ydata()
+    np.testing.assert_allclose(drawn, -s * (1000 - s) / 1000, atol=1e-9)
+    assert "straightness 250.0 µm" in ax.get_title(loc="left")
+    with pytest.raises(InputValueError):
+        plot.line_profiles(plot.new_figure(), [])
+
+
+def test_survey_layout_writes_closures_and_notes():
+    xy = np.array([[0, 0], [500, 0], [1000, 0], [500, 300]], float)
+    fig = plot.new_figure((6, 4))
+    ax = plot.survey_layout(fig.add_subplot(), xy, [("S", [0, 1, 2]), ("N", [1, 3])], length_mm=1000, width_mm=630,
+                            closures=[("centre", 500, 300, -0.125)], line_notes={"S": "0.040 µm rms"})
+    texts = " | ".join(t.get_text() for t in ax.texts)
+    assert "closure -0.125 µm" in texts
+    assert "S\n0.040 µm rms" in texts
+
+
+def test_field_map_hatches_where_the_limit_is_exceeded():
+    x = np.linspace(0, 100, 11)
+    y = np.linspace(0, 50, 6)
+    v = np.tile(x / 50.0, (y.size, 1))  # 0..2 µm, rising with x
+    fig = plot.new_figure((6, 4))
+    ax = plot.local_flatness_map(fig.add_subplot(), x, y, v, window_mm=25, limit_um=1.5)
+    hatched = [c for c in ax.collections if "////" in (getattr(c, "hatches", None) or [])]
+    assert hatched, "exceedance of the limit must be hatched (legible in grey)"
+    with pytest.raises(InputValueError):
+        plot.local_flatness_map(fig.add_subplot(), x, y, v[:, :-1], window_mm=25)
+
+
+def test_carriage_path_draws_both_curves_and_local_flatness():
+    t = np.linspace(0, 500, 51)
+    rail = np.sin(t / 40)
+    car = 0.5 * rail
+    fig = plot.new_figure((6, 5))
+    axes = plot.carriage_path(fig, t, rail, car, pitch=np.gradient(car, t), local_um=np.abs(rail), local_limit_um=0.8)
+    assert len(axes) == 2
+    ys = [ln.get_ydata() for ln in axes[0].lines]
+    assert any(np.allclose(y, rail) for y in ys) and any(np.allclose(y, car) for y in ys)
+    assert axes[1].get_xlabel().endswith("(mm)")
+
+
+def test_save_png_writes_a_picture_with_content(tmp_path):
+    hm = _grid_3x3_corner()
+    fig = plot.new_figure((4, 3))
+    plot.contour_map(fig.add_subplot(), hm)
+    out = plot.save_png(fig, tmp_path / "map.png", dpi=60)
+    img = imread(out)
+    grey = img[..., :3].mean(axis=2)
+    assert img.shape[0] == 180 and img.shape[1] == 240
+    assert grey.std() > 0.1 and (grey < 0.5).mean() > 0.01  # not blank: contrast and some dark ink
+    with pytest.raises(OutputError):
+        plot.save_png(fig, tmp_path / "missing" / "map.png")
+
+
+def test_pdf_book_is_atomic(tmp_path):
+    target = tmp_path / "book.pdf"
+    target.write_bytes(b"earlier report")
+    with pytest.raises(RuntimeError):
+        with plot.PdfBook(target) as book:
+            book.add(plot.new_figure((3, 3)))
+            raise RuntimeError("drawing failed")
+    assert target.read_bytes() == b"earlier report"
+    assert [p.name for p in tmp_path.iterdir()] == ["book.pdf"]
+    with plot.PdfBook(target) as book:
+        book.add(plot.new_figure((3, 3)))
+        book.add(plot.new_figure((3, 3)))
+    assert book.pages == 2 and target.read_bytes()[:5] == b"%PDF-"
