@@ -19,7 +19,7 @@ ISO 8512-2:1990 (``iso-8512-2``; IS 7327:2003 is identical)
     Granite plates 160 x 100 to 2500 x 1600 mm, grades 0..3, length basis: the diagonal
     ``d``. The standard's own text was not available. Formula (inferred, not verified):
     ``t = k (2.5 + 0.003 d)`` µm with ``k = 1, 2, 4, 8``, which reproduces a maker's
-    published table "as per IS 7327-2003" to within its rounding (see :data:`ISO8512_2_TABLE_UM`).
+    published table "as per IS 7327-2003" to within 0.33 µm x k (see :data:`ISO8512_2_TABLE_UM`).
 ASME B89.3.7-2013 / GGG-P-463c (``asme-b89.3.7``)
     Grade AA ``= 40 + D^2/25`` µin with ``D`` the diagonal in inches; A = 2 AA, B = 4 AA.
     flatcheck uses this inch form, converted exactly (1 in = 25.4 mm), because it is the

@@ -165,3 +165,17 @@ def test_bad_options_one_line(cli, dome, args, fragment):
 def test_missing_file(cli, tmp_path):
     code, out, err = cli("grade", tmp_path / "none.csv", "-s", "din-876")
     assert code == 2 and "no such file" in err and err.count("\n") == 1
+
+
+def test_survey_input_uses_surface_size(cli):
+    # A survey file states its surface size; grading must use it (not the inset stations' extent).
+    from pathlib import Path
+
+    sample = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
+    if not sample.exists():
+        pytest.skip("sample survey not present")
+    obj = _json(cli, "grade", sample, "-s", "din-876", "--grade", "0")
+    assert obj["size_source"] == "surface"
+    # DIN 876 grade 0 uses the longer side: 4 (1 + L/1000) (REFERENCE.md 4.1)
+    assert obj["grades"][0]["tolerance_um"] == pytest.approx(4 * (1 + obj["length_mm"] / 1000))
+    assert obj["flatness_um"] > 0
