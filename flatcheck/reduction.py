@@ -1,0 +1,992 @@
+"""Survey reduction: from readings to a height map.
+
+The readings of a survey (one rise per step for angle and slope instruments,
+one height per station for an indicator) are adjusted by weighted least squares
+over the whole network of lines, whatever the layout (Union Jack, grid, free
+lines). The unknowns are
+
+- the height of every station (µm), and
+- the instrument zero: one per line for an autocollimator (it is re-aimed for
+  every line), one shared by every line for a gravity-referenced level or
+  differential level, one shared datum offset for an indicator.
+
+Observation model (µm), for step ``k`` of a line walked with sign ``s``
+(``s = -1`` when the run sets ``flip_sign``, the instrument turned round)::
+
+    rise_k = h[to] - h[from] + s * base_k * zero          (slope instruments)
+    value_k = h[station] + s * offset                     (indicator)
+
+with ``zero`` in µrad and ``base_k`` in mm (``base * zero * 1e-3`` is in µm).
+Angle units enter the rise as ``base * tan(angle)``; the zero is an *angle*, so
+it is removed inside the tangent by a short fixed-point iteration (exact to
+rounding on noise-free data; the linear model is exact for slope units).
+
+Each rise is weighted by ``(b_ref / base)**2`` (equal angular reading noise on
+every step; ``b_ref`` the median foot spacing), indicator readings equally.
+
+Datum. The normal equations are singular: the network never fixes the plane of
+the surface (an autocollimator sees neither offset nor tilt; a level sees no
+offset, and on lines in only two directions its zero trades against a tilt).
+These null-space directions are found inside the small candidate subspace
+``{1, x, y at the stations} x {instrument zeros}`` by a dense eigen-decomposition
+of the projected normal matrix; one unknown per null direction is held at zero
+(minimal constraints, chosen by pivoted QR), the rest solved by a sparse LU
+factorisation, and the least-squares plane of the station heights subtracted.
+Anything else the layout cannot observe (a twist on an autocollimator grid,
+stations cut off from the network) raises :class:`UnobservableError`.
+
+Outliers. The standardised residual of observation ``k`` is
+``w_k = r_k / (sigma_k * sqrt(r_kk))`` where ``r_kk`` is the redundancy number
+(diagonal of ``I - A N^- A^T W``) and ``sigma_k`` the standard deviation of the
+observation: the instrument's stated reading uncertainty when given (Baarda's
+data snooping), else the a-posteriori value ``sigma0`` (Pope's tau test).
+``|w_k| > 3.29`` is flagged (two-sided 0.1 % point of the standard normal).
+
+References
+----------
+W. Baarda, "A testing procedure for use in geodetic networks", Netherlands
+Geodetic Commission, Publications on Geodesy 2(5), 1968 (data snooping).
+A.J. Pope, "The statistics of residuals and the detection of outliers", NOAA
+Technical Report NOS 65 NGS 1, 1976 (tau test).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+from scipy.sparse.csgraph import connected_components
+
+from .errors import GeometryError, InputValueError, UnobservableError
+from .heightmap import HeightMap
+from .survey import Survey, observations
+from .units import angle_unit, length_unit
+
+__all__ = [
+    "OUTLIER_THRESHOLD",
+    "METHODS",
+    "LineClosure",
+    "InstrumentZero",
+    "Outlier",
+    "LinearReduction",
+    "NetworkRank",
+    "Reduction",
+    "network_rank",
+    "reduce_survey",
+]
+
+#: Flag limit for standardised residuals: two-sided 0.1 % point of the standard
+#: normal distribution, 3.2905 (Baarda 1968 uses alpha = 0.1 % for data snooping).
+OUTLIER_THRESHOLD = 3.29
+
+METHODS = ("least-squares", "moody")
+
+# Above these sizes the dense operator G and the exact redundancy numbers are
+# not formed (a dense inverse of the normal matrix, ~n_unknowns**3 flops).
+_OPERATOR_MAX_OBS = 6000
+_OPERATOR_MAX_UNKNOWNS = 1500
+# Up to this many unknowns the rank is also checked by a dense eigen-decomposition.
+_DENSE_RANK_MAX = 1200
+# Relative eigenvalue limit (after Jacobi scaling) below which a direction is null.
+_NULL_RTOL = 1e-10
+
+
+# --------------------------------------------------------------------------- records
+@dataclass(frozen=True)
+class LineClosure:
+    """Closure error of one line.
+
+    Attributes
+    ----------
+    line : str
+        Line name.
+    closure_um : float
+        Closure error in µm (meaning below).
+    meaning : str
+        What the number is, in words.
+    run_spread_um : float or None
+        For a line walked more than once: largest difference between the runs'
+        end-to-end rises (zero removed), in µm; ``None`` for a single run.
+    """
+
+    line: str
+    closure_um: float
+    meaning: str
+    run_spread_um: float | None = None
+
+
+@dataclass(frozen=True)
+class InstrumentZero:
+    """An adjusted instrument zero.
+
+    Attributes
+    ----------
+    lines : tuple of str
+        The lines it applies to (one line for an autocollimator, all for a level).
+    value : float
+        The zero in the instrument's reading unit (as read, before any halving of
+        beam deviation): the reading the instrument gives on a step parallel to
+        the reference (the least-squares plane of the stations for an
+        autocollimator; gravity for a level; the datum for an indicator).
+    unit : str
+        The reading unit.
+    rise_um : float
+        The zero as a rise in µm over ``base_mm`` (indicator: the datum offset, µm).
+    base_mm : float
+        Foot spacing in mm used for ``rise_um`` (the median of the lines'; 0 for indicators).
+    """
+
+    lines: tuple
+    value: float
+    unit: str
+    rise_um: float
+    base_mm: float
+
+
+@dataclass(frozen=True)
+class Outlier:
+    """A reading whose standardised residual exceeds :data:`OUTLIER_THRESHOLD`.
+
+    Attributes
+    ----------
+    line : str
+        Line name.
+    run : int
+        Run number, 1-based.
+    step : int
+        Step number along the line from its first station, 1-based (station
+        number for indicators).
+    station_from, station_to : str
+        The step's stations in the line's forward direction (``station_from`` is
+        ``""`` for indicators).
+    reading : float
+        The reading as given (forward order and sign), in the instrument's unit.
+    residual_um : float
+        Residual in µm (observed minus adjusted).
+    w : float
+        Standardised residual (dimensionless).
+    where : str
+        Where the run is in its file.
+    """
+
+    line: str
+    run: int
+    step: int
+    station_from: str
+    station_to: str
+    reading: float
+    residual_um: float
+    w: float
+    where: str = ""
+
+    def describe(self) -> str:
+        """One line naming the reading: line, run, step, stations and w."""
+        span = f"{self.station_from} -> {self.station_to}" if self.station_from else self.station_to
+        return (
+            f"line {self.line!r}, run {self.run}, step {self.step} ({span}): reading {self.reading:g}, "
+            f"residual {self.residual_um:+.3f} µm, w = {self.w:+.2f}"
+        )
+
+
+@dataclass(frozen=True, eq=False)
+class LinearReduction:
+    """The reduction as a matrix: ``heights_um = G @ value_um``.
+
+    Attributes
+    ----------
+    G : ndarray, shape (n_stations, n_obs)
+        Maps the observations (rises or heights in µm, in the order of
+        :func:`flatcheck.survey.observations`) to station heights in µm referred
+        to the least-squares plane of the stations. For angle units with an
+        instrument zero this is the linearisation at the adjusted solution.
+    station_names : tuple of str
+        Station order of the rows.
+    method : str
+        ``"least-squares"`` or ``"moody"``.
+    """
+
+    G: np.ndarray
+    station_names: tuple
+    method: str
+
+    def heights_um(self, value_um) -> np.ndarray:
+        """Heights in µm from observations.
+
+        Parameters
+        ----------
+        value_um : array_like, shape (n_obs,) or (k, n_obs)
+            Observations in µm (one vector, or a batch of ``k`` trials).
+
+        Returns
+        -------
+        ndarray, shape (n_stations,) or (k, n_stations)
+            Heights in µm referred to the least-squares plane of the stations.
+        """
+        v = np.asarray(value_um, dtype=float)
+        return self.G @ v if v.ndim == 1 else v @ self.G.T
+
+
+@dataclass(frozen=True)
+class NetworkRank:
+    """How much of the surface a layout and instrument can observe.
+
+    Attributes
+    ----------
+    n_unknowns : int
+        Station heights plus instrument zeros.
+    n_observations : int
+        Readings (every run counted).
+    rank : int
+        Rank of the design matrix.
+    deficiency : int
+        ``n_unknowns - rank``: directions the readings cannot see.
+    redundancy : int
+        ``n_observations - rank``: degrees of freedom for checking the readings.
+    datum : tuple of str
+        Null-space directions the reduction handles (offset, tilts, zero/tilt trade).
+    unobservable : tuple of str
+        Further shapes the layout cannot see (empty when the survey reduces).
+    exact : bool
+        True when the rank was also confirmed by a dense eigen-decomposition.
+    """
+
+    n_unknowns: int
+    n_observations: int
+    rank: int
+    deficiency: int
+    redundancy: int
+    datum: tuple
+    unobservable: tuple
+    exact: bool
+
+
+@dataclass(frozen=True, eq=False)
+class Reduction:
+    """The result of reducing a survey.
+
+    Attributes
+    ----------
+    heightmap : HeightMap
+        Station positions (mm), names and heights (µm) referred to the
+        least-squares plane through the stations.
+    method : str
+        ``"least-squares"`` or ``"moody"``.
+    residual_um : ndarray, shape (n_obs,)
+        Observed minus adjusted, in µm, aligned with ``observations(survey)``.
+    sigma0_um : float
+        A-posteriori standard deviation of one observation in µm, for a step of
+        ``ref_base_mm`` (``sqrt(r^T W r / redundancy)``); NaN without redundancy.
+    sigma0_reading : float
+        The same in the instrument's reading unit.
+    ref_base_mm : float
+        Foot spacing of unit weight in mm (median foot spacing; 0 for indicators).
+    redundancy : int
+        Degrees of freedom (observations minus rank).
+    closures : tuple of LineClosure
+        Closure errors (per line for least squares; the two centre closures for Moody).
+    instrument_zeros : tuple of InstrumentZero
+        Adjusted zeros (least squares) or the zeros implied by the Moody map.
+    outliers : tuple of Outlier
+        Flagged readings, largest ``|w|`` first (least squares only).
+    warnings : tuple of str
+        Things the user should know (no redundancy, zero/tilt trade...).
+    operator : LinearReduction or None
+        Dense linear operator; ``None`` for large surveys.
+    rank : NetworkRank
+        Rank and redundancy of the network.
+    redundancy_numbers : ndarray, shape (n_obs,)
+        Diagonal of ``I - A N^- A^T W`` (exact when ``operator`` is not None,
+        otherwise the mean value ``redundancy / n_obs``).
+    standardized_residual : ndarray, shape (n_obs,)
+        ``w`` of every observation (NaN where it cannot be tested).
+    moody : object or None
+        The :class:`flatcheck.moody.MoodyResult` for ``method="moody"``.
+    """
+
+    heightmap: HeightMap
+    method: str
+    residual_um: np.ndarray
+    sigma0_um: float
+    sigma0_reading: float
+    ref_base_mm: float
+    redundancy: int
+    closures: tuple
+    instrument_zeros: tuple
+    outliers: tuple
+    warnings: tuple
+    operator: LinearReduction | None
+    rank: NetworkRank
+    redundancy_numbers: np.ndarray
+    standardized_residual: np.ndarray
+    moody: object = None
+
+
+# --------------------------------------------------------------------------- the model
+@dataclass(frozen=True, eq=False)
+class _Model:
+    """Design matrix and bookkeeping shared by the least-squares and Moody reductions."""
+
+    survey: Survey
+    obs: object
+    A: sp.csr_matrix  # (m, n + p)
+    w: np.ndarray  # (m,) weights
+    n: int
+    p: int
+    zero_of_obs: np.ndarray  # (m,) index of the zero unknown (0..p-1)
+    sign: np.ndarray  # (m,) +1 / -1 (flip_sign)
+    ref_base_mm: float
+    angle_factor: float | None  # rad per reading unit (after halving) for angle units, else None
+    slope_factor: float  # slope (or µm for indicators) per reading unit after halving
+    half: float
+    zero_lines: tuple  # per zero unknown: tuple of line names
+    zero_base_mm: np.ndarray  # per zero unknown: median base
+
+
+def _build_model(survey: Survey) -> _Model:
+    inst = survey.instrument
+    for ln in survey.lines:
+        if not ln.runs:
+            raise InputValueError(
+                "the line has no readings",
+                where=f"line {ln.name!r}",
+                fix="fill in its readings or remove the line",
+            )
+    obs = observations(survey)
+    m = obs.value_um.size
+    n = len(survey.stations)
+    lines = survey.lines
+    flips = {(li, ri): (-1.0 if run.flip_sign else 1.0) for li, ln in enumerate(lines) for ri, run in enumerate(ln.runs)}
+    sign = np.array([flips[(int(a), int(b))] for a, b in zip(obs.line, obs.run)], dtype=float)
+    half = 0.5 if (inst.kind == "autocollimator" and inst.reports == "beam-deviation") else 1.0
+    rows = np.arange(m)
+    if inst.reads_heights:
+        p = 1
+        zero_of_obs = np.zeros(m, dtype=np.int64)
+        cols = [obs.i_to, n + zero_of_obs]
+        vals = [np.ones(m), sign]
+        rr = [rows, rows]
+        w = np.ones(m)
+        ref_base = 0.0
+        angle_factor = None
+        slope_factor = length_unit(inst.unit).factor_um
+        zero_lines = (tuple(ln.name for ln in lines),)
+        zero_base = np.zeros(1)
+    else:
+        if np.any(obs.base_mm <= 0) or not np.all(np.isfinite(obs.base_mm)):
+            bad = int(obs.line[np.flatnonzero(~(obs.base_mm > 0))[0]])
+            raise InputValueError(
+                "the foot spacing must be a positive number of mm",
+                where=f"line {lines[bad].name!r}",
+                fix="give the base length of the instrument's feet",
+            )
+        if inst.gravity_referenced:
+            p = 1
+            zero_of_obs = np.zeros(m, dtype=np.int64)
+            zero_lines = (tuple(ln.name for ln in lines),)
+            zero_base = np.array([float(np.median(obs.base_mm))])
+        else:
+            p = len(lines)
+            zero_of_obs = obs.line.copy()
+            zero_lines = tuple((ln.name,) for ln in lines)
+            zero_base = np.array([float(ln.foot_spacing_mm) for ln in lines])
+        # rise = h[to] - h[from] + s * base_mm * zero_urad * 1e-3   (µm)
+        rr = [rows, rows, rows]
+        cols = [obs.i_to, obs.i_from, n + zero_of_obs]
+        vals = [np.ones(m), -np.ones(m), sign * obs.base_mm * 1e-3]
+        ref_base = float(np.median(obs.base_mm))
+        w = (ref_base / obs.base_mm) ** 2
+        unit = angle_unit(inst.unit)
+        angle_factor = unit.factor * half if unit.kind == "angle" else None
+        slope_factor = unit.factor * half
+    A = sp.csr_matrix(
+        (np.concatenate(vals), (np.concatenate(rr), np.concatenate(cols))), shape=(m, n + p)
+    )
+    return _Model(
+        survey, obs, A, w, n, p, zero_of_obs, sign, ref_base, angle_factor, slope_factor, half, zero_lines, zero_base
+    )
+
+
+# --------------------------------------------------------------------------- null space
+def _plane_basis(survey: Survey) -> np.ndarray:
+    """Orthonormal basis (n, 3) of {1, x, y} at the stations; GeometryError if collinear."""
+    x, y = survey.x_mm, survey.y_mm
+    n = x.size
+    scale = max(float(np.ptp(x)), float(np.ptp(y)), 1e-300)
+    X = np.column_stack([np.ones(n), (x - x.mean()) / scale, (y - y.mean()) / scale])
+    Q, R = np.linalg.qr(X)
+    d = np.abs(np.diag(R))
+    if n < 3 or d.min() <= 1e-9 * d.max():
+        raise GeometryError(
+            "the stations lie on one straight line, so no plane (and no flatness) can be found",
+            fix="survey at least two lines that cross or run side by side, or evaluate the line's straightness",
+        )
+    return Q
+
+
+def _shape_columns(survey: Survey) -> dict:
+    """Candidate unobservable shapes beyond the plane, at the stations (centred, scaled)."""
+    x, y = survey.x_mm, survey.y_mm
+    sx = max(float(np.ptp(x)), 1e-300)
+    sy = max(float(np.ptp(y)), 1e-300)
+    u = (x - x.mean()) / sx
+    v = (y - y.mean()) / sy
+    return {"twist (z = k*x*y)": u * v, "bow along x (z = k*x^2)": u * u, "bow along y (z = k*y^2)": v * v}
+
+
+def _scaled_eigh(M: np.ndarray, *, vectors: bool = True):
+    """Eigen-decomposition of a symmetric PSD matrix after Jacobi scaling.
+
+    Diagonal entries below 1e-24 of the largest are rounding noise of exactly
+    null columns: they are treated as null (scale 1). Eigenvalues are returned
+    relative to the largest (so a null direction has ~1e-16).
+    """
+    dgn = np.diag(M).copy()
+    big = max(float(dgn.max()), 1e-300) if dgn.size else 1.0
+    ok = dgn > 1e-24 * big
+    scale = np.where(ok, 1.0 / np.sqrt(np.where(ok, dgn, 1.0)), 1.0 / np.sqrt(big))
+    Ms = M * scale[:, None] * scale[None, :]
+    if vectors:
+        evals, evecs = np.linalg.eigh(Ms)
+    else:
+        evals, evecs = np.linalg.eigvalsh(Ms), None
+    top = max(float(evals.max()), 1e-300) if evals.size else 1.0
+    return evals / top, evecs, scale
+
+
+def _null_in_span(model: _Model, Hcols: np.ndarray) -> np.ndarray:
+    """Null vectors of A inside span{height columns Hcols (n, q)} x {zeros}.
+
+    Returns an array (n + p, d) whose columns span the null space found there.
+    """
+    n, p = model.n, model.p
+    # C = [[Hcols, 0], [0, I_p]] (sparse), B = A C, M = B^T W B (small, dense)
+    C = sp.bmat([[sp.csr_matrix(Hcols), None], [None, sp.identity(p, format="csr")]], format="csr")
+    B = (model.A @ C).tocsc()
+    M = (B.T @ sp.diags(model.w) @ B).toarray()
+    evals, evecs, scale = _scaled_eigh(M)
+    null = evecs[:, evals <= _NULL_RTOL] * scale[:, None]
+    Z = np.asarray(C @ null) if null.shape[1] else np.zeros((n + p, 0))
+    if Z.shape[1]:
+        Z, _ = np.linalg.qr(Z)
+    return Z
+
+
+def _describe_datum(model: _Model, Z: np.ndarray, Qp: np.ndarray) -> tuple:
+    """Words for the null-space directions handled as datum."""
+    kind = model.survey.instrument
+    out = []
+    d = Z.shape[1]
+    if d == 0:
+        return ()
+    # how much of each plane component the null space contains
+    Zh = Z[: model.n]
+    comp = Qp.T @ Zh  # (3, d)
+    rank_h = np.linalg.matrix_rank(comp, tol=1e-8)
+    if kind.reads_heights:
+        out.append("common offset of the indicator datum")
+    elif not kind.gravity_referenced:
+        out.append("offset and two tilts of the surface (each line's zero absorbs its slope)")
+    else:
+        out.append("offset of the surface (a level does not see height)")
+        if rank_h >= 2:
+            out.append(
+                "one tilt of the surface traded against the level's zero (the lines run in only two directions)"
+            )
+    return tuple(out)
+
+
+def _components(model: _Model):
+    """Connected parts of the network; returns labels (n,) and count."""
+    n = model.n
+    obs = model.obs
+    if model.survey.instrument.reads_heights:
+        # every read station joins a virtual datum node n
+        a, b = obs.i_to, np.full(obs.i_to.size, n)
+        size = n + 1
+    else:
+        a, b = obs.i_from, obs.i_to
+        size = n
+    g = sp.coo_matrix((np.ones(a.size), (a, b)), shape=(size, size))
+    ncomp, labels = connected_components(g, directed=False)
+    return ncomp, labels[:n], (labels[n] if size > n else None)
+
+
+def _names(survey: Survey, idx, limit: int = 8) -> str:
+    idx = list(idx)
+    names = [survey.stations[i].name for i in idx[:limit]]
+    more = f" and {len(idx) - limit} more" if len(idx) > limit else ""
+    return ", ".join(repr(s) for s in names) + more
+
+
+def _check_connected(model: _Model) -> None:
+    survey = model.survey
+    ncomp, labels, datum_label = _components(model)
+    if ncomp <= 1:
+        return
+    if datum_label is not None:
+        main = datum_label
+    else:
+        counts = np.bincount(labels)
+        main = int(np.argmax(counts))
+    cut = np.flatnonzero(labels != main)
+    touched = np.zeros(model.n, dtype=bool)
+    touched[model.obs.i_to] = True
+    if not survey.instrument.reads_heights:
+        touched[model.obs.i_from] = True
+    lonely = cut[~touched[cut]]
+    if lonely.size:
+        raise UnobservableError(
+            f"station(s) {_names(survey, lonely)} are on no line that has readings, so their heights are unobservable",
+            fix="add a line through them, or remove them from the survey",
+        )
+    raise UnobservableError(
+        f"station(s) {_names(survey, cut)} are not connected to the rest of the network, so their heights "
+        "relative to it are unobservable",
+        fix="add a line that joins them to the other stations",
+    )
+
+
+_SHAPE_FIX = {
+    "twist (z = k*x*y)": "add a diagonal line, or survey with a gravity-referenced electronic level",
+    "bow along x (z = k*x^2)": "add lines along x (rows) or diagonal lines",
+    "bow along y (z = k*y^2)": "add lines along y (columns) or diagonal lines",
+}
+
+
+def _rank_analysis(model: _Model, *, dense: bool | None = None):
+    """Datum null basis Z, plane basis Qp, and a NetworkRank (does not raise for shapes)."""
+    survey = model.survey
+    Qp = _plane_basis(survey)
+    x, y = survey.x_mm, survey.y_mm
+    span = max(float(np.ptp(x)), float(np.ptp(y)))
+    P3 = np.column_stack([np.ones(model.n), (x - x.mean()) / span, (y - y.mean()) / span])
+    Z = _null_in_span(model, P3)
+    d0 = Z.shape[1]
+    unobservable = []
+    for name, col in _shape_columns(survey).items():
+        Zs = _null_in_span(model, np.column_stack([P3, col]))
+        if Zs.shape[1] > d0:
+            unobservable.append(name)
+    n_unk = model.n + model.p
+    m = model.A.shape[0]
+    if dense is None:
+        dense = n_unk <= _DENSE_RANK_MAX
+    extra_null = None
+    if dense:
+        N = (model.A.T @ sp.diags(model.w) @ model.A).toarray()
+        evals, _, _ = _scaled_eigh(N, vectors=False)
+        deficiency = int(np.sum(evals <= _NULL_RTOL))
+        extra = deficiency - d0 - len(unobservable)
+        if extra > 0:
+            evals, evecs, s = _scaled_eigh(N)
+            V = evecs[:, evals <= _NULL_RTOL] * s[:, None]
+            V, _ = np.linalg.qr(V)
+            if d0:  # remove the datum directions and keep what is left
+                V = V - Z @ (Z.T @ V)
+            U, _, _ = np.linalg.svd(V, full_matrices=False)
+            extra_null = U[:, :extra]
+            unobservable.append(f"{extra} other direction(s) (stations named in the error)")
+        exact = True
+    else:
+        deficiency = d0 + len(unobservable)
+        exact = False
+    rank = n_unk - deficiency
+    info = NetworkRank(
+        n_unknowns=n_unk,
+        n_observations=m,
+        rank=rank,
+        deficiency=deficiency,
+        redundancy=m - rank,
+        datum=_describe_datum(model, Z, Qp),
+        unobservable=tuple(unobservable),
+        exact=exact,
+    )
+    return Z, Qp, info, extra_null
+
+
+def network_rank(survey: Survey) -> NetworkRank:
+    """Rank, deficiency and redundancy of a survey's network (readings required).
+
+    Parameters
+    ----------
+    survey : Survey
+        A survey with readings (the values do not matter, only which steps exist).
+
+    Returns
+    -------
+    NetworkRank
+        Unknowns, observations, rank, deficiency, redundancy and the shapes the
+        layout cannot observe (beyond the plane, which is never observed).
+
+    Raises
+    ------
+    UnobservableError
+        If stations are cut off from the network (their number of free
+        directions is not a shape of the surface).
+    GeometryError
+        If all stations lie on one line.
+    """
+    model = _build_model(survey)
+    _check_connected(model)
+    _, _, info, _ = _rank_analysis(model)
+    return info
+
+
+def _raise_unobservable(model: _Model, info: NetworkRank, extra_null) -> None:
+    survey = model.survey
+    shapes = [s for s in info.unobservable if s in _SHAPE_FIX]
+    if shapes:
+        inst = survey.instrument.kind
+        what = " and ".join(shapes)
+        fix = "; ".join(dict.fromkeys(_SHAPE_FIX[s] for s in shapes))
+        raise UnobservableError(
+            f"this layout read with an {inst} cannot observe {what}: a surface of that shape gives the same "
+            f"readings as a flat one",
+            fix=fix,
+        )
+    if extra_null is not None:
+        h = np.abs(extra_null[: model.n]).max(axis=1)
+        idx = np.argsort(-h)
+        idx = idx[h[idx] > 1e-6 * max(h.max(), 1e-300)]
+        zpart = np.abs(extra_null[model.n :]).max(axis=1)
+        lines = [", ".join(model.zero_lines[j]) for j in np.flatnonzero(zpart > 1e-6 * max(zpart.max(), 1e-300))]
+        extra = f" (with the zero of line(s) {', '.join(repr(s) for s in lines[:4])})" if lines else ""
+        raise UnobservableError(
+            f"the heights of station(s) {_names(survey, idx)} cannot be found from these readings{extra}",
+            fix="add a line that crosses them, or survey with a gravity-referenced electronic level",
+        )
+
+
+# --------------------------------------------------------------------------- solving
+class _Solver:
+    """Minimal-constraint sparse solver of the weighted normal equations."""
+
+    def __init__(self, model: _Model, Z: np.ndarray):
+        self.model = model
+        n_unk = model.n + model.p
+        d = Z.shape[1]
+        if d:
+            _, _, piv = scipy.linalg.qr(Z.T, pivoting=True, mode="economic")
+            fixed = np.sort(piv[:d])
+        else:
+            fixed = np.zeros(0, dtype=np.int64)
+        keep = np.setdiff1d(np.arange(n_unk), fixed)
+        self.keep = keep
+        self.Ar = model.A[:, keep].tocsc()
+        self.AtW = (self.Ar.T @ sp.diags(model.w)).tocsr()
+        N = (self.AtW @ self.Ar).tocsc()
+        self.N = N
+        try:
+            self.lu = spla.splu(N, permc_spec="MMD_AT_PLUS_A")
+        except RuntimeError:  # SuperLU: "Factor is exactly singular"
+            raise UnobservableError(
+                "the readings do not determine every station height (the normal equations are singular)",
+                fix="add lines that cross the poorly connected stations, or survey with a gravity-referenced level",
+            ) from None
+        udiag = np.abs(self.lu.U.diagonal())
+        if udiag.size and udiag.min() <= 1e-11 * udiag.max():
+            raise UnobservableError(
+                "the readings do not determine every station height (the normal equations are singular)",
+                fix="add lines that cross the poorly connected stations, or survey with a gravity-referenced level",
+            )
+        self.n_unk = n_unk
+
+    def solve(self, l: np.ndarray) -> np.ndarray:
+        rhs = self.AtW @ l
+        ur = self.lu.solve(rhs)
+        ur = ur + self.lu.solve(rhs - self.N @ ur)  # one step of iterative refinement
+        u = np.zeros(self.n_unk)
+        u[self.keep] = ur
+        return u
+
+    def operator(self) -> np.ndarray:
+        """Dense solution operator K (n_unk, m): u = K @ l (small problems only).
+
+        Formed as N^-1 (A^T W) with a dense Cholesky inverse: SuperLU's solve
+        with thousands of right-hand sides is far slower than one dense inverse.
+        """
+        c = scipy.linalg.cho_factor(self.N.toarray())
+        Ninv = scipy.linalg.cho_solve(c, np.eye(self.N.shape[0]))
+        Kr = np.asarray((self.AtW.T @ Ninv).T)
+        K = np.zeros((self.n_unk, Kr.shape[1]))
+        K[self.keep] = Kr
+        return K
+
+
+def _linearised_values(model: _Model, zeros_urad: np.ndarray) -> np.ndarray:
+    """Observations with the zero moved inside the tangent (angle units), in µm.
+
+    For angle units the reading is ``atan(rise/base) + s*zero``; the value
+    returned is ``base*tan(angle - s*zero) + s*base*zero``, which equals
+    ``rise + s*base*zero`` exactly, the linear model of the design matrix.
+    """
+    obs = model.obs
+    if model.angle_factor is None:
+        return obs.value_um
+    eps_rad = model.sign * zeros_urad[model.zero_of_obs] * 1e-6
+    base_um = obs.base_mm * 1e3
+    angle = obs.reading * model.angle_factor
+    return base_um * np.tan(angle - eps_rad) + base_um * eps_rad
+
+
+def _plane_removed(Qp: np.ndarray, h: np.ndarray) -> np.ndarray:
+    return h - Qp @ (Qp.T @ h)
+
+
+def _zero_records(model: _Model, zeros: np.ndarray) -> tuple:
+    inst = model.survey.instrument
+    out = []
+    for j in range(model.p):
+        if inst.reads_heights:
+            value = zeros[j] / model.slope_factor
+            rise = zeros[j]
+            base = 0.0
+        else:
+            # zero in µrad (angle units) or µm/m (slope units) -> reading unit; an autocollimator
+            # that reports beam deviation reads twice the mirror tilt (slope_factor includes the half)
+            value = zeros[j] * 1e-6 / model.slope_factor
+            base = float(model.zero_base_mm[j])
+            rise = base * zeros[j] * 1e-3
+        out.append(InstrumentZero(model.zero_lines[j], float(value), inst.unit, float(rise), base))
+    return tuple(out)
+
+
+def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -> tuple:
+    survey = model.survey
+    obs = model.obs
+    reads = survey.instrument.reads_heights
+    zero_part = model.A[:, model.n :] @ u[model.n :]
+    corrected = l - zero_part
+    out = []
+    for li, ln in enumerate(survey.lines):
+        sel = obs.line == li
+        runs = np.unique(obs.run[sel])
+        if reads:
+            closure = float(np.mean(r[sel]))
+            meaning = "mean residual of the line's indicator readings (observed minus adjusted height)"
+            spread = None
+        else:
+            sums = np.array([r[sel & (obs.run == k)].sum() for k in runs])
+            closure = float(sums.mean())
+            meaning = (
+                "the line's integrated rise (zero removed, mean of its runs) minus the adjusted height "
+                "difference of its end stations; it comes from reading errors, not from flatness"
+            )
+            ends = np.array([corrected[sel & (obs.run == k)].sum() for k in runs])
+            spread = float(ends.max() - ends.min()) if runs.size > 1 else None
+        out.append(LineClosure(ln.name, closure, meaning, spread))
+    return tuple(out)
+
+
+def _outliers(model: _Model, r: np.ndarray, w_std: np.ndarray) -> tuple:
+    survey = model.survey
+    obs = model.obs
+    flag = np.flatnonzero(np.abs(np.nan_to_num(w_std)) > OUTLIER_THRESHOLD)
+    flag = flag[np.argsort(-np.abs(w_std[flag]))]
+    out = []
+    for k in flag:
+        ln = survey.lines[int(obs.line[k])]
+        run = ln.runs[int(obs.run[k])]
+        st = int(obs.step[k])
+        if survey.instrument.reads_heights:
+            s_from, s_to = "", ln.stations[st]
+        else:
+            s_from, s_to = ln.stations[st], ln.stations[st + 1]
+        out.append(
+            Outlier(
+                line=ln.name,
+                run=int(obs.run[k]) + 1,
+                step=st + 1,
+                station_from=s_from,
+                station_to=s_to,
+                reading=float(obs.reading[k]),
+                residual_um=float(r[k]),
+                w=float(w_std[k]),
+                where=run.where or f"line {ln.name!r}, run {int(obs.run[k]) + 1}",
+            )
+        )
+    return tuple(out)
+
+
+def _sigma0(model: _Model, r: np.ndarray, dof: int) -> tuple[float, float]:
+    if dof <= 0:
+        return float("nan"), float("nan")
+    s0 = float(np.sqrt(np.sum(model.w * r * r) / dof))
+    if model.survey.instrument.reads_heights:
+        return s0, s0 / model.slope_factor
+    # µm over ref_base -> reading unit: rise = base_um * factor * reading (small angles)
+    return s0, s0 / (model.ref_base_mm * 1e3 * model.slope_factor)
+
+
+def _standardize(model: _Model, r: np.ndarray, red: np.ndarray, sigma0_um: float) -> np.ndarray:
+    inst = model.survey.instrument
+    if inst.reading_uncertainty is not None and inst.reading_uncertainty > 0:
+        sigma = inst.reading_uncertainty * np.abs(model.obs.um_per_unit)  # Baarda: a-priori sigma
+    else:
+        sigma = sigma0_um / np.sqrt(model.w)  # Pope: a-posteriori sigma
+    with np.errstate(invalid="ignore", divide="ignore"):
+        w = r / (sigma * np.sqrt(red))
+    w[~(red > 1e-8)] = np.nan
+    if inst.reading_uncertainty is None:
+        # no a-priori sigma: nothing to test without redundancy, or when the residuals
+        # are rounding noise (exact, e.g. simulated, readings)
+        scale = float(np.sqrt(np.mean(model.obs.value_um**2))) if r.size else 0.0
+        if not np.isfinite(sigma0_um) or sigma0_um <= 1e-10 * max(scale, 1e-300):
+            w[:] = np.nan
+    return w
+
+
+def _heightmap(survey: Survey, h: np.ndarray, label: str) -> HeightMap:
+    return HeightMap(
+        survey.x_mm,
+        survey.y_mm,
+        h,
+        names=tuple(s.name for s in survey.stations),
+        length_mm=survey.surface.length_mm,
+        width_mm=survey.surface.width_mm,
+        label=label,
+    )
+
+
+def _label(survey: Survey) -> str:
+    s = survey.surface
+    return s.description or f"surface {s.length_mm:g} x {s.width_mm:g} mm"
+
+
+def _prepare(survey: Survey):
+    """Model, datum null basis and plane basis, after every observability check."""
+    model = _build_model(survey)
+    _check_connected(model)
+    Z, Qp, info, extra_null = _rank_analysis(model)
+    if info.unobservable:
+        _raise_unobservable(model, info, extra_null)
+    return model, Z, Qp, info
+
+
+def _least_squares(survey: Survey) -> Reduction:
+    model, Z, Qp, info = _prepare(survey)
+    solver = _Solver(model, Z)
+    n, p = model.n, model.p
+    l = model.obs.value_um
+    u = solver.solve(l)
+
+    def referred(u):
+        # heights without their plane; zeros moved along the datum null space to match
+        h_star = u[:n]
+        h = _plane_removed(Qp, h_star)
+        zeros = u[n:].copy()
+        if Z.shape[1]:
+            alpha, *_ = np.linalg.lstsq(Z[:n], h - h_star, rcond=None)
+            zeros = zeros + Z[n:] @ alpha
+        return h, zeros
+
+    h, zeros = referred(u)
+    if model.angle_factor is not None:
+        # Angle units: the zero is an angle, so it is moved inside the tangent and
+        # the linear solve repeated (fixed point; converges like angle**2). The
+        # zeros used are those referred to the least-squares plane of the stations.
+        for _ in range(4):
+            l_new = _linearised_values(model, zeros)
+            u = solver.solve(l_new)
+            done = np.max(np.abs(l_new - l)) <= 1e-14 * max(1.0, float(np.max(np.abs(l_new))))
+            l = l_new
+            h, zeros = referred(u)
+            if done:
+                break
+    r = l - model.A @ u
+    dof = info.redundancy
+    warnings = []
+    m = l.size
+    if any("traded" in s for s in info.datum):
+        warnings.append(
+            "the lines run in only two directions, so the level's zero cannot be told from a tilt of the "
+            "surface along the bisector of the lines; the zero is reported relative to the least-squares plane"
+        )
+    # operator and redundancy numbers
+    operator = None
+    n_unk = n + p
+    if m <= _OPERATOR_MAX_OBS and n_unk <= _OPERATOR_MAX_UNKNOWNS:
+        K = solver.operator()
+        G = K[:n] - Qp @ (Qp.T @ K[:n])
+        operator = LinearReduction(G, tuple(s.name for s in survey.stations), "least-squares")
+        hat = np.asarray(model.A.multiply(K.T).sum(axis=1)).ravel()  # diag(A N^- A^T W)
+        red = np.clip(1.0 - hat, 0.0, 1.0)
+    else:
+        red = np.full(m, dof / m if m else 0.0)
+        warnings.append(
+            "the network is large: standardised residuals use the mean redundancy number, not each reading's own"
+        )
+    sigma0_um, sigma0_reading = _sigma0(model, r, dof)
+    if dof <= 0:
+        warnings.append("the readings have no redundancy, so they cannot be checked: add lines or repeat runs")
+    w_std = _standardize(model, r, red, sigma0_um)
+    outliers = _outliers(model, r, w_std)
+    if outliers:
+        warnings.append(
+            f"{len(outliers)} reading(s) exceed |w| > {OUTLIER_THRESHOLD}; the largest: {outliers[0].describe()}"
+        )
+    return Reduction(
+        heightmap=_heightmap(survey, h, _label(survey)),
+        method="least-squares",
+        residual_um=r,
+        sigma0_um=sigma0_um,
+        sigma0_reading=sigma0_reading,
+        ref_base_mm=model.ref_base_mm,
+        redundancy=dof,
+        closures=_line_closures(model, l, u, r),
+        instrument_zeros=_zero_records(model, zeros),
+        outliers=outliers,
+        warnings=tuple(warnings),
+        operator=operator,
+        rank=info,
+        redundancy_numbers=red,
+        standardized_residual=w_std,
+    )
+
+
+def reduce_survey(survey: Survey, *, method: str = "least-squares") -> Reduction:
+    """Reduce a survey's readings to station heights.
+
+    Parameters
+    ----------
+    survey : Survey
+        Stations (mm), lines and readings (every run is used).
+    method : {"least-squares", "moody"}
+        ``"least-squares"``: network adjustment over every line of any layout
+        (see the module notes). ``"moody"``: the classic Union Jack worksheet
+        (:func:`flatcheck.moody.moody_reduce`), Union Jack surveys only.
+
+    Returns
+    -------
+    Reduction
+        Heights (µm) referred to the least-squares plane of the stations,
+        residuals (µm), sigma0, closures, zeros, outliers, warnings and the
+        linear operator.
+
+    Raises
+    ------
+    UnobservableError
+        If the layout cannot observe some shape of the surface beyond its plane
+        (e.g. twist on an autocollimator grid), or stations are cut off.
+    LayoutError
+        ``method="moody"`` on a survey that is not a Union Jack.
+    InputValueError
+        Unknown method, missing or bad readings.
+
+    Examples
+    --------
+    A 3 x 3 grid read with a level, surface a pure tilt: the heights about the
+    least-squares plane are all zero (see the tests for complete surveys).
+    """
+    if method not in METHODS:
+        raise InputValueError(
+            f"unknown reduction method {method!r}", fix=f"use one of: {', '.join(METHODS)}"
+        )
+    if method == "moody":
+        from .moody import moody_reduction
+
+        return moody_reduction(survey)
+    return _least_squares(survey)

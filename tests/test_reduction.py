@@ -1,0 +1,462 @@
+"""Tests of the least-squares survey reduction (flatcheck.reduction).
+
+Reference values come from outside the reduction: exact readings computed from
+known surfaces (the heights they must give back), numpy's least squares and
+pseudo-inverse on an independently built dense design matrix, the classic
+least-squares results E[r^T W r] = sigma^2 (m - rank) and Cov = sigma^2 N^+, and
+the check values of REFERENCE.md sections 1 and 10.
+"""
+
+import dataclasses
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from flatcheck.errors import GeometryError, InputValueError, LayoutError, UnobservableError
+from flatcheck.layout import plan_grid, plan_lines, plan_union_jack
+from flatcheck.reduction import OUTLIER_THRESHOLD, network_rank, reduce_survey
+from flatcheck.simulate import simulate_survey
+from flatcheck.survey import Instrument, Run, Station, Surface, Survey, SurveyLine, observations
+from flatcheck.units import ARCSEC_TO_RAD
+
+INSTRUMENTS = {
+    "autocollimator": Instrument("autocollimator", "arcsec"),
+    "level": Instrument("level", "um/m"),
+    "differential-level": Instrument("differential-level", "arcsec"),
+    "indicator": Instrument("indicator", "um"),
+}
+
+
+def surface_um(x, y):
+    """Invented test surface on a 1000 x 600 mm plate: plane + bowl + twist + local bump (µm)."""
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    plane = 0.3 + 0.002 * x - 0.001 * y
+    bowl = 1.5 * ((x - 500) ** 2 + (y - 300) ** 2) / 500**2
+    twist = 0.8 * (x - 500) * (y - 300) / (500 * 300)
+    bump = 0.5 * np.exp(-((x - 300) ** 2 + (y - 200) ** 2) / (2 * 80.0**2))
+    return plane + bowl + twist + bump
+
+
+def expected_heights(survey, fn=surface_um):
+    """Truth at the stations minus its least-squares plane (numpy lstsq as the reference)."""
+    x, y = survey.x_mm, survey.y_mm
+    z = fn(x, y)
+    X = np.column_stack([np.ones_like(x), x, y])
+    coef, *_ = np.linalg.lstsq(X, z, rcond=None)
+    return z - X @ coef
+
+
+def plan(layout, kind):
+    inst = INSTRUMENTS[kind]
+    if layout == "union-jack":
+        return plan_union_jack(1000, 600, 100, margin_mm=50, instrument=inst)
+    if layout == "grid":
+        # rows + columns; the autocollimator needs the diagonals (square grid) to see twist
+        if kind == "autocollimator":
+            return plan_grid(600, 600, 100, margin_mm=50, instrument=inst, diagonals=True)
+        return plan_grid(1000, 600, 100, margin_mm=50, instrument=inst)
+    # free lines: a box with a cross (no centre lines) plus one offset row
+    lines = [
+        ("south", (100, 100), (900, 100), 8),
+        ("north", (100, 500), (900, 500), 8),
+        ("west", (100, 100), (100, 500), 4),
+        ("east", (900, 100), (900, 500), 4),
+        ("diag-a", (100, 100), (900, 500), 8),
+        ("diag-b", (900, 100), (100, 500), 8),
+        ("mid-row", (100, 300), (900, 300), 8),
+    ]
+    return plan_lines(lines, length_mm=1000, width_mm=600, instrument=inst)
+
+
+# ------------------------------------------------------------------ readings to rises
+def _one_step_survey(unit, reading, base_mm, kind="autocollimator", reports="mirror-tilt"):
+    st_ = (Station("a", 0.0, 0.0), Station("b", base_mm, 0.0))
+    ln = SurveyLine("l", ("a", "b"), base_mm, (Run((reading,)),))
+    return Survey(Surface("s", 500, 500), Instrument(kind, unit, reports=reports), "lines", st_, (ln,))
+
+
+def test_readings_to_rises_check_values():
+    # Source: REFERENCE.md s.10 item 1 and definition of the second of arc: 1" = pi/648000 rad
+    assert ARCSEC_TO_RAD == pytest.approx(math.pi / 648000.0, rel=1e-15)
+    assert ARCSEC_TO_RAD == pytest.approx(4.848137e-6, rel=1e-6)
+    # Source: REFERENCE.md s.10 item 2: 1 arcsec over 100 mm rises 0.48481 µm (B*tan(theta))
+    v = observations(_one_step_survey("arcsec", 1.0, 100.0)).value_um[0]
+    assert v == pytest.approx(100e3 * math.tan(math.pi / 648000.0), rel=1e-14)
+    assert v == pytest.approx(0.48481, abs=5e-6)
+    # Source: definition of µm/m: 1 µm/m over 100 mm = 0.1 µm
+    assert observations(_one_step_survey("um/m", 1.0, 100.0, "level")).value_um[0] == pytest.approx(0.1, rel=1e-14)
+    # Source: REFERENCE.md s.10 item 3: 0.01 mm/m over 200 mm -> 2.000 µm; 5 µm/m over 150 mm -> 0.750 µm
+    assert observations(_one_step_survey("mm/m", 0.01, 200.0, "level")).value_um[0] == pytest.approx(2.0, rel=1e-12)
+    assert observations(_one_step_survey("um/m", 5.0, 150.0, "level")).value_um[0] == pytest.approx(0.75, rel=1e-12)
+    # Source: REFERENCE.md s.10 item 5 (autocollimator principle): beam deviation 2" = mirror tilt 1"
+    bd = observations(_one_step_survey("arcsec", 2.0, 100.0, reports="beam-deviation")).value_um[0]
+    assert bd == pytest.approx(v, rel=1e-14)
+
+
+# ------------------------------------------------------------------ round trips, no noise
+CASES = [
+    ("union-jack", "autocollimator"),
+    ("union-jack", "level"),
+    ("union-jack", "differential-level"),
+    ("union-jack", "indicator"),
+    ("grid", "autocollimator"),
+    ("grid", "level"),
+    ("grid", "differential-level"),
+    ("grid", "indicator"),
+    ("lines", "autocollimator"),
+    ("lines", "level"),
+    ("lines", "indicator"),
+]
+
+
+@pytest.mark.parametrize("layout,kind", CASES)
+def test_round_trip_exact(layout, kind):
+    # Analytic: exact readings of a known surface must give it back, less its LS plane
+    p = plan(layout, kind)
+    runs = ("forward", "reverse") if kind != "indicator" else ("forward",)
+    s = simulate_survey(p, surface_um, instrument_zero="random", runs=runs, rng=7)
+    red = reduce_survey(s)
+    assert red.method == "least-squares"
+    np.testing.assert_allclose(red.heightmap.height_um, expected_heights(s), rtol=0, atol=1e-9)
+    assert red.heightmap.names == tuple(st_.name for st_ in s.stations)
+    assert np.max(np.abs(red.residual_um)) < 1e-9
+    assert red.residual_um.shape == observations(s).value_um.shape
+    assert red.outliers == ()
+    for c in red.closures:
+        assert abs(c.closure_um) < 1e-9
+
+
+def test_round_trip_beam_deviation_and_flipped_runs():
+    inst = Instrument("autocollimator", "arcsec", reports="beam-deviation")
+    p = plan_union_jack(1000, 600, 100, margin_mm=50, instrument=inst)
+    s = simulate_survey(p, surface_um, runs=("forward", "reverse-flipped"), rng=3)
+    red = reduce_survey(s)
+    np.testing.assert_allclose(red.heightmap.height_um, expected_heights(s), atol=1e-9)
+
+
+def test_level_zero_recovered_against_gravity():
+    # Analytic: a level reads slope + zero against gravity, so its zero is absolute
+    p = plan("union-jack", "level")
+    s = simulate_survey(p, surface_um, instrument_zero=12.5, rng=1)
+    red = reduce_survey(s)
+    (z,) = red.instrument_zeros
+    assert z.value == pytest.approx(12.5, abs=1e-9)
+    assert z.unit == "um/m"
+    assert z.rise_um == pytest.approx(12.5 * 100e-3, abs=1e-9)  # 12.5 µm/m over 100 mm
+    assert set(z.lines) == {ln.name for ln in s.lines}
+
+
+def test_autocollimator_zeros_referred_to_ls_plane():
+    # Analytic: relative to the LS plane z = a + b x + c y, a line of direction (dx, dy)
+    # reads zero' = zero + atan(b dx + c dy) (plane gradient along the line), in arcsec
+    p = plan("union-jack", "autocollimator")
+    zeros = np.linspace(-30, 30, len(p.lines))
+    s = simulate_survey(p, surface_um, instrument_zero=zeros)
+    red = reduce_survey(s)
+    x, y = s.x_mm, s.y_mm
+    coef, *_ = np.linalg.lstsq(np.column_stack([np.ones_like(x), x, y]), surface_um(x, y), rcond=None)
+    for z_true, rec, ln in zip(zeros, red.instrument_zeros, s.lines):
+        a, b = s.station_index[ln.stations[0]], s.station_index[ln.stations[-1]]
+        d = np.array([x[b] - x[a], y[b] - y[a]])
+        d /= np.linalg.norm(d)
+        grad = (coef[1] * d[0] + coef[2] * d[1]) * 1e-3  # µm/mm -> dimensionless slope
+        assert rec.lines == (ln.name,)
+        assert rec.value == pytest.approx(z_true + math.atan(grad) / ARCSEC_TO_RAD, abs=1e-6)
+
+
+def _reversal_grid(zero_umpm, flips):
+    """Level rows+columns read with physically exact reversal (own model, not the simulator).
+
+    A level turned round reads ``-slope + zero``; its stored forward reading is
+    the negation, ``slope - zero`` (survey sign convention, flip_sign set).
+    """
+    p = plan_grid(600, 500, 100, margin_mm=50, instrument=Instrument("level", "um/m"))
+    h = surface_um(p.x_mm, p.y_mm)
+    idx = p.station_index
+    lines = []
+    for ln in p.lines:
+        st_ = [idx[s_] for s_ in ln.stations]
+        slope = (h[st_[1:]] - h[st_[:-1]]) / (ln.foot_spacing_mm * 1e3) * 1e6  # µm/m
+        runs = [Run(tuple(slope + zero_umpm))]
+        if flips:
+            runs.append(Run(tuple(-slope + zero_umpm), flip_sign=True))
+        lines.append(dataclasses.replace(ln, runs=tuple(runs)))
+    return dataclasses.replace(p, lines=tuple(lines))
+
+
+def test_reversal_separates_level_zero_from_tilt():
+    # Rows + columns with a level: the zero trades against a tilt along the bisector
+    # (REFERENCE.md s.10 item 11: gravity deficiency 2 on a grid). Reversed runs
+    # (instrument turned round) observe the zero: deficiency 1 and the true zero back.
+    plain = _reversal_grid(7.0, flips=False)
+    assert network_rank(plain).deficiency == 2
+    red = reduce_survey(plain)
+    assert any("two directions" in w for w in red.warnings)
+    rev = _reversal_grid(7.0, flips=True)
+    assert network_rank(rev).deficiency == 1
+    red = reduce_survey(rev)
+    assert red.instrument_zeros[0].value == pytest.approx(7.0, abs=1e-9)
+    np.testing.assert_allclose(red.heightmap.height_um, expected_heights(rev), atol=1e-9)
+
+
+# ------------------------------------------------------------------ rank check
+def test_rank_counts_reference_values():
+    # Source: REFERENCE.md s.10 item 11 (derived there with numpy)
+    grid_ac = simulate_survey(plan_grid(460, 360, 100, margin_mm=30, instrument=INSTRUMENTS["autocollimator"]), surface_um)
+    assert len(grid_ac.stations) == 20  # 5 x 4 stations
+    r = network_rank(grid_ac)
+    assert r.deficiency == 4
+    assert any("twist" in u for u in r.unobservable)
+    grid_lv = simulate_survey(plan_grid(460, 360, 100, margin_mm=30, instrument=INSTRUMENTS["level"]), surface_um)
+    r = network_rank(grid_lv)
+    assert r.deficiency == 2 and r.unobservable == ()
+    uj = plan_union_jack(900, 700, 100, margin_mm=50, instrument=INSTRUMENTS["autocollimator"])
+    assert (uj.meta["layout"]["steps_x"], uj.meta["layout"]["steps_y"], uj.meta["layout"]["steps_diagonal"]) == (8, 6, 10)
+    r = network_rank(simulate_survey(uj, surface_um))
+    assert (r.deficiency, r.redundancy, r.exact) == (3, 2, True)
+    uj_lv = dataclasses.replace(uj, instrument=INSTRUMENTS["level"])
+    r = network_rank(simulate_survey(uj_lv, surface_um))
+    assert (r.deficiency, r.redundancy) == (1, 7)
+
+
+def test_rank_matches_numpy_matrix_rank():
+    # Reference: numpy.linalg.matrix_rank of an independently built dense design matrix
+    for layout, kind in (("union-jack", "autocollimator"), ("grid", "level"), ("lines", "autocollimator")):
+        s = simulate_survey(plan(layout, kind), surface_um)
+        A, _, _ = dense_design(s)
+        r = network_rank(s)
+        assert r.rank == np.linalg.matrix_rank(A)
+        assert r.redundancy == A.shape[0] - np.linalg.matrix_rank(A)
+
+
+def test_twist_unobservable_on_autocollimator_grid():
+    s = simulate_survey(plan_grid(600, 500, 100, margin_mm=50, instrument=INSTRUMENTS["autocollimator"]), surface_um)
+    with pytest.raises(UnobservableError) as exc:
+        reduce_survey(s)
+    msg = str(exc.value)
+    assert "twist" in msg and "diagonal" in msg and "gravity-referenced" in msg
+    # Analytic (REFERENCE.md s.2): twist k*x*y gives the same readings as a flat surface,
+    # once each line's own zero absorbs its slope
+    twist = simulate_survey(s, lambda x, y: 3e-5 * x * y)
+    flat = simulate_survey(s, lambda x, y: 0 * x)
+    for lt, lf in zip(twist.lines, flat.lines):
+        r = np.array(lt.runs[0].readings) - np.array(lf.runs[0].readings)
+        assert np.ptp(r) < 1e-9  # constant along the line: absorbed by the zero
+
+
+def test_disconnected_stations_are_named():
+    p = plan("union-jack", "level")
+    extra = (Station("island.0", 950, 20), Station("island.1", 990, 20))
+    ln = SurveyLine("island", ("island.0", "island.1"), 40.0)
+    p2 = dataclasses.replace(p, stations=p.stations + extra, lines=p.lines + (ln,))
+    s = simulate_survey(p2, surface_um)
+    with pytest.raises(UnobservableError) as exc:
+        reduce_survey(s)
+    assert "'island.0'" in str(exc.value) and "not connected" in str(exc.value)
+    # a station on no line at all
+    p3 = dataclasses.replace(p, stations=p.stations + (Station("lonely", 960, 10),))
+    with pytest.raises(UnobservableError, match="lonely"):
+        reduce_survey(simulate_survey(p3, surface_um))
+
+
+def test_hanging_autocollimator_line_is_named():
+    # A line tied to the network at one station only can pivot about it with its own zero:
+    # found by the general (dense) rank check, which names the stations that move
+    p = plan("union-jack", "autocollimator")
+    c = p.stations[p.station_index["NE"]]
+    extra = tuple(Station(f"spur.{k}", c.x_mm - 30 * k, c.y_mm + 10 * k) for k in (1, 2))
+    ln = SurveyLine("spur", ("NE", "spur.1", "spur.2"), math.hypot(30, 10))
+    p2 = dataclasses.replace(p, stations=p.stations + extra, lines=p.lines + (ln,))
+    with pytest.raises(UnobservableError) as exc:
+        reduce_survey(simulate_survey(p2, surface_um))
+    assert "spur.1" in str(exc.value) and "spur.2" in str(exc.value)
+
+
+def test_collinear_stations_rejected():
+    lines = [("a", (100, 100), (900, 100), 8), ("b", (100, 100), (900, 100), 4)]
+    s = simulate_survey(plan_lines(lines, length_mm=1000, width_mm=600, instrument=INSTRUMENTS["level"]), surface_um)
+    with pytest.raises(GeometryError, match="straight line"):
+        reduce_survey(s)
+
+
+def test_bad_method_and_missing_readings():
+    s = simulate_survey(plan("grid", "level"), surface_um)
+    with pytest.raises(InputValueError, match="unknown reduction method"):
+        reduce_survey(s, method="fancy")
+    with pytest.raises(LayoutError, match="Union Jack"):
+        reduce_survey(s, method="moody")
+    blank = plan("grid", "level")
+    with pytest.raises(InputValueError, match="no readings"):
+        reduce_survey(blank)
+
+
+# ------------------------------------------------------------------ independent dense reference
+def dense_design(survey):
+    """Dense design matrix, weights and observations built directly from the survey (test-side).
+
+    Model (module notes): rise = h_to - h_from + s*B*zero*1e-3, weights (B_median/B)^2;
+    indicator: value = h + s*offset, unit weights.
+    """
+    obs = observations(survey)
+    n = len(survey.stations)
+    inst = survey.instrument
+    nz = len(survey.lines) if inst.kind == "autocollimator" else 1
+    A = np.zeros((obs.value_um.size, n + nz))
+    for k in range(obs.value_um.size):
+        s_ = -1.0 if survey.lines[obs.line[k]].runs[obs.run[k]].flip_sign else 1.0
+        zi = n + (obs.line[k] if nz > 1 else 0)
+        A[k, obs.i_to[k]] += 1.0
+        if inst.reads_heights:
+            A[k, zi] = s_
+        else:
+            A[k, obs.i_from[k]] -= 1.0
+            A[k, zi] = s_ * obs.base_mm[k] * 1e-3
+    if inst.reads_heights:
+        w = np.ones(obs.value_um.size)
+    else:
+        w = (np.median(obs.base_mm) / obs.base_mm) ** 2
+    return A, w, obs.value_um
+
+
+def reference_operator(survey):
+    """G = (I - P) [N^+ A^T W]_heights with numpy's pseudo-inverse (P: LS plane projector)."""
+    A, w, _ = dense_design(survey)
+    n = len(survey.stations)
+    N = A.T @ (w[:, None] * A)
+    K = np.linalg.pinv(N) @ (A.T * w[None, :])
+    x, y = survey.x_mm, survey.y_mm
+    X = np.column_stack([np.ones(n), x, y])
+    P = X @ np.linalg.pinv(X)
+    return (np.eye(n) - P) @ K[:n], A, w
+
+
+@pytest.mark.parametrize("layout,kind", [("union-jack", "autocollimator"), ("union-jack", "level"), ("grid", "level"), ("lines", "indicator")])
+def test_operator_matches_numpy_pseudo_inverse(layout, kind):
+    # Reference: numpy.linalg.pinv on the dense normal matrix (minimum-norm solution);
+    # after removing the plane every solution of the normal equations gives the same heights
+    s = simulate_survey(plan(layout, kind), surface_um, noise_sd=0.3, rng=5)
+    red = reduce_survey(s)
+    G_ref, A, w = reference_operator(s)
+    np.testing.assert_allclose(red.operator.G, G_ref, atol=1e-10)
+    l = observations(s).value_um
+    if kind in ("level", "indicator"):  # linear units: the heights are G @ readings exactly
+        np.testing.assert_allclose(red.heightmap.height_um, G_ref @ l, atol=1e-10)
+        np.testing.assert_allclose(red.operator.heights_um(l), red.heightmap.height_um, atol=1e-10)
+        # redundancy numbers: diagonal of I - A N^+ A^T W (numpy reference)
+        N = A.T @ (w[:, None] * A)
+        H = A @ np.linalg.pinv(N) @ (A.T * w[None, :])
+        np.testing.assert_allclose(red.redundancy_numbers, 1 - np.diag(H), atol=1e-9)
+        assert red.redundancy_numbers.sum() == pytest.approx(red.redundancy, abs=1e-8)  # trace = m - rank
+    batch = np.vstack([l, 2 * l])
+    np.testing.assert_allclose(red.operator.heights_um(batch)[1], 2 * red.operator.heights_um(l), atol=1e-10)
+
+
+# ------------------------------------------------------------------ noise
+def test_noise_scatter_and_sigma0_match_theory():
+    # Theory (weighted least squares, Gauss-Markov): E[r^T W r] = sigma^2 (m - rank) and
+    # Cov(h) = sigma^2 G W^-1 G^T. Seeded Monte Carlo, 300 trials, level on a Union Jack.
+    sd = 0.4  # µm/m reading noise
+    s0 = simulate_survey(plan("union-jack", "level"), surface_um)
+    red0 = reduce_survey(s0)
+    G = red0.operator.G
+    obs = observations(s0)
+    sd_um = sd * obs.um_per_unit  # µm per observation
+    cov = G @ (sd_um[:, None] ** 2 * G.T)
+    rng = np.random.default_rng(1234)
+    trials = 300
+    errs = np.empty((trials, G.shape[0]))
+    s2 = np.empty(trials)
+    truth = expected_heights(s0)
+    for t in range(trials):
+        s = simulate_survey(s0, surface_um, noise_sd=sd, instrument_zero=3.0, rng=rng)
+        if t < 40:  # full reductions for sigma0; the rest by the operator (linear in µm/m)
+            red = reduce_survey(s)
+            s2[t] = red.sigma0_um**2
+            errs[t] = red.heightmap.height_um - truth
+        else:
+            errs[t] = G @ observations(s).value_um - truth
+    # unit-weight sigma in µm: noise over the median foot spacing (100 mm)
+    sigma_ref = sd * 100e-3
+    dof = red0.redundancy
+    # mean of 40 chi2(dof)/dof has relative sd sqrt(2/(40*dof)) ~ 8 % for dof = 7
+    assert np.mean(s2[:40]) == pytest.approx(sigma_ref**2, rel=0.3)
+    var_mc = errs.var(axis=0, ddof=0) + errs.mean(axis=0) ** 2
+    ratio = var_mc.sum() / np.trace(cov)
+    assert ratio == pytest.approx(1.0, rel=0.12)  # 300 trials: ~8 % sd on a single variance, less summed
+    assert np.abs(errs.mean(axis=0)).max() < 4 * np.sqrt(np.diag(cov)).max() / np.sqrt(trials) * 3
+
+
+def test_miskeyed_reading_found_by_name():
+    p = plan_grid(800, 700, 100, margin_mm=50, instrument=Instrument("level", "um/m"))
+    s = simulate_survey(p, surface_um, noise_sd=0.2, rng=11)
+    # digits swapped when keying step 4 of row-3: add 9 µm/m to that reading
+    lines = list(s.lines)
+    li = next(i for i, ln in enumerate(lines) if ln.name == "row-3")
+    r = list(lines[li].runs[0].readings)
+    r[3] += 9.0
+    lines[li] = dataclasses.replace(lines[li], runs=(Run(tuple(r), where="plate.toml, line 'row-3', run 1"),))
+    bad = dataclasses.replace(s, lines=tuple(lines))
+    red = reduce_survey(bad)
+    assert red.outliers, "the mis-keyed reading must be flagged"
+    top = red.outliers[0]
+    assert (top.line, top.run, top.step) == ("row-3", 1, 4)
+    assert abs(top.w) > OUTLIER_THRESHOLD
+    assert top.where == "plate.toml, line 'row-3', run 1"
+    assert "row-3" in top.describe() and "step 4" in top.describe()
+    assert any("row-3" in w for w in red.warnings)
+    # with the instrument's stated reading uncertainty (Baarda's test with a-priori sigma)
+    bad_u = dataclasses.replace(bad, instrument=dataclasses.replace(bad.instrument, reading_uncertainty=0.2))
+    top_u = reduce_survey(bad_u).outliers[0]
+    assert (top_u.line, top_u.step) == ("row-3", 4)
+    # the clean survey: |w| follows N(0,1); with ~110 readings at 0.1 % none should be flagged
+    clean = reduce_survey(dataclasses.replace(s, instrument=bad_u.instrument))
+    assert len(clean.outliers) <= 1
+    w = clean.standardized_residual[np.isfinite(clean.standardized_residual)]
+    assert 0.7 < np.std(w) < 1.3  # standard normal under the model
+
+
+def test_closures_and_run_spread():
+    p = plan("union-jack", "autocollimator")
+    s = simulate_survey(p, surface_um, noise_sd=0.3, runs=("forward", "reverse"), instrument_zero="random", rng=4)
+    red = reduce_survey(s)
+    assert [c.line for c in red.closures] == [ln.name for ln in s.lines]
+    obs = observations(s)
+    for li, c in enumerate(red.closures):
+        # definition: mean over runs of the line's summed residuals
+        sel = obs.line == li
+        sums = [red.residual_um[sel & (obs.run == k)].sum() for k in (0, 1)]
+        assert c.closure_um == pytest.approx(np.mean(sums), abs=1e-12)
+        # run spread: difference of the runs' end-to-end rises (zero is common to both runs)
+        ends = [obs.value_um[sel & (obs.run == k)].sum() for k in (0, 1)]
+        assert c.run_spread_um == pytest.approx(abs(ends[0] - ends[1]), abs=1e-6)
+        assert "not from flatness" in c.meaning
+
+
+def test_no_redundancy_warns():
+    s = simulate_survey(plan("grid", "indicator"), surface_um, noise_sd=0.1, rng=2)
+    red = reduce_survey(s)
+    assert red.redundancy == 0 and math.isnan(red.sigma0_um)
+    assert any("no redundancy" in w for w in red.warnings)
+
+
+# ------------------------------------------------------------------ properties
+@settings(max_examples=15)
+@given(
+    a=st.floats(-50, 50),
+    b=st.floats(-0.05, 0.05),
+    c=st.floats(-0.05, 0.05),
+    k=st.floats(-3, 3).filter(lambda v: abs(v) > 0.1),
+)
+def test_added_plane_ignored_and_scaling(a, b, c, k):
+    # Invariants: a plane added to the surface leaves the heights unchanged; scaling the
+    # surface by k scales the heights by k (exact readings, level in µm/m: linear)
+    p = plan("union-jack", "level")
+    base = reduce_survey(simulate_survey(p, surface_um)).heightmap.height_um
+    tilted = reduce_survey(simulate_survey(p, lambda x, y: surface_um(x, y) + a + b * x + c * y)).heightmap.height_um
+    np.testing.assert_allclose(tilted, base, atol=1e-9)
+    scaled = reduce_survey(simulate_survey(p, lambda x, y: k * surface_um(x, y))).heightmap.height_um
+    np.testing.assert_allclose(scaled, k * base, atol=1e-9)
