@@ -26,7 +26,7 @@ from ..tolerance import (
     tolerance,
     tolerances,
 )
-from ..units import UM_PER_UIN, height_unit_label, um_to
+from ..units import MM_PER_INCH, UM_PER_UIN, height_unit_label, um_to
 from ._app import app
 from .common import Units, emit_json, load_surface, stdout_console
 
@@ -232,6 +232,7 @@ def _add_uin(report: dict) -> None:
         rr["variation_uin"] = um_to(rr["variation_um"], "in")
 
 
+_SHORT_STATUS = {"secondary source": "secondary", "given by the user": "user"}
 _VERDICT_STYLE = {"conforms": "green", "does-not-conform": "red", "undecided": "yellow"}
 
 
@@ -250,13 +251,13 @@ def _render(report: dict, units: str) -> None:
     table = Table(title_justify="left")
     table.add_column("grade")
     table.add_column(f"T {hu}", justify="right")
-    table.add_column("conforms if F <=", justify="right")
-    table.add_column("rejects if F >", justify="right")
+    table.add_column("accept F <=", justify="right")
+    table.add_column("reject F >", justify="right")
     table.add_column("verdict", no_wrap=True)
     table.add_column("value source")
     for g in report["grades"]:
         style = _VERDICT_STYLE[g["verdict"]]
-        src = g["status"] + ("" if g["in_range"] else ", size out of range")
+        src = _SHORT_STATUS.get(g["status"], g["status"]) + ("" if g["in_range"] else ", out of range")
         table.add_row(
             g["grade"],
             h(g["tolerance_um"]),
@@ -269,12 +270,15 @@ def _render(report: dict, units: str) -> None:
     con.print(f"Rule: {report['rule_statement']}")
     if report["length_used_mm"] is not None:
         which = {"side": "longer side", "diagonal": "diagonal"}[report["length_basis"]]
+        inch = f" = {report['length_used_mm'] / MM_PER_INCH:.2f} in" if units == "in" else ""
         con.print(
-            f"Length used: {report['length_used_mm']:.1f} mm ({which}) of a {report['length_mm']:g} x "
+            f"Length used: {report['length_used_mm']:.1f} mm{inch} ({which}) of a {report['length_mm']:g} x "
             f"{report['width_mm']:g} mm plate; size: {_SIZE_SOURCE_TEXT[report['size_source']]}"
         )
-    if report["formula"]:
-        con.print(f"Formula ({report['basis']} basis): {report['formula']}; rounding: {report['rounding']}")
+    if report["formula"] and report["basis"] == "table":
+        con.print(f"Values from a published table (secondary); the standard's formula: {report['formula']}")
+    elif report["formula"]:
+        con.print(f"Formula: {report['formula']}; rounding: {report['rounding']}")
     if report["best_grade"] is not None:
         how = "proven (ISO 14253-1)" if report["rule"] == "iso14253-1" else "under simple acceptance"
         con.print(f"Finest grade that conforms, {how}: [bold]{report['best_grade']}[/bold]")
