@@ -380,13 +380,6 @@ class PadStation:
     clearance_um: float
 
 
-def _sample_footprint(surface: HeightMap, fp: Footprint, x_mm: float, y_mm: float, method: str):
-    z = surface.sample(x_mm + fp.u_mm, y_mm + fp.v_mm, method=method)
-    if not np.isfinite(z).all():
-        return None
-    return z
-
-
 def _footprint_plane(fp: Footprint, z: np.ndarray):
     """Weighted least-squares plane ``mean + bx*u + by*v`` (the continuous LS plane of the footprint)."""
     keep = fp.weight > 0
@@ -432,19 +425,23 @@ def evaluate_pad_at(
         ``None`` when any part of the footprint lies outside the surveyed area (never extrapolated).
     """
     fp = footprint(pad) if fp is None else fp
-    z = _sample_footprint(surface, fp, x_mm, y_mm, method)
-    if z is None:
+    zc = surface.sample(np.append(x_mm + fp.u_mm, x_mm), np.append(y_mm + fp.v_mm, y_mm), method=method)
+    return _pad_station(pad, fp, x_mm, y_mm, zc[:-1], float(zc[-1]), name, face_peak_um)
+
+
+def _pad_station(pad, fp, x_mm, y_mm, z, centre_um, name, face_peak_um):
+    """PadStation from the sampled heights ``z`` (shape (m,), µm) of the footprint; None if any is NaN."""
+    if not np.isfinite(z).all():
         return None
     mean, bx, by = _footprint_plane(fp, z)
     peak = float(np.max(z - (mean + bx * fp.u_mm + by * fp.v_mm)))
     mz = minimum_zone(fp.u_mm, fp.v_mm, z)
-    centre = float(surface.sample(x_mm, y_mm, method=method))
     return PadStation(
         name=name,
         x_mm=float(x_mm),
         y_mm=float(y_mm),
         mean_height_um=float(np.sum(fp.weight * z)),
-        centre_height_um=centre,
+        centre_height_um=float(centre_um),
         tilt_x_arcsec=bx * _UM_PER_MM_TO_ARCSEC,
         tilt_y_arcsec=by * _UM_PER_MM_TO_ARCSEC,
         local_flatness_um=float(mz.flatness_um),
@@ -517,8 +514,8 @@ def gap_field_um(
         If the footprint leaves the surveyed area.
     """
     fp = footprint(pad, pitch_mm=pitch_mm)
-    z = _sample_footprint(surface, fp, x_mm, y_mm, method)
-    if z is None:
+    z = surface.sample(x_mm + fp.u_mm, y_mm + fp.v_mm, method=method)
+    if not np.isfinite(z).all():
         raise GeometryError(
             f"the pad footprint at x = {x_mm:g} mm, y = {y_mm:g} mm leaves the surveyed area",
             fix="choose a pad position inside the measured surface",
@@ -940,13 +937,20 @@ def evaluate_bearing(
     face_peak = 0.0 if face is None else max(face.peak_um, 0.0)
     fps = [footprint(p.pad, pitch_mm=sample_pitch_mm) for p in pads]
 
+    # One interpolation call per pad for the whole travel (building the interpolant is the costly part):
+    # samples[i] has shape (n_positions, m + 1), the last column being the pad centre.
+    samples = []
+    for p, fp in zip(pads, fps):
+        u = np.append(fp.u_mm, 0.0)[None, :] + (xs + p.along_mm)[:, None]
+        v = np.broadcast_to(np.append(fp.v_mm, 0.0)[None, :] + (y0 + p.across_mm), u.shape)
+        samples.append(surface.sample(u, v, method=method))
+
     stations, excluded = [], []
-    for x in xs:
+    for k, x in enumerate(xs):
         per_pad = []
-        for p, fp in zip(pads, fps):
-            ps = evaluate_pad_at(
-                surface, p.pad, x + p.along_mm, y0 + p.across_mm, name=p.name, fp=fp, face_peak_um=face_peak,
-                method=method,
+        for p, fp, zs in zip(pads, fps, samples):
+            ps = _pad_station(
+                p.pad, fp, x + p.along_mm, y0 + p.across_mm, zs[k, :-1], zs[k, -1], p.name, face_peak
             )
             if ps is None:
                 excluded.append((float(x), f"pad {p.name!r} leaves the surveyed area"))
