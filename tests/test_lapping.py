@@ -1,0 +1,310 @@
+"""Tests of flatcheck.lapping: least removal, Preston, lap influence, dwell deconvolution, pass plan."""
+
+import itertools
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.optimize import linprog, nnls
+from scipy.spatial import ConvexHull
+
+from flatcheck.errors import GeometryError, InputValueError
+from flatcheck.flatness import minimum_zone
+from flatcheck.heightmap import HeightMap
+from flatcheck.lapping import (
+    LapModel,
+    cell_column_name,
+    deconvolve_dwell,
+    lap_kernel,
+    least_removal,
+    node_area_weights,
+    plan_lapping,
+    preston_rate_um_per_min,
+    removal_from_dwell,
+)
+
+
+def _grid(nx, ny, lx=1000.0, ly=630.0):
+    x, y = np.meshgrid(np.linspace(0, lx, nx), np.linspace(0, ly, ny))
+    return x.ravel(), y.ravel()
+
+
+def _bumpy(rng, nx=9, ny=7, noise=0.3):
+    x, y = _grid(nx, ny)
+    z = 2.0 * np.exp(-((x - 300) ** 2 + (y - 400) ** 2) / (2 * 150.0**2)) + 0.003 * x - 0.002 * y
+    z = z + rng.normal(0.0, noise, z.size)
+    return HeightMap(x, y, z, length_mm=1000.0, width_mm=630.0)
+
+
+def _direct_lp(x, y, z, w, T):
+    """The least-removal LP written the other way round: variables (r_1..r_n, a, b, c) in raw units,
+    constraints r_i >= z_i - p_i - T and p_i <= z_i (lower face under every ORIGINAL node), dense matrices."""
+    n = z.size
+    P = np.column_stack([np.ones(n), x, y])
+    A1 = np.hstack([-np.eye(n), -P])  # z - p - T - r <= 0
+    A2 = np.hstack([np.zeros((n, n)), P])  # p <= z
+    res = linprog(
+        np.concatenate([w, np.zeros(3)]),
+        A_ub=np.vstack([A1, A2]),
+        b_ub=np.concatenate([-z + T, z]),
+        bounds=[(0, None)] * n + [(None, None)] * 3,
+        method="highs",
+    )
+    assert res.status == 0
+    return res.fun, res.x[:n]
+
+
+def _brute_force(x, y, z, w, T):
+    """Vertex enumeration: an LP whose feasible set has no line attains its optimum at a vertex
+    (fundamental theorem of linear programming), so try every plane through three nodes, each on the
+    lower face (p = z) or the upper face (p = z - T), keep the feasible ones (p <= z everywhere)."""
+    best = np.inf
+    n = z.size
+    for tri in itertools.combinations(range(n), 3):
+        M = np.column_stack([np.ones(3), x[list(tri)], y[list(tri)]])
+        if abs(np.linalg.det(M)) < 1e-9:
+            continue
+        for faces in itertools.product((0.0, T), repeat=3):
+            abc = np.linalg.solve(M, z[list(tri)] - np.array(faces))
+            p = abc[0] + abc[1] * x + abc[2] * y
+            if np.all(p <= z + 1e-9):
+                best = min(best, float(w @ np.maximum(0.0, z - p - T)))
+    return best
+
+
+# ----------------------------------------------------------------------------- least removal
+def test_single_high_node_hand_calculation():
+    # REFERENCE section 10 item 8 surface (3x3 grid, only the centre at 1 µm; MZ = 1.0). Hand calculation:
+    # any plane under the 8 outer nodes (all 0) is <= 0 at the centre (their mean), so the centre must lose
+    # at least 1 - T, and the plane z = 0 achieves it.
+    x, y = _grid(3, 3, 2.0, 2.0)
+    z = np.zeros(9)
+    z[4] = 1.0
+    lr = least_removal(HeightMap(x, y, z), 0.3)
+    assert lr.remove_um[4] == pytest.approx(0.7, abs=1e-9)
+    assert np.delete(lr.remove_um, 4) == pytest.approx(np.zeros(8), abs=1e-9)
+    assert lr.flatness_before_um == pytest.approx(1.0, abs=1e-9)
+    assert lr.flatness_after_um == pytest.approx(0.3, abs=1e-9)
+    # trapezoid weight of the centre node of a 3x3 grid of pitch 1 mm is 1 mm^2: volume 0.7 µm*mm^2
+    assert lr.removed_volume_mm3 == pytest.approx(0.7e-3, rel=1e-9)
+    assert len(lr.high_spots) == 1 and lr.high_spots[0].depth_um == pytest.approx(0.7)
+
+
+def test_corner_high_node_reference_surface():
+    # REFERENCE section 10 item 7: 3x3 grid, z(2,2) = 1, minimum zone 0.75 µm. A target at or above 0.75 µm
+    # needs no removal; below it some removal is needed and the result is within the target.
+    x, y = _grid(3, 3, 2.0, 2.0)
+    z = np.zeros(9)
+    z[8] = 1.0
+    hm = HeightMap(x, y, z)
+    assert least_removal(hm, 0.75 + 1e-9).removed_volume_mm3 == pytest.approx(0.0, abs=1e-12)
+    lr = least_removal(hm, 0.5)
+    assert lr.removed_volume_mm3 > 0
+    assert minimum_zone(x, y, z - lr.remove_um).flatness_um <= 0.5 + 1e-7
+
+
+@given(seed=st.integers(0, 10_000), target=st.floats(0.05, 2.0))
+@settings(max_examples=25)
+def test_within_target_nonnegative_and_equal_to_direct_lp(seed, target):
+    rng = np.random.default_rng(seed)
+    hm = _bumpy(rng, 6, 5)
+    lr = least_removal(hm, target)
+    assert (lr.remove_um >= 0).all()
+    # flatness after removal by the project's own minimum zone AND by an independent check: the zone plane
+    # reported by the LP contains the new surface
+    assert minimum_zone(hm.x_mm, hm.y_mm, hm.height_um - lr.remove_um).flatness_um <= target + 1e-6
+    a, b, c = lr.plane
+    p = a + b * hm.x_mm + c * hm.y_mm
+    new = hm.height_um - lr.remove_um
+    assert (new >= p - 1e-6).all() and (new <= p + target + 1e-6).all()
+    # reference: the same optimum from a differently written LP (scipy HiGHS, dense, raw units)
+    fun, _ = _direct_lp(hm.x_mm, hm.y_mm, hm.height_um, lr.weight_mm2, target)
+    assert lr.removed_volume_mm3 * 1000 == pytest.approx(fun, rel=1e-6, abs=1e-6)
+
+
+def test_equals_brute_force_on_tiny_scattered_case(rng):
+    # 7 scattered stations (Delaunay weights); reference: vertex enumeration (see _brute_force)
+    x = rng.uniform(0, 300, 7)
+    y = rng.uniform(0, 200, 7)
+    z = rng.normal(0, 1.0, 7)
+    hm = HeightMap(x, y, z)
+    for T in (0.2, 0.8):
+        lr = least_removal(hm, T)
+        assert lr.removed_volume_mm3 * 1000 == pytest.approx(_brute_force(x, y, z, lr.weight_mm2, T), rel=1e-7)
+
+
+def test_flat_surface_needs_no_removal(rng):
+    x, y = _grid(8, 6)
+    z = 5.0 + 0.01 * x - 0.02 * y + rng.uniform(-0.1, 0.1, x.size)  # flatness <= 0.2 µm
+    lr = least_removal(HeightMap(x, y, z), 0.25)
+    assert lr.removed_volume_mm3 == 0.0
+    assert (lr.remove_um == 0).all()
+    assert lr.high_spots == ()
+
+
+@given(a=st.floats(-50, 50), b=st.floats(-0.05, 0.05), c=st.floats(-0.05, 0.05))
+@settings(max_examples=20)
+def test_added_plane_does_not_change_removal(a, b, c):
+    rng = np.random.default_rng(7)
+    hm = _bumpy(rng, 6, 5)
+    lr0 = least_removal(hm, 0.5)
+    lr1 = least_removal(hm.with_heights(hm.height_um + a + b * hm.x_mm + c * hm.y_mm), 0.5)
+    assert lr1.removed_volume_mm3 == pytest.approx(lr0.removed_volume_mm3, rel=1e-6, abs=1e-9)
+
+
+def test_area_weights_sum_to_area(rng):
+    x, y = _grid(11, 7)
+    w = node_area_weights(x, y)
+    # trapezoid rule: total = rectangle area, corner = quarter cell
+    assert w.sum() == pytest.approx(1000.0 * 630.0)
+    assert w[0] == pytest.approx(100.0 * 105.0 / 4)
+    xs, ys = rng.uniform(0, 500, 30), rng.uniform(0, 300, 30)
+    # reference: scipy ConvexHull area (2-D "volume")
+    assert node_area_weights(xs, ys).sum() == pytest.approx(ConvexHull(np.column_stack([xs, ys])).volume)
+    with pytest.raises(GeometryError):
+        node_area_weights([0, 1, 2, 3], [0, 1, 2, 3])
+
+
+def test_bad_target():
+    x, y = _grid(3, 3)
+    hm = HeightMap(x, y, np.zeros(9))
+    for t in (-1.0, float("nan")):
+        with pytest.raises(InputValueError):
+            least_removal(hm, t)
+
+
+# ----------------------------------------------------------------------------- Preston and the lap
+def test_preston_check_value():
+    # REFERENCE section 10 item 22 (Preston 1927, from memory): Kp 1e-13 1/Pa, p 5 kPa, v 0.5 m/s
+    # -> 2.5e-10 m/s = 0.90 µm/h = 0.015 µm/min
+    assert preston_rate_um_per_min(1e-13, 5e3, 0.5) == pytest.approx(0.015, rel=1e-12)
+
+
+def test_removal_proportional_to_pressure_and_dwell():
+    # Preston dz/dt = Kp p v: rate linear in pressure (load over the same footprint)
+    lap1 = LapModel.from_preston(1e-13, 100.0, 0.5, diameter_mm=100.0)
+    lap2 = LapModel.from_preston(1e-13, 200.0, 0.5, diameter_mm=100.0)
+    assert lap2.rate_um == pytest.approx(2 * lap1.rate_um, rel=1e-12)
+    # pressure = load / (pi d^2 / 4): 100 N on 100 mm -> 12732.4 Pa
+    assert lap1.rate_um == pytest.approx(preston_rate_um_per_min(1e-13, 100.0 / (math.pi * 0.05**2), 0.5))
+    k = lap_kernel(lap1, 10.0, 10.0)
+    d = np.zeros((15, 15))
+    d[7, 7] = 3.0
+    r3 = removal_from_dwell(d, k)
+    r6 = removal_from_dwell(2 * d, k)
+    assert r6 == pytest.approx(2 * r3)
+    # Preston with a uniform rate under the footprint: depth at the centre = rate x time
+    assert r3[7, 7] == pytest.approx(3.0 * lap1.rate_um)
+
+
+def test_kernel_volume_is_rate_times_footprint_area():
+    # Uniform rate over the footprint: removed volume per time = rate x area (pi d^2/4 for a round lap)
+    for lap in (LapModel("round", diameter_mm=120.0, rate_um=0.5), LapModel("rect", length_mm=150, width_mm=60, rate_um=0.5)):
+        k = lap_kernel(lap, 10.0, 10.0, samples=16)
+        assert k.sum() * 100.0 == pytest.approx(lap.rate_um * lap.area_mm2, rel=0.01)
+        assert k.max() == pytest.approx(lap.rate_um)
+
+
+def test_bad_lap():
+    with pytest.raises(InputValueError):
+        LapModel("round", diameter_mm=0.0)
+    with pytest.raises(InputValueError):
+        LapModel("oval", diameter_mm=10.0)
+    with pytest.raises(InputValueError):
+        LapModel("round", diameter_mm=10.0, rate_um=-1.0)
+
+
+# ----------------------------------------------------------------------------- dwell deconvolution
+def test_reference_dwell_check_values():
+    # REFERENCE section 10 item 23: TIF [0.25, 0.5, 0.25], 9 cells, dwell [0,0,1,2,1,0,0,0,0]
+    # -> removal [0, .25, 1, 1.5, 1, .25, 0, 0, 0]; nnls recovers the dwell with residual ~0
+    tif = np.array([[0.25, 0.5, 0.25]])
+    dwell = np.array([[0, 0, 1, 2, 1, 0, 0, 0, 0]], float)
+    removal = removal_from_dwell(dwell, tif)
+    assert removal[0] == pytest.approx([0, 0.25, 1, 1.5, 1, 0.25, 0, 0, 0], abs=1e-12)
+    back = deconvolve_dwell(removal, tif)
+    assert back[0] == pytest.approx(dwell[0], abs=1e-9)
+
+
+def test_deconvolution_recovers_known_2d_dwell_and_matches_numpy_convolution(rng):
+    lap = LapModel("round", diameter_mm=60.0, rate_um=0.2)
+    k = lap_kernel(lap, 10.0, 10.0)
+    dwell = np.zeros((25, 30))
+    dwell[8:12, 5:9] = rng.uniform(1, 3, (4, 4))
+    dwell[15:18, 20:25] = rng.uniform(0.5, 1.5, (3, 5))
+    r = removal_from_dwell(dwell, k)
+    # reference: scipy.signal.convolve2d, zero boundary, same size (symmetric kernel)
+    from scipy.signal import convolve2d
+
+    assert r == pytest.approx(convolve2d(dwell, k, mode="same"), abs=1e-12)
+    back = deconvolve_dwell(r, k)  # 750 nodes: the projected-gradient solver
+    assert np.abs(removal_from_dwell(back, k) - r).max() < 1e-4 * r.max()
+    assert (back >= 0).all()
+
+
+def test_large_solver_agrees_with_scipy_nnls(rng):
+    # 21 x 21 = 441 nodes takes the projected-gradient path; reference: scipy.optimize.nnls on the
+    # same stacked (Tikhonov) system
+    from flatcheck.lapping import _conv_matrix
+
+    k = lap_kernel(LapModel(diameter_mm=50.0), 10.0, 10.0)
+    yy, xx = np.mgrid[0:21, 0:21]
+    r = np.maximum(0.0, 2 * np.exp(-((xx - 8) ** 2 + (yy - 12) ** 2) / 20.0) - 0.4)
+    t = deconvolve_dwell(r, k, smoothing=0.02)
+    lam = 0.02 * np.sqrt((k**2).sum())
+    A = _conv_matrix(r.shape, k).toarray()
+    As = np.vstack([A, lam * np.eye(441)])
+    t_ref, _ = nnls(As, np.concatenate([r.ravel(), np.zeros(441)]), maxiter=20000)
+
+    def obj(v):
+        return np.sum((A @ v - r.ravel()) ** 2) + lam**2 * np.sum(v**2)
+
+    assert obj(t.ravel()) == pytest.approx(obj(t_ref), rel=1e-8)
+
+
+# ----------------------------------------------------------------------------- plan
+def test_plan_improves_flatness_and_adds_up(rng):
+    hm = _bumpy(rng, 21, 14, noise=0.02)
+    lr = least_removal(hm, 0.8)
+    lap = LapModel("round", diameter_mm=120.0, rate_um=0.25)
+    plan = plan_lapping(hm, lr, lap, levels=6)
+    assert plan.predicted_flatness_um < lr.flatness_before_um
+    assert plan.dwell.min() >= 0
+    # passes and chart both add up to the plan's total time
+    assert sum(p.time for p in plan.passes) == pytest.approx(plan.total_time)
+    assert plan.chart.time.sum() == pytest.approx(plan.total_time)
+    # highest first: levels never increase along the plan
+    levels = [p.level for p in plan.passes]
+    assert levels == sorted(levels, reverse=True)
+    # the deepest high spot (near x = 300, y = 400 mm) is in the first pass's zone
+    first = plan.passes[0]
+    assert abs(first.centre_x_mm - 300) < 200 and abs(first.centre_y_mm - 400) < 200
+    # predicted surface is the input minus the plan's removal (removal >= 0)
+    assert (plan.predicted_height_um <= hm.height_um + 1e-12).all()
+
+
+def test_plan_on_scattered_stations_and_strokes(rng):
+    x = np.concatenate([rng.uniform(0, 600, 60), [0, 600, 0, 600]])
+    y = np.concatenate([rng.uniform(0, 400, 60), [0, 0, 400, 400]])
+    z = 1.5 * np.exp(-((x - 200) ** 2 + (y - 250) ** 2) / (2 * 80.0**2))
+    hm = HeightMap(x, y, z)
+    lr = least_removal(hm, 0.5)
+    lap = LapModel("rect", length_mm=100, width_mm=80, rate_um=0.05, time_unit="pass", strokes_per_pass=20)
+    plan = plan_lapping(hm, lr, lap, step_mm=20.0, cell_mm=100.0)
+    assert plan.chart.columns == ("A", "B", "C", "D", "E", "F")
+    assert plan.chart.rows == ("1", "2", "3", "4")
+    assert all(p.strokes == round(p.time * 20) for p in plan.passes)
+    assert plan.predicted_flatness_um < lr.flatness_before_um
+
+
+def test_flat_surface_plan_is_empty(rng):
+    x, y = _grid(6, 5)
+    hm = HeightMap(x, y, rng.uniform(0, 0.1, 30))
+    plan = plan_lapping(hm, least_removal(hm, 0.2), LapModel(diameter_mm=100.0))
+    assert plan.passes == () and plan.total_time == 0.0
+
+
+def test_column_names():
+    assert [cell_column_name(i) for i in (0, 25, 26, 27, 51, 52)] == ["A", "Z", "AA", "AB", "AZ", "BA"]
