@@ -1,0 +1,151 @@
+"""Tests of ``flatcheck bearing``: the pinned JSON contract, options, bearing files and one-line errors."""
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+SAMPLE = Path(__file__).resolve().parents[2] / "sample_readings" / "bearing_tandem_slide.toml"
+ARCSEC_PER_UM_PER_MM = 1e-3 * 648000 / math.pi  # exact: 1 µm/mm = 1e-3 rad
+
+
+def write_surface(path, func, length=600.0, width=300.0, pitch=10.0):
+    x = np.arange(0, length + 1e-9, pitch)
+    y = np.arange(0, width + 1e-9, pitch)
+    X, Y = np.meshgrid(x, y)
+    Z = func(X, Y)
+    lines = ["x_mm,y_mm,height_um"] + [f"{a:.6f},{b:.6f},{c:.9f}" for a, b, c in zip(X.ravel(), Y.ravel(), Z.ravel())]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+@pytest.fixture
+def sine_csv(tmp_path):
+    # 1 µm amplitude, 200 mm wavelength along x, constant across
+    return write_surface(tmp_path / "sine.csv", lambda X, Y: np.sin(2 * np.pi * X / 200.0))
+
+
+def one_line_error(code, out, err):
+    assert code == 2
+    assert out == ""
+    assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
+    assert "Traceback" not in err
+
+
+def test_pinned_json_keys(cli, sine_csv):
+    code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--json")
+    assert code == 0
+    doc = json.loads(out)
+    for key in ("limit_um", "local_flatness_max_um", "verdict", "motion", "stations"):
+        assert key in doc
+    assert doc["limit_um"] == pytest.approx(2.0)  # 1/4 of 8 µm, the stated common-practice default
+    assert doc["verdict"] in ("fit", "marginal", "unfit")
+    assert {"straightness_um", "pitch_arcsec"} <= set(doc["motion"])
+    st = doc["stations"]
+    assert len(st) > 10
+    for s in st:
+        assert {"x_mm", "mean_height_um", "local_flatness_um", "clearance_um"} <= set(s)
+    # single pad along x, centred across: travel from L/2 to length - L/2, step <= L/10
+    xs = [s["x_mm"] for s in st]
+    assert xs[0] == pytest.approx(50.0) and xs[-1] == pytest.approx(550.0)
+    assert max(np.diff(xs)) <= 10.0 + 1e-9
+    assert all(s["y_mm"] == pytest.approx(150.0) for s in st)
+    # station height is the mean under the pad: A sin(kx) sinc(L/lam) (exact integral), bilinear data at 10 mm
+    for s in st:
+        expected = np.sin(2 * np.pi * s["x_mm"] / 200.0) * np.sinc(100.0 / 200.0)
+        assert s["mean_height_um"] == pytest.approx(expected, abs=0.01)
+    assert doc["local_flatness_max_um"] == pytest.approx(max(s["local_flatness_um"] for s in st))
+
+
+def test_circular_pad_and_tilt(cli, tmp_path):
+    # a tilted plane: the pitch is constant, so its peak-to-valley is 0 and there is no straightness error
+    csv = write_surface(tmp_path / "tilt.csv", lambda X, Y: 0.005 * X)
+    code, out, _ = cli("bearing", csv, "--pad", "d80", "--gap-um", "6", "--json")
+    assert code == 0
+    doc = json.loads(out)
+    assert doc["motion"]["straightness_um"] < 1e-9
+    assert doc["motion"]["pitch_arcsec"] < 1e-9
+    assert doc["stations"][0]["pitch_arcsec"] == pytest.approx(0.005 * ARCSEC_PER_UM_PER_MM)
+    assert doc["verdict"] == "fit"
+    assert doc["carriage"]["pads"][0]["pad"]["shape"] == "circle"
+
+
+def test_unfit_verdict_still_exits_zero(cli, sine_csv):
+    code, out, _ = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "2", "--json")
+    assert code == 0
+    doc = json.loads(out)
+    assert doc["verdict"] == "unfit"
+    assert doc["checks"][0]["where"]
+
+
+def test_summary_shows_verdict_and_air_caution(cli, sine_csv):
+    from flatcheck.cli.common import SAFETY_LINES
+
+    code, out, _ = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--units", "in")
+    assert code == 0
+    assert "Verdict" in out and "µin" in out
+    assert "common practice" in out
+    assert " ".join(SAFETY_LINES["air"].split()[:4]) in " ".join(out.split())
+
+
+def test_bearing_file_sample(cli, tmp_path):
+    # the sample bearing file: two tandem pads on top, one side pad skipped
+    csv = write_surface(tmp_path / "g.csv", lambda X, Y: 2e-6 * (X - 500) ** 2, length=1000, width=300, pitch=10)
+    code, out, err = cli("bearing", csv, "--bearing", SAMPLE, "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["skipped_pads"] == ["side guide"]
+    assert [p["name"] for p in doc["stations"][0]["pads"]] == ["front", "rear"]
+    # parabola q(x-500)^2: tandem pitch = 2 q (x - 500) (exact mean of a parabola, see tests/test_bearing.py)
+    for s in doc["stations"]:
+        assert s["pitch_arcsec"] == pytest.approx(2 * 2e-6 * (s["x_mm"] - 500) * ARCSEC_PER_UM_PER_MM, abs=1e-3)
+    names = [c["name"] for c in doc["checks"]]
+    assert "carriage pitch" in names and "carriage straightness" in names
+
+
+def test_options_override_the_bearing_file(cli, tmp_path):
+    csv = write_surface(tmp_path / "g.csv", lambda X, Y: 0.0 * X, length=1000)
+    code, out, _ = cli("bearing", csv, "--bearing", SAMPLE, "--gap-um", "4", "--gap-fraction", "0.5", "--json")
+    assert code == 0
+    doc = json.loads(out)
+    assert doc["limit_um"] == pytest.approx(2.0)
+    assert doc["carriage"]["pads"][0]["pad"]["gap_um"] == 4
+
+
+def test_pad_face_option(cli, tmp_path, sine_csv):
+    face = write_surface(tmp_path / "face.csv", lambda X, Y: 0.5 * ((abs(X - 40) < 12) & (abs(Y - 30) < 12)), length=80, width=60, pitch=5)
+    code, out, _ = cli("bearing", sine_csv, "--pad", "80x60", "--gap-um", "8", "--pad-face", face, "--json")
+    assert code == 0
+    doc = json.loads(out)
+    # a central 0.5 µm plateau on a flat face: by symmetry no tilt narrows the zone, so MZ = 0.5 µm
+    assert doc["pad_face"]["flatness_um"] == pytest.approx(0.5, abs=1e-9)
+    assert "pad face flatness" in [c["name"] for c in doc["checks"]]
+
+
+@pytest.mark.parametrize(
+    "args, match",
+    [
+        (["--pad", "120by80", "--gap-um", "8"], "pad size"),
+        (["--pad", "120x", "--gap-um", "8"], "pad size"),
+        (["--pad", "120x80", "--gap-um", "-8"], "air gap"),
+        (["--pad", "120x80", "--gap-um", "0"], "air gap"),
+        (["--pad", "120x80"], "no pad described"),
+        (["--gap-um", "8"], "no pad described"),
+        (["--pad", "100x60", "--gap-um", "8", "--step-mm", "20"], "tenth"),
+        (["--pad", "100x60", "--gap-um", "8", "--gap-fraction", "2"], "fraction"),
+        (["--pad", "900x60", "--gap-um", "8"], "longer|long"),
+        (["--pad", "100x60", "--gap-um", "8", "--kind", "magnetic"], "kind"),
+        (["--pad", "100x60", "--gap-um", "8", "--bearing", "missing.toml"], "no such file"),
+    ],
+)
+def test_bad_options_one_line(cli, sine_csv, args, match):
+    code, out, err = cli("bearing", sine_csv, *args)
+    one_line_error(code, out, err)
+    assert __import__("re").search(match, err)
+
+
+def test_missing_input(cli, tmp_path):
+    code, out, err = cli("bearing", tmp_path / "nothing.csv", "--pad", "100x60", "--gap-um", "8")
+    one_line_error(code, out, err)

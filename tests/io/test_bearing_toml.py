@@ -1,0 +1,111 @@
+"""Tests of the bearing description file reader and the pad-size syntax."""
+
+import pytest
+
+from flatcheck.errors import InputFormatError, InputValueError
+from flatcheck.io.bearing_toml import parse_bearing_toml, parse_pad_size, read_bearing_toml
+
+TANDEM = """
+[bearing]
+label = "test slide"
+pad = "120x80"
+gap_um = 8.0
+kind = "porous"
+gap_fraction = 0.2
+
+[carriage]
+face = "top"
+y_mm = 300
+step_mm = 10
+
+[[carriage.pad]]
+name = "front"
+along_mm = 150
+
+[[carriage.pad]]
+name = "rear"
+along_mm = -150
+pad = "d60"
+gap_um = 6
+stiffness = 2
+
+[[carriage.pad]]
+name = "side"
+face = "side"
+
+[budget]
+pitch_arcsec = 2.0
+"""
+
+
+@pytest.mark.parametrize(
+    "text, expected",
+    [
+        ("120x80", ("rect", 120.0, 80.0)),
+        ("120 x 80 mm", ("rect", 120.0, 80.0)),
+        ("50.5X20", ("rect", 50.5, 20.0)),
+        ("d80", ("circle", 80.0, 80.0)),
+        ("D 25.4", ("circle", 25.4, 25.4)),
+    ],
+)
+def test_pad_sizes(text, expected):
+    assert parse_pad_size(text) == expected
+
+
+@pytest.mark.parametrize("text", ["120", "120x", "x80", "d", "120x80x5", "abc", "-120x80", "0x80", "d-5", "120,80"])
+def test_bad_pad_sizes(text):
+    with pytest.raises(InputValueError, match="pad size"):
+        parse_pad_size(text, where="--pad")
+
+
+def test_tandem_file():
+    desc = parse_bearing_toml(TANDEM, source="t.toml")
+    car = desc.carriage
+    assert [p.name for p in car.pads] == ["front", "rear", "side"]
+    assert [p.name for p in car.active_pads] == ["front", "rear"]
+    front, rear, _ = car.pads
+    assert (front.pad.shape, front.pad.length_mm, front.pad.width_mm, front.pad.gap_um) == ("rect", 120, 80, 8)
+    assert (rear.pad.shape, rear.pad.length_mm, rear.pad.gap_um, rear.stiffness) == ("circle", 60, 6, 2)
+    assert front.along_mm == 150 and rear.along_mm == -150
+    assert car.y_mm == 300 and car.step_mm == 10 and car.travel_start_mm is None
+    assert desc.gap_fraction == 0.2 and desc.marginal_from is None
+    assert desc.budget.pitch_arcsec == 2.0 and desc.budget.straightness_um is None
+
+
+def test_single_pad_file(tmp_path):
+    p = tmp_path / "b.toml"
+    p.write_text('[bearing]\npad = "d80"\ngap_um = 5\nkind = "orifice"\n', encoding="utf-8")
+    desc = read_bearing_toml(p)
+    (only,) = desc.carriage.pads
+    assert only.pad.shape == "circle" and only.pad.kind == "orifice" and only.along_mm == 0
+
+
+@pytest.mark.parametrize(
+    "text, error, match",
+    [
+        ('[bearing]\npad = "120x80"\n', InputFormatError, "no air gap"),
+        ("[bearing]\ngap_um = 8\n", InputFormatError, "no pad size"),
+        ('[bearing]\npad = "120x80"\ngap_um = 8\ngap_mm = 1\n', InputFormatError, "unknown key 'gap_mm'"),
+        ('[bearing]\npad = "120x80"\ngap_um = -8\n', InputValueError, "air gap"),
+        ('[bearing]\npad = "120x80"\ngap_um = "eight"\n', InputValueError, "must be a number"),
+        ('[bearing]\npad = "120x80"\ngap_um = 8\nkind = "magnetic"\n', InputValueError, "kind"),
+        ('[bearing]\npad = "12O"\ngap_um = 8\n', InputValueError, "pad size"),
+        ("[carriage]\nface = 'top'\n", InputFormatError, r"no \[bearing\]"),
+        ("[bearing\n", InputFormatError, "TOML"),
+        ('[bearing]\npad = "120x80"\ngap_um = 8\n[[carriage.pad]]\nalong = 3\n', InputFormatError, "unknown key"),
+        ('[bearing]\npad = "120x80"\ngap_um = 8\n[budget]\npitch_arcsec = 0\n', InputValueError, "budget"),
+    ],
+)
+def test_bad_files(text, error, match):
+    with pytest.raises(error, match=match) as info:
+        parse_bearing_toml(text, source="bad.toml")
+    assert "bad.toml" in str(info.value)  # the message says where
+
+
+def test_empty_and_missing_files(tmp_path):
+    empty = tmp_path / "e.toml"
+    empty.write_text("", encoding="utf-8")
+    with pytest.raises(InputFormatError, match="empty"):
+        read_bearing_toml(empty)
+    with pytest.raises(InputFormatError, match="no such file"):
+        read_bearing_toml(tmp_path / "missing.toml")
