@@ -7,8 +7,10 @@ lines). The unknowns are
 
 - the height of every station (µm), and
 - the instrument zero: one per line for an autocollimator (it is re-aimed for
-  every line), one shared by every line for a gravity-referenced level or
-  differential level, one shared datum offset for an indicator.
+  every line; runs taken with it turned round get one of their own, as it is
+  set up anew), one shared by every line for a gravity-referenced level or
+  differential level (a turned-round level reads ``-slope + zero``, so
+  reversed runs measure its zero), one shared datum offset for an indicator.
 
 Observation model (µm), for step ``k`` of a line walked with sign ``s``
 (``s = -1`` when the run sets ``flip_sign``, the instrument turned round)::
@@ -137,6 +139,10 @@ class InstrumentZero:
         The zero as a rise in µm over ``base_mm`` (indicator: the datum offset, µm).
     base_mm : float
         Foot spacing in mm used for ``rise_um`` (the median of the lines'; 0 for indicators).
+    turned : bool
+        Autocollimator only: the zero of the runs of the line taken with the
+        instrument turned round (``flip_sign``), which was set up and aimed anew.
+        Its ``value`` is on the instrument's own scale as read.
     """
 
     lines: tuple
@@ -144,6 +150,7 @@ class InstrumentZero:
     unit: str
     rise_um: float
     base_mm: float
+    turned: bool = False
 
 
 @dataclass(frozen=True)
@@ -343,6 +350,7 @@ class _Model:
     half: float
     zero_lines: tuple  # per zero unknown: tuple of line names
     zero_base_mm: np.ndarray  # per zero unknown: median base
+    zero_turned: tuple = ()  # per zero unknown: autocollimator zero of turned-round runs
 
 
 def _build_model(survey: Survey) -> _Model:
@@ -362,6 +370,7 @@ def _build_model(survey: Survey) -> _Model:
     sign = np.array([flips[(int(a), int(b))] for a, b in zip(obs.line, obs.run)], dtype=float)
     half = 0.5 if (inst.kind == "autocollimator" and inst.reports == "beam-deviation") else 1.0
     rows = np.arange(m)
+    zero_turned = ()
     if inst.reads_heights:
         p = 1
         zero_of_obs = np.zeros(m, dtype=np.int64)
@@ -388,10 +397,15 @@ def _build_model(survey: Survey) -> _Model:
             zero_lines = (tuple(ln.name for ln in lines),)
             zero_base = np.array([float(np.median(obs.base_mm))])
         else:
-            p = len(lines)
-            zero_of_obs = obs.line.copy()
-            zero_lines = tuple((ln.name,) for ln in lines)
-            zero_base = np.array([float(ln.foot_spacing_mm) for ln in lines])
+            # re-aimed for every line; runs taken with the instrument turned round
+            # (set up again at the other end) get a zero of their own
+            key = obs.line * 2 + (sign < 0)
+            groups, zero_of_obs = np.unique(key, return_inverse=True)
+            zero_of_obs = zero_of_obs.astype(np.int64)
+            p = groups.size
+            zero_lines = tuple((lines[g // 2].name,) for g in groups)
+            zero_turned = tuple(bool(g % 2) for g in groups)
+            zero_base = np.array([float(lines[g // 2].foot_spacing_mm) for g in groups])
         # rise = h[to] - h[from] + s * base_mm * zero_urad * 1e-3   (µm)
         rr = [rows, rows, rows]
         cols = [obs.i_to, obs.i_from, n + zero_of_obs]
@@ -405,7 +419,8 @@ def _build_model(survey: Survey) -> _Model:
         (np.concatenate(vals), (np.concatenate(rr), np.concatenate(cols))), shape=(m, n + p)
     )
     return _Model(
-        survey, obs, A, w, n, p, zero_of_obs, sign, ref_base, angle_factor, slope_factor, half, zero_lines, zero_base
+        survey, obs, A, w, n, p, zero_of_obs, sign, ref_base, angle_factor, slope_factor, half, zero_lines, zero_base,
+        zero_turned,
     )
 
 
@@ -750,7 +765,8 @@ def _zero_records(model: _Model, zeros: np.ndarray) -> tuple:
             value = zeros[j] * 1e-6 / model.slope_factor
             base = float(model.zero_base_mm[j])
             rise = base * zeros[j] * 1e-3
-        out.append(InstrumentZero(model.zero_lines[j], float(value), inst.unit, float(rise), base))
+        turned = bool(model.zero_turned[j]) if model.zero_turned else False
+        out.append(InstrumentZero(model.zero_lines[j], float(value), inst.unit, float(rise), base, turned))
     return tuple(out)
 
 

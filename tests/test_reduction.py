@@ -131,11 +131,17 @@ def test_round_trip_exact(layout, kind):
 
 
 def test_round_trip_beam_deviation_and_flipped_runs():
+    # An autocollimator turned round is set up and aimed anew: its turned runs get a zero
+    # of their own, so any zero on them round-trips
     inst = Instrument("autocollimator", "arcsec", reports="beam-deviation")
     p = plan_union_jack(1000, 600, 100, margin_mm=50, instrument=inst)
-    s = simulate_survey(p, surface_um, runs=("forward", "reverse-flipped"), rng=3)
+    s = simulate_survey(p, surface_um, runs=("forward", "reverse-flipped"), instrument_zero="random", rng=3)
     red = reduce_survey(s)
     np.testing.assert_allclose(red.heightmap.height_um, expected_heights(s), atol=1e-9)
+    assert len(red.instrument_zeros) == 2 * len(s.lines)
+    assert sum(z.turned for z in red.instrument_zeros) == len(s.lines)
+    G_ref, _, _ = reference_operator(s)
+    np.testing.assert_allclose(red.operator.G, G_ref, atol=1e-10)
 
 
 def test_level_zero_recovered_against_gravity():
@@ -299,16 +305,22 @@ def dense_design(survey):
     """Dense design matrix, weights and observations built directly from the survey (test-side).
 
     Model (module notes): rise = h_to - h_from + s*B*zero*1e-3, weights (B_median/B)^2;
-    indicator: value = h + s*offset, unit weights.
+    indicator: value = h + s*offset, unit weights; autocollimator zeros per line and flip state.
     """
     obs = observations(survey)
     n = len(survey.stations)
     inst = survey.instrument
-    nz = len(survey.lines) if inst.kind == "autocollimator" else 1
+    flip = np.array([survey.lines[a].runs[b].flip_sign for a, b in zip(obs.line, obs.run)])
+    if inst.kind == "autocollimator":  # one zero per line and turned/not turned
+        groups = sorted({(int(a), bool(f)) for a, f in zip(obs.line, flip)})
+        zi_of = {g: i for i, g in enumerate(groups)}
+    else:
+        zi_of = None
+    nz = len(zi_of) if zi_of else 1
     A = np.zeros((obs.value_um.size, n + nz))
     for k in range(obs.value_um.size):
-        s_ = -1.0 if survey.lines[obs.line[k]].runs[obs.run[k]].flip_sign else 1.0
-        zi = n + (obs.line[k] if nz > 1 else 0)
+        s_ = -1.0 if flip[k] else 1.0
+        zi = n + (zi_of[(int(obs.line[k]), bool(flip[k]))] if zi_of else 0)
         A[k, obs.i_to[k]] += 1.0
         if inst.reads_heights:
             A[k, zi] = s_
