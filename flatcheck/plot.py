@@ -507,11 +507,13 @@ def survey_layout(
         ax.text(mid[0], mid[1], note, fontsize=6, rotation=ang, rotation_mode="anchor", ha="center", va="bottom",
                 color=_INK, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.8), zorder=4)
     ax.plot(xy[:, 0], xy[:, 1], "o", ms=2.5, mfc="white", mec=_INK, mew=0.6, ls="none", zorder=5)
-    for label, x, y, c_um in closures:
+    for k, (label, x, y, c_um) in enumerate(closures):
+        # several closures at one station (the two centre lines of a Union Jack): fan the labels out
+        offsets = [(14, -22), (14, 14), (-90, -22), (-90, 14)]
         ax.annotate(
             f"{label}\nclosure {_fmt(c_um * hs, hu)}",
             (x * ps, y * ps),
-            xytext=(10, -14),
+            xytext=offsets[k % len(offsets)],
             textcoords="offset points",
             fontsize=7,
             color=_ACCENT,

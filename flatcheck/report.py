@@ -52,6 +52,8 @@ class LineResult:
         Reference line of the straightness (µm, µm/mm).
     rms_residual_um : float or None
         RMS of the reduction residuals of this line's readings, µm.
+    run_spread_um : float or None
+        For a line walked more than once, the largest difference between its runs' end-to-end rises, µm.
     """
 
     name: str
@@ -61,6 +63,7 @@ class LineResult:
     ref_offset_um: float
     ref_slope_um_per_mm: float
     rms_residual_um: float | None = None
+    run_spread_um: float | None = None
 
 
 @dataclass(frozen=True)
@@ -95,7 +98,8 @@ class ReportContent:
     lines : tuple of LineResult
         The measured lines (or grid rows/columns for a height map).
     closures : tuple of (str, float, float, float)
-        ``(label, x_mm, y_mm, closure_um)``.
+        ``(label, x_mm, y_mm, closure_um)``: classic closure errors (Union Jack centre
+        lines) and where they close.
     residual_um : ndarray or None
         Reduction residuals of every reading, µm.
     grades : tuple of GradeRow
@@ -266,15 +270,17 @@ def analyse(
     identity, method = _identity_rows(hm, survey, reduction)
     raw = _lines_from_survey(hm, survey) if survey is not None else _lines_from_grid(hm)
     rms = _line_rms(survey, reduction)
+    spread = {c.line: c.run_spread_um for c in getattr(reduction, "closures", ())}
     lines = []
     for name, s, h in raw:
         t, a, b = _straightness_1d(s, h)
-        lines.append(LineResult(name, s, h, t, a, b, rms.get(name)))
+        lines.append(LineResult(name, s, h, t, a, b, rms.get(name), spread.get(name)))
     all_notes = list(notes)
     closures = ()
     residual = None
     if reduction is not None:
-        closures = tuple(reduction.closures)
+        say("closures")
+        closures = _classic_closures(survey, reduction)
         residual = np.asarray(reduction.residual_um, float)
         all_notes += list(getattr(reduction, "warnings", ()))
         n_out = len(getattr(reduction, "outliers", ()))
@@ -321,6 +327,27 @@ def analyse(
         issued=issued,
         sources=_SOURCES,
     )
+
+
+def _classic_closures(survey, reduction) -> tuple:
+    """Classic centre closures of a Union Jack, placed at the centre station: ``(label, x_mm, y_mm, um)``."""
+    if survey is None or survey.pattern != "union-jack":
+        return ()
+    if reduction.method == "moody":
+        moody = reduction
+    else:
+        from .reduction import reduce_survey
+
+        moody = reduce_survey(survey, method="moody")
+    out = []
+    for c in moody.closures:
+        try:
+            ln = survey.line(c.line)
+        except KeyError:
+            continue
+        mid = survey.stations[survey.station_index[ln.stations[len(ln.stations) // 2]]]
+        out.append((f"line {c.line}", mid.x_mm, mid.y_mm, float(c.closure_um)))
+    return tuple(out)
 
 
 def _line_rms(survey, reduction) -> dict:
@@ -482,7 +509,7 @@ def _page_summary(fig, c, units):
          "not evaluated" if c.u_ls_um is None else _h(c.u_ls_um, units)),
     ]
     for label, _x, _y, v in c.closures:
-        rows.append((f"closure error, {label}", _h(v, units), ""))
+        rows.append((f"closure error at the centre, {label}", _h(v, units), ""))
     y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.45, 0.65), col_labels=("flatness", "value", "expanded uncertainty"),
                         title="Results", bold_cols=(1,))
     if c.uncertainty_note:
@@ -527,17 +554,35 @@ def _page_layout(fig, c, units):
     from . import plot
 
     sv = c.survey
-    hm = c.heightmap
     index = {s.name: i for i, s in enumerate(sv.stations)}
     lines = [(ln.name, np.array([index[s] for s in ln.stations])) for ln in sv.lines]
-    notes = {ln.name: f"{ln.rms_residual_um:.3f} µm rms" for ln in c.lines if ln.rms_residual_um is not None}
-    ax = fig.add_axes([0.08, 0.50, 0.86, 0.40])
+    ax = fig.add_axes([0.09, 0.55, 0.84, 0.36])
     plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, length_mm=sv.surface.length_mm,
-                       width_mm=sv.surface.width_mm, closures=c.closures, line_notes=notes, units=units,
-                       title="lines walked (arrow: direction of the first run)")
+                       width_mm=sv.surface.width_mm, closures=c.closures, units=units,
+                       title="lines walked (arrow: towards the line's last station)")
+    rows = []
+    for ln in c.lines:
+        rows.append((ln.name, f"{ln.s_mm[-1]:.0f} mm", f"{len(ln.s_mm) - 1}",
+                     "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units),
+                     "" if ln.run_spread_um is None else _h(ln.run_spread_um, units),
+                     _h(ln.straightness_um, units)))
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.44])
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.16, 0.30, 0.40, 0.60, 0.80), fontsize=8,
+                        col_labels=("line", "length", "steps", "rms residual", "run spread", "straightness"),
+                        title="Lines")
+    notes = ["rms residual: readings minus the adjusted surface, per line. run spread: largest difference between "
+             "the end-to-end rises of the runs of a line walked more than once. straightness: minimum zone of the "
+             "line's station heights."]
+    if c.closures:
+        notes.append("closure error (classic Union Jack): centre-line value at the centre minus the diagonals' "
+                     "value there; it shows reading errors, not flatness.")
+    y = plot.text_block(ax, [(t, "s") for t in notes], y0=y, fontsize=8, wrap_chars=110)
     if c.residual_um is not None and np.size(c.residual_um):
-        ax = fig.add_axes([0.10, 0.10, 0.80, 0.30])
-        plot.residual_histogram(ax, c.residual_um, units=units)
+        bottom = 0.09
+        top = 0.06 + 0.44 * y - 0.04
+        if top - bottom > 0.08:
+            ax = fig.add_axes([0.12, bottom, 0.5, top - bottom])
+            plot.residual_histogram(ax, c.residual_um, units=units)
 
 
 def _page_grades(fig, c, units):
