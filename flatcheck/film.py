@@ -1,0 +1,1255 @@
+"""Air film of a porous aerostatic pad over a measured surface (Reynolds equation).
+
+A porous pad is fed through a thin porous layer (permeability ``k`` in m², thickness ``H``) whose back is
+held at the supply pressure ``ps``. The air crosses the layer (Darcy's law), spreads through the film of
+thickness ``h(x, y)`` between the pad face and the guide (compressible, isothermal Reynolds equation) and
+leaves at the pad's edge at ambient pressure ``pa``.
+
+Model
+-----
+Mass balance of a film element, with ``P = p²`` (derivation in docs/methods.md):
+
+* Darcy inflow through the layer per unit area, isothermal ideal gas, no in-plane flow in the layer:
+  ``m = k (ps² - p²) / (2 mu R T H)``;
+* film mass flow per unit width (Poiseuille flow, no slip): ``q = -(h³ / (24 mu R T)) grad p²``;
+* ``div q = m`` gives ``div(h³ grad P) + (12 k / H)(ps² - P) = 0`` with ``P = pa²`` on the edge.
+
+For a fixed film the equation is *linear* in ``P``. Written for ``Pn = (P - pa²) / (ps² - pa²)`` it reads
+``div(h³ grad Pn) + (12 k / H)(1 - Pn) = 0``, ``Pn = 0`` on the edge: the normalised field depends only on the
+film shape and ``12 k / H``, not on the pressures.
+
+Discretisation
+--------------
+Cell-centred nodes on a Cartesian mesh over the pad's bounding box. A rectangular pad uses every node; a
+circular pad uses the nodes inside the disc and imposes the edge condition at the *true* radius: where a
+neighbour lies outside the disc, the Shortley-Weller five-point difference uses the distance to the circle
+along the mesh line. The conductance ``h³`` of each link is taken at its midpoint. The scheme is second
+order (measured in tests/test_film.py). Loads and flows are integrated with the node areas (the part of
+each cell inside the pad). One LU factorisation (scipy.sparse.linalg.splu) per film shape gives the
+pressure and, by reusing the factors, its exact derivatives with respect to fly height and tilts
+(stiffness and the Newton steps of the equilibrium).
+
+Units: positions in mm (pad-local, origin at the pad centre, ``x`` along the travel), films in µm,
+pressures in Pa, loads in N, moments in N·mm, stiffness in N/µm, mass flow in kg/s, volumetric flow in
+l/min of free air at the ambient pressure and the film temperature.
+
+References
+----------
+.. [1] Y. B. P. Kwan, J. Corbett, "A simplified method for the correction of velocity slip and inertia
+   effects in porous aerostatic thrust bearings", Tribology International 31(12):779-786 (1998): the
+   simple one-dimensional porous-bearing model (Darcy layer feeding a Reynolds film) that this 2-D model
+   generalises.
+.. [2] N. Plante et al., "Design of porous air bearings by a one-dimensional generalised flow method",
+   Precision Engineering 29:336-346 (2005) (from memory, not re-read).
+.. [3] G. H. Shortley, R. Weller, "The numerical solution of Laplace's equation", J. Appl. Phys. 9:334
+   (1938) (boundary-adapted five-point differences; from memory).
+.. [4] R. B. Bird, W. E. Stewart, E. N. Lightfoot, Transport Phenomena, Table 1.1-2: air at 20 °C and
+   1 atm, 0.01813 mPa·s.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import threading
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import splu
+
+from .errors import GeometryError, InputValueError
+
+__all__ = [
+    "AIR_VISCOSITY_20C_PA_S",
+    "AIR_GAS_CONSTANT_J_PER_KG_K",
+    "ROOM_TEMPERATURE_K",
+    "STANDARD_AMBIENT_KPA",
+    "FILM_ASSUMPTIONS",
+    "PorousFeed",
+    "PadMesh",
+    "PadDeviation",
+    "FilmState",
+    "FilmCurve",
+    "FilmEquilibrium",
+    "FilmTravel",
+    "circular_pad_mesh",
+    "rectangular_pad_mesh",
+    "pad_deviation",
+    "surface_under_pad",
+    "solve_film",
+    "flat_guide_curve",
+    "default_curve_gaps_um",
+    "film_equilibrium",
+    "film_along_travel",
+]
+
+#: Dynamic viscosity of air at 20 °C, 1 atm: 0.01813 mPa·s in Bird, Stewart & Lightfoot, Transport Phenomena,
+#: Table 1.1-2; 1.81e-5 Pa·s is that value to three digits.
+AIR_VISCOSITY_20C_PA_S = 1.81e-5
+#: Specific gas constant of dry air: R / M = 8.314462618 / 0.0289647 kg/mol (molar mass of dry air of the
+#: US Standard Atmosphere 1976, from memory) = 287.05 J/(kg K).
+AIR_GAS_CONSTANT_J_PER_KG_K = 287.05
+#: 20 °C in kelvin (exact).
+ROOM_TEMPERATURE_K = 293.15
+#: Standard atmosphere, 101.325 kPa (exact by definition).
+STANDARD_AMBIENT_KPA = 101.325
+
+#: The model's assumptions, stated in every result (the CLI prints them).
+FILM_ASSUMPTIONS = (
+    "steady film, no sliding (squeeze and shear terms of the Reynolds equation ignored)",
+    "isothermal ideal gas (air, R = 287.05 J/(kg K)) at the stated temperature",
+    "laminar film with no slip at the porous face or the guide (no slip-flow correction)",
+    "Darcy flow across a thin porous layer, no in-plane flow inside the layer, uniform permeability",
+    "supply pressure on the whole back of the layer; ambient pressure at the pad's edge",
+    "rigid pad face and rigid guide; the gap follows the measured surface under the footprint",
+    "air viscosity 1.81e-5 Pa s (20 °C) unless stated otherwise",
+)
+
+_MAX_ITER = 40
+_MM2_TO_M2 = 1e-6
+_GEOMETRY_UM3_PER_MM2 = 1e12  # h³ in µm³ and lengths in mm: (12k/H) in m times 1e12 (see _beta)
+
+
+# --------------------------------------------------------------------------- inputs
+def _positive(value, name: str, fix: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputValueError(f"{name} must be a number, got {value!r}", fix=fix) from None
+    if not math.isfinite(v) or v <= 0.0:
+        raise InputValueError(f"{name} must be a positive number, got {value!r}", fix=fix)
+    return v
+
+
+@dataclass(frozen=True)
+class PorousFeed:
+    """Porous layer, air supply and gas properties of a porous pad.
+
+    Attributes
+    ----------
+    permeability_m2 : float
+        Permeability ``k`` of the porous layer in m² (Darcy's law), > 0.
+    layer_mm : float
+        Thickness ``H`` of the porous layer in mm, > 0.
+    supply_gauge_kpa : float
+        Supply pressure above ambient (gauge) in kPa, > 0.
+    ambient_kpa : float
+        Ambient absolute pressure in kPa (default 101.325, the standard atmosphere).
+    viscosity_pa_s : float
+        Dynamic viscosity of the air in Pa·s (default 1.81e-5, air at 20 °C).
+    gas_constant_j_per_kg_k : float
+        Specific gas constant in J/(kg K) (default 287.05, dry air).
+    temperature_k : float
+        Film and supply temperature in K (default 293.15).
+    """
+
+    permeability_m2: float
+    layer_mm: float
+    supply_gauge_kpa: float
+    ambient_kpa: float = STANDARD_AMBIENT_KPA
+    viscosity_pa_s: float = AIR_VISCOSITY_20C_PA_S
+    gas_constant_j_per_kg_k: float = AIR_GAS_CONSTANT_J_PER_KG_K
+    temperature_k: float = ROOM_TEMPERATURE_K
+
+    def __post_init__(self):
+        checks = {
+            "permeability_m2": ("permeability (m²)", "give the layer's permeability, e.g. 1e-15"),
+            "layer_mm": ("porous layer thickness (mm)", "give the layer thickness in mm, e.g. 5"),
+            "supply_gauge_kpa": ("supply pressure (kPa gauge)", "give the supply above ambient, e.g. 500"),
+            "ambient_kpa": ("ambient pressure (kPa)", "give the absolute ambient pressure, e.g. 101.325"),
+            "viscosity_pa_s": ("air viscosity (Pa s)", "give a viscosity such as 1.81e-5"),
+            "gas_constant_j_per_kg_k": ("gas constant (J/(kg K))", "give 287.05 for air"),
+            "temperature_k": ("temperature (K)", "give an absolute temperature such as 293.15"),
+        }
+        for attr, (name, fix) in checks.items():
+            object.__setattr__(self, attr, _positive(getattr(self, attr), name, fix))
+
+    @property
+    def supply_pa(self) -> float:
+        """Absolute supply pressure in Pa."""
+        return (self.supply_gauge_kpa + self.ambient_kpa) * 1e3
+
+    @property
+    def ambient_pa(self) -> float:
+        """Absolute ambient pressure in Pa."""
+        return self.ambient_kpa * 1e3
+
+    @property
+    def feed_coefficient(self) -> float:
+        """``12 k / H`` expressed for films in µm and lengths in mm (µm³/mm²).
+
+        In SI units the equation is ``div(h³ grad P) + (12 k/H)(ps² - P) = 0``; with ``h`` in µm (1e-6 m)
+        and ``x`` in mm (1e-3 m) the film term carries a factor 1e-18 / 1e-6 = 1e-12, so the feed term is
+        ``12 k / H`` (m) times 1e12.
+        """
+        return 12.0 * self.permeability_m2 / (self.layer_mm * 1e-3) * _GEOMETRY_UM3_PER_MM2
+
+    @property
+    def ambient_density_kg_m3(self) -> float:
+        """Density of the air at the ambient pressure and the film temperature (ideal gas), kg/m³."""
+        return self.ambient_pa / (self.gas_constant_j_per_kg_k * self.temperature_k)
+
+
+# --------------------------------------------------------------------------- mesh
+@dataclass(frozen=True, eq=False)
+class PadMesh:
+    """Computational mesh over one pad face.
+
+    Attributes
+    ----------
+    shape : {"circle", "rect"}
+        Pad shape.
+    length_mm, width_mm : float
+        Size along x and y in mm (the diameter twice for a circle).
+    x_mm, y_mm : ndarray, shape (n,)
+        Node positions in mm, pad-local (origin at the pad centre, x along the travel).
+    area_mm2 : ndarray, shape (n,)
+        Quadrature weight of each node: the area of its cell inside the pad, mm².
+    probe_x_mm, probe_y_mm : ndarray, shape (m,)
+        Points where the film thickness is evaluated: the ``n`` nodes first, then the link midpoints
+        (where the conductances live), then the edge points where mesh lines cross the pad's edge.
+    spacing_mm : tuple of float
+        Mesh pitch ``(dx, dy)`` in mm.
+    """
+
+    shape: str
+    length_mm: float
+    width_mm: float
+    x_mm: np.ndarray
+    y_mm: np.ndarray
+    area_mm2: np.ndarray
+    probe_x_mm: np.ndarray
+    probe_y_mm: np.ndarray
+    spacing_mm: tuple
+    _ops: dict = field(default=None, repr=False)
+
+    @property
+    def n(self) -> int:
+        """Number of unknowns (nodes)."""
+        return int(self.x_mm.size)
+
+    @property
+    def pad_area_mm2(self) -> float:
+        """Exact face area in mm²."""
+        if self.shape == "circle":
+            return math.pi * self.length_mm**2 / 4.0
+        return self.length_mm * self.width_mm
+
+    @property
+    def half_size_mm(self) -> float:
+        """Half the larger side (or the radius), mm: the length used to scale moments."""
+        return 0.5 * max(self.length_mm, self.width_mm)
+
+
+def _circle_cell_area(x0, x1, y0, y1, radius, n_gauss=48):
+    """Area (mm²) of rectangles [x0,x1]x[y0,y1] inside the disc of ``radius``; arrays of equal shape.
+
+    The chord height is integrated exactly in y and by Gauss-Legendre in x (kinks only where the
+    circle crosses y0 or y1, so the error is far below the discretisation error of the film).
+    """
+    t, w = np.polynomial.legendre.leggauss(n_gauss)
+    xm = 0.5 * (x0 + x1)[:, None] + 0.5 * (x1 - x0)[:, None] * t[None, :]
+    s = np.sqrt(np.clip(radius**2 - xm**2, 0.0, None))
+    top = np.minimum(y1[:, None], s)
+    bot = np.maximum(y0[:, None], -s)
+    chord = np.clip(top - bot, 0.0, None)
+    return 0.5 * (x1 - x0) * (chord @ w)
+
+
+def _build_mesh(shape, length_mm, width_mm, nx, ny):
+    dx = length_mm / nx
+    dy = width_mm / ny
+    xs = -0.5 * length_mm + (np.arange(nx) + 0.5) * dx
+    ys = -0.5 * width_mm + (np.arange(ny) + 0.5) * dy
+    X, Y = np.meshgrid(xs, ys)  # (ny, nx)
+    radius = 0.5 * length_mm
+    if shape == "circle":
+        # a node closer to the circle than 1e-3 of a cell is dropped: its neighbours see the edge instead
+        inside = np.hypot(X, Y) < radius - 1e-3 * min(dx, dy)
+    else:
+        inside = np.ones_like(X, dtype=bool)
+    index = np.full(X.shape, -1, dtype=np.int64)
+    index[inside] = np.arange(int(inside.sum()))
+    n = int(inside.sum())
+    jj, ii = np.nonzero(inside)  # row (y) and column (x) of each node, in node order
+    x = X[inside]
+    y = Y[inside]
+
+    def boundary_distance(axis, sign, px, py):
+        """Distance from nodes to the pad edge along +-x (axis 0) or +-y (axis 1)."""
+        if shape != "circle":
+            return np.full(px.shape, 0.5 * (dx if axis == 0 else dy))
+        along, across = (px, py) if axis == 0 else (py, px)
+        reach = np.sqrt(np.clip(radius**2 - across**2, 0.0, None))
+        return reach - sign * along
+
+    # links: (row node, col node or -1, distance, axis, sign)
+    link_row, link_col, link_dist, link_axis, link_sign = [], [], [], [], []
+    for axis, step in ((0, dx), (1, dy)):
+        for sign in (+1, -1):
+            nj = jj + (sign if axis == 1 else 0)
+            ni = ii + (sign if axis == 0 else 0)
+            ok = (nj >= 0) & (nj < ny) & (ni >= 0) & (ni < nx)
+            nb = np.full(n, -1, dtype=np.int64)
+            nb[ok] = index[nj[ok], ni[ok]]
+            dist = np.where(nb >= 0, step, 0.0)
+            bnd = nb < 0
+            dist[bnd] = boundary_distance(axis, sign, x[bnd], y[bnd])
+            link_row.append(np.arange(n))
+            link_col.append(nb)
+            link_dist.append(dist)
+            link_axis.append(np.full(n, axis))
+            link_sign.append(np.full(n, sign))
+    row = np.concatenate(link_row)
+    col = np.concatenate(link_col)
+    dist = np.concatenate(link_dist)
+    axis = np.concatenate(link_axis)
+    sgn = np.concatenate(link_sign)
+    if np.any(dist <= 0.0):  # pragma: no cover - excluded by the 1e-3 cell margin above
+        raise GeometryError("a mesh node lies on the pad edge", fix="use another mesh size")
+
+    # Shortley-Weller row weights 2 / (d_plus + d_minus) per axis
+    d = dist.reshape(4, n)  # order: x+, x-, y+, y-
+    wx = 2.0 / (d[0] + d[1])
+    wy = 2.0 / (d[2] + d[3])
+    w_link = np.concatenate([wx, wx, wy, wy])
+    g = w_link / dist  # coefficient multiplying the conductance h³ of the link
+
+    # faces: one per interior pair (shared by its two links), one per boundary link
+    interior_fwd = (col >= 0) & (sgn > 0)
+    interior_bwd = (col >= 0) & (sgn < 0)
+    boundary = col < 0
+    n_int = int(interior_fwd.sum())
+    face_of_link = np.full(row.size, -1, dtype=np.int64)
+    face_of_link[interior_fwd] = np.arange(n_int)
+    # the backward link Q->P is the forward link P->Q seen from Q
+    fwd_idx = np.flatnonzero(interior_fwd)
+    keys = row[fwd_idx] * (n + 1) + col[fwd_idx] + axis[fwd_idx] * (n + 1) ** 2
+    order = np.argsort(keys)
+    keys_sorted = keys[order]
+    bwd_idx = np.flatnonzero(interior_bwd)
+    bkeys = col[bwd_idx] * (n + 1) + row[bwd_idx] + axis[bwd_idx] * (n + 1) ** 2
+    pos = np.searchsorted(keys_sorted, bkeys)
+    if not np.array_equal(keys_sorted[pos], bkeys):  # pragma: no cover - mesh symmetry
+        raise GeometryError("internal mesh inconsistency")
+    face_of_link[bwd_idx] = face_of_link[fwd_idx[order[pos]]]
+    b_idx = np.flatnonzero(boundary)
+    n_bnd = b_idx.size
+    face_of_link[b_idx] = n_int + np.arange(n_bnd)
+    n_faces = n_int + n_bnd
+
+    # face midpoints and edge points
+    step_vec = np.where(axis == 0, 1.0, 0.0), np.where(axis == 1, 1.0, 0.0)
+    mid_x = x[row] + step_vec[0] * sgn * dist / 2
+    mid_y = y[row] + step_vec[1] * sgn * dist / 2
+    face_x = np.empty(n_faces)
+    face_y = np.empty(n_faces)
+    face_x[face_of_link[interior_fwd]] = mid_x[interior_fwd]
+    face_y[face_of_link[interior_fwd]] = mid_y[interior_fwd]
+    face_x[face_of_link[b_idx]] = mid_x[b_idx]
+    face_y[face_of_link[b_idx]] = mid_y[b_idx]
+    edge_x = x[row[b_idx]] + step_vec[0][b_idx] * sgn[b_idx] * dist[b_idx]
+    edge_y = y[row[b_idx]] + step_vec[1][b_idx] * sgn[b_idx] * dist[b_idx]
+
+    # interpolation of node values to probes (nodes, faces, edge points), linear along mesh lines
+    # boundary faces/edge points extrapolate from the node and its opposite neighbour when it exists
+    opp = np.full(row.size, -1, dtype=np.int64)
+    lk = np.arange(row.size).reshape(4, n)
+    opp_link = np.concatenate([lk[1], lk[0], lk[3], lk[2]])  # x+ <-> x-, y+ <-> y-
+    opp[:] = col[opp_link]
+    opp_dist = dist[opp_link]
+    ri, ci, vi = [np.arange(n)], [np.arange(n)], [np.ones(n)]
+    fi = face_of_link[interior_fwd]
+    ri += [n + fi, n + fi]
+    ci += [row[interior_fwd], col[interior_fwd]]
+    vi += [np.full(n_int, 0.5), np.full(n_int, 0.5)]
+    for offset, frac in ((n + n_int, 0.5), (n + n_faces, 1.0)):
+        probe_rows = offset + np.arange(n_bnd)
+        p_node = row[b_idx]
+        o_node = opp[b_idx]
+        has = o_node >= 0
+        alpha = np.zeros(n_bnd)
+        alpha[has] = frac * dist[b_idx][has] / opp_dist[b_idx][has]
+        ri += [probe_rows, probe_rows[has]]
+        ci += [p_node, o_node[has]]
+        vi += [1.0 + alpha, -alpha[has]]
+    n_probe = n + n_faces + n_bnd
+    interp = sp.csr_matrix(
+        (np.concatenate(vi), (np.concatenate(ri), np.concatenate(ci))), shape=(n_probe, n)
+    )
+    probe_x = np.concatenate([x, face_x, edge_x])
+    probe_y = np.concatenate([y, face_y, edge_y])
+
+    # system matrix A(c) = sum over links of g*c on the diagonal and -g*c off it, plus the feed term
+    e_row = np.concatenate([row, row[col >= 0]])
+    e_col = np.concatenate([row, col[col >= 0]])
+    e_face = np.concatenate([face_of_link, face_of_link[col >= 0]])
+    e_coef = np.concatenate([g, -g[col >= 0]])
+    keys = e_col * n + e_row  # CSC order: by column, then row
+    ukeys, e_pos = np.unique(keys, return_inverse=True)
+    nnz = ukeys.size
+    indices = (ukeys % n).astype(np.int32)
+    cols = ukeys // n
+    indptr = np.zeros(n + 1, dtype=np.int32)
+    np.add.at(indptr, cols + 1, 1)
+    indptr = np.cumsum(indptr).astype(np.int32)
+    assemble = sp.csr_matrix((e_coef, (e_pos, e_face)), shape=(nnz, n_faces))
+    diag_pos = np.searchsorted(ukeys, np.arange(n) * n + np.arange(n))
+    # Fill-reducing ordering computed once per mesh (it depends only on the pattern): the matrix is assembled
+    # directly in the permuted order and factorised without re-ordering ("NATURAL"), which saves SuperLU's
+    # ordering step on every film solution.
+    probe_data = assemble @ np.ones(n_faces)
+    probe_data[diag_pos] += 1.0
+    A0 = sp.csc_matrix((probe_data, indices, indptr), shape=(n, n))
+    perm_c = splu(A0, permc_spec="MMD_AT_PLUS_A", options=dict(SymmetricMode=True)).perm_c
+    inv = np.argsort(perm_c)
+    tag = sp.csc_matrix((np.arange(1, nnz + 1, dtype=float), indices, indptr), shape=(n, n))
+    tagp = tag[inv][:, inv].tocsc()
+    tagp.sort_indices()
+    order = tagp.data.astype(np.int64) - 1
+    assemble = assemble[order]
+    indices, indptr = tagp.indices.astype(np.int32), tagp.indptr.astype(np.int32)
+    diag_pos = np.flatnonzero(np.isin(order, diag_pos))
+    # flux form for derivatives: (A(dc) Pn)_row = sum_link g * dc_face * (Pn_row - Pn_col)
+    jump = sp.csr_matrix(
+        (
+            np.concatenate([np.ones(n_int), -np.ones(n_int), np.ones(n_bnd)]),
+            (
+                np.concatenate([face_of_link[interior_fwd], face_of_link[interior_fwd], face_of_link[b_idx]]),
+                np.concatenate([row[interior_fwd], col[interior_fwd], row[b_idx]]),
+            ),
+        ),
+        shape=(n_faces, n),
+    )
+    # row P gets g_P * dc * (Pn_P - Pn_Q): +g for links leaving P in the face's forward sense, -g otherwise
+    lrow = np.concatenate([row[interior_fwd], row[interior_bwd], row[b_idx]])
+    lface = np.concatenate([face_of_link[interior_fwd], face_of_link[interior_bwd], face_of_link[b_idx]])
+    lval = np.concatenate([g[interior_fwd], -g[interior_bwd], g[b_idx]])
+    scatter = sp.csr_matrix((lval, (lrow, lface)), shape=(n, n_faces))
+
+    # quadrature weights
+    if shape == "circle":
+        x0, x1, y0, y1 = x - dx / 2, x + dx / 2, y - dy / 2, y + dy / 2
+        corner = np.maximum(np.hypot(np.maximum(abs(x0), abs(x1)), np.maximum(abs(y0), abs(y1))), 0.0)
+        area = np.full(n, dx * dy)
+        cut = corner > radius
+        area[cut] = _circle_cell_area(x0[cut], x1[cut], y0[cut], y1[cut], radius)
+    else:
+        area = np.full(n, dx * dy)
+
+    # edge outflow: boundary links carry flux through a cell face of length dy (x links) or dx (y links);
+    # the outward gradient at the edge point comes from the quadratic through the edge (Pn = 0), the node
+    # (value a, distance t from the edge) and the opposite node (value b, a further d away):
+    # dPn/ds = -a (t + d) / (t d) + b t / (d (t + d)); linear (-a / t) without an opposite node
+    face_len = np.where(axis[b_idx] == 0, dy, dx)
+    t_b = dist[b_idx]
+    o_b = opp[b_idx]
+    d_b = np.where(o_b >= 0, opp_dist[b_idx], np.inf)
+    edge_a = np.where(o_b >= 0, (t_b + d_b) / (t_b * d_b), 1.0 / t_b)
+    edge_b = np.where(o_b >= 0, -t_b / (d_b * (t_b + d_b)), 0.0)
+    edge_grad = sp.csr_matrix(
+        (np.concatenate([edge_a * face_len, (edge_b * face_len)[o_b >= 0]]),
+         (np.concatenate([np.arange(n_bnd), np.flatnonzero(o_b >= 0)]),
+          np.concatenate([row[b_idx], o_b[o_b >= 0]]))),
+        shape=(n_bnd, n),
+    )
+    ops = dict(
+        n_faces=n_faces,
+        n_int=n_int,
+        n_probe=n_probe,
+        indices=indices,
+        indptr=indptr,
+        perm=inv,
+        assemble=assemble,
+        diag_pos=diag_pos,
+        jump=jump,
+        scatter=scatter,
+        interp=interp,
+        edge_grad=edge_grad,
+        edge_probe=n + n_faces + np.arange(n_bnd),
+    )
+    return PadMesh(
+        shape=shape,
+        length_mm=float(length_mm),
+        width_mm=float(width_mm),
+        x_mm=x,
+        y_mm=y,
+        area_mm2=area,
+        probe_x_mm=probe_x,
+        probe_y_mm=probe_y,
+        spacing_mm=(float(dx), float(dy)),
+        _ops=ops,
+    )
+
+
+def _mesh_count(value, name):
+    try:
+        v = int(value)
+    except (TypeError, ValueError):
+        raise InputValueError(f"{name} must be a whole number, got {value!r}", fix="give e.g. 64") from None
+    if v < 4 or v != value:
+        raise InputValueError(f"{name} must be a whole number of at least 4, got {value!r}", fix="give e.g. 64")
+    return v
+
+
+def circular_pad_mesh(diameter_mm: float, n: int = 64) -> PadMesh:
+    """Mesh over a circular pad face.
+
+    Parameters
+    ----------
+    diameter_mm : float
+        Pad diameter in mm.
+    n : int
+        Mesh cells across the diameter (the nodes inside the disc are kept, about 0.785 n²).
+
+    Returns
+    -------
+    PadMesh
+    """
+    d = _positive(diameter_mm, "pad diameter (mm)", "give the pad diameter in mm")
+    n = _mesh_count(n, "mesh size")
+    return _build_mesh("circle", d, d, n, n)
+
+
+def rectangular_pad_mesh(length_mm: float, width_mm: float, nx: int = 64, ny: int = 64) -> PadMesh:
+    """Mesh over a rectangular pad face, ``length_mm`` along x (the travel) by ``width_mm`` across.
+
+    Parameters
+    ----------
+    length_mm, width_mm : float
+        Pad size in mm.
+    nx, ny : int
+        Mesh cells along x and y.
+
+    Returns
+    -------
+    PadMesh
+    """
+    L = _positive(length_mm, "pad length (mm)", "give the pad length in mm")
+    W = _positive(width_mm, "pad width (mm)", "give the pad width in mm")
+    return _build_mesh("rect", L, W, _mesh_count(nx, "mesh size nx"), _mesh_count(ny, "mesh size ny"))
+
+
+# --------------------------------------------------------------------------- surface under the pad
+@dataclass(frozen=True, eq=False)
+class PadDeviation:
+    """Surface height under a pad at the mesh's probe points.
+
+    Attributes
+    ----------
+    height_um : ndarray, shape (m,)
+        Surface height (positive towards the pad) at ``mesh.probe_x_mm, mesh.probe_y_mm`` in µm, relative to
+        any fixed zero; the film is ``pad face height - surface height``.
+    """
+
+    height_um: np.ndarray
+
+
+def pad_deviation(mesh: PadMesh, deviation=None) -> PadDeviation:
+    """Surface deviation under the pad from a callable or from values at the mesh nodes.
+
+    Parameters
+    ----------
+    mesh : PadMesh
+    deviation : None, callable or array_like
+        ``None``: a flat guide (zero everywhere). A callable ``f(x_mm, y_mm) -> height_um`` in pad-local
+        coordinates (mm, origin at the pad centre), evaluated at every probe point. An array of shape
+        ``(mesh.n,)``: heights in µm at the nodes, interpolated linearly along mesh lines to link midpoints and
+        extrapolated linearly to the edge points. An array of shape ``(m,)`` with ``m`` the number of probe
+        points is taken as is.
+
+    Returns
+    -------
+    PadDeviation
+
+    Raises
+    ------
+    InputValueError
+        Wrong length or non-finite heights.
+    """
+    m = mesh.probe_x_mm.size
+    if deviation is None:
+        z = np.zeros(m)
+    elif callable(deviation):
+        z = np.asarray(deviation(mesh.probe_x_mm, mesh.probe_y_mm), dtype=float)
+        z = np.broadcast_to(z, (m,)).copy() if z.ndim == 0 else z.ravel()
+    else:
+        z = np.asarray(deviation, dtype=float).ravel()
+        if z.size == mesh.n:
+            z = mesh._ops["interp"] @ z
+    if z.size != m:
+        raise InputValueError(
+            f"surface deviation has {z.size} values; the pad mesh has {mesh.n} nodes and {m} probe points",
+            fix="give one height per mesh node (PadMesh.x_mm) or a callable f(x_mm, y_mm)",
+        )
+    if not np.isfinite(z).all():
+        raise InputValueError(
+            "surface deviation under the pad is not finite everywhere",
+            fix="check that the pad lies inside the measured area",
+        )
+    return PadDeviation(z)
+
+
+def surface_under_pad(mesh: PadMesh, surface, x_mm: float, y_mm: float, *, method: str = "linear") -> PadDeviation:
+    """Sample a measured surface under a pad centred at ``(x_mm, y_mm)``.
+
+    Parameters
+    ----------
+    mesh : PadMesh
+        The pad's mesh (pad-local coordinates; the pad's x is the surface's x).
+    surface : HeightMap
+        Measured surface (positions mm, heights µm).
+    x_mm, y_mm : float
+        Pad centre on the surface, mm.
+    method : {"linear", "cubic"}
+        Interpolation between surface stations (see :meth:`HeightMap.sample`).
+
+    Returns
+    -------
+    PadDeviation
+
+    Raises
+    ------
+    InputValueError
+        If part of the footprint lies outside the measured area (flatcheck never extrapolates).
+    """
+    z = surface.sample(x_mm + mesh.probe_x_mm, y_mm + mesh.probe_y_mm, method=method)
+    if not np.isfinite(z).all():
+        raise InputValueError(
+            f"the pad centred at x = {x_mm:g} mm, y = {y_mm:g} mm reaches outside the measured surface",
+            fix="shorten the travel or measure closer to the edges",
+        )
+    return PadDeviation(np.asarray(z, dtype=float))
+
+
+# --------------------------------------------------------------------------- results
+@dataclass(frozen=True, eq=False)
+class FilmState:
+    """The air film of a pad held at a given fly height and tilt.
+
+    Attributes
+    ----------
+    gap_um : ndarray, shape (n,)
+        Film thickness at the mesh nodes, µm.
+    pressure_pa : ndarray, shape (n,)
+        Absolute film pressure at the mesh nodes, Pa.
+    fly_height_um : float
+        Mean film thickness over the footprint (area-weighted), µm.
+    min_film_um : float
+        Least film thickness over the nodes, link midpoints and edge points, µm.
+    load_n : float
+        Load capacity, the integral of ``p - pa`` over the face, N.
+    moment_x_nmm, moment_y_nmm : float
+        First moments ``∫(p - pa) x dA`` and ``∫(p - pa) y dA`` about the pad centre, N·mm
+        (the centre of pressure is at ``moment / load``).
+    stiffness_n_per_um : float
+        ``-dW/dh`` for a uniform change of the film at fixed tilt, N/µm.
+    mass_flow_kg_s : float
+        Air mass flow through the pad (Darcy inflow integrated over the face), kg/s.
+    edge_outflow_kg_s : float
+        Mass flow leaving the pad's edge computed from the film gradients there, kg/s (equal to the
+        inflow in the continuous model; the difference measures the discretisation error).
+    flow_l_per_min : float
+        Volumetric flow of free air at the ambient pressure and film temperature, l/min.
+    assumptions : tuple of str
+    """
+
+    gap_um: np.ndarray
+    pressure_pa: np.ndarray
+    fly_height_um: float
+    min_film_um: float
+    load_n: float
+    moment_x_nmm: float
+    moment_y_nmm: float
+    stiffness_n_per_um: float
+    mass_flow_kg_s: float
+    edge_outflow_kg_s: float
+    flow_l_per_min: float
+    assumptions: tuple = FILM_ASSUMPTIONS
+
+
+@dataclass(frozen=True, eq=False)
+class FilmCurve:
+    """Performance of a pad over a perfectly flat guide as a function of the (uniform) gap.
+
+    Attributes
+    ----------
+    gap_um : ndarray, shape (k,)
+        Uniform film thickness, µm, increasing.
+    load_n : ndarray, shape (k,)
+        Load capacity, N.
+    stiffness_n_per_um : ndarray, shape (k,)
+        ``-dW/dh``, N/µm.
+    mass_flow_kg_s : ndarray, shape (k,)
+        Mass flow, kg/s.
+    flow_l_per_min : ndarray, shape (k,)
+        Free-air flow at ambient, l/min.
+    peak_stiffness_gap_um : float
+        Gap of greatest stiffness, µm (refined between the samples).
+    peak_stiffness_n_per_um : float
+        The greatest stiffness, N/µm.
+    peak_inside : bool
+        False when the greatest stiffness is at an end of the sampled range (then widen the range).
+    assumptions : tuple of str
+    """
+
+    gap_um: np.ndarray
+    load_n: np.ndarray
+    stiffness_n_per_um: np.ndarray
+    mass_flow_kg_s: np.ndarray
+    flow_l_per_min: np.ndarray
+    peak_stiffness_gap_um: float
+    peak_stiffness_n_per_um: float
+    peak_inside: bool
+    assumptions: tuple = FILM_ASSUMPTIONS
+
+
+@dataclass(frozen=True, eq=False)
+class FilmEquilibrium:
+    """A pad in equilibrium over the surface under it.
+
+    Attributes
+    ----------
+    fly_height_um : float
+        Mean film thickness over the footprint, µm.
+    min_film_um : float
+        Least film thickness, µm.
+    pad_height_um : float
+        Height of the pad face's centre above the zero of the surface heights, µm.
+    tilt_x_urad, tilt_y_urad : float
+        Slopes of the pad face along x and y, µrad (in the surface's frame; positive when the face rises
+        towards +x / +y).
+    load_n : float
+        Load carried (equals the applied load at convergence), N.
+    stiffness_n_per_um : float
+        ``-dW/dh`` of the pad; for a pad on a ball pivot the tilts follow (zero moment kept), N/µm.
+    mass_flow_kg_s, flow_l_per_min : float
+        Air consumption.
+    iterations : int
+        Newton iterations (film solutions) used.
+    state : FilmState
+        The film at equilibrium (pressure field, moments...).
+    assumptions : tuple of str
+    """
+
+    fly_height_um: float
+    min_film_um: float
+    pad_height_um: float
+    tilt_x_urad: float
+    tilt_y_urad: float
+    load_n: float
+    stiffness_n_per_um: float
+    mass_flow_kg_s: float
+    flow_l_per_min: float
+    iterations: int
+    state: FilmState
+    assumptions: tuple = FILM_ASSUMPTIONS
+
+
+@dataclass(frozen=True, eq=False)
+class FilmTravel:
+    """Equilibrium of a pad at each carriage position (arrays of shape (k,), one entry per position).
+
+    ``converged[i]`` is False where no film equilibrium exists (the pad would touch the surface); the other
+    fields are NaN there and ``failure`` names the reason.
+    """
+
+    fly_height_um: np.ndarray
+    min_film_um: np.ndarray
+    pad_height_um: np.ndarray
+    tilt_x_urad: np.ndarray
+    tilt_y_urad: np.ndarray
+    load_n: np.ndarray
+    stiffness_n_per_um: np.ndarray
+    mass_flow_kg_s: np.ndarray
+    flow_l_per_min: np.ndarray
+    iterations: np.ndarray
+    converged: np.ndarray
+    failure: tuple
+    assumptions: tuple = FILM_ASSUMPTIONS
+
+
+# --------------------------------------------------------------------------- solver core
+class _Contact(Exception):
+    """Internal: the film closes (no equilibrium with a positive film)."""
+
+
+class _Solver:
+    """Film solutions on one mesh with one feed; methods are thread-safe (no shared mutable state)."""
+
+    def __init__(self, mesh: PadMesh, feed: PorousFeed):
+        self.mesh = mesh
+        self.feed = feed
+        ops = mesh._ops
+        self.ops = ops
+        self.beta = feed.feed_coefficient
+        pa, ps = feed.ambient_pa, feed.supply_pa
+        self.pa = pa
+        self.dP = ps * ps - pa * pa
+        mu, R, T = feed.viscosity_pa_s, feed.gas_constant_j_per_kg_k, feed.temperature_k
+        self.rt = R * T
+        # Darcy inflow k (ps² - p²) / (2 mu R T H) per m²; Pn form: k dP (1 - Pn) / (2 mu R T H)
+        self.inflow_coef = feed.permeability_m2 * self.dP / (2 * mu * R * T * feed.layer_mm * 1e-3)
+        # film flux h³ grad(p²) / (24 mu R T), h in µm, grad in 1/mm, length in mm: 1e-18 * 1e3 * 1e-3
+        self.outflow_coef = self.dP * 1e-18 / (24 * mu * R * T)
+        self.w = mesh.area_mm2 * _MM2_TO_M2
+        self.x = mesh.x_mm
+        self.y = mesh.y_mm
+        n, nf = mesh.n, ops["n_faces"]
+        self.nf = nf
+        self.face_sl = slice(n, n + nf)
+        px, py = mesh.probe_x_mm, mesh.probe_y_mm
+        self.fx, self.fy = px[self.face_sl], py[self.face_sl]
+        self.px, self.py = px, py
+
+    # ---- one film solution
+    def solve(self, probe_gap_um, deriv_xy: bool):
+        """Solve for a film given at the probe points; derivatives wrt h0 (and tilts if deriv_xy)."""
+        ops = self.ops
+        n = self.mesh.n
+        hmin = float(probe_gap_um.min())
+        if not hmin > 0.0:
+            raise _Contact()
+        hf = probe_gap_um[self.face_sl]
+        c = hf * hf * hf
+        data = ops["assemble"] @ c
+        data[ops["diag_pos"]] += self.beta
+        # the matrix is held in the mesh's fill-reducing order: Ap[i, j] = A[perm[i], perm[j]]
+        perm = ops["perm"]
+        Ap = sp.csc_matrix((data, ops["indices"], ops["indptr"]), shape=(n, n))
+        lu = splu(Ap, permc_spec="NATURAL", options=dict(SymmetricMode=True, DiagPivotThresh=0.0))
+        pn = np.empty(n)
+        pn[perm] = lu.solve(np.full(n, self.beta))
+        # derivatives: A dPn/du = -A(dc/du) Pn, dc/du = 3 h² dh/du at each face
+        dc = 3.0 * hf * hf
+        fj = (ops["jump"] @ pn) * dc
+        if deriv_xy:
+            D = np.column_stack([fj, fj * (self.fx * 1e-3), fj * (self.fy * 1e-3)])
+        else:
+            D = fj[:, None]
+        dpn = np.empty((n, D.shape[1]))
+        dpn[perm] = lu.solve(-(ops["scatter"] @ D)[perm])
+        pn = np.clip(pn, 0.0, 1.0)
+        p = np.sqrt(self.pa * self.pa + self.dP * pn)
+        dp = (self.dP / (2.0 * p))[:, None] * dpn
+        q = self.w * (p - self.pa)
+        load = float(q.sum())
+        mx = float(q @ self.x)
+        my = float(q @ self.y)
+        # Jacobian of (W, Mx, My) wrt (h0, tx, ty): W in N, M in N mm, h0 in µm, tilts in µrad
+        wd = self.w[:, None] * dp
+        J = np.vstack([wd.sum(axis=0), self.x @ wd, self.y @ wd])
+        return dict(pn=pn, p=p, load=load, mx=mx, my=my, J=J, hmin=hmin)
+
+    def state(self, probe_gap_um, sol, stiffness) -> FilmState:
+        ops = self.ops
+        n = self.mesh.n
+        gap = probe_gap_um[:n]
+        area = self.mesh.area_mm2
+        # inflow = coef * ∫(1 - Pn) dA = coef * (face area - ∫Pn dA); Pn vanishes at the edge, so the node
+        # quadrature of ∫Pn dA keeps second order where ∫(1 - Pn) dA would lose the cut cells' area
+        mass = self.inflow_coef * (self.mesh.pad_area_mm2 * _MM2_TO_M2 - float(self.w @ sol["pn"]))
+        he = probe_gap_um[ops["edge_probe"]]
+        edge = self.outflow_coef * float(np.sum(he**3 * (ops["edge_grad"] @ sol["pn"])))
+        return FilmState(
+            gap_um=gap,
+            pressure_pa=sol["p"],
+            fly_height_um=float(area @ gap / area.sum()),
+            min_film_um=sol["hmin"],
+            load_n=sol["load"],
+            moment_x_nmm=sol["mx"],
+            moment_y_nmm=sol["my"],
+            stiffness_n_per_um=float(stiffness),
+            mass_flow_kg_s=mass,
+            edge_outflow_kg_s=edge,
+            flow_l_per_min=self.litres_per_min(mass),
+        )
+
+    def litres_per_min(self, mass_kg_s):
+        return mass_kg_s / self.feed.ambient_density_kg_m3 * 1e3 * 60.0
+
+    def gap(self, dev, h0, tx, ty):
+        return h0 + tx * 1e-3 * self.px + ty * 1e-3 * self.py - dev
+
+    # ---- equilibrium at one position
+    def equilibrium(self, dev_probe, load_n, pivot, tilt, guess, rtol):
+        """Newton iteration on (h0[, tx, ty]); returns (u, sol, gap, iterations)."""
+        w_node = self.mesh.area_mm2
+        z = dev_probe[: self.mesh.n]
+        if pivot:
+            A = np.column_stack([np.ones_like(z), self.x, self.y]) * np.sqrt(w_node)[:, None]
+            coef, *_ = np.linalg.lstsq(A, z * np.sqrt(w_node), rcond=None)
+            base = coef[0] + coef[1] * self.px + coef[2] * self.py
+            frame = (coef[0], coef[1] * 1e3, coef[2] * 1e3)  # offset µm, slopes µrad
+        else:
+            mean = float(w_node @ z / w_node.sum())
+            base = np.full_like(dev_probe, mean)
+            frame = (mean, 0.0, 0.0)
+        r = dev_probe - base
+        nu = 3 if pivot else 1
+        u = np.array(guess[:nu], dtype=float)
+        if not pivot:
+            tx, ty = tilt
+        Lc = self.mesh.half_size_mm
+        scale = np.array([load_n, load_n * Lc, load_n * Lc])[:nu]
+
+        def full(u):
+            return (u[0], u[1], u[2]) if pivot else (u[0], tx, ty)
+
+        def resid(sol):
+            F = np.array([sol["load"] - load_n, sol["mx"], sol["my"]])[:nu]
+            return F / scale
+
+        gap = self.gap(r, *full(u))
+        if gap.min() <= 0.0:  # lift the pad until the film is open
+            u[0] += 0.5 - gap.min() + abs(u[0])
+            gap = self.gap(r, *full(u))
+        sol = self.solve(gap, pivot)
+        F = resid(sol)
+        it = 1
+        while np.max(np.abs(F)) > rtol:
+            if it >= _MAX_ITER:
+                raise _Contact()
+            J = sol["J"][:nu, :nu] / scale[:, None]
+            try:
+                step = np.linalg.solve(J, -F)
+            except np.linalg.LinAlgError:
+                raise _Contact() from None
+            # keep the film open: no probe may lose more than 70 % of its film in one step
+            dgap = self.gap(np.zeros_like(r), *(step if pivot else (step[0], 0.0, 0.0)))
+            shrink = dgap < 0
+            alpha = 1.0
+            if shrink.any():
+                alpha = min(1.0, float(np.min(0.7 * gap[shrink] / -dgap[shrink])))
+            normF = np.max(np.abs(F))
+            while True:
+                u_new = u + alpha * step
+                gap_new = self.gap(r, *full(u_new))
+                sol_new = self.solve(gap_new, pivot)
+                it += 1
+                F_new = resid(sol_new)
+                if np.max(np.abs(F_new)) < normF or alpha < 1e-3 or it >= _MAX_ITER:
+                    break
+                alpha *= 0.5
+            u, gap, sol, F = u_new, gap_new, sol_new, F_new
+            if sol["hmin"] < 1e-4:  # film below 0.1 nm: the pad has landed
+                raise _Contact()
+        J = sol["J"]
+        if pivot:
+            # stiffness with the tilts free (moments stay zero): Schur complement of the tilt block
+            k = J[0, 0] - J[0, 1:] @ np.linalg.solve(J[1:, 1:], J[1:, 0])
+        else:
+            k = J[0, 0]
+        h0, tx_, ty_ = full(u)
+        pad = (h0 + frame[0], tx_ + frame[1], ty_ + frame[2])
+        return u, sol, gap, -k, pad, it
+
+    def flat_fly_height(self, load_n, rtol):
+        """Uniform gap that carries ``load_n`` over a flat guide."""
+        zero = np.zeros(self.px.size)
+        u, sol, gap, k, pad, it = self.equilibrium(zero, load_n, False, (0.0, 0.0), [10.0], rtol)
+        return float(u[0])
+
+
+def _check_load(mesh, feed, load_n):
+    load = _positive(load_n, "pad load (N)", "give the load carried by the pad in newtons")
+    cap = (feed.supply_pa - feed.ambient_pa) * mesh.pad_area_mm2 * _MM2_TO_M2
+    if load >= 0.98 * cap:
+        raise InputValueError(
+            f"a load of {load:g} N is beyond this pad's capacity (at most {cap:.4g} N as the film closes, "
+            "supply pressure times area)",
+            fix="raise the supply pressure, use a larger pad or share the load over more pads",
+        )
+    return load
+
+
+# --------------------------------------------------------------------------- public API
+def solve_film(
+    mesh: PadMesh,
+    feed: PorousFeed,
+    *,
+    fly_height_um: float,
+    tilt_x_urad: float = 0.0,
+    tilt_y_urad: float = 0.0,
+    deviation=None,
+) -> FilmState:
+    """Air film of a pad held at a given height and tilt over a surface.
+
+    The film is ``h = fly_height_um + tilt_x_urad * x / 1000 + tilt_y_urad * y / 1000 - s(x, y)`` (µm, x and
+    y in mm from the pad centre), with ``s`` the surface deviation under the pad.
+
+    Parameters
+    ----------
+    mesh : PadMesh
+    feed : PorousFeed
+    fly_height_um : float
+        Height of the pad face's centre above the zero of ``s``, µm.
+    tilt_x_urad, tilt_y_urad : float
+        Slopes of the pad face along x and y, µrad.
+    deviation : None, callable, array or PadDeviation
+        Surface deviation ``s`` under the pad (see :func:`pad_deviation`); ``None`` for a flat guide.
+
+    Returns
+    -------
+    FilmState
+
+    Raises
+    ------
+    GeometryError
+        If the film is not open everywhere (the pad touches the surface).
+
+    Examples
+    --------
+    >>> mesh = circular_pad_mesh(50.0, n=32)
+    >>> feed = PorousFeed(1e-15, 5.0, 600.0 - 101.325)
+    >>> st = solve_film(mesh, feed, fly_height_um=5.0)
+    >>> 600 < st.load_n < 660   # analytic value 628.0 N (docs/methods.md)
+    True
+    """
+    dev = deviation if isinstance(deviation, PadDeviation) else pad_deviation(mesh, deviation)
+    solver = _Solver(mesh, feed)
+    h0 = float(fly_height_um)
+    gap = solver.gap(dev.height_um, h0, float(tilt_x_urad), float(tilt_y_urad))
+    try:
+        sol = solver.solve(gap, False)
+    except _Contact:
+        raise GeometryError(
+            f"the pad touches the surface (least film {gap.min():.3g} µm)",
+            fix="raise the fly height or reduce the tilt",
+        ) from None
+    return solver.state(gap, sol, -sol["J"][0, 0])
+
+
+def default_curve_gaps_um(gap_um: float, n: int = 33) -> np.ndarray:
+    """Gaps for a performance curve around a nominal gap: ``n`` values from gap/4 to 4 gap, geometric."""
+    g = _positive(gap_um, "gap (µm)", "give the nominal gap in µm")
+    return np.geomspace(g / 4.0, 4.0 * g, int(n))
+
+
+def flat_guide_curve(mesh: PadMesh, feed: PorousFeed, gaps_um) -> FilmCurve:
+    """Load, stiffness and flow of a pad over a perfectly flat guide versus the uniform gap.
+
+    Parameters
+    ----------
+    mesh : PadMesh
+    feed : PorousFeed
+    gaps_um : array_like, shape (k,)
+        Uniform gaps in µm (k >= 3), sorted into increasing order.
+
+    Returns
+    -------
+    FilmCurve
+        With the gap of greatest stiffness refined by a bounded scalar search between the samples that
+        surround the sampled maximum.
+    """
+    from scipy.optimize import minimize_scalar
+
+    gaps = np.unique(np.asarray(gaps_um, dtype=float).ravel())
+    if gaps.size < 3 or not np.isfinite(gaps).all() or gaps[0] <= 0:
+        raise InputValueError("a film curve needs at least three positive gaps", fix="give gaps in µm above 0")
+    solver = _Solver(mesh, feed)
+    zero = np.zeros(mesh.probe_x_mm.size)
+    loads, stiff, mass = [], [], []
+    for g in gaps:
+        gap = zero + g
+        sol = solver.solve(gap, False)
+        st = solver.state(gap, sol, -sol["J"][0, 0])
+        loads.append(st.load_n)
+        stiff.append(st.stiffness_n_per_um)
+        mass.append(st.mass_flow_kg_s)
+    stiff = np.array(stiff)
+    i = int(np.argmax(stiff))
+    inside = 0 < i < gaps.size - 1
+    if inside:
+        def neg_k(g):
+            sol = solver.solve(zero + g, False)
+            return sol["J"][0, 0]
+
+        res = minimize_scalar(neg_k, bounds=(gaps[i - 1], gaps[i + 1]), method="bounded",
+                              options=dict(xatol=1e-4 * gaps[i]))
+        g_peak, k_peak = float(res.x), float(-res.fun)
+        if k_peak < stiff[i]:
+            g_peak, k_peak = float(gaps[i]), float(stiff[i])
+    else:
+        g_peak, k_peak = float(gaps[i]), float(stiff[i])
+    mass = np.array(mass)
+    return FilmCurve(
+        gap_um=gaps,
+        load_n=np.array(loads),
+        stiffness_n_per_um=stiff,
+        mass_flow_kg_s=mass,
+        flow_l_per_min=solver.litres_per_min(mass),
+        peak_stiffness_gap_um=g_peak,
+        peak_stiffness_n_per_um=k_peak,
+        peak_inside=bool(inside),
+    )
+
+
+def film_equilibrium(
+    mesh: PadMesh,
+    feed: PorousFeed,
+    load_n: float,
+    *,
+    deviation=None,
+    pivot: bool = True,
+    tilt_x_urad: float = 0.0,
+    tilt_y_urad: float = 0.0,
+    rtol: float = 1e-6,
+) -> FilmEquilibrium:
+    """Fly height (and, on a ball pivot, tilts) at which a pad carries ``load_n`` over a surface.
+
+    Newton's method on ``W(h0) = load`` (and zero moments about the pivot at the pad centre for
+    ``pivot=True``), with the exact derivatives of the discrete film from the reused LU factors.
+
+    Parameters
+    ----------
+    mesh : PadMesh
+    feed : PorousFeed
+    load_n : float
+        Load on the pad, N (below the closed-film capacity ``(ps - pa) * area``).
+    deviation : None, callable, array or PadDeviation
+        Surface under the pad (see :func:`pad_deviation`).
+    pivot : bool
+        True: the pad sits on a ball pivot at its centre and tilts freely (zero moment). False: the pad is
+        held at ``tilt_x_urad, tilt_y_urad`` (µrad, in the surface's frame) and only its height floats.
+    rtol : float
+        Convergence: load within ``rtol * load`` and moments within ``rtol * load * half pad size``.
+
+    Returns
+    -------
+    FilmEquilibrium
+
+    Raises
+    ------
+    InputValueError
+        Load beyond the pad's capacity.
+    GeometryError
+        No equilibrium with an open film (the pad would touch the surface).
+    """
+    load = _check_load(mesh, feed, load_n)
+    dev = deviation if isinstance(deviation, PadDeviation) else pad_deviation(mesh, deviation)
+    solver = _Solver(mesh, feed)
+    try:
+        h_flat = solver.flat_fly_height(load, rtol)
+        out = solver.equilibrium(dev.height_um, load, pivot, (tilt_x_urad, tilt_y_urad), [h_flat, 0.0, 0.0], rtol)
+    except _Contact:
+        raise GeometryError(
+            f"no film equilibrium for {load:g} N: the pad would touch the surface",
+            fix="reduce the load, raise the supply pressure or flatten the surface under the pad",
+        ) from None
+    return _make_equilibrium(solver, out)
+
+
+def _make_equilibrium(solver, out) -> FilmEquilibrium:
+    u, sol, gap, k, pad, it = out
+    st = solver.state(gap, sol, k)
+    return FilmEquilibrium(
+        fly_height_um=st.fly_height_um,
+        min_film_um=st.min_film_um,
+        pad_height_um=float(pad[0]),
+        tilt_x_urad=float(pad[1]),
+        tilt_y_urad=float(pad[2]),
+        load_n=st.load_n,
+        stiffness_n_per_um=float(k),
+        mass_flow_kg_s=st.mass_flow_kg_s,
+        flow_l_per_min=st.flow_l_per_min,
+        iterations=int(it),
+        state=st,
+    )
+
+
+def film_along_travel(
+    mesh: PadMesh,
+    feed: PorousFeed,
+    load_n: float,
+    deviations,
+    *,
+    pivot: bool = True,
+    tilt_x_urad: float = 0.0,
+    tilt_y_urad: float = 0.0,
+    rtol: float = 1e-6,
+    workers: int | None = None,
+    progress=None,
+) -> FilmTravel:
+    """Film equilibrium of a pad at each carriage position.
+
+    Parameters
+    ----------
+    mesh : PadMesh
+    feed : PorousFeed
+    load_n : float
+        Load on the pad, N, the same at every position.
+    deviations : sequence of (None, callable, array or PadDeviation), length k
+        Surface under the pad at each position (see :func:`pad_deviation` and :func:`surface_under_pad`).
+    pivot, tilt_x_urad, tilt_y_urad, rtol
+        As in :func:`film_equilibrium`.
+    workers : int, optional
+        Threads sharing the positions (contiguous blocks; each block warm-starts Newton from its previous
+        position). Default: ``min(2, os.cpu_count())``.
+    progress : callable, optional
+        Called as ``progress(1)`` after each position (from worker threads).
+
+    Returns
+    -------
+    FilmTravel
+    """
+    load = _check_load(mesh, feed, load_n)
+    devs = [d if isinstance(d, PadDeviation) else pad_deviation(mesh, d) for d in deviations]
+    k = len(devs)
+    if k == 0:
+        raise InputValueError("no carriage positions", fix="give at least one position")
+    solver = _Solver(mesh, feed)
+    try:
+        h_flat = solver.flat_fly_height(load, rtol)
+    except _Contact:  # pragma: no cover - excluded by the capacity check
+        raise GeometryError("no film equilibrium on a flat guide", fix="reduce the load") from None
+    nw = max(1, min(int(workers or min(2, os.cpu_count() or 1)), k))
+    names = ("fly", "minf", "padh", "tx", "ty", "load", "stiff", "mass", "flow", "it")
+    out = {nm: np.full(k, np.nan) for nm in names}
+    conv = np.zeros(k, dtype=bool)
+    failure = [""] * k
+    lock = threading.Lock()
+
+    def block(idx):
+        guess = [h_flat, 0.0, 0.0]
+        for i in idx:
+            try:
+                res = solver.equilibrium(devs[i].height_um, load, pivot, (tilt_x_urad, tilt_y_urad), guess, rtol)
+            except _Contact:
+                failure[i] = "no equilibrium with an open film: the pad would touch the surface"
+                guess = [h_flat, 0.0, 0.0]
+            else:
+                eq = _make_equilibrium(solver, res)
+                vals = (eq.fly_height_um, eq.min_film_um, eq.pad_height_um, eq.tilt_x_urad, eq.tilt_y_urad,
+                        eq.load_n, eq.stiffness_n_per_um, eq.mass_flow_kg_s, eq.flow_l_per_min, eq.iterations)
+                for nm, v in zip(names, vals):
+                    out[nm][i] = v
+                conv[i] = True
+                guess = list(res[0]) + [0.0] * (3 - len(res[0]))
+            if progress is not None:
+                with lock:
+                    progress(1)
+
+    blocks = [b for b in np.array_split(np.arange(k), nw) if b.size]
+    if len(blocks) == 1:
+        block(blocks[0])
+    else:
+        with ThreadPoolExecutor(max_workers=len(blocks)) as ex:
+            for f in [ex.submit(block, b) for b in blocks]:
+                f.result()
+    return FilmTravel(
+        fly_height_um=out["fly"],
+        min_film_um=out["minf"],
+        pad_height_um=out["padh"],
+        tilt_x_urad=out["tx"],
+        tilt_y_urad=out["ty"],
+        load_n=out["load"],
+        stiffness_n_per_um=out["stiff"],
+        mass_flow_kg_s=out["mass"],
+        flow_l_per_min=out["flow"],
+        iterations=out["it"].astype(float),
+        converged=conv,
+        failure=tuple(failure),
+    )
