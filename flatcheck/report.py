@@ -219,6 +219,7 @@ def analyse(
     marginal_from: float | None = None,
     budget=None,
     target_um: float | None = None,
+    lap=None,
     seed: int | None = None,
     trials: int | None = None,
     notes=(),
@@ -246,6 +247,8 @@ def analyse(
         Bearing limits (library defaults when ``None``).
     target_um : float, optional
         Target flatness in µm: adds a lapping plan.
+    lap : LapModel, optional
+        The lap for the plan (default: :func:`default_lap`, rate not calibrated).
     seed : int, optional
         Seed of the Monte Carlo uncertainty evaluation (reproducible when given).
     trials : int, optional
@@ -287,7 +290,10 @@ def analyse(
         if n_out:
             all_notes.append(f"{n_out} reading(s) flagged as possible outliers by the reduction; see the residuals")
     u_mz = u_ls = None
-    u_note = "no uncertainty evaluation was made"
+    u_note = "not evaluated: a height map carries no reading uncertainty (report a survey to get one)"
+    if reduction is not None:
+        say("uncertainty")
+        u_mz, u_ls, u_note = _uncertainty(survey, reduction, seed=seed, trials=trials or DEFAULT_TRIALS)
     grades = ()
     rule_text = ""
     if standard is not None:
@@ -304,6 +310,16 @@ def analyse(
         if marginal_from is not None:
             kw["marginal_from"] = marginal_from
         bearing = evaluate_bearing(hm, carriage, budget=budget, **kw)
+    lapping = None
+    if target_um is not None:
+        say("lapping plan")
+        from .lapping import least_removal, plan_lapping
+
+        if lap is None:
+            lap = default_lap(hm)
+            all_notes.append(f"lapping plan with an assumed {lap.describe()}: the removal rate is not calibrated, so "
+                             "times are relative; fit the rate from a measured test pass before lapping")
+        lapping = plan_lapping(hm, least_removal(hm, float(target_um)), lap)
     issued = (today or _dt.date.today()).isoformat()
     date = survey.date if survey is not None and survey.date else "not stated"
     return ReportContent(
@@ -322,11 +338,61 @@ def analyse(
         grades=grades,
         decision_rule=rule_text,
         bearing=bearing,
+        lapping=lapping,
         notes=tuple(all_notes),
         date=date,
         issued=issued,
         sources=_SOURCES,
     )
+
+
+#: Monte Carlo trials when none are asked for. JCGM 101:2008 7.2 suggests M >= 1e4/(1-p), i.e. 2e5 for
+#: p = 0.95 for stable interval ends; 2e4 gives the standard deviation (hence U) to about 1 % relative.
+DEFAULT_TRIALS = 20_000
+
+
+def _uncertainty(survey, reduction, *, seed, trials):
+    """Expanded uncertainties (k = 2 equivalent, µm) of MZ and LS flatness by Monte Carlo, and how."""
+    from .survey import observations
+    from .uncertainty import monte_carlo_flatness
+
+    op = getattr(reduction, "operator", None)
+    if op is None:
+        return None, None, "not evaluated: the survey is too large for the dense reduction operator"
+    obs = observations(survey)
+    inst = survey.instrument
+    if inst.reading_uncertainty is not None:
+        u = float(inst.reading_uncertainty) * np.abs(obs.um_per_unit)
+        basis = f"reading standard uncertainty {inst.reading_uncertainty:g} {inst.unit} as stated for the instrument"
+    elif np.isfinite(reduction.sigma0_um) and reduction.redundancy > 0:
+        ref = reduction.ref_base_mm or 1.0
+        u = reduction.sigma0_um * (obs.base_mm / ref if reduction.ref_base_mm else np.ones(obs.base_mm.size))
+        basis = f"reading scatter estimated from the survey's own redundancy (sigma0 {reduction.sigma0_um:.3f} µm)"
+    else:
+        return None, None, "not evaluated: no reading uncertainty stated and no redundancy to estimate it"
+    kw = dict(G=op.G, u_value_um=u, trials=trials, seed=seed)
+    if inst.scale_uncertainty_rel:
+        kw["scale_u_rel"] = float(inst.scale_uncertainty_rel)
+        basis += f", scale {inst.scale_uncertainty_rel:g} relative"
+    if inst.foot_spacing_uncertainty_mm and not inst.reads_heights:
+        kw["group"] = obs.base_mm
+        kw["group_u_rel"] = {b: float(inst.foot_spacing_uncertainty_mm) / b for b in np.unique(obs.base_mm) if b > 0}
+        basis += f", foot spacing {inst.foot_spacing_uncertainty_mm:g} mm"
+    mz = monte_carlo_flatness(survey.x_mm[_order(survey, op)], survey.y_mm[_order(survey, op)], obs.value_um,
+                              reference="minimum_zone", **kw)
+    ls = monte_carlo_flatness(survey.x_mm[_order(survey, op)], survey.y_mm[_order(survey, op)], obs.value_um,
+                              reference="least_squares", **kw)
+    lo, hi = mz.interval_um
+    note = (f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {basis}. "
+            f"U is twice the standard deviation of the simulated flatness (k = 2 equivalent); "
+            f"95 % interval of the minimum zone {lo:.3f} to {hi:.3f} µm (simulated mean {mz.mean_um:.3f} µm).")
+    return float(mz.expanded_um), float(ls.expanded_um), note
+
+
+def _order(survey, op):
+    """Station indices of the survey in the row order of the reduction operator."""
+    idx = survey.station_index
+    return np.array([idx[n] for n in op.station_names], dtype=int)
 
 
 def _classic_closures(survey, reduction) -> tuple:
@@ -348,6 +414,15 @@ def _classic_closures(survey, reduction) -> tuple:
         mid = survey.stations[survey.station_index[ln.stations[len(ln.stations) // 2]]]
         out.append((f"line {c.line}", mid.x_mm, mid.y_mm, float(c.closure_um)))
     return tuple(out)
+
+
+def default_lap(hm: HeightMap):
+    """A round lap a fifth of the surveyed width across (10 mm steps, 50 to 250 mm), 1 µm per minute (assumed)."""
+    from .lapping import LapModel
+
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    d = float(np.clip(round(min(xmax - xmin, ymax - ymin) / 5 / 10) * 10, 50, 250))
+    return LapModel(shape="round", diameter_mm=d, rate_um=1.0, time_unit="min")
 
 
 def _line_rms(survey, reduction) -> dict:
@@ -408,7 +483,8 @@ def _identity_rows(hm, survey, reduction):
         ]
         inst = survey.instrument
         method = [
-            ("instrument", f"{inst.kind}{' ' + inst.model if inst.model else ''}, read in {inst.unit}"),
+            ("instrument", f"{inst.model} ({inst.kind}), read in {inst.unit}" if inst.model else
+             f"{inst.kind}, read in {inst.unit}"),
             ("reference", "gravity (one zero for all lines)" if inst.gravity_referenced else
              "optical, re-aimed per line" if inst.kind == "autocollimator" else "common datum"),
             ("layout", f"{survey.pattern}: {len(survey.stations)} stations on {len(survey.lines)} lines"),
@@ -463,6 +539,8 @@ def _page_plan(content):
         plan.append(("Grades and decision rule", _page_grades))
     if content.bearing is not None:
         plan.append(("Air bearing: fitness and carriage motion", _page_bearing))
+    if content.lapping is not None:
+        plan.append(("Lapping plan", _page_lapping))
     plan.append(("Methods, sources and cautions", _page_sources))
     return plan
 
@@ -626,6 +704,29 @@ def _page_bearing(fig, c, units):
                      for p in b.carriage.active_pads)
     lines = [f"Pads: {pads}."] + list(b.notes)
     plot.text_block(ax, [(t, "s") for t in lines], y0=y, wrap_chars=110)
+
+
+def _page_lapping(fig, c, units):
+    from . import plot
+
+    p = c.lapping
+    rm = p.removal
+    ax = fig.add_axes([0.10, 0.66, 0.80, 0.25])
+    plot.removal_map(ax, p.xs_mm, p.ys_mm, p.wanted_um, units=units,
+                     title=f"least removal to reach {_h(rm.target_um, units)} (deepest {_h(rm.max_depth_um, units)})")
+    ax = fig.add_axes([0.10, 0.36, 0.80, 0.25])
+    plot.dwell_map(ax, p.xs_mm, p.ys_mm, p.plan_dwell, dwell_unit=p.lap.time_unit, units=units,
+                   title=f"dwell of the {p.lap.describe()}")
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.26])
+    rows = [(f"{q.order}", q.zone, _h(q.depth_um, units), f"{q.time:.2f} {q.time_unit}") for q in p.passes[:8]]
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.1, 0.45, 0.7), col_labels=("pass", "cells", "depth", "time"),
+                        fontsize=7.5, title=f"Passes (first {len(rows)} of {len(p.passes)}, highest first)",
+                        wrap_chars=(None, 40, None, None))
+    text = (f"Flatness now {_h(rm.flatness_before_um, units)}; after the plan {_h(p.predicted_flatness_um, units)} "
+            f"predicted (best this lap can do: {_h(p.dwell_flatness_um, units)}). Total time "
+            f"{p.total_time:.1f} {p.lap.time_unit}. Cells: columns A.. from the west, rows 1.. from the south. "
+            "Lap wet or with extraction; see the cautions.")
+    plot.text_block(ax, [(text, "s")], y0=y, fontsize=8, wrap_chars=110)
 
 
 def _page_sources(fig, c, units):
