@@ -27,6 +27,7 @@ from . import (  # noqa: F401,E402
     plan_cmd,
     bearing_cmd,
     report_cmd,
+    demo_cmd,
 )
 
 __all__ = ["app", "run", "main"]
