@@ -1214,12 +1214,13 @@ def film_along_travel(
 
     def block(idx):
         guess = [h_flat, 0.0, 0.0]
+        prev = None  # solution at the position before the last one, for a linear prediction
         for i in idx:
             try:
                 res = solver.equilibrium(devs[i].height_um, load, pivot, (tilt_x_urad, tilt_y_urad), guess, rtol)
             except _Contact:
                 failure[i] = "no equilibrium with an open film: the pad would touch the surface"
-                guess = [h_flat, 0.0, 0.0]
+                guess, prev = [h_flat, 0.0, 0.0], None
             else:
                 eq = _make_equilibrium(solver, res)
                 vals = (eq.fly_height_um, eq.min_film_um, eq.pad_height_um, eq.tilt_x_urad, eq.tilt_y_urad,
@@ -1227,7 +1228,13 @@ def film_along_travel(
                 for nm, v in zip(names, vals):
                     out[nm][i] = v
                 conv[i] = True
-                guess = list(res[0]) + [0.0] * (3 - len(res[0]))
+                last = np.array(list(res[0]) + [0.0] * (3 - len(res[0])))
+                # predict the next position linearly from the last two (positions are evenly spaced in
+                # practice; a poor prediction only costs a Newton step)
+                guess = list(last if prev is None else 2.0 * last - prev)
+                if guess[0] <= 0.5 * last[0]:
+                    guess = list(last)
+                prev = last
             if progress is not None:
                 with lock:
                     progress(1)

@@ -155,7 +155,8 @@ def test_mesh_refinement_is_second_order():
     e_disc = [solve_film(circular_pad_mesh(50.0, n), FEED, fly_height_um=5.0).load_n - w_disc for n in ns]
     w_rect = _rect_series_load(40.0, 20.0, 5.0)
     e_rect = [solve_film(rectangular_pad_mesh(40.0, 20.0, n, n), FEED, fly_height_um=5.0).load_n - w_rect for n in ns]
-    # measured: rectangle order 1.98, disc order about 2 (the boundary cut pattern makes it uneven)
+    # measured (16..128 cells, fitted slope): rectangle 1.95; disc 1.67, uneven between refinements (1.7, 1.4, 2.0)
+    # because the pattern of cut cells at the circle changes with the mesh
     assert 1.8 < _order(ns, e_rect) < 2.3
     assert 1.5 < _order(ns, e_disc) < 2.8
     assert abs(e_disc[-1]) < abs(e_disc[0]) / 20
