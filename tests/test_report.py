@@ -1,0 +1,164 @@
+"""The PDF report: built from the bundled sample readings, rendered with pdftoppm, read back with pdftotext.
+
+pdftoppm and pdftotext come with Debian's poppler-utils (installed by .ci/run). If they are missing the tests
+fail with a message saying so; they never skip.
+"""
+
+import shutil
+import subprocess
+from pathlib import Path
+
+import numpy as np
+import pytest
+from matplotlib.image import imread
+from scipy.optimize import linprog, minimize_scalar
+
+from flatcheck import report
+from flatcheck.bearing import Carriage, Pad
+from flatcheck.errors import OutputError
+from flatcheck.heightmap import HeightMap
+from flatcheck.io.survey_toml import read_survey
+from flatcheck.reduction import reduce_survey
+
+SAMPLE = Path(report.__file__).parent / "data" / "plate-KY-P3-2024-03-11.toml"
+
+
+def _tool(name):
+    path = shutil.which(name)
+    if path is None:
+        pytest.fail(f"{name} is not installed: install Debian's poppler-utils (apt-get install poppler-utils)")
+    return path
+
+
+def _render(pdf: Path, out_dir: Path, dpi: int = 30) -> list:
+    subprocess.run([_tool("pdftoppm"), "-png", "-r", str(dpi), str(pdf), str(out_dir / "page")], check=True)
+    return sorted(out_dir.glob("page-*.png"))
+
+
+def _text(pdf: Path) -> str:
+    res = subprocess.run([_tool("pdftotext"), "-layout", str(pdf), "-"], check=True, capture_output=True, text=True)
+    return res.stdout
+
+
+def _mz_reference(x, y, z):
+    """Minimum-zone flatness by a direct linear program (scipy), independent of flatcheck's solvers."""
+    n = x.size
+    A = np.column_stack([np.ones(n), x - x.mean(), y - y.mean()])
+    res = linprog([0, 0, 0, 1], A_ub=np.vstack([np.column_stack([A, np.zeros(n)]), np.column_stack([-A, -np.ones(n)])]),
+                  b_ub=np.concatenate([z, -z]), bounds=[(None, None)] * 4, method="highs")
+    return res.x[3]
+
+
+@pytest.fixture(scope="module")
+def sample_report(tmp_path_factory):
+    """The full report of the bundled sample: grades, a pad, a lapping target; pictures as PNG too."""
+    tmp = tmp_path_factory.mktemp("report")
+    survey = read_survey(SAMPLE)
+    red = reduce_survey(survey)
+    carriage = Carriage.single(Pad("rect", 80.0, 40.0, 8.0))
+    content = report.analyse(red.heightmap, survey=survey, reduction=red, standard="din-876", carriage=carriage,
+                             target_um=1.5, seed=7, trials=2000)
+    pngs = tmp / "png"
+    pngs.mkdir()
+    files = report.write_report(tmp / "sample.pdf", content, png_dir=pngs)
+    return content, files, tmp
+
+
+def test_every_page_renders_with_content(sample_report):
+    content, files, tmp = sample_report
+    pages = _render(files.pdf, tmp)
+    assert len(pages) == files.pages == len(report.page_titles(content))
+    for page in pages:
+        grey = imread(page)[..., :3].mean(axis=2)
+        body = grey[int(0.1 * grey.shape[0]) : int(0.9 * grey.shape[0])]  # between the running head and the footer
+        dark = (body < 0.5).mean()
+        assert dark > 0.003, f"{page.name} looks blank ({dark:.4f} dark pixels)"
+        assert body.std() > 0.05, f"{page.name} has no contrast"
+    assert {"Summary", "Surface map", "Survey layout and closure", "Grades and decision rule", "Lapping plan",
+            "Air bearing: fitness and carriage motion", "Methods, sources and cautions"} <= set(report.page_titles(content))
+
+
+def test_pictures_written_alone(sample_report):
+    content, files, tmp = sample_report
+    assert len(files.pngs) == files.pages - 1  # every page but the summary
+    for p in files.pngs:
+        grey = imread(p)[..., :3].mean(axis=2)
+        assert (grey < 0.5).mean() > 0.003
+
+
+def test_report_states_the_flatness_computed_independently(sample_report):
+    content, files, _ = sample_report
+    hm = content.heightmap
+    text = _text(files.pdf)
+    # reference: minimum zone by a direct scipy LP, least squares by numpy lstsq (peak to valley of residuals)
+    mz = _mz_reference(hm.x_mm, hm.y_mm, hm.height_um)
+    A = np.column_stack([np.ones(hm.n), hm.x_mm, hm.y_mm])
+    r = hm.height_um - A @ np.linalg.lstsq(A, hm.height_um, rcond=None)[0]
+    assert f"{mz:.3f} µm" in text
+    assert f"{np.ptp(r):.3f} µm" in text
+    assert content.u_mz_um is not None and content.u_mz_um > 0 and "JCGM 101" in text
+    pages = files.pages
+    assert f"page 1 of {pages}" in text and f"page {pages} of {pages}" in text
+    # the cautions and the scope statement are printed
+    assert "respirable crystalline silica" in text and "lifting gear" in text and "Compressed air" in text
+    assert "only as it was when and where it was measured" in text
+    assert "KY-P3" in text and "2024-03-11" in text
+
+
+def test_grade_verdicts_follow_the_iso_14253_rule(sample_report):
+    content, files, _ = sample_report
+    F, U = content.mz.flatness_um, content.u_mz_um
+    for g in content.grades:
+        # Source: ISO 14253-1:2017 default rule (REFERENCE.md section 5, check value 24): conformity proven if
+        # F <= T - U, non-conformity proven if F > T + U, otherwise undecided.
+        expected = "conforms" if F <= g.tolerance_um - U else "does not conform" if F > g.tolerance_um + U else "undecided"
+        assert g.verdict == expected
+    # Source: DIN 876 form t = c (1 + L/1000) with L the longer side (REFERENCE.md 4.1, check value 14):
+    # grade 0, L = 1000 mm -> 8.0 µm; grade 00 (c = 2, from memory) -> 4.0 µm.
+    tol = {g.grade: g.tolerance_um for g in content.grades}
+    assert tol["0"] == pytest.approx(8.0) and tol["00"] == pytest.approx(4.0)
+
+
+def test_heightmap_report_matches_the_worked_3x3_example(tmp_path):
+    x, y = np.meshgrid([0.0, 1.0, 2.0], [0.0, 1.0, 2.0])
+    z = np.zeros_like(x)
+    z[2, 2] = 1.0
+    hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="corner bump")
+    content = report.analyse(hm)
+    files = report.write_report(tmp_path / "small.pdf", content)
+    text = _text(files.pdf)
+    # Source: REFERENCE.md check value 7 (derived with numpy): MZ 0.7500 µm, LS peak-to-valley 0.8333 µm
+    assert "0.750 µm" in text and "0.833 µm" in text
+    assert "not evaluated" in text  # a height map carries no reading uncertainty: said, not invented
+    assert len(_render(files.pdf, tmp_path)) == files.pages
+
+
+def test_straightness_of_a_parabola_is_a_quarter_of_its_sagitta():
+    # Analytic: h = k s^2 on [0, L]; the minimum zone is parallel to the chord and its width is k L^2 / 4.
+    s = np.linspace(0.0, 800.0, 17)
+    h = 2e-6 * s**2
+    t, a, b = report._straightness_1d(s, h)
+    assert t == pytest.approx(2e-6 * 800.0**2 / 4, rel=1e-9)
+    assert b == pytest.approx(2e-6 * 800.0, rel=1e-9)  # chord slope
+
+
+def test_straightness_matches_a_brute_force_search(rng):
+    s = np.sort(rng.uniform(0, 500, 25))
+    h = rng.normal(0, 1, 25)
+    t, _, _ = report._straightness_1d(s, h)
+    # reference: width of the zone minimised over the slope by scipy's bounded scalar search (convex in the slope)
+    ref = minimize_scalar(lambda b: np.ptp(h - b * s), bounds=(-1, 1), method="bounded", options={"xatol": 1e-12})
+    assert t == pytest.approx(ref.fun, abs=1e-6)
+
+
+def test_write_report_refuses_a_missing_picture_folder_and_keeps_the_old_pdf(tmp_path):
+    x, y = np.meshgrid(np.arange(4.0) * 100, np.arange(3.0) * 100)
+    hm = HeightMap(x.ravel(), y.ravel(), (x * y).ravel() * 1e-4)
+    content = report.analyse(hm)
+    target = tmp_path / "r.pdf"
+    target.write_bytes(b"old")
+    with pytest.raises(OutputError):
+        report.write_report(target, content, png_dir=tmp_path / "nope")
+    assert target.read_bytes() == b"old"
+    with pytest.raises(OutputError):
+        report.write_report(tmp_path / "no-folder" / "r.pdf", content)
