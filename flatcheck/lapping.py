@@ -791,16 +791,20 @@ class LapPlan:
     chart: CellChart
 
 
-def _dwell_grid(hm: HeightMap, step_mm: float | None, max_nodes: int):
-    """Regular grid over the surveyed extent; the input grid itself when it is one and small enough."""
+def _dwell_grid(hm: HeightMap, step_mm: float | None, max_nodes: int, lap: LapModel):
+    """Regular grid over the surveyed extent; the input grid itself when it is one, small enough and not
+    much finer than the lap can resolve (pitch >= 1/8 of the lap's smaller size)."""
     g = hm.grid
+    lap_min = 2.0 * min(lap.half_size_mm)
     if step_mm is None and g is not None and g[0].size * g[1].size <= max_nodes:
-        return g[0], g[1], g[2]
+        pitch = min(np.diff(g[0]).min(), np.diff(g[1]).min())
+        if pitch >= lap_min / 8.0:
+            return g[0], g[1], g[2]
     xmin, xmax, ymin, ymax = hm.extent_mm
     lx, ly = xmax - xmin, ymax - ymin
     if step_mm is None:
-        step_mm = math.sqrt(max(lx * ly, 1e-12) / max_nodes)
-        step_mm = max(step_mm, max(lx, ly) / (math.sqrt(max_nodes) * 4))
+        # a quarter of the lap resolves its influence; never more than about max_nodes nodes
+        step_mm = max(lap_min / 4.0, math.sqrt(max(lx * ly, 1e-12) / max_nodes))
     if not (np.isfinite(step_mm) and step_mm > 0):
         raise InputValueError(f"grid step {step_mm} mm must be > 0", fix="give a positive --step-mm")
     nx = max(2, int(math.ceil(lx / step_mm - 1e-9)) + 1)
@@ -863,7 +867,7 @@ def plan_lapping(
     if int(levels) < 1:
         raise InputValueError(f"levels {levels} must be >= 1")
     levels = int(levels)
-    xs, ys, index = _dwell_grid(hm, step_mm, max_nodes)
+    xs, ys, index = _dwell_grid(hm, step_mm, max_nodes, lap)
     if index is not None:
         wanted = removal.remove_um[index].astype(float)
         mask = np.ones(wanted.shape, bool)
@@ -963,13 +967,22 @@ def _passes(xs, ys, plan_dwell, dl, levels, kern, lap, chart) -> tuple:
 
     X, Y = np.meshgrid(xs, ys)
     steps = np.round(plan_dwell / dl).astype(int)
+    # parts of a layer less than half a lap apart are worked in one pass: join them before labelling
+    hx, hy = lap.half_size_mm
+    dx, dy = float(np.diff(xs).mean()), float(np.diff(ys).mean())
+    rx, ry = int(hx / 2.0 // dx), int(hy / 2.0 // dy)
+    yy, xx = np.mgrid[-ry : ry + 1, -rx : rx + 1]
+    disk = (xx * dx / max(hx, 1e-12)) ** 2 + (yy * dy / max(hy, 1e-12)) ** 2 <= 0.25
     out = []
     for level in range(levels, 0, -1):
         layer = steps >= level
-        lab, nlab = ndimage.label(layer)
+        joined, nlab = ndimage.label(ndimage.binary_dilation(layer, structure=disk))
+        lab = np.where(layer, joined, 0)
         regions = []
         for k in range(1, nlab + 1):
             reg = lab == k
+            if not reg.any():
+                continue
             depth = float(removal_from_dwell(reg * dl, kern).max())
             regions.append((depth, reg))
         regions.sort(key=lambda d: -d[0])

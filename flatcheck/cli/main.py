@@ -28,6 +28,8 @@ from . import (  # noqa: F401,E402
     bearing_cmd,
     report_cmd,
     demo_cmd,
+    lap_cmd,
+    compare_cmd,
 )
 
 __all__ = ["app", "run", "main"]

@@ -1,0 +1,132 @@
+"""``flatcheck compare``: what a lapping session removed, the rate it implies, and the sessions still needed."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import typer
+
+from ..errors import InputValueError
+from ..lapping import LapModel
+from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys
+from ..units import height_unit_label, um_to
+from ._app import app
+from .common import SAFETY_LINES, Units, emit_json, load_surface, stdout_console
+from .lap_cmd import _parse_size, resolve_target
+
+
+def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | None, target_source, units: str) -> dict:
+    """The JSON object of ``flatcheck compare``."""
+    return {
+        "command": "compare",
+        "before": str(before),
+        "after": str(after),
+        "json_units": "heights um, positions mm, volumes mm^3, times min (whatever --units says)",
+        "display_units": units,
+        "match_tol_mm": pr.tol_mm,
+        "nodes": int(pr.x_mm.size),
+        "flatness_before_um": pr.flatness_before_um,
+        "flatness_after_um": pr.flatness_after_um,
+        "removed_volume_mm3": pr.removed_volume_mm3,
+        "max_removed_um": pr.max_removed_um,
+        "change": [
+            {"x_mm": float(x), "y_mm": float(y), "change_um": float(c), "removed_um": float(r)}
+            for x, y, c, r in zip(pr.x_mm, pr.y_mm, pr.change_um, pr.removed_um)
+        ],
+        "dwell_min": pr.dwell_min,
+        "lap": lap,
+        "volume_rate_mm3_per_min": pr.volume_rate_mm3_per_min,
+        "rate_um_per_min": pr.rate_um_per_min,
+        "rate_fit_rms_um": pr.rate_fit_rms_um,
+        "target_um": pr.target_um,
+        "target_source": target_source,
+        "remaining_volume_mm3": pr.remaining_volume_mm3,
+        "sessions_to_target": pr.sessions_to_target,
+        "notes": [
+            "each survey is referred to its own least-squares plane; the removal is the least consistent with the "
+            "change (untouched areas read zero) and is a lower bound if the whole surface was lapped"
+        ],
+        "safety": SAFETY_LINES["dust"],
+    }
+
+
+def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str) -> None:
+    """Human summary on stdout."""
+    con = stdout_console()
+    hu = height_unit_label(units)
+
+    def h(v):
+        return f"{um_to(v, units):.3f} {hu}"
+
+    con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
+    con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")
+    con.print(f"Removed {pr.removed_volume_mm3:.4g} mm^3, deepest {h(pr.max_removed_um)}")
+    if pr.dwell_min is not None:
+        con.print(f"Lapping time {pr.dwell_min:g} min: {pr.volume_rate_mm3_per_min:.4g} mm^3/min")
+    if pr.rate_um_per_min is not None:
+        how = "fitted to the logged dwell" if pr.rate_fit_rms_um is not None else "volume / (lap area x time)"
+        extra = f", fit RMS {h(pr.rate_fit_rms_um)}" if pr.rate_fit_rms_um is not None else ""
+        con.print(f"Calibrated rate for {lap.describe().split(',')[0]}: [bold]{pr.rate_um_per_min:.4g} µm/min[/bold] ({how}{extra})")
+        con.print(f"  use it as: flatcheck lap SURVEY --rate-um-per-min {pr.rate_um_per_min:.4g} ...", markup=False)
+    elif pr.dwell_min is not None:
+        con.print("Give the lap size (--lap-diameter-mm or --lap-size-mm) to turn this into a depth rate.")
+    if pr.target_um is not None:
+        if pr.sessions_to_target == 0:
+            con.print(f"Target {h(pr.target_um)} ({target_source}) is met.")
+        elif pr.sessions_to_target is None:
+            con.print(f"Target {h(pr.target_um)}: still {pr.remaining_volume_mm3:.4g} mm^3 to remove; nothing was removed this session, so no estimate.")
+        else:
+            con.print(
+                f"Target {h(pr.target_um)} ({target_source}): {pr.remaining_volume_mm3:.4g} mm^3 still to remove, "
+                f"about [bold]{pr.sessions_to_target}[/bold] more session(s) like this one"
+            )
+    con.print(
+        "Note: each survey is referred to its own least-squares plane; removal is the least consistent with the "
+        "change (a lower bound if the whole surface was lapped).",
+        markup=False,
+    )
+    con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['dust']}")
+
+
+@app.command("compare")
+def compare_cmd(
+    before: Path = typer.Argument(..., help="Survey TOML or height-map CSV before the session."),
+    after: Path = typer.Argument(..., help="Survey TOML or height-map CSV after the session (same stations)."),
+    dwell_min: float = typer.Option(None, "--dwell-min", help="Total lapping time of the session (min)."),
+    log: Path = typer.Option(None, "--log", help="Lapping log CSV x_mm,y_mm,minutes (where the lap worked)."),
+    lap_diameter_mm: float = typer.Option(None, "--lap-diameter-mm", help="Round lap diameter (mm)."),
+    lap_size_mm: str = typer.Option(None, "--lap-size-mm", help="Rectangular lap LENGTHxWIDTH (mm)."),
+    target_um: float = typer.Option(None, "--target-um", help="Target flatness in µm (for the sessions estimate)."),
+    target_grade: str = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
+    match_tol_mm: float = typer.Option(DEFAULT_MATCH_TOL_MM, "--match-tol-mm", help="Node matching tolerance (mm)."),
+    units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
+    json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
+) -> None:
+    """Change map, removed volume, flatness before/after, calibrated rate and sessions to the target."""
+    if dwell_min is not None and log is not None:
+        raise InputValueError("give --dwell-min or --log, not both", where="--dwell-min/--log")
+    if lap_diameter_mm is not None and lap_size_mm is not None:
+        raise InputValueError("give a round or a rectangular lap, not both", where="--lap-diameter-mm/--lap-size-mm")
+    hb, _ = load_surface(before)
+    ha, _ = load_surface(after)
+    lap = None
+    if lap_size_mm is not None:
+        l, w = _parse_size(lap_size_mm)
+        lap = LapModel("rect", length_mm=l, width_mm=w)
+    elif lap_diameter_mm is not None:
+        lap = LapModel("round", diameter_mm=lap_diameter_mm)
+    dlog = None
+    if log is not None:
+        from ..io.lap_log import read_lap_log
+
+        dlog = read_lap_log(log)
+        if lap is None:
+            raise InputValueError("a lapping log needs the lap's size", where="--log", fix="add --lap-diameter-mm or --lap-size-mm")
+    target = source = None
+    if target_um is not None or target_grade is not None:
+        target, source = resolve_target(hb, target_um, target_grade)
+    pr = compare_surveys(hb, ha, tol_mm=match_tol_mm, dwell_min=dwell_min, lap=lap, log=dlog, target_um=target)
+    if json_out:
+        emit_json(progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value))
+    else:
+        render_summary(pr, lap=lap, target_source=source, units=units.value)

@@ -1,0 +1,273 @@
+"""``flatcheck lap``: where to lap, how long, and what the surface will look like afterwards."""
+
+from __future__ import annotations
+
+import math
+import sys
+from pathlib import Path
+
+import typer
+from rich.table import Table
+
+from ..errors import InputValueError
+from ..lapping import LapModel, LapPlan, least_removal, plan_lapping
+from ..units import height_unit_label, um_to
+from ._app import app
+from .common import SAFETY_LINES, Units, emit_json, load_surface, progress_bar, stdout_console
+
+#: Placeholder rate when the user has not calibrated one: times are then "per µm/min" and scale by 1/rate.
+_ASSUMED_RATE_UM_PER_MIN = 1.0
+
+
+def resolve_target(hm, target_um: float | None, target_grade: str | None) -> tuple[float, str]:
+    """Target flatness in µm and a description of where it came from."""
+    if (target_um is None) == (target_grade is None):
+        raise InputValueError(
+            "give exactly one target", where="--target-um/--target-grade", fix="e.g. --target-um 3 or --target-grade din-876:0"
+        )
+    if target_um is not None:
+        if not (math.isfinite(target_um) and target_um >= 0):
+            raise InputValueError(f"target {target_um} µm must be >= 0", where="--target-um", fix="give a flatness in µm")
+        return float(target_um), "given"
+    from ..tolerance import plate_size, tolerance
+
+    std, sep, grade = target_grade.partition(":")
+    if not sep or not std or not grade:
+        raise InputValueError(
+            f"grade {target_grade!r} is not STANDARD:GRADE", where="--target-grade", fix="e.g. din-876:0 or asme-b89.3.7:AA"
+        )
+    size = plate_size(hm)
+    tol = tolerance(std.strip(), grade.strip(), size.length_mm, size.width_mm)
+    where = "the surface's stated size" if size.source == "surface" else "the extent of the measured points"
+    return tol.tolerance_um, (
+        f"{tol.standard} grade {tol.grade} for {size.length_mm:g} x {size.width_mm:g} mm ({where}; {tol.status})"
+    )
+
+
+def _parse_size(text: str) -> tuple[float, float]:
+    parts = text.lower().replace("×", "x").split("x")
+    try:
+        if len(parts) != 2:
+            raise ValueError
+        return float(parts[0]), float(parts[1])
+    except ValueError:
+        raise InputValueError(f"lap size {text!r} is not LENGTHxWIDTH in mm", where="--lap-size-mm", fix="e.g. 200x100") from None
+
+
+def build_lap(hm, diameter_mm, size_mm, rate_per_min, rate_per_pass, strokes_per_pass, stroke_mm) -> tuple[LapModel, list]:
+    """The lap model from the options, with notes on what was assumed."""
+    notes = []
+    if diameter_mm is not None and size_mm is not None:
+        raise InputValueError("give a round or a rectangular lap, not both", where="--lap-diameter-mm/--lap-size-mm")
+    if rate_per_min is not None and rate_per_pass is not None:
+        raise InputValueError("give one removal rate", where="--rate-um-per-min/--rate-um-per-pass")
+    if strokes_per_pass is not None and rate_per_pass is None:
+        raise InputValueError("strokes per pass go with a rate per pass", where="--strokes-per-pass", fix="add --rate-um-per-pass")
+    if rate_per_pass is not None:
+        rate, unit = rate_per_pass, "pass"
+    elif rate_per_min is not None:
+        rate, unit = rate_per_min, "min"
+    else:
+        rate, unit = _ASSUMED_RATE_UM_PER_MIN, "min"
+        notes.append(
+            f"no removal rate given: times assume {_ASSUMED_RATE_UM_PER_MIN:g} µm/min; divide them by your calibrated "
+            "rate (measure one with 'flatcheck compare BEFORE AFTER --dwell-min M')"
+        )
+    if size_mm is not None:
+        l, w = _parse_size(size_mm)
+        lap = LapModel("rect", length_mm=l, width_mm=w, rate_um=rate, time_unit=unit,
+                       strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
+    else:
+        if diameter_mm is None:
+            xmin, xmax, ymin, ymax = hm.extent_mm
+            diameter_mm = max(5.0, 5.0 * round(min(xmax - xmin, ymax - ymin) / 4.0 / 5.0))
+            notes.append(f"no lap size given: a round lap of {diameter_mm:g} mm (a quarter of the shorter side) is assumed")
+        lap = LapModel("round", diameter_mm=diameter_mm, rate_um=rate, time_unit=unit,
+                       strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
+    return lap, notes
+
+
+def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str, notes: list, units: str) -> dict:
+    """The pinned JSON object of ``flatcheck lap``."""
+    lr = plan.removal
+    return {
+        "command": "lap",
+        "input": str(input_path),
+        "label": label,
+        "json_units": "heights um, positions mm, volumes mm^3, times in time_unit (whatever --units says)",
+        "display_units": units,
+        "target_um": lr.target_um,
+        "target_source": target_source,
+        "flatness_before_um": lr.flatness_before_um,
+        "flatness_after_least_removal_um": lr.flatness_after_um,
+        "removal": [
+            {"x_mm": float(x), "y_mm": float(y), "remove_um": float(r)}
+            for x, y, r in zip(lr.x_mm, lr.y_mm, lr.remove_um)
+        ],
+        "removed_volume_mm3": lr.removed_volume_mm3,
+        "max_depth_um": lr.max_depth_um,
+        "high_spots": lr.high_spots,
+        "zone_plane": {"a_um": lr.plane[0], "b_um_per_mm": lr.plane[1], "c_um_per_mm": lr.plane[2]},
+        "lap": plan.lap,
+        "time_unit": plan.lap.time_unit,
+        "total_time": plan.total_time,
+        "predicted_flatness_um": plan.predicted_flatness_um,
+        "predicted_flatness_unrounded_dwell_um": plan.dwell_flatness_um,
+        "predicted_height": [
+            {"x_mm": float(x), "y_mm": float(y), "height_um": float(z)}
+            for x, y, z in zip(lr.x_mm, lr.y_mm, plan.predicted_height_um)
+        ],
+        "dwell_grid": {"xs_mm": plan.xs_mm, "ys_mm": plan.ys_mm, "dwell": plan.plan_dwell},
+        "passes": plan.passes,
+        "chart": {
+            "columns": plan.chart.columns,
+            "rows": plan.chart.rows,
+            "x_edges_mm": plan.chart.x_edges_mm,
+            "y_edges_mm": plan.chart.y_edges_mm,
+            "time": plan.chart.time,
+            "time_unit": plan.chart.time_unit,
+        },
+        "notes": notes,
+        "safety": SAFETY_LINES["dust"],
+    }
+
+
+def _fmt_time(t: float, unit: str) -> str:
+    return f"{t:.1f} min" if unit == "min" else f"{t:.2f} passes"
+
+
+def chart_text(plan: LapPlan) -> str:
+    """The cell chart as plain text (north at the top), for printing and taking to the bench."""
+    ch = plan.chart
+    unit = "min" if ch.time_unit == "min" else "passes"
+    width = max(6, max((len(f"{t:.1f}") for t in ch.time.ravel()), default=3) + 1)
+    lines = [f"Time per cell ({unit}); columns A.. from west, rows 1.. from south; north is up"]
+    lines.append("    " + "".join(f"{c:>{width}}" for c in ch.columns))
+    for j in range(len(ch.rows) - 1, -1, -1):
+        cells = "".join(f"{(f'{t:.1f}' if t > 0 else '.'):>{width}}" for t in ch.time[j])
+        lines.append(f"{ch.rows[j]:>3} {cells}")
+    edges_x = ", ".join(f"{v:g}" for v in ch.x_edges_mm)
+    edges_y = ", ".join(f"{v:g}" for v in ch.y_edges_mm)
+    lines.append(f"cell edges x (mm): {edges_x}")
+    lines.append(f"cell edges y (mm): {edges_y}")
+    return "\n".join(lines)
+
+
+def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> str:
+    """The whole plan as plain text: summary, passes, chart, caution."""
+    lr = plan.removal
+    hu = height_unit_label(units)
+
+    def h(v):
+        return f"{um_to(v, units):.3f} {hu}"
+
+    out = [
+        f"Lapping plan for {label}",
+        f"Target flatness {h(lr.target_um)} ({target_source}); now {h(lr.flatness_before_um)}",
+        f"Least removal: {lr.removed_volume_mm3:.4g} mm^3, deepest {h(lr.max_depth_um)}",
+        f"Lap: {plan.lap.describe()}",
+        f"Predicted flatness after the plan: {h(plan.predicted_flatness_um)} "
+        f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}",
+        "",
+        "Passes, highest first (work the lap evenly over the zone for the time given):",
+        f"{'#':>3}  {'zone':<10} {'centre x, y (mm)':<18} {'extent x, y (mm)':<26} {'depth':>12}  time",
+    ]
+    for p in plan.passes:
+        ext = f"{p.extent_mm[0]:g}-{p.extent_mm[1]:g}, {p.extent_mm[2]:g}-{p.extent_mm[3]:g}"
+        t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
+        out.append(
+            f"{p.order:>3}  {p.zone:<10} {f'{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}':<18} {ext:<26} {h(p.depth_um):>12}  {t}"
+        )
+    if not plan.passes:
+        out.append("  none: the surface is already within the target")
+    out += ["", chart_text(plan), ""]
+    out += [f"Note: {n}" for n in notes]
+    out.append(f"Caution: {SAFETY_LINES['dust']}")
+    return "\n".join(out) + "\n"
+
+
+def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> None:
+    """Human summary on stdout (rich)."""
+    con = stdout_console()
+    lr = plan.removal
+    hu = height_unit_label(units)
+
+    def h(v):
+        return f"{um_to(v, units):.3f} {hu}"
+
+    con.print(f"[bold]Lapping plan[/bold] for {label}")
+    con.print(f"Target flatness {h(lr.target_um)} ({target_source}); minimum zone now {h(lr.flatness_before_um)}")
+    con.print(f"Least removal {lr.removed_volume_mm3:.4g} mm^3, deepest {h(lr.max_depth_um)}")
+    for s in lr.high_spots[:5]:
+        con.print(f"  high spot at ({s.x_mm:g}, {s.y_mm:g}) mm: {h(s.depth_um)} over {s.nodes} node(s)")
+    con.print(f"Lap: {plan.lap.describe()}")
+    con.print(
+        f"Predicted flatness after the plan: [bold]{h(plan.predicted_flatness_um)}[/bold] "
+        f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}"
+    )
+    table = Table(title="Passes, highest first", title_justify="left")
+    for col in ("#", "zone", "centre (mm)", "extent x, y (mm)", f"depth ({hu})", "time"):
+        table.add_column(col)
+    for p in plan.passes:
+        t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
+        table.add_row(
+            str(p.order), p.zone, f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
+            f"{p.extent_mm[0]:g}-{p.extent_mm[1]:g}, {p.extent_mm[2]:g}-{p.extent_mm[3]:g}",
+            f"{um_to(p.depth_um, units):.3f}", t,
+        )
+    if plan.passes:
+        con.print(table)
+    else:
+        con.print("No passes: the surface is already within the target.")
+    con.print(chart_text(plan), markup=False)
+    for n in notes:
+        con.print(f"Note: {n}", markup=False)
+    con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['dust']}")
+
+
+@app.command("lap")
+def lap_cmd(
+    input: Path = typer.Argument(..., help="Survey TOML or height-map CSV."),
+    target_um: float = typer.Option(None, "--target-um", help="Target flatness in µm."),
+    target_grade: str = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
+    lap_diameter_mm: float = typer.Option(None, "--lap-diameter-mm", help="Round lap diameter (mm)."),
+    lap_size_mm: str = typer.Option(None, "--lap-size-mm", help="Rectangular lap LENGTHxWIDTH (mm), length along x."),
+    rate_um_per_min: float = typer.Option(None, "--rate-um-per-min", help="Your calibrated removal rate under the lap."),
+    rate_um_per_pass: float = typer.Option(None, "--rate-um-per-pass", help="Removal per pass (times then in passes)."),
+    strokes_per_pass: int = typer.Option(None, "--strokes-per-pass", help="Strokes in one pass (with a rate per pass)."),
+    stroke_mm: float = typer.Option(0.0, "--stroke-mm", help="Length of the lap's working strokes about each spot (mm)."),
+    step_mm: float = typer.Option(None, "--step-mm", help="Dwell grid pitch (mm); default the survey grid."),
+    cell_mm: float = typer.Option(None, "--cell-mm", help="Chart cell size (mm); default the lap size."),
+    levels: int = typer.Option(4, "--levels", help="Time steps the dwell map is rounded to (more = more passes)."),
+    smoothing: float = typer.Option(0.01, "--smoothing", help="Regularisation of the dwell deconvolution."),
+    removal_csv: Path = typer.Option(None, "--removal-csv", help="Write the least-removal map (x_mm,y_mm,remove_um)."),
+    plan_out: Path = typer.Option(None, "--plan-out", help="Write the plan and cell chart as a text file for the bench."),
+    units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
+    json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
+) -> None:
+    """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness."""
+    from ..io.atomic import write_text_atomic
+
+    hm, _ = load_surface(input)
+    target, source = resolve_target(hm, target_um, target_grade)
+    lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass, stroke_mm)
+    with progress_bar("planning", 2, enabled=sys.stderr.isatty() and not json_out) as advance:
+        lr = least_removal(hm, target)
+        advance(1)
+        plan = plan_lapping(hm, lr, lap, step_mm=step_mm, cell_mm=cell_mm, levels=levels, smoothing=smoothing)
+        advance(1)
+    if plan.predicted_flatness_um > target * 1.0000001 + 1e-9 and plan.passes:
+        notes.append(
+            "this lap cannot reach the target in one plan (its footprint is wider than the shapes to remove); "
+            "survey again after the plan and re-plan, or use a smaller lap"
+        )
+    label = hm.label or input.stem
+    if removal_csv is not None:
+        rows = ["x_mm,y_mm,remove_um"] + [f"{x:.6g},{y:.6g},{r:.4f}" for x, y, r in zip(lr.x_mm, lr.y_mm, lr.remove_um)]
+        write_text_atomic(removal_csv, f"# least-removal map for {label}, target {target:g} um\n" + "\n".join(rows) + "\n")
+    if plan_out is not None:
+        write_text_atomic(plan_out, plan_text(plan, label=label, target_source=source, notes=notes, units=units.value))
+    if json_out:
+        emit_json(plan_json(plan, input_path=input, label=label, target_source=source, notes=notes, units=units.value))
+    else:
+        render_summary(plan, label=label, target_source=source, notes=notes, units=units.value)

@@ -1,0 +1,134 @@
+"""Tests of ``flatcheck lap``: the pinned JSON contract, options, output files and one-line errors."""
+
+import json
+
+import numpy as np
+import pytest
+from scipy.optimize import linprog
+
+from flatcheck.flatness import minimum_zone
+
+
+def write_surface(path, func, length=600.0, width=400.0, pitch=25.0):
+    x = np.arange(0, length + 1e-9, pitch)
+    y = np.arange(0, width + 1e-9, pitch)
+    X, Y = np.meshgrid(x, y)
+    Z = func(X, Y)
+    lines = ["x_mm,y_mm,height_um"] + [f"{a:.6f},{b:.6f},{c:.9f}" for a, b, c in zip(X.ravel(), Y.ravel(), Z.ravel())]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def _hill(X, Y):
+    return 2.0 * np.exp(-((X - 200) ** 2 + (Y - 250) ** 2) / (2 * 70.0**2)) + 0.001 * X
+
+
+@pytest.fixture
+def hill_csv(tmp_path):
+    return write_surface(tmp_path / "hill.csv", _hill)
+
+
+def one_line_error(code, out, err):
+    assert code == 2
+    assert out == ""
+    assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
+    assert "Traceback" not in err
+
+
+def test_pinned_json_contract(cli, hill_csv):
+    code, out, err = cli("lap", hill_csv, "--target-um", "0.8", "--json")
+    assert code == 0
+    doc = json.loads(out)  # exactly one JSON object
+    assert isinstance(doc, dict)
+    for key in ("removal", "removed_volume_mm3", "predicted_flatness_um", "passes"):
+        assert key in doc
+    X, Y = np.meshgrid(np.arange(0, 600 + 1e-9, 25.0), np.arange(0, 400 + 1e-9, 25.0))
+    assert len(doc["removal"]) == X.size
+    assert set(doc["removal"][0]) >= {"x_mm", "y_mm", "remove_um"}
+    x = np.array([r["x_mm"] for r in doc["removal"]])
+    y = np.array([r["y_mm"] for r in doc["removal"]])
+    r = np.array([r["remove_um"] for r in doc["removal"]])
+    z = _hill(x, y)
+    assert (r >= 0).all()
+    # within the target after the removal (the project's minimum zone, itself tested against REFERENCE values)
+    assert minimum_zone(x, y, z - r).flatness_um <= 0.8 + 1e-6
+    # the volume is the least: a direct LP (scipy HiGHS) with the same trapezoid weights gives the same total
+    xs, ys = np.unique(x), np.unique(y)
+    # trapezoid rule weights on the 25 mm grid: half cells on the edges
+    wx = np.r_[12.5, np.full(xs.size - 2, 25.0), 12.5]
+    wy = np.r_[12.5, np.full(ys.size - 2, 25.0), 12.5]
+    w = np.array([wx[np.searchsorted(xs, a)] * wy[np.searchsorted(ys, b)] for a, b in zip(x, y)])
+    n = x.size
+    P = np.column_stack([np.ones(n), x, y])
+    res = linprog(
+        np.r_[w, 0, 0, 0],
+        A_ub=np.vstack([np.hstack([-np.eye(n), -P]), np.hstack([np.zeros((n, n)), P])]),
+        b_ub=np.r_[-z + 0.8, z],
+        bounds=[(0, None)] * n + [(None, None)] * 3,
+        method="highs",
+    )
+    assert doc["removed_volume_mm3"] == pytest.approx(res.fun / 1000.0, rel=1e-5)
+    assert doc["predicted_flatness_um"] < doc["flatness_before_um"]
+    assert len(doc["passes"]) >= 1
+    assert {"zone", "centre_x_mm", "centre_y_mm", "extent_mm", "depth_um", "time"} <= set(doc["passes"][0])
+    assert doc["safety"].startswith("Grinding or lapping granite")
+
+
+def test_human_output_files_and_strokes(cli, hill_csv, tmp_path):
+    plan = tmp_path / "plan.txt"
+    rem = tmp_path / "removal.csv"
+    code, out, err = cli(
+        "lap", hill_csv, "--target-um", "0.8", "--lap-size-mm", "100x80", "--rate-um-per-pass", "0.05",
+        "--strokes-per-pass", "20", "--cell-mm", "100", "--plan-out", plan, "--removal-csv", rem, "--units", "in",
+    )
+    assert code == 0, err
+    assert "Passes, highest first" in out and "µin" in out and "silica" in out
+    text = plan.read_text(encoding="utf-8")
+    assert "strokes" in text and "Time per cell (passes)" in text
+    # chart columns A..F (600 mm / 100 mm), rows 1..4
+    assert "     A     B     C     D     E     F" in text
+    lines = rem.read_text(encoding="utf-8").splitlines()
+    assert lines[1] == "x_mm,y_mm,remove_um" and len(lines) == 2 + 25 * 17
+
+
+def test_flat_input_needs_nothing(cli, tmp_path):
+    flat = write_surface(tmp_path / "flat.csv", lambda X, Y: 0.001 * X - 0.002 * Y)
+    code, out, err = cli("lap", flat, "--target-um", "0.5", "--json")
+    doc = json.loads(out)
+    assert code == 0 and doc["removed_volume_mm3"] == 0.0 and doc["passes"] == []
+    assert all(r["remove_um"] == 0.0 for r in doc["removal"])
+
+
+def test_target_from_grade(cli, hill_csv):
+    code, out, err = cli("lap", hill_csv, "--target-grade", "din-876:00", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    # DIN 876 grade 00 (c = 2, from memory; REFERENCE 4.1) with L = the longer side, 600 mm of points:
+    # 2 (1 + 600/1000) = 3.2 µm
+    assert doc["target_um"] == pytest.approx(3.2)
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        ("--json",),  # no target
+        ("--target-um", "1", "--target-grade", "din-876:0"),
+        ("--target-um", "-1"),
+        ("--target-grade", "din876"),
+        ("--target-grade", "din-876:7"),
+        ("--target-um", "1", "--lap-diameter-mm", "0"),
+        ("--target-um", "1", "--lap-size-mm", "100by80"),
+        ("--target-um", "1", "--strokes-per-pass", "5"),
+        ("--target-um", "1", "--levels", "0"),
+    ],
+)
+def test_bad_options_one_line(cli, hill_csv, args):
+    one_line_error(*cli("lap", hill_csv, *args))
+
+
+def test_bad_files_one_line(cli, tmp_path, hill_csv):
+    one_line_error(*cli("lap", tmp_path / "missing.csv", "--target-um", "1"))
+    bad = tmp_path / "bad.csv"
+    bad.write_text("x_mm,y_mm,height_um\n0,0,1\n1,0,abc\n", encoding="utf-8")
+    one_line_error(*cli("lap", bad, "--target-um", "1"))
+    one_line_error(*cli("lap", hill_csv, "--target-um", "1", "--plan-out", tmp_path / "nofolder" / "p.txt"))
