@@ -78,7 +78,8 @@ def simulate_survey(
     runs : sequence of str, or mapping line name -> sequence of str
         The runs of each line, from :data:`RUN_KINDS`. ``"reverse"`` runs are
         listed in walking order (last station first); ``"-flipped"`` runs were
-        taken with the instrument turned round (stored negated, ``flip_sign`` set).
+        taken with the instrument turned round (the slope read negated, the
+        instrument's zero unchanged; ``flip_sign`` set).
         A mapping gives the runs per line (lines not in it get one forward run).
     rng : numpy.random.Generator or int or None
         Source of the random zero and noise (a seed is accepted). Not used when
@@ -209,12 +210,11 @@ def simulate_survey(
             exact = gain * exact
         out_runs = []
         for kind in runs_of(ln.name):
-            r = exact + zeros[li]
+            flip = kind.endswith("-flipped")
+            # A turned instrument reads the slope negated, but its zero is its own and keeps its sign.
+            r = (-exact if flip else exact) + zeros[li]
             if noise_sd > 0:
                 r = r + gen().normal(0.0, noise_sd, r.size)
-            flip = kind.endswith("-flipped")
-            if flip:
-                r = -r
             if kind.startswith("reverse"):
                 r = r[::-1]
             out_runs.append(

@@ -472,3 +472,21 @@ def test_added_plane_ignored_and_scaling(a, b, c, k):
     np.testing.assert_allclose(tilted, base, atol=1e-9)
     scaled = reduce_survey(simulate_survey(p, lambda x, y: k * surface_um(x, y))).heightmap.height_um
     np.testing.assert_allclose(scaled, k * base, atol=1e-9)
+
+
+def test_turned_level_measures_its_zero():
+    # Physics of a level (common practice, no single source): turned end for end it reads the slope
+    # negated while its zero keeps its sign, so forward + turned runs of a line separate slope and zero:
+    # zero = (r_forward + r_turned) / 2 for every step.
+    from flatcheck.survey import Instrument
+
+    plan = plan_grid(600.0, 400.0, 100.0, instrument=Instrument("level", "um/m"))
+    surface = lambda x, y: 1e-6 * (x - 300) ** 2 - 2e-6 * (y - 200) ** 2  # noqa: E731
+    sv = simulate_survey(plan, surface, instrument_zero=7.0, runs=("forward", "forward-flipped"))
+    red = reduce_survey(sv)
+    (zero,) = red.instrument_zeros
+    assert zero.value == pytest.approx(7.0, abs=1e-9)
+    truth = surface(red.heightmap.x_mm, red.heightmap.y_mm)
+    A = np.column_stack([np.ones_like(truth), red.heightmap.x_mm, red.heightmap.y_mm])
+    truth = truth - A @ np.linalg.lstsq(A, truth, rcond=None)[0]
+    assert np.allclose(red.heightmap.height_um, truth, atol=1e-9)

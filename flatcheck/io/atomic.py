@@ -47,6 +47,11 @@ def atomic_path(path, *, suffix: str | None = None):
     except OSError as exc:
         raise OutputError(f"cannot write in {folder}: {exc.strerror}", fix="check the folder's permissions") from exc
     os.close(fd)
+    # mkstemp creates the file readable by its owner only; give it the usual permissions (umask applies).
+    umask = os.umask(0)
+    os.umask(umask)
+    with contextlib.suppress(OSError):
+        os.chmod(tmp, 0o666 & ~umask)
     try:
         yield Path(tmp)
         os.replace(tmp, path)
