@@ -26,9 +26,15 @@ def make_report(hm, red, *, output: Path, png: Path | None, units: str, show_pro
     from ..report import analyse, page_titles, write_report
 
     survey = analysis.pop("survey", None)
-    with progress_bar("evaluating", 1, enabled=show_progress) as advance:
-        content = analyse(hm, survey=survey, reduction=red, **analysis)
-        advance(1)
+    folder = output.parent if str(output.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(f"cannot write {output}: folder {folder} does not exist", where="-o",
+                          fix="create the folder or choose another path")
+    if analysis.get("standard") is not None:
+        from ..tolerance import get_standard
+
+        get_standard(analysis["standard"])  # an unknown name fails here, before any work
+    content = analyse(hm, survey=survey, reduction=red, **analysis)  # errors surface before any bar is drawn
     n = len(page_titles(content))
     with progress_bar("drawing pages", n, enabled=show_progress) as advance:
         files = write_report(output, content, units=units, png_dir=png, on_page=lambda: advance(1))

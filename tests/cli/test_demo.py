@@ -1,0 +1,57 @@
+"""``flatcheck demo``: the bundled sample, the printed summary and the report it leaves behind."""
+
+import numpy as np
+import pytest
+
+from flatcheck.cli.demo_cmd import DEMO_FILES, sample_path
+from flatcheck.io.survey_toml import read_survey
+from flatcheck.reduction import reduce_survey
+
+
+def test_demo_prints_the_results_and_writes_its_report(cli, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "flatcheck-demo").mkdir()
+    mine = tmp_path / "flatcheck-demo" / "notes.txt"
+    mine.write_text("user's own file")
+    code, out, err = cli("demo")
+    assert code == 0 and "Traceback" not in err
+    pdf = tmp_path / "flatcheck-demo" / DEMO_FILES[0]
+    assert pdf.read_bytes()[:5] == b"%PDF-" and str(pdf.resolve()) in out.replace("\n", "")
+    for word in ("KY-P3", "minimum zone", "least squares", "U =", "closure", "grade", "autocollimator"):
+        assert word in out
+    # reference: minimum zone of the reduced sample by a direct scipy LP (independent of flatcheck's solvers)
+    from scipy.optimize import linprog
+
+    hm = reduce_survey(read_survey(sample_path())).heightmap
+    n = hm.n
+    A = np.column_stack([np.ones(n), hm.x_mm, hm.y_mm])
+    res = linprog([0, 0, 0, 1], A_ub=np.vstack([np.column_stack([A, np.zeros(n)]), np.column_stack([-A, -np.ones(n)])]),
+                  b_ub=np.concatenate([hm.height_um, -hm.height_um]), bounds=[(None, None)] * 4, method="highs")
+    assert f"minimum zone {res.x[3]:.3f} µm" in out
+    assert mine.read_text() == "user's own file"  # never touches other files
+
+
+def test_demo_says_when_it_replaces_its_own_files(cli, tmp_path):
+    out_dir = tmp_path / "d"
+    out_dir.mkdir()
+    (out_dir / DEMO_FILES[0]).write_bytes(b"earlier demo")
+    code, out, err = cli("demo", "--out", out_dir)
+    assert code == 0 and "replaced" in out and DEMO_FILES[0] in out
+
+
+def test_demo_refuses_a_file_as_folder(cli, tmp_path):
+    f = tmp_path / "file"
+    f.write_text("x")
+    code, out, err = cli("demo", "--out", f)
+    assert code == 2 and err.count("\n") == 1 and "Traceback" not in err
+    assert f.read_text() == "x"
+
+
+def test_bundled_sample_is_the_repository_sample():
+    from pathlib import Path
+
+    repo = Path(__file__).resolve().parents[2] / "sample_readings" / sample_path().name
+    if repo.exists():  # in a source checkout the package copy must not drift from sample_readings/
+        assert repo.read_bytes() == sample_path().read_bytes()
+    else:
+        pytest.fail(f"{repo} is missing from the source tree")
