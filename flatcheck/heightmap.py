@@ -92,6 +92,7 @@ class HeightMap:
     width_mm: float | None = None
     label: str = ""
     _grid: object = field(default=None, repr=False, compare=False)
+    _interpolators: dict = field(default_factory=dict, repr=False, compare=False)
 
     def __post_init__(self):
         x = np.ascontiguousarray(self.x_mm, dtype=float).ravel()
@@ -196,27 +197,36 @@ class HeightMap:
         ndarray
             Heights in µm, the broadcast shape of ``x_mm`` and ``y_mm``.
         """
-        from scipy.interpolate import LinearNDInterpolator, RegularGridInterpolator
-
         xq, yq = np.broadcast_arrays(np.asarray(x_mm, float), np.asarray(y_mm, float))
         pts = np.column_stack([xq.ravel(), yq.ravel()])
+        interp, swap = self._interpolator(method)
+        out = interp(pts[:, ::-1] if swap else pts)
+        return np.asarray(out, dtype=float).reshape(xq.shape)
+
+    def _interpolator(self, method: str):
+        """The interpolator for ``method``, built once per height map (Delaunay and splines cost time)."""
+        from scipy.interpolate import LinearNDInterpolator, RegularGridInterpolator
+
         if self._grid is not None:
             xs, ys, index = self._grid
             if method == "cubic" and (xs.size < 4 or ys.size < 4):
                 method = "linear"
-            interp = RegularGridInterpolator(
-                (ys, xs), self.height_um[index], method=method, bounds_error=False, fill_value=np.nan
+        elif method != "linear":
+            raise GeometryError(
+                f"{method} interpolation needs stations on a regular grid",
+                fix="use linear interpolation for scattered stations",
             )
-            out = interp(pts[:, ::-1])
-        else:
-            if method != "linear":
-                raise GeometryError(
-                    f"{method} interpolation needs stations on a regular grid",
-                    fix="use linear interpolation for scattered stations",
+        cached = self._interpolators.get(method)
+        if cached is None:
+            if self._grid is not None:
+                interp = RegularGridInterpolator(
+                    (ys, xs), self.height_um[index], method=method, bounds_error=False, fill_value=np.nan
                 )
-            interp = LinearNDInterpolator(self.xy_mm, self.height_um, fill_value=np.nan)
-            out = interp(pts)
-        return np.asarray(out, dtype=float).reshape(xq.shape)
+                cached = (interp, True)  # takes (y, x)
+            else:
+                cached = (LinearNDInterpolator(self.xy_mm, self.height_um, fill_value=np.nan), False)
+            self._interpolators[method] = cached
+        return cached
 
     def resampled(self, step_mm: float, *, method: str = "linear") -> "HeightMap":
         """The surface interpolated onto a regular grid of pitch ``step_mm`` (mm).
