@@ -112,12 +112,15 @@ class LineClosure:
     run_spread_um : float or None
         For a line walked more than once: largest difference between the runs'
         end-to-end rises (zero removed), in µm; ``None`` for a single run.
+    station : str or None
+        The station where the closure is taken (least squares).
     """
 
     line: str
     closure_um: float
     meaning: str
     run_spread_um: float | None = None
+    station: str | None = None
 
 
 @dataclass(frozen=True)
@@ -771,11 +774,26 @@ def _zero_records(model: _Model, zeros: np.ndarray) -> tuple:
 
 
 def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -> tuple:
+    """Closure of each line at the stations it shares with other lines.
+
+    For slope instruments the line's own profile (its readings integrated from its
+    first station, zero removed, mean of its runs) is compared with the adjusted
+    heights at every station the line shares with another line (its tie stations,
+    the first excepted); the closure is the largest of these differences, signed,
+    and the station where it occurs. This is the classic notion (a line's end or
+    midpoint failing to meet what the other lines say) for any layout. With a
+    per-line autocollimator zero the line's far end closes by construction, so its
+    interior tie stations (e.g. the centre of a Union Jack) carry the information.
+    """
     survey = model.survey
     obs = model.obs
     reads = survey.instrument.reads_heights
     zero_part = model.A[:, model.n :] @ u[model.n :]
     corrected = l - zero_part
+    lines_at = {}
+    for ln in survey.lines:
+        for name in set(ln.stations):
+            lines_at[name] = lines_at.get(name, 0) + 1
     out = []
     for li, ln in enumerate(survey.lines):
         sel = obs.line == li
@@ -783,17 +801,29 @@ def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -
         if reads:
             closure = float(np.mean(r[sel]))
             meaning = "mean residual of the line's indicator readings (observed minus adjusted height)"
-            spread = None
-        else:
-            sums = np.array([r[sel & (obs.run == k)].sum() for k in runs])
-            closure = float(sums.mean())
-            meaning = (
-                "the line's integrated rise (zero removed, mean of its runs) minus the adjusted height "
-                "difference of its end stations; it comes from reading errors, not from flatness"
-            )
-            ends = np.array([corrected[sel & (obs.run == k)].sum() for k in runs])
-            spread = float(ends.max() - ends.min()) if runs.size > 1 else None
-        out.append(LineClosure(ln.name, closure, meaning, spread))
+            out.append(LineClosure(ln.name, closure, meaning, None))
+            continue
+        steps = len(ln.stations) - 1
+        cum = np.zeros((runs.size, steps + 1))
+        for j, k in enumerate(runs):
+            m = sel & (obs.run == k)
+            per_step = np.zeros(steps)
+            per_step[obs.step[m]] = r[m]
+            cum[j, 1:] = np.cumsum(per_step)
+        mean_cum = cum.mean(axis=0)
+        ties = [k for k in range(1, steps + 1) if lines_at.get(ln.stations[k], 0) > 1]
+        if not ties:
+            ties = [steps]
+        k_worst = max(ties, key=lambda k: abs(mean_cum[k]))
+        closure = float(mean_cum[k_worst])
+        meaning = (
+            "largest difference, at a station shared with another line, between the line's own integrated "
+            "profile (zero removed, mean of its runs) and the adjusted heights; it comes from reading errors, "
+            "not from flatness"
+        )
+        ends = np.array([corrected[sel & (obs.run == k)].sum() for k in runs])
+        spread = float(ends.max() - ends.min()) if runs.size > 1 else None
+        out.append(LineClosure(ln.name, closure, meaning, spread, ln.stations[k_worst]))
     return tuple(out)
 
 

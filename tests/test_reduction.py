@@ -437,11 +437,23 @@ def test_closures_and_run_spread():
     red = reduce_survey(s)
     assert [c.line for c in red.closures] == [ln.name for ln in s.lines]
     obs = observations(s)
+    shared = {}
+    for ln in s.lines:
+        for name in ln.stations:
+            shared[name] = shared.get(name, 0) + 1
     for li, c in enumerate(red.closures):
-        # definition: mean over runs of the line's summed residuals
+        # definition: at the line's tie stations (shared with another line), the mean over runs of the
+        # residuals summed from the line's first station; the closure is the largest in magnitude
         sel = obs.line == li
-        sums = [red.residual_um[sel & (obs.run == k)].sum() for k in (0, 1)]
-        assert c.closure_um == pytest.approx(np.mean(sums), abs=1e-12)
+        ln = s.lines[li]
+        candidates = {}
+        for k in range(1, len(ln.stations)):
+            if shared[ln.stations[k]] > 1:
+                per_run = [red.residual_um[sel & (obs.run == run) & (obs.step < k)].sum() for run in (0, 1)]
+                candidates[ln.stations[k]] = np.mean(per_run)
+        worst = max(candidates, key=lambda n: abs(candidates[n]))
+        assert c.station == worst
+        assert c.closure_um == pytest.approx(candidates[worst], abs=1e-12)
         # run spread: difference of the runs' end-to-end rises (zero is common to both runs)
         ends = [obs.value_um[sel & (obs.run == k)].sum() for k in (0, 1)]
         assert c.run_spread_um == pytest.approx(abs(ends[0] - ends[1]), abs=1e-6)
