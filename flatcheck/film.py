@@ -83,6 +83,12 @@ __all__ = [
     "default_curve_gaps_um",
     "film_equilibrium",
     "film_along_travel",
+    "DEFAULT_STIFFNESS_CHANGE_LIMIT",
+    "PadFilmTravel",
+    "BearingFilm",
+    "bearing_film",
+    "with_film_checks",
+    "check_carriage_load",
 ]
 
 #: Dynamic viscosity of air at 20 °C, 1 atm: 0.01813 mPa·s in Bird, Stewart & Lightfoot, Transport Phenomena,
@@ -954,8 +960,12 @@ class _Solver:
 
 
 def _check_load(mesh, feed, load_n):
+    return _check_load_area(mesh.pad_area_mm2, feed, load_n)
+
+
+def _check_load_area(area_mm2, feed, load_n):
     load = _positive(load_n, "pad load (N)", "give the load carried by the pad in newtons")
-    cap = (feed.supply_pa - feed.ambient_pa) * mesh.pad_area_mm2 * _MM2_TO_M2
+    cap = (feed.supply_pa - feed.ambient_pa) * area_mm2 * _MM2_TO_M2
     if load >= 0.98 * cap:
         raise InputValueError(
             f"a load of {load:g} N is beyond this pad's capacity (at most {cap:.4g} N as the film closes, "
@@ -1260,3 +1270,248 @@ def film_along_travel(
         converged=conv,
         failure=tuple(failure),
     )
+
+
+# --------------------------------------------------------------------------- film under a bearing carriage
+#: Largest change of pad stiffness over the travel, as a fraction of the flat-guide stiffness, before the
+#: film check calls it unfit. No published limit exists; 10 % is a convention of this tool, stated in reports.
+DEFAULT_STIFFNESS_CHANGE_LIMIT = 0.10
+
+
+@dataclass(frozen=True, eq=False)
+class PadFilmTravel:
+    """Film of one pad of a carriage over the travel.
+
+    Attributes
+    ----------
+    name : str
+        Pad name.
+    load_n : float
+        Load on the pad, N (default: what the pad carries at its nominal gap over a flat guide).
+    design_fly_height_um : float
+        Fly height for that load over a perfectly flat guide, µm.
+    design_stiffness_n_per_um : float
+        Stiffness there, N/µm.
+    travel : FilmTravel
+        Per-position results (one per evaluated carriage station).
+    """
+
+    name: str
+    load_n: float
+    design_fly_height_um: float
+    design_stiffness_n_per_um: float
+    travel: FilmTravel
+
+
+@dataclass(frozen=True, eq=False)
+class BearingFilm:
+    """Porous-pad film of every active pad of a carriage at each station, plus the first pad's curve.
+
+    Attributes
+    ----------
+    feed : PorousFeed
+    pivot : bool
+        Pads on ball pivots (tilt free) or held parallel to the carriage reference (tilt 0).
+    x_mm : ndarray, shape (k,)
+        Carriage positions evaluated, mm.
+    pads : tuple of PadFilmTravel
+    curve : FilmCurve
+        Flat-guide curve of the first active pad around its nominal gap.
+    curve_pad : str
+        Name of that pad.
+    mesh_cells : int
+        Mesh cells along each side of a pad.
+    assumptions : tuple of str
+    """
+
+    feed: PorousFeed
+    pivot: bool
+    x_mm: np.ndarray
+    pads: tuple
+    curve: FilmCurve
+    curve_pad: str
+    mesh_cells: int
+    assumptions: tuple = FILM_ASSUMPTIONS
+
+    def station(self, i: int) -> dict:
+        """Film at station ``i`` for the pad with the least film there (JSON-ready dict, µm, N, l/min)."""
+        best = None
+        for p in self.pads:
+            t = p.travel
+            mf = t.min_film_um[i] if t.converged[i] else -np.inf
+            if best is None or mf < best[0]:
+                best = (mf, p)
+        p = best[1]
+        t = p.travel
+        return {
+            "pad": p.name,
+            "converged": bool(t.converged[i]),
+            "fly_height_um": float(t.fly_height_um[i]),
+            "min_film_um": float(t.min_film_um[i]),
+            "load_n": float(t.load_n[i]),
+            "stiffness_n_per_um": float(t.stiffness_n_per_um[i]),
+            "flow_l_per_min": float(t.flow_l_per_min[i]),
+            "tilt_x_urad": float(t.tilt_x_urad[i]),
+            "tilt_y_urad": float(t.tilt_y_urad[i]),
+        }
+
+
+def _pad_mesh_for(pad, n):
+    if pad.shape == "circle":
+        return circular_pad_mesh(pad.length_mm, n)
+    return rectangular_pad_mesh(pad.length_mm, pad.width_mm, n, n)
+
+
+def bearing_film(
+    surface,
+    carriage,
+    stations,
+    feed: PorousFeed,
+    *,
+    load_n: float | None = None,
+    pivot: bool = True,
+    n: int = 64,
+    method: str = "linear",
+    progress=None,
+) -> BearingFilm:
+    """Film equilibrium of each active pad of a carriage at each evaluated station.
+
+    Parameters
+    ----------
+    surface : HeightMap
+        The guide surface (mm, µm).
+    carriage : flatcheck.bearing.Carriage
+        Pads and their places (pad centre = station position + ``along_mm``/``across_mm``).
+    stations : sequence of objects with ``x_mm`` and ``y_mm``
+        Carriage stations (e.g. ``BearingResult.stations``).
+    feed : PorousFeed
+    load_n : float, optional
+        Load per pad, N. Default: for each pad, the load it carries at its nominal gap over a flat guide, so
+        the flat-guide fly height equals the nominal gap.
+    pivot : bool
+        Pads on ball pivots (True) or held at zero tilt.
+    n : int
+        Mesh cells along each side of a pad (64 by default).
+    method : {"linear", "cubic"}
+        Interpolation of the surface.
+    progress : callable, optional
+        ``progress(1)`` after each pad position.
+
+    Returns
+    -------
+    BearingFilm
+    """
+    pads = carriage.active_pads
+    xs = np.array([s.x_mm for s in stations], dtype=float)
+    meshes = {}
+    out = []
+    curve = None
+    for p in pads:
+        key = (p.pad.shape, p.pad.length_mm, p.pad.width_mm)
+        if key not in meshes:
+            meshes[key] = _pad_mesh_for(p.pad, n)
+        mesh = meshes[key]
+        design = solve_film(mesh, feed, fly_height_um=p.pad.gap_um)
+        load = design.load_n if load_n is None else float(load_n)
+        eq = film_equilibrium(mesh, feed, load, pivot=pivot)
+        devs = [
+            surface_under_pad(mesh, surface, s.x_mm + p.along_mm, s.y_mm + p.across_mm, method=method)
+            for s in stations
+        ]
+        travel = film_along_travel(mesh, feed, load, devs, pivot=pivot, progress=progress)
+        out.append(PadFilmTravel(p.name, load, eq.fly_height_um, eq.stiffness_n_per_um, travel))
+        if curve is None:
+            curve = flat_guide_curve(mesh, feed, default_curve_gaps_um(p.pad.gap_um))
+            curve_pad = p.name
+    return BearingFilm(
+        feed=feed, pivot=bool(pivot), x_mm=xs, pads=tuple(out), curve=curve, curve_pad=curve_pad, mesh_cells=int(n)
+    )
+
+
+def check_carriage_load(carriage, feed: PorousFeed, load_n: float | None) -> None:
+    """Raise :class:`InputValueError` when ``load_n`` (N per pad) is beyond any active pad's capacity.
+
+    The capacity bound is the closed-film load ``(ps - pa) * area``; ``None`` (the design load) always passes.
+    """
+    if load_n is None:
+        return
+    for p in carriage.active_pads:
+        area = math.pi * p.pad.length_mm**2 / 4.0 if p.pad.shape == "circle" else p.pad.length_mm * p.pad.width_mm
+        _check_load_area(area, feed, load_n)
+
+
+def _film_status(ratio: float, marginal_from: float) -> str:
+    if ratio > 1.0:
+        return "unfit"
+    if ratio >= marginal_from:
+        return "marginal"
+    return "fit"
+
+
+def with_film_checks(result, film: BearingFilm, *, stiffness_change_limit: float = DEFAULT_STIFFNESS_CHANGE_LIMIT):
+    """A bearing result whose checks and verdict also use the predicted film.
+
+    Two checks are added, judged with the result's own marginal band:
+
+    - *least film*: the largest loss of film of any pad against its flat-guide fly height,
+      ``max(design fly height - least film)`` over the travel, limited to ``gap_fraction * gap`` (the same
+      common-practice fraction as the local-form check); a position without an open-film equilibrium counts
+      as the whole film lost;
+    - *stiffness change*: ``(max - min) / design`` stiffness of any pad over the travel, in %, limited to
+      ``stiffness_change_limit`` (10 % by default; a convention of this tool, no published limit).
+
+    Parameters
+    ----------
+    result : flatcheck.bearing.BearingResult
+    film : BearingFilm
+    stiffness_change_limit : float
+        Fraction (0.10 = 10 %).
+
+    Returns
+    -------
+    BearingResult
+        A copy with the two checks appended and the verdict re-evaluated (worst status).
+    """
+    import dataclasses
+
+    from .bearing import Check
+
+    order = {"fit": 0, "marginal": 1, "unfit": 2}
+    mf = result.marginal_from
+    loss_worst, loss_limit, loss_x = -np.inf, np.inf, float("nan")
+    dk_worst, dk_x = -np.inf, (float("nan"), float("nan"))
+    gaps = {p.name: p.pad.gap_um for p in result.carriage.active_pads}
+    for p in film.pads:
+        t = p.travel
+        if t.fly_height_um.size == 0:
+            continue
+        loss = np.where(t.converged, p.design_fly_height_um - t.min_film_um, p.design_fly_height_um)
+        limit = result.gap_fraction * gaps[p.name]
+        i = int(np.argmax(loss / limit))
+        if loss[i] / limit > loss_worst / loss_limit or not np.isfinite(loss_worst):
+            loss_worst, loss_limit, loss_x = float(loss[i]), float(limit), float(film.x_mm[i])
+        if t.converged.any():
+            k = t.stiffness_n_per_um[t.converged]
+            xk = film.x_mm[t.converged]
+            dk = float((k.max() - k.min()) / p.design_stiffness_n_per_um)
+            if dk > dk_worst:
+                dk_worst, dk_x = dk, (float(xk[np.argmin(k)]), float(xk[np.argmax(k)]))
+    checks = []
+    if np.isfinite(loss_worst):
+        r = loss_worst / loss_limit
+        checks.append(Check(
+            "film: loss of least film vs flat guide", loss_worst, loss_limit, "um", r, _film_status(r, mf),
+            ((loss_x, loss_x),),
+            "porous-pad film model (Reynolds equation); limit gap fraction x gap, common practice",
+        ))
+    if np.isfinite(dk_worst):
+        r = dk_worst / stiffness_change_limit
+        checks.append(Check(
+            "film: stiffness change over the travel", 100.0 * dk_worst, 100.0 * stiffness_change_limit, "%", r,
+            _film_status(r, mf), (dk_x,),
+            "porous-pad film model; limit 10 % of the flat-guide stiffness, a convention of this tool",
+        ))
+    all_checks = tuple(result.checks) + tuple(checks)
+    verdict = max((c.status for c in all_checks), key=order.get, default=result.verdict)
+    verdict = max((verdict, result.verdict), key=order.get)
+    return dataclasses.replace(result, checks=all_checks, verdict=verdict)

@@ -168,6 +168,8 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
     for c in result.checks:
         if c.unit == "um":
             val, lim = h(c.value), h(c.limit)
+        elif c.unit == "%":
+            val, lim = f"{c.value:.1f} %", f"{c.limit:.1f} %"
         else:
             val, lim = f"{c.value:.2f} arcsec", f"{c.limit:.2f} arcsec"
         st = {"fit": "green", "marginal": "yellow", "unfit": "red"}[c.status]
@@ -213,6 +215,17 @@ def bearing_cmd(
     interp: Interp = typer.Option(Interp.linear, "--interp", help="Interpolation between surveyed stations."),
     units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object (µm, mm, arcsec) instead of the summary."),
+    supply_kpa: float = typer.Option(None, "--supply-kpa", help="Porous-pad film: supply pressure, kPa gauge."),
+    permeability_m2: float = typer.Option(None, "--permeability-m2", help="Porous-pad film: layer permeability, m²."),
+    layer_mm: float = typer.Option(None, "--layer-mm", help="Porous-pad film: porous layer thickness, mm."),
+    ambient_kpa: float = typer.Option(101.325, "--ambient-kpa", help="Porous-pad film: ambient pressure, kPa absolute."),
+    load_n: float = typer.Option(
+        None, "--load-n", help="Porous-pad film: load per pad, N [default: what the pad carries at --gap-um on a flat guide]."
+    ),
+    film_pivot: bool = typer.Option(
+        True, "--film-pivot/--film-fixed", help="Porous-pad film: pads on ball pivots (tilt free) or held level."
+    ),
+    film_mesh: int = typer.Option(64, "--film-mesh", help="Porous-pad film: mesh cells along each side of a pad."),
 ) -> None:
     """Judge the surface for an air-bearing pad or carriage: local flatness against a fraction of the gap,
     least clearance, and the carriage's straightness, pitch and roll over the travel."""
@@ -250,8 +263,98 @@ def bearing_cmd(
             method=interp.value,
             progress=advance,
         )
+    film = None
+    if any(v is not None for v in (supply_kpa, permeability_m2, layer_mm)):
+        film, result = _film(surface, carriage, result, supply_kpa, permeability_m2, layer_mm, ambient_kpa,
+                             load_n, film_pivot, film_mesh, interp.value)
     label = surface.label or input.name
     if json_out:
-        emit_json(result_json(result, input_path=input, label=label, units=units.value))
+        data = result_json(result, input_path=input, label=label, units=units.value)
+        if film is not None:
+            _add_film_json(data, film)
+        emit_json(data)
     else:
         render_summary(result, label=label, units=units.value)
+        if film is not None:
+            _render_film(film, units=units.value)
+
+
+def _film(surface, carriage, result, supply_kpa, permeability_m2, layer_mm, ambient_kpa, load_n, pivot, mesh, method):
+    """Porous-pad film at every station and the bearing result with the film checks added."""
+    from ..film import PorousFeed, bearing_film, check_carriage_load, with_film_checks
+
+    missing = [n for n, v in (("--supply-kpa", supply_kpa), ("--permeability-m2", permeability_m2),
+                              ("--layer-mm", layer_mm)) if v is None]
+    if missing:
+        raise InputValueError(
+            f"the film model needs {', '.join(missing)} as well", where="film options",
+            fix="give --supply-kpa, --permeability-m2 and --layer-mm together",
+        )
+    try:
+        feed = PorousFeed(permeability_m2, layer_mm, supply_kpa, ambient_kpa)
+    except InputValueError as exc:
+        raise InputValueError(exc.message, where="film options", fix=exc.fix) from None
+    check_carriage_load(carriage, feed, load_n)
+    total = len(result.stations) * len(carriage.active_pads)
+    with progress_bar("film at each position", total, enabled=total > 20) as advance:
+        film = bearing_film(surface, carriage, result.stations, feed, load_n=load_n, pivot=pivot, n=mesh,
+                            method=method, progress=advance)
+    return film, with_film_checks(result, film)
+
+
+def _add_film_json(data: dict, film) -> None:
+    """Add the pinned ``film`` object and a ``film`` entry to each station object."""
+    from .common import jsonable
+
+    c = film.curve
+    data["film"] = {
+        "model": "porous pad: Darcy flow across a thin layer feeding the isothermal Reynolds equation in p^2",
+        "supply_kpa_gauge": film.feed.supply_gauge_kpa,
+        "ambient_kpa": film.feed.ambient_kpa,
+        "permeability_m2": film.feed.permeability_m2,
+        "layer_mm": film.feed.layer_mm,
+        "pivot": film.pivot,
+        "mesh_cells": film.mesh_cells,
+        "pads": [
+            {"pad": p.name, "load_n": p.load_n, "design_fly_height_um": p.design_fly_height_um,
+             "design_stiffness_n_per_um": p.design_stiffness_n_per_um}
+            for p in film.pads
+        ],
+        "curve_pad": film.curve_pad,
+        "curve": [
+            {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q}
+            for g, w, k, q in zip(c.gap_um, c.load_n, c.stiffness_n_per_um, c.flow_l_per_min)
+        ],
+        "peak_stiffness_gap_um": c.peak_stiffness_gap_um,
+        "peak_stiffness_n_per_um": c.peak_stiffness_n_per_um,
+        "peak_inside_curve": c.peak_inside,
+        "assumptions": list(film.assumptions),
+    }
+    stations = jsonable(data["stations"])
+    for i, st in enumerate(stations):
+        st["film"] = film.station(i)
+    data["stations"] = stations
+
+
+def _render_film(film, *, units: str) -> None:
+    con = stdout_console()
+    hu = height_unit_label(units)
+    c = film.curve
+    con.print(
+        f"[bold]Porous-pad film[/bold] ({'ball pivot' if film.pivot else 'held level'}, "
+        f"{film.feed.supply_gauge_kpa:g} kPa gauge, k {film.feed.permeability_m2:g} m², layer {film.feed.layer_mm:g} mm)"
+    )
+    for p in film.pads:
+        t = p.travel
+        ok = t.converged
+        lo = f"{um_to(float(t.min_film_um[ok].min()), units):.3f} {hu}" if ok.any() else "none (pad lands)"
+        con.print(
+            f"  {p.name}: load {p.load_n:.1f} N, flat-guide fly height {um_to(p.design_fly_height_um, units):.3f} {hu}, "
+            f"stiffness {p.design_stiffness_n_per_um:.1f} N/µm; least film over the travel {lo}"
+            + (f"; stiffness {t.stiffness_n_per_um[ok].min():.1f}–{t.stiffness_n_per_um[ok].max():.1f} N/µm" if ok.any() else "")
+        )
+    con.print(
+        f"  flat guide ({film.curve_pad}): peak stiffness {c.peak_stiffness_n_per_um:.1f} N/µm at a gap of "
+        f"{um_to(c.peak_stiffness_gap_um, units):.3f} {hu}" + ("" if c.peak_inside else " (at the end of the range)")
+    )
+    con.print("[dim]Film model assumptions: " + "; ".join(film.assumptions) + "[/dim]")

@@ -1,0 +1,117 @@
+"""Tests of the porous-pad film options of ``flatcheck bearing``.
+
+Reference values: the closed-form circular porous pad over a uniform gap (REFERENCE.md section 10 item 15,
+the I0 solution re-evaluated here with scipy.special.i0 and scipy.integrate.quad).
+"""
+
+import json
+import math
+
+import numpy as np
+import pytest
+from scipy.integrate import quad
+from scipy.special import i0
+
+PA, PS = 101325.0, 600000.0
+FILM = ["--supply-kpa", f"{(PS - PA) / 1e3:.6f}", "--permeability-m2", "1e-15", "--layer-mm", "5"]
+
+
+def write_surface(path, func, length=200.0, width=100.0, pitch=5.0):
+    x = np.arange(0, length + 1e-9, pitch)
+    y = np.arange(0, width + 1e-9, pitch)
+    X, Y = np.meshgrid(x, y)
+    Z = func(X, Y)
+    lines = ["x_mm,y_mm,height_um"] + [f"{a:.6f},{b:.6f},{c:.9f}" for a, b, c in zip(X.ravel(), Y.ravel(), Z.ravel())]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def _load_circle(h_um, R=0.025):
+    """Closed-form load of the circular porous pad (k 1e-15 m², H 5 mm) over a uniform gap."""
+    lam = math.sqrt(12 * 1e-15 / (5e-3 * (h_um * 1e-6) ** 3))
+    p = lambda r: math.sqrt(PS**2 - (PS**2 - PA**2) * i0(lam * r) / i0(lam * R))  # noqa: E731
+    return quad(lambda r: (p(r) - PA) * 2 * math.pi * r, 0, R)[0]
+
+
+@pytest.fixture
+def flat_csv(tmp_path):
+    return write_surface(tmp_path / "flat.csv", lambda X, Y: 0.0 * X + 0.001 * X)  # a tilted plane is flat
+
+
+@pytest.fixture
+def wavy_csv(tmp_path):
+    # invented guide: 1.2 µm waves of 60 mm along x
+    return write_surface(tmp_path / "wavy.csv", lambda X, Y: 1.2 * np.sin(2 * np.pi * X / 60.0))
+
+
+def test_film_json_contract_on_flat_guide(cli, flat_csv):
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *FILM, "--film-mesh", "48", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    film = doc["film"]
+    curve = film["curve"]
+    assert len(curve) >= 10
+    for row in curve:
+        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min"}
+    gaps = [r["gap_um"] for r in curve]
+    assert gaps[0] < 0.5 * 5 and gaps[-1] > 2 * 5  # from well below to well above G
+    assert all(np.diff([r["load_n"] for r in curve]) < 0)
+    at5 = min(curve, key=lambda r: abs(r["gap_um"] - 5.0))
+    assert at5["gap_um"] == pytest.approx(5.0, rel=1e-9)
+    # Source: REFERENCE.md §10 item 15 (628.0 N), closed form re-evaluated with scipy
+    assert _load_circle(5.0) == pytest.approx(628.0, abs=0.05)
+    assert at5["load_n"] == pytest.approx(_load_circle(5.0), rel=0.005)
+    assert gaps[0] < film["peak_stiffness_gap_um"] < gaps[-1]
+    # default load = what the pad carries at --gap-um on a flat guide, so on a flat (tilted) guide every
+    # station flies at G with the flat-guide stiffness (closed-form slope ~89 N/µm, §10 item 15)
+    k_exact = -(_load_circle(5.001) - _load_circle(4.999)) / 0.002
+    for st in doc["stations"]:
+        f = st["film"]
+        assert set(f) >= {"fly_height_um", "min_film_um", "load_n", "stiffness_n_per_um", "flow_l_per_min"}
+        assert f["fly_height_um"] == pytest.approx(5.0, abs=1e-3)
+        assert f["min_film_um"] == pytest.approx(5.0, abs=1e-3)
+        assert f["load_n"] == pytest.approx(_load_circle(5.0), rel=0.005)
+        assert f["stiffness_n_per_um"] == pytest.approx(k_exact, rel=0.01)
+        assert f["flow_l_per_min"] > 0
+    names = [c["name"] for c in doc["checks"]]
+    assert "film: loss of least film vs flat guide" in names
+    assert "film: stiffness change over the travel" in names
+    for c in doc["checks"]:
+        if c["name"].startswith("film"):
+            assert c["status"] == "fit"
+    assert any("isothermal" in a for a in film["assumptions"])
+
+
+def test_film_on_wavy_guide_changes_verdict_and_stiffness(cli, wavy_csv):
+    code, out, err = cli("bearing", wavy_csv, "--pad", "40x20", "--gap-um", "6", *FILM, "--film-mesh", "24", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    fl = [s["film"]["min_film_um"] for s in doc["stations"]]
+    ks = [s["film"]["stiffness_n_per_um"] for s in doc["stations"]]
+    assert min(fl) < 6.0 - 0.1  # waves under a 40 mm pad close part of the film
+    assert max(ks) > min(ks)
+    film_checks = {c["name"]: c for c in doc["checks"] if c["name"].startswith("film")}
+    loss = film_checks["film: loss of least film vs flat guide"]
+    design = doc["film"]["pads"][0]["design_fly_height_um"]
+    assert loss["value"] == pytest.approx(design - min(fl), abs=1e-6)
+    assert loss["limit"] == pytest.approx(0.25 * 6.0)
+    order = {"fit": 0, "marginal": 1, "unfit": 2}
+    assert order[doc["verdict"]] == max(order[c["status"]] for c in doc["checks"])
+
+
+def test_film_summary_and_units(cli, flat_csv):
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *FILM, "--film-mesh", "24",
+                         "--units", "in")
+    assert code == 0, err
+    assert "Porous-pad film" in out
+    assert "µin" in out
+    assert "assumptions" in out
+
+
+def test_film_options_errors_are_one_line(cli, flat_csv):
+    for args in (["--supply-kpa", "500"], [*FILM[:4], "--layer-mm", "-1"], [*FILM, "--load-n", "1e6"]):
+        code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *args, "--film-mesh", "16", "--json")
+        assert code == 2, (args, err)
+        assert out == ""
+        assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
+        assert "Traceback" not in err
