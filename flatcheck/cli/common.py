@@ -22,6 +22,8 @@ __all__ = [
     "jsonable",
     "progress_bar",
     "load_surface",
+    "load_input",
+    "window_option",
     "SAFETY_LINES",
 ]
 
@@ -89,7 +91,7 @@ def progress_bar(description: str, total: int, *, enabled: bool = True):
         return
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
-    with Progress(
+    prog = Progress(
         TextColumn("{task.description}"),
         BarColumn(),
         TextColumn("{task.percentage:>3.0f}%"),
@@ -97,9 +99,24 @@ def progress_bar(description: str, total: int, *, enabled: bool = True):
         TimeRemainingColumn(),
         console=stderr_console(),
         transient=True,
-    ) as prog:
-        task = prog.add_task(description, total=total)
-        yield lambda n=1: prog.advance(task, n)
+    )
+    task = prog.add_task(description, total=total)
+    started = False
+
+    def advance(n=1):
+        # The bar appears with the first progress, so an error raised before any work
+        # leaves nothing behind on the terminal but its one-line message.
+        nonlocal started
+        if not started:
+            prog.start()
+            started = True
+        prog.advance(task, n)
+
+    try:
+        yield advance
+    finally:
+        if started:
+            prog.stop()
 
 
 def load_surface(path: Path, *, method: str = "least-squares"):
@@ -124,6 +141,38 @@ def load_surface(path: Path, *, method: str = "least-squares"):
     survey = read_survey(path)
     red = reduce_survey(survey, method=method)
     return red.heightmap, red
+
+
+def load_input(path: Path, *, method: str = "least-squares"):
+    """Load an input file as a :class:`flatcheck.evaluation.LoadedInput`.
+
+    A ``.csv`` file is read as a height map; anything else as a TOML survey,
+    reduced with ``method``.
+    """
+    from ..evaluation import LoadedInput
+    from ..io.heightmap_csv import read_heightmap_csv
+
+    path = Path(path)
+    if path.suffix.lower() == ".csv":
+        return LoadedInput(str(path), read_heightmap_csv(path))
+    from ..io.survey_toml import read_survey
+    from ..reduction import reduce_survey
+
+    survey = read_survey(path)
+    red = reduce_survey(survey, method=method)
+    return LoadedInput(str(path), red.heightmap, survey, red)
+
+
+def window_option():
+    """The ``--window`` option of local flatness."""
+    import typer
+
+    return typer.Option(
+        "auto",
+        "--window",
+        help="Local-flatness window in mm: LxW (e.g. 250x250) or dD for a circle (e.g. d80); "
+        "'auto' = 250x250 where it fits; 'none' to skip.",
+    )
 
 
 #: Cautions shown by commands whose work involves handling, lapping or air.

@@ -22,6 +22,7 @@ from ._app import app
 
 # Each command module registers its commands on `app` when imported (one line per module).
 from . import (  # noqa: F401,E402
+    reduce_cmd,
     grade_cmd,
     info_cmd,
     plan_cmd,

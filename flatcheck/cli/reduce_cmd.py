@@ -1,0 +1,179 @@
+"""``flatcheck reduce``: readings to a height map, with flatness, closures and residuals."""
+
+from __future__ import annotations
+
+from enum import Enum
+from pathlib import Path
+
+import numpy as np
+import typer
+from rich.table import Table
+
+from ..evaluation import evaluate_surface
+from ..io.heightmap_csv import write_heightmap_csv
+from ..units import height_unit_label, um_to
+from ._app import app
+from .common import Units, emit_json, load_input, progress_bar, stdout_console, window_option
+
+
+class Method(str, Enum):
+    least_squares = "least-squares"
+    moody = "moody"
+
+
+@app.command("reduce")
+def reduce_cmd(
+    input: Path = typer.Argument(..., help="Survey file (.toml) or height-map CSV (x_mm,y_mm,height_um)."),
+    method: Method = typer.Option(
+        Method.least_squares, "--method", help="least-squares network adjustment (any layout) or classic moody (Union Jack)."
+    ),
+    json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
+    map_out: Path = typer.Option(None, "--map-out", help="Write the nodes as a height-map CSV (x_mm,y_mm,height_um)."),
+    units: Units = typer.Option(Units.um, "--units", help="Show heights in um, or in µin with 'in'."),
+    window: str = window_option(),
+    uncertainty: bool = typer.Option(
+        False, "--uncertainty", help="Monte Carlo uncertainty of the flatness (JCGM 101), with a progress bar."
+    ),
+    trials: int = typer.Option(100_000, "--trials", min=100, help="Monte Carlo trials."),
+    seed: int = typer.Option(None, "--seed", help="Seed of the Monte Carlo run, for reproducible results."),
+    u_height_um: float = typer.Option(
+        None, "--u-height-um", min=0.0, help="Standard uncertainty of each height of a CSV map, in µm (for --uncertainty)."
+    ),
+) -> None:
+    """Reduce a survey (or read a height map) and state its flatness."""
+    loaded = load_input(input, method=method.value)
+    mc = None
+    if uncertainty:
+        with progress_bar("Monte Carlo", trials, enabled=True) as advance:
+            mc = dict(trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
+            ev = evaluate_surface(loaded, window=window, monte_carlo=mc)
+    else:
+        ev = evaluate_surface(loaded, window=window)
+    if map_out is not None:
+        hm = ev.heightmap
+        write_heightmap_csv(
+            map_out,
+            hm,
+            comment=f"flatcheck reduce {input.name} ({ev.method}); heights in µm about the least-squares plane",
+        )
+    doc = ev.to_dict()
+    if units.value == "in":
+        doc["units"] = "in"
+        doc["flatness_uin"] = {
+            k: (None if v is None else um_to(v, "in"))
+            for k, v in doc["flatness"].items()
+            if k.endswith("_um") and (v is None or isinstance(v, float))
+        }
+    if json_out:
+        emit_json(doc)
+        return
+    _render(ev, doc, units.value, map_out)
+
+
+def _fmt(v, units):
+    if v is None or (isinstance(v, float) and not np.isfinite(v)):
+        return "-"
+    return f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
+
+
+def _render(ev, doc, units, map_out) -> None:
+    con = stdout_console()
+    hu = height_unit_label(units)
+    f = doc["flatness"]
+    con.print(f"[bold]{doc['surface']['description'] or 'Surface'}[/bold]  {doc['surface'].get('ident') or ''}")
+    con.print(f"  input: {doc['input']} ({doc['kind']})")
+    if doc.get("instrument"):
+        ins = doc["instrument"]
+        con.print(f"  instrument: {ins['kind']}, readings in {ins['unit']}; pattern {doc.get('pattern')}")
+    con.print(f"  method: {ev.method_text}")
+    con.print(
+        f"  {len(doc['nodes'])} stations"
+        + (f", {doc['residuals']['observations']} readings" if doc.get("residuals") else "")
+    )
+    con.print()
+    t = Table(title=f"Flatness ({hu})", title_justify="left")
+    t.add_column("reference")
+    t.add_column("total (FLTt)", justify="right")
+    t.add_column("peak (FLTp)", justify="right")
+    t.add_column("valley (FLTv)", justify="right")
+    t.add_column("RMS (FLTq)", justify="right")
+    for row in doc["flatness"]["references"]:
+        t.add_row(row["reference"], _fmt(row["fltt_um"], units), _fmt(row["fltp_um"], units), _fmt(row["fltv_um"], units), _fmt(row["fltq_um"], units))
+    con.print(t)
+    line = f"  flatness (minimum zone): [bold]{_fmt(f['minimum_zone_um'], units)} {hu}[/bold]"
+    if f.get("expanded_uncertainty_um") is not None:
+        lo, hi = f["coverage_interval_um"]
+        line += (
+            f"  U = {_fmt(f['expanded_uncertainty_um'], units)} {hu} (k = 2 equivalent); 95 % interval "
+            f"{_fmt(lo, units)} to {_fmt(hi, units)} {hu}"
+        )
+    con.print(line)
+    if ev.uncertainty_note:
+        con.print(f"  [dim]{ev.uncertainty_note}[/dim]")
+    lf = doc.get("local_flatness")
+    if lf:
+        con.print(
+            f"  local flatness over {lf['window']}: {_fmt(lf['max_um'], units)} {hu} at x = {lf['x_mm']:.0f} mm, "
+            f"y = {lf['y_mm']:.0f} mm"
+        )
+    res = doc.get("residuals")
+    if res:
+        con.print()
+        s0 = res["sigma0_um"]
+        con.print(
+            f"  redundancy {res['redundancy']}; one reading's standard deviation from the residuals: "
+            + ("-" if s0 is None else f"{s0:.3f} µm ({res['sigma0_reading']:.3g} {doc['instrument']['unit']})")
+        )
+        lines = doc.get("lines") or []
+        if lines:
+            t = Table(title=f"Lines ({hu})", title_justify="left")
+            t.add_column("line")
+            t.add_column("closure", justify="right")
+            t.add_column("at", no_wrap=True)
+            t.add_column("straightness (MZ)", justify="right")
+            t.add_column("runs spread", justify="right")
+            for ln in lines:
+                t.add_row(ln["name"], _fmt(ln["closure_um"], units), ln.get("closure_station") or "", _fmt(ln.get("straightness_um"), units), _fmt(ln.get("run_spread_um"), units))
+            con.print(t)
+            meaning = {ln["meaning"] for ln in lines if ln.get("meaning")}
+            for m in meaning:
+                con.print(f"  [dim]closure: {m}[/dim]")
+        for o in res["outliers"]:
+            con.print(f"  [bold red]suspect reading[/bold red]: {o['text']}")
+    for w in doc.get("warnings", []):
+        con.print(f"  [yellow]note:[/yellow] {w}")
+    _render_map(con, ev, units)
+    if map_out is not None:
+        con.print(f"  height map written to {map_out}")
+
+
+def _render_map(con, ev, units) -> None:
+    hm = ev.heightmap
+    hu = height_unit_label(units)
+    if hm.grid is not None:
+        xs, ys, index = hm.grid
+        if xs.size > 16 or ys.size > 30:
+            return
+        t = Table(title=f"Height map ({hu}, about the least-squares plane; north at top)", title_justify="left")
+        t.add_column("y \\ x mm", justify="right")
+        for x in xs:
+            t.add_column(f"{x:.0f}", justify="right")
+        Z = hm.grid_heights_um()
+        for j in range(ys.size - 1, -1, -1):
+            t.add_row(f"{ys[j]:.0f}", *[_fmt(z, units) for z in Z[j]])
+        con.print(t)
+    elif hm.n <= 120 and hm.names is not None:
+        t = Table(title=f"Station heights ({hu}, about the least-squares plane)", title_justify="left")
+        for _ in range(2):
+            t.add_column("station", no_wrap=True)
+            t.add_column("x mm", justify="right")
+            t.add_column("y mm", justify="right")
+            t.add_column(hu, justify="right")
+        cells = [
+            (n, f"{x:.0f}", f"{y:.0f}", _fmt(z, units)) for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
+        ]
+        half = (len(cells) + 1) // 2
+        for i in range(half):
+            row = list(cells[i]) + (list(cells[i + half]) if i + half < len(cells) else [""] * 4)
+            t.add_row(*row)
+        con.print(t)

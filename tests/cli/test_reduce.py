@@ -1,0 +1,169 @@
+"""``flatcheck reduce``: pinned JSON contract, outputs and bad input."""
+
+import json
+import re
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from flatcheck.flatness import minimum_zone
+
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_readings"
+PLATE = SAMPLES / "plate-KY-P3-2024-03-11.toml"
+PAD = SAMPLES / "pad-KY-B4-heights.csv"
+
+
+def _lp_zone(x, y, z):
+    """Minimum zone by one direct linear program (scipy HiGHS), as an outside reference."""
+    from scipy.optimize import linprog
+
+    n = x.size
+    A = np.column_stack([np.ones(n), x - x.mean(), y - y.mean()])
+    res = linprog(
+        [0, 0, 0, 1],
+        A_ub=np.vstack([np.column_stack([A, np.zeros(n)]), np.column_stack([-A, -np.ones(n)])]),
+        b_ub=np.concatenate([z, -z]),
+        bounds=[(None, None)] * 4,
+        method="highs",
+    )
+    return res.x[3]
+
+
+@pytest.mark.parametrize("path", [PLATE, PAD, SAMPLES / "guideway-KY-G1.toml", SAMPLES / "plate-KY-P7-grid.toml"])
+def test_pinned_json(cli, path):
+    code, out, err = cli("reduce", path, "--json")
+    assert code == 0, err
+    doc = json.loads(out)  # exactly one JSON object on stdout
+    assert isinstance(doc["nodes"], list) and doc["nodes"]
+    for node in doc["nodes"]:
+        assert set(node) >= {"x_mm", "y_mm", "height_um"}
+    f = doc["flatness"]
+    x = np.array([n["x_mm"] for n in doc["nodes"]])
+    y = np.array([n["y_mm"] for n in doc["nodes"]])
+    z = np.array([n["height_um"] for n in doc["nodes"]])
+    # Reference: scipy HiGHS LP over the printed nodes gives the same minimum zone.
+    assert f["minimum_zone_um"] == pytest.approx(_lp_zone(x, y, z), abs=1e-6)
+    # Reference: numpy least squares; peak-to-valley of the residuals.
+    A = np.column_stack([np.ones_like(x), x, y])
+    r = z - A @ np.linalg.lstsq(A, z, rcond=None)[0]
+    assert f["least_squares_um"] == pytest.approx(np.ptp(r), abs=1e-6)
+    assert f["peak_um"] + f["valley_um"] == pytest.approx(f["least_squares_um"], abs=1e-9)
+    assert f["rms_um"] == pytest.approx(np.sqrt(np.mean(r**2)), abs=1e-6)
+    assert f["minimum_zone_um"] <= f["least_squares_um"] + 1e-12
+
+
+def test_survey_heights_are_about_the_ls_plane(cli):
+    code, out, _ = cli("reduce", PLATE, "--json")
+    doc = json.loads(out)
+    z = np.array([n["height_um"] for n in doc["nodes"]])
+    x = np.array([n["x_mm"] for n in doc["nodes"]])
+    y = np.array([n["y_mm"] for n in doc["nodes"]])
+    # the least-squares plane of the printed heights is zero (numpy reference)
+    coef = np.linalg.lstsq(np.column_stack([np.ones_like(x), x, y]), z, rcond=None)[0]
+    assert np.allclose(coef, 0, atol=1e-9)
+    assert {ln["name"] for ln in doc["lines"]} == {"SW-NE", "SE-NW", "SW-SE", "NW-NE", "SW-NW", "SE-NE", "W-E", "S-N"}
+    for ln in doc["lines"]:
+        assert ln["straightness_um"] <= doc["flatness"]["minimum_zone_um"] + 1e-9
+
+
+def test_moody_method_and_map_out(cli, tmp_path):
+    out_csv = tmp_path / "map.csv"
+    code, out, err = cli("reduce", PLATE, "--method", "moody", "--json", "--map-out", out_csv)
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["method"] == "moody"
+    from flatcheck.io.heightmap_csv import read_heightmap_csv
+
+    hm = read_heightmap_csv(out_csv)
+    assert hm.n == len(doc["nodes"])
+    assert minimum_zone(hm.x_mm, hm.y_mm, hm.height_um).flatness_um == pytest.approx(
+        doc["flatness"]["minimum_zone_um"], abs=1e-3
+    )
+
+
+def test_uncertainty_is_reproducible_with_seed(cli):
+    args = ("reduce", PLATE, "--json", "--uncertainty", "--trials", "2000", "--seed", "7")
+    code, out1, _ = cli(*args)
+    code2, out2, _ = cli(*args)
+    assert code == code2 == 0
+    f1, f2 = json.loads(out1)["flatness"], json.loads(out2)["flatness"]
+    assert f1["expanded_uncertainty_um"] == f2["expanded_uncertainty_um"] > 0
+    lo, hi = f1["coverage_interval_um"]
+    assert lo < f1["minimum_zone_um"] < hi
+
+
+def test_csv_uncertainty_needs_a_stated_value(cli):
+    code, out, err = cli("reduce", PAD, "--uncertainty", "--trials", "500")
+    assert code == 2 and "--u-height-um" in err and err.count("\n") == 1
+    code, out, err = cli("reduce", PAD, "--uncertainty", "--trials", "500", "--u-height-um", "0.02", "--json")
+    assert code == 0 and json.loads(out)["flatness"]["expanded_uncertainty_um"] > 0
+
+
+def test_summary_in_inches(cli):
+    code, out, err = cli("reduce", PLATE, "--units", "in")
+    assert code == 0 and "µin" in out
+    code, out, err = cli("reduce", PLATE, "--units", "in", "--json")
+    doc = json.loads(out)
+    # 1 µin = 0.0254 µm exactly (1959 inch)
+    assert doc["flatness_uin"]["minimum_zone_um"] == pytest.approx(doc["flatness"]["minimum_zone_um"] / 0.0254)
+
+
+def _edit(tmp_path, old, new, count=1, name="bad.toml"):
+    text = PLATE.read_text()
+    assert old in text, old
+    p = tmp_path / name
+    p.write_text(text.replace(old, new, count))
+    return p
+
+
+BAD_SURVEYS = [
+    # (old text, new text, what the message must say)
+    ("readings = [16.98, 16.38, 17.24, 17.17, 15.57, 15.26, 16.01, 16.03]",
+     "readings = [16.98, 16.38, 17.24, 17.17, 15.57, 15.26, 16.01]", r"SW-NE.*7.*8"),
+    ("readings = [16.98, 16.38", "readings = [\"a\", 16.38", r"SW-NE"),
+    ('unit = "arcsec"', 'unit = "furlongs"', r"unit.*furlongs"),
+    ("foot_spacing_mm = 100.0", "foot_spacing_mm = 0.0", r"foot_spacing"),
+    ("foot_spacing_mm = 100.0", "foot_spacing_mm = -100.0", r"foot_spacing"),
+    ('name = "SE-NW"', 'name = "SW-NE"', r"SW-NE"),
+    ("readings = [16.98, 16.38", "readings = [nan, 16.38", r"SW-NE|nan|finite"),
+]
+
+
+@pytest.mark.parametrize("old, new, pattern", BAD_SURVEYS)
+def test_bad_survey_files(cli, tmp_path, old, new, pattern):
+    p = _edit(tmp_path, old, new)
+    code, out, err = cli("reduce", p, "--json")
+    assert code == 2, err
+    assert out == ""
+    assert err.startswith("flatcheck: error: ") and err.count("\n") == 1 and "Traceback" not in err
+    assert str(p) in err
+    assert re.search(pattern, err), err
+
+
+def test_missing_line(cli, tmp_path):
+    text = PLATE.read_text()
+    start = text.index('[[line]]\nname = "S-N"')
+    p = tmp_path / "missing.toml"
+    p.write_text(text[:start])
+    code, out, err = cli("reduce", p)
+    assert code == 2 and "S-N" in err and err.count("\n") == 1
+
+
+@pytest.mark.parametrize(
+    "content, pattern",
+    [(b"", "empty"), (b"\x00\x01\x02binary", "binary"), (b"this is = = not toml [", "TOML|toml")],
+)
+def test_unreadable_files(cli, tmp_path, content, pattern):
+    p = tmp_path / "s.toml"
+    p.write_bytes(content)
+    code, out, err = cli("reduce", p)
+    assert code == 2 and re.search(pattern, err) and err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_failed_run_keeps_previous_map(cli, tmp_path):
+    out_csv = tmp_path / "map.csv"
+    out_csv.write_text("previous\n")
+    p = _edit(tmp_path, 'unit = "arcsec"', 'unit = "furlongs"')
+    code, _, _ = cli("reduce", p, "--map-out", out_csv)
+    assert code == 2 and out_csv.read_text() == "previous\n"
