@@ -28,7 +28,8 @@ from ..tolerance import (
 )
 from ..units import MM_PER_INCH, UM_PER_UIN, height_unit_label, um_to
 from ._app import app
-from .common import Units, emit_json, load_surface, stdout_console
+from ..evaluation import survey_uncertainty
+from .common import Units, emit_json, load_input, progress_bar, stdout_console
 
 
 class Rule(str, Enum):
@@ -312,11 +313,30 @@ def grade_cmd(
         None, "--repeat-foot-radius-mm", help="Simulate a repeat-reading gage with feet at this radius (mm)."
     ),
     repeat_tolerance_um: float = typer.Option(None, "--repeat-tolerance-um", help="Repeat-reading tolerance in µm."),
+    monte_carlo: bool = typer.Option(
+        False, "--uncertainty", help="Evaluate U by Monte Carlo (JCGM 101) from the survey, as 'flatcheck reduce --uncertainty'."
+    ),
+    trials: int = typer.Option(100_000, "--trials", min=100, help="Monte Carlo trials (with --uncertainty)."),
+    seed: int = typer.Option(None, "--seed", help="Monte Carlo seed, for reproducible results."),
+    u_height_um: float = typer.Option(
+        None, "--u-height-um", min=0.0, help="Height maps: standard uncertainty of each height in µm (with --uncertainty)."
+    ),
 ) -> None:
     """Grade the surface's flatness against a standard, with an ISO 14253-1 decision rule."""
     tol = _one_of(tolerance_um, tolerance_uin, "tolerance")
     unc = _one_of(uncertainty_um, uncertainty_uin, "uncertainty")
-    hm, _reduction = load_surface(input)
+    if monte_carlo and unc is not None:
+        raise InputValueError(
+            "both --uncertainty and a stated uncertainty given", where="--uncertainty", fix="give only one"
+        )
+    loaded = load_input(input)
+    hm = loaded.heightmap
+    mc_note = None
+    if monte_carlo:
+        with progress_bar("Monte Carlo", trials) as advance:
+            mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
+        unc = mc.minimum_zone.expanded_um
+        mc_note = mc.note
     report = build_grade_report(
         hm,
         standard=standard,
@@ -333,6 +353,9 @@ def grade_cmd(
         repeat_tolerance_um=repeat_tolerance_um,
     )
     report["input"] = str(input)
+    if mc_note is not None:
+        report["uncertainty_note"] = mc_note
+        report.setdefault("notes", []).append(mc_note)
     units_value = units.value
     if units_value == "in":
         _add_uin(report)

@@ -179,3 +179,20 @@ def test_survey_input_uses_surface_size(cli):
     # DIN 876 grade 0 uses the longer side: 4 (1 + L/1000) (REFERENCE.md 4.1)
     assert obj["grades"][0]["tolerance_um"] == pytest.approx(4 * (1 + obj["length_mm"] / 1000))
     assert obj["flatness_um"] > 0
+
+
+def test_monte_carlo_uncertainty_matches_reduce(cli):
+    # The grade's U is the one `flatcheck reduce --uncertainty` states for the same input and seed.
+    from pathlib import Path
+
+    plate = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
+    mc = ("--uncertainty", "--trials", "3000", "--seed", "11")
+    code, out, err = cli("grade", plate, "--standard", "din-876", "--json", *mc)
+    assert code == 0, err
+    g = json.loads(out)
+    code, out, err = cli("reduce", plate, "--json", *mc)
+    r = json.loads(out)["flatness"]
+    assert g["expanded_uncertainty_um"] == pytest.approx(r["expanded_uncertainty_um"], rel=1e-12)
+    assert g["flatness_um"] == pytest.approx(r["minimum_zone_um"], abs=1e-9)
+    code, out, err = cli("grade", plate, "--standard", "din-876", "--uncertainty-um", "0.2", "--uncertainty")
+    assert code == 2 and err.count("\n") == 1
