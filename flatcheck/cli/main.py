@@ -20,17 +20,18 @@ except ImportError:  # pragma: no cover - older typer uses click itself
 from ..errors import ExitStatus, FlatcheckError
 from ._app import app
 
-# Each command module registers its commands on `app` when imported (one line per module).
+# Each command module registers its commands on `app` when imported (one line per module);
+# the order here is the order of `flatcheck --help`, the order of the work at the bench.
 from . import (  # noqa: F401,E402
+    plan_cmd,
     reduce_cmd,
     grade_cmd,
-    info_cmd,
-    plan_cmd,
     bearing_cmd,
-    report_cmd,
-    demo_cmd,
     lap_cmd,
     compare_cmd,
+    report_cmd,
+    demo_cmd,
+    info_cmd,
 )
 
 __all__ = ["app", "run", "main"]
