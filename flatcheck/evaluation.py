@@ -280,17 +280,14 @@ class SurfaceEvaluation:
         """How the uncertainty was obtained, or an empty string."""
         return "" if self.uncertainty is None else self.uncertainty.note
 
-    def to_dict(self) -> dict:
-        """The JSON document of ``flatcheck reduce --json`` (heights in µm, positions in mm)."""
+    def to_dict(self, *, nodes: bool = True) -> dict:
+        """The JSON document of ``flatcheck reduce --json`` (heights in µm, positions in mm).
+
+        ``nodes=False`` leaves the (possibly very long) list of nodes out.
+        """
         hm = self.heightmap
         fr = self.flatness
-        names = hm.names or (None,) * hm.n
-        nodes = []
-        for n, x, y, z in zip(names, hm.x_mm, hm.y_mm, hm.height_um):
-            node = {"x_mm": float(x), "y_mm": float(y), "height_um": float(z)}
-            if n is not None:
-                node["name"] = n
-            nodes.append(node)
+        node_list = self._nodes() if nodes else []
         refs = [fr.mzpl, fr.lspl] + [p for p in (fr.three_corner, fr.diagonal) if p is not None]
         flat = {
             "minimum_zone_um": fr.mzpl.fltt_um,
@@ -330,7 +327,7 @@ class SurfaceEvaluation:
             "method": self.method,
             "units": "um",
             "surface": surface,
-            "nodes": nodes,
+            "nodes": node_list,
             "flatness": flat,
             "lines": list(self.lines),
             "local_flatness": self._local_dict(),
@@ -365,6 +362,13 @@ class SurfaceEvaluation:
             ]
             doc["warnings"] = list(red.warnings)
         return doc
+
+    def _nodes(self) -> list:
+        hm = self.heightmap
+        xs, ys, zs = hm.x_mm.tolist(), hm.y_mm.tolist(), hm.height_um.tolist()
+        if hm.names is None:
+            return [{"x_mm": x, "y_mm": y, "height_um": z} for x, y, z in zip(xs, ys, zs)]
+        return [{"name": n, "x_mm": x, "y_mm": y, "height_um": z} for n, x, y, z in zip(hm.names, xs, ys, zs)]
 
     def _local_dict(self):
         if self.local is None or self.window is None:

@@ -56,7 +56,7 @@ def reduce_cmd(
             hm,
             comment=f"flatcheck reduce {input.name} ({ev.method}); heights in µm about the least-squares plane",
         )
-    doc = ev.to_dict()
+    doc = ev.to_dict(nodes=json_out)
     if units.value == "in":
         doc["units"] = "in"
         doc["flatness_uin"] = {
@@ -87,7 +87,7 @@ def _render(ev, doc, units, map_out) -> None:
         con.print(f"  instrument: {ins['kind']}, readings in {ins['unit']}; pattern {doc.get('pattern')}")
     con.print(f"  method: {ev.method_text}")
     con.print(
-        f"  {len(doc['nodes'])} stations"
+        f"  {ev.heightmap.n} {'stations' if ev.loaded.survey is not None else 'points'}"
         + (f", {doc['residuals']['observations']} readings" if doc.get("residuals") else "")
     )
     con.print()

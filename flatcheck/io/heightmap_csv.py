@@ -60,13 +60,14 @@ def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
             where=f"{path}, line {header_no}",
             fix="the first non-comment line must be exactly x_mm,y_mm,height_um (convert other units first)",
         )
-    # Fast path: numpy parses the numeric body; fall back to a line-by-line scan for a precise message.
-    body_rows = [(no, raw) for no, raw in enumerate(lines[header_no:], start=header_no + 1)]
-    data_lines = [raw for no, raw in body_rows if raw.strip() and not raw.lstrip().startswith("#")]
-    if not data_lines:
+    # Fast path: numpy's C parser reads the body (comments and blank lines skipped); a
+    # line-by-line scan runs only when it fails, to name the offending line.
+    body = lines[header_no:]
+    body_rows = _NumberedLines(body, header_no + 1)
+    if not any(raw.strip() and not raw.lstrip().startswith("#") for raw in body):
         raise InputFormatError("the file has a header but no points", where=str(path), fix="add one point per line")
     try:
-        arr = np.loadtxt(data_lines, delimiter=",", dtype=float, ndmin=2)
+        arr = np.loadtxt(body, delimiter=",", comments="#", dtype=float, ndmin=2)
         if arr.shape[1] != 3:
             raise ValueError
     except ValueError:
@@ -78,18 +79,37 @@ def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
         raise InputValueError(
             f"only {x.size} point(s)", where=str(path), fix="a height map needs at least three points"
         )
-    key = np.round(np.column_stack([x, y]), 9)
-    _, first, inverse = np.unique(key, axis=0, return_index=True, return_inverse=True)
-    repeats = np.flatnonzero(first[inverse.ravel()] != np.arange(x.size))
-    if repeats.size:
-        dup = int(repeats[0])
+    # repeated positions: sort by (y, x) and compare neighbours (O(n log n), fast for 10^6 points)
+    kx, ky = np.round(x, 9), np.round(y, 9)
+    order = np.lexsort((kx, ky))
+    same = (kx[order][1:] == kx[order][:-1]) & (ky[order][1:] == ky[order][:-1])
+    if same.any():
+        pairs = np.flatnonzero(same)
+        # the first point (in file order) that repeats an earlier one
+        firsts = np.minimum(order[pairs], order[pairs + 1])
+        seconds = np.maximum(order[pairs], order[pairs + 1])
+        k = int(np.argmin(seconds))
+        dup, first = int(seconds[k]), int(firsts[k])
         raise InputValueError(
             f"position ({x[dup]:g}, {y[dup]:g}) mm appears more than once (first on line "
-            f"{_line_of_point(body_rows, int(first[inverse.ravel()[dup]]))})",
+            f"{_line_of_point(body_rows, first)})",
             where=f"{path}, line {_line_of_point(body_rows, dup)}",
             fix="average repeated readings into one point per position",
         )
     return HeightMap(x, y, z, label=label if label is not None else path.stem)
+
+
+class _NumberedLines:
+    """``(line number, text)`` pairs of the body, made only when an error needs them."""
+
+    def __init__(self, lines, first_no):
+        self.lines, self.first_no = lines, first_no
+
+    def __iter__(self):
+        return iter(enumerate(self.lines, start=self.first_no))
+
+    def __getitem__(self, k):
+        return (self.first_no + (k % len(self.lines)), self.lines[k])
 
 
 def _line_of_point(body_rows, k: int) -> int:
