@@ -29,7 +29,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
-from matplotlib.patches import Rectangle
+from matplotlib.patches import Circle, Rectangle
 from matplotlib.ticker import MaxNLocator
 
 from .errors import InputValueError
@@ -49,6 +49,8 @@ __all__ = [
     "survey_layout",
     "field_map",
     "local_flatness_map",
+    "local_flatness_profile",
+    "mark_window",
     "removal_map",
     "dwell_map",
     "carriage_path",
@@ -604,6 +606,78 @@ def local_flatness_map(ax, x_mm, y_mm, local_um, *, window_mm: float, limit_um=N
         title = f"local flatness in a {window_mm * ps:g} {pu} window"
     return field_map(ax, x_mm, y_mm, local_um, label=f"local flatness ({hu})", cmap=FIELD_CMAP, units=units,
                      limit=limit_um, title=title, scale=hs)
+
+
+def local_flatness_profile(ax, s_mm, local_um, *, along: str = "x", units: str = "um", title: str | None = None):
+    """Local flatness against the window centre when the centres lie on one line.
+
+    ``s_mm`` (k,) are the centres' positions along ``along`` ("x" or "y") in mm and
+    ``local_um`` (k,) the local flatness there in µm.
+    """
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    s = np.asarray(s_mm, float) * ps
+    v = np.asarray(local_um, float) * hs
+    ax.plot(s, v, "-o", color=_INK, ms=3, mfc="white", lw=1.0)
+    ax.set_xlabel(f"window centre {along} ({pu})")
+    ax.set_ylabel(f"local flatness ({hu})")
+    ax.grid(True, lw=0.3, color="0.75")
+    if title:
+        ax.set_title(title, fontsize=10, loc="left")
+    return ax
+
+
+def mark_window(ax, x_mm, y_mm, *, shape: str, length_mm: float, width_mm: float, label: str = "",
+                units: str = "um", stations_xy_mm=None, profile: bool = False, along: str = "x"):
+    """Outline one window (e.g. the worst local-flatness window) on a map, or its centre on a profile.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+        A map drawn by :func:`local_flatness_map` (or a profile by :func:`local_flatness_profile`).
+    x_mm, y_mm : float
+        Centre of the window, mm.
+    shape : {"rect", "circle"}
+        Window shape.
+    length_mm, width_mm : float
+        Window size along x and y in mm (the diameter twice for a circle).
+    label : str
+        Text written beside the window (carries ``gid`` "window").
+    stations_xy_mm : ndarray, shape (n, 2), optional
+        Measured stations, drawn as small dots on a map.
+    profile : bool
+        ``ax`` is a profile: mark the centre with a vertical line instead.
+    along : {"x", "y"}
+        Axis of the profile.
+
+    Returns
+    -------
+    Axes
+        ``ax``.
+    """
+    ps, pu = _pos_scale(units)
+    if profile:
+        c = (x_mm if along == "x" else y_mm) * ps
+        ax.axvline(c, color=_ACCENT, lw=1.4)
+        ax.text(c, 1.0, f" {label}", transform=ax.get_xaxis_transform(), color=_ACCENT, fontsize=8,
+                va="top", gid="window")
+        return ax
+    if stations_xy_mm is not None:
+        xy = np.asarray(stations_xy_mm, float) * ps
+        ax.plot(xy[:, 0], xy[:, 1], ".", color=_INK, ms=2.5, ls="none", zorder=5)
+    cx, cy = x_mm * ps, y_mm * ps
+    if shape == "circle":
+        patch = Circle((cx, cy), length_mm * ps / 2, fill=False, ec=_ACCENT, lw=1.8, zorder=6)
+    else:
+        patch = Rectangle((cx - length_mm * ps / 2, cy - width_mm * ps / 2), length_mm * ps, width_mm * ps,
+                          fill=False, ec=_ACCENT, lw=1.8, zorder=6)
+    ax.add_patch(patch)
+    ax.plot([cx], [cy], "+", color=_ACCENT, ms=9, mew=1.8, zorder=7)
+    if label:
+        ax.annotate(label, (cx, cy), xytext=(8, 8), textcoords="offset points", fontsize=8, color=_ACCENT,
+                    fontweight="bold", gid="window", zorder=8,
+                    bbox=dict(boxstyle="round,pad=0.2", fc="white", ec=_ACCENT, lw=0.6))
+    return ax
 
 
 def removal_map(ax, x_mm, y_mm, removal_um, *, units: str = "um", title: str | None = "planned removal"):

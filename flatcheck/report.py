@@ -2,9 +2,11 @@
 
 Two steps, so that the numbers can be checked without drawing anything:
 
-1. :func:`analyse` runs the evaluations on a height map (and the survey and
-   reduction it came from, when there is one) and returns a frozen
-   :class:`ReportContent` with every number the report states.
+1. :func:`analyse` takes the shared evaluation of a surface
+   (:func:`flatcheck.evaluation.evaluate_surface`, the one ``flatcheck reduce``
+   states) and adds what only the report needs (grades, air bearing, lapping
+   plan); it returns a frozen :class:`ReportContent` with every number the
+   report states.
 2. :func:`write_report` draws the pages from that content (through
    :mod:`flatcheck.plot`, the only module that imports matplotlib) and writes
    the PDF atomically, optionally with each picture as a PNG file.
@@ -16,16 +18,25 @@ it is asked to write.
 from __future__ import annotations
 
 import datetime as _dt
-from dataclasses import dataclass, field
+import re
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from .errors import InputValueError, OutputError
-from .flatness import least_squares_plane, minimum_zone
 from .heightmap import HeightMap
 
-__all__ = ["LineResult", "GradeRow", "ReportContent", "ReportFiles", "analyse", "write_report", "page_titles"]
+__all__ = [
+    "LineResult",
+    "GradeRow",
+    "ReportContent",
+    "ReportFiles",
+    "analyse",
+    "uncertainty_text",
+    "write_report",
+    "page_titles",
+]
 
 #: Statement printed on every report (the scope of the results).
 SCOPE_STATEMENT = (
@@ -37,7 +48,7 @@ SCOPE_STATEMENT = (
 
 @dataclass(frozen=True)
 class LineResult:
-    """One measured line: where its stations are and its straightness.
+    """One measured line: where its stations are, its straightness and its closure.
 
     Attributes
     ----------
@@ -47,13 +58,19 @@ class LineResult:
     height_um : ndarray, shape (k,)
         Station heights from the height map, µm.
     straightness_um : float
-        Minimum-zone straightness, µm.
+        Minimum-zone straightness (ISO 12780-1 STRt about the MZLI), µm.
     ref_offset_um, ref_slope_um_per_mm : float
-        Reference line of the straightness (µm, µm/mm).
+        Mid-line of the minimum zone (µm at s = 0, µm/mm).
     rms_residual_um : float or None
         RMS of the reduction residuals of this line's readings, µm.
     run_spread_um : float or None
         For a line walked more than once, the largest difference between its runs' end-to-end rises, µm.
+    closure_um : float or None
+        The reduction's closure error of the line, µm (see ``closure_meaning``).
+    closure_station : str or None
+        Station where the closure is taken (None for the classic centre closures).
+    closure_meaning : str or None
+        What the closure error means for this reduction.
     """
 
     name: str
@@ -64,6 +81,9 @@ class LineResult:
     ref_slope_um_per_mm: float
     rms_residual_um: float | None = None
     run_spread_um: float | None = None
+    closure_um: float | None = None
+    closure_station: str | None = None
+    closure_meaning: str | None = None
 
 
 @dataclass(frozen=True)
@@ -79,39 +99,37 @@ class GradeRow:
 
 @dataclass(frozen=True)
 class ReportContent:
-    """Everything the report states, computed by :func:`analyse` (heights µm, positions mm).
+    """Everything the report states (heights µm, positions mm).
+
+    Made by :func:`analyse` from a :class:`flatcheck.evaluation.SurfaceEvaluation`, so the
+    report states the numbers ``flatcheck reduce`` and ``flatcheck grade`` state.
 
     Attributes
     ----------
-    heightmap : HeightMap
-        The evaluated surface.
+    evaluation : SurfaceEvaluation
+        The shared evaluation (flatness about every reference, lines, local flatness, uncertainty).
     identity : tuple of (str, str)
         Rows describing the surface (what, identity, size, material).
     method : tuple of (str, str)
         Rows describing the instrument, layout and reduction.
     mz, ls : PlaneFit
-        Minimum-zone and least-squares reference planes and flatness (µm).
-    u_mz_um, u_ls_um : float or None
-        Expanded uncertainties (k = 2 or 95 % coverage) of the two flatness values, µm.
-    uncertainty_note : str
-        How the uncertainty was obtained (or why it is missing).
+        The minimum-zone zone (its lower plane) and the least-squares plane, with their flatness (µm).
     lines : tuple of LineResult
         The measured lines (or grid rows/columns for a height map).
-    closures : tuple of (str, float, float, float)
-        ``(label, x_mm, y_mm, closure_um)``: classic closure errors (Union Jack centre
-        lines) and where they close.
-    residual_um : ndarray or None
-        Reduction residuals of every reading, µm.
     grades : tuple of GradeRow
     decision_rule : str
-    local : object or None
-        Local-flatness result (grid of window centres and values).
-    bearing : object or None
-        Bearing verdict and carriage path.
-    lapping : object or None
-        Lapping plan.
+    bearing : BearingResult or None
+    lapping : LapPlan or None
+    lapping_target : str
+        Where the lapping target came from.
+    lapping_notes : tuple of str
+        What was assumed about the lap (size, removal rate), stated on the lapping page.
+    lap_rate_assumed : bool
+        True when the removal rate is a placeholder, not the user's calibration.
     notes : tuple of str
         Warnings and remarks stated in the report.
+    uncertainty_missing : str
+        Why there is no uncertainty, when there is none.
     date : str
         Measurement date (or "not stated").
     issued : str
@@ -120,28 +138,72 @@ class ReportContent:
         References of the methods used.
     """
 
-    heightmap: HeightMap
+    evaluation: object
     identity: tuple
     method: tuple
     mz: object
     ls: object
-    u_mz_um: float | None = None
-    u_ls_um: float | None = None
-    uncertainty_note: str = ""
     lines: tuple = ()
-    closures: tuple = ()
-    residual_um: np.ndarray | None = None
-    survey: object | None = None
     grades: tuple = ()
     decision_rule: str = ""
-    local: object | None = None
     bearing: object | None = None
     lapping: object | None = None
+    lapping_target: str = ""
+    lapping_notes: tuple = ()
+    lap_rate_assumed: bool = False
     notes: tuple = ()
+    uncertainty_missing: str = ""
     date: str = "not stated"
     issued: str = ""
     sources: tuple = ()
-    extra: dict = field(default_factory=dict, compare=False)
+
+    @property
+    def heightmap(self) -> HeightMap:
+        """The evaluated surface (positions mm, heights µm)."""
+        return self.evaluation.heightmap
+
+    @property
+    def survey(self):
+        """The survey the map was reduced from, or None for a height-map input."""
+        return self.evaluation.loaded.survey
+
+    @property
+    def flatness(self):
+        """The :class:`flatcheck.flatness.FlatnessReport` (every reference plane), µm."""
+        return self.evaluation.flatness
+
+    @property
+    def uncertainty(self):
+        """The :class:`flatcheck.evaluation.SurveyUncertainty`, or None."""
+        return self.evaluation.uncertainty
+
+    @property
+    def u_mz_um(self) -> float | None:
+        """Expanded uncertainty of the minimum-zone flatness (k = 2 equivalent), µm, or None."""
+        u = self.uncertainty
+        return None if u is None else float(u.minimum_zone.expanded_um)
+
+    @property
+    def u_ls_um(self) -> float | None:
+        """Expanded uncertainty of the least-squares flatness (k = 2 equivalent), µm, or None."""
+        u = self.uncertainty
+        return None if u is None else float(u.least_squares.expanded_um)
+
+    @property
+    def local(self):
+        """The :class:`flatcheck.local_flatness.LocalFlatness` of the evaluation's window, or None."""
+        return self.evaluation.local
+
+    @property
+    def window(self):
+        """The local-flatness :class:`flatcheck.evaluation.Window`, or None."""
+        return self.evaluation.window
+
+    @property
+    def residual_um(self):
+        """Reduction residuals of every reading (µm, shape (m,)), or None."""
+        red = self.evaluation.loaded.reduction
+        return None if red is None else np.asarray(red.residual_um, float)
 
 
 @dataclass(frozen=True)
@@ -154,64 +216,69 @@ class ReportFiles:
 
 
 # =============================================================================== analysis
-def _straightness_1d(s_mm, h_um):
-    """Minimum-zone straightness of a profile and its reference line: (width_um, offset_um, slope_um_per_mm).
+def _survey_lines(evaluation) -> list:
+    """Survey lines with their straightness zone (flatcheck.straightness) and the evaluation's closures."""
+    from .straightness import evaluate_straightness
 
-    Chebyshev line fit by a linear program (scipy HiGHS): minimise t subject to
-    0 <= h - (a + b s) <= t, the definition of the minimum-zone straightness
-    (two parallel lines, vertical separation, ISO 12780-1 terms).
-    """
-    from scipy.optimize import linprog
-
-    s = np.asarray(s_mm, float)
-    h = np.asarray(h_um, float)
-    if s.size < 3:
-        return 0.0, float(h[0]) if h.size else 0.0, float((h[-1] - h[0]) / (s[-1] - s[0])) if s.size == 2 else 0.0
-    sc = s - s.mean()
-    A = np.column_stack([np.ones_like(sc), sc])
-    n = s.size
-    A_ub = np.vstack([np.column_stack([A, np.zeros(n)]), np.column_stack([-A, -np.ones(n)])])
-    b_ub = np.concatenate([h, -h])
-    res = linprog([0, 0, 1], A_ub=A_ub, b_ub=b_ub, bounds=[(None, None)] * 3, method="highs")
-    a, b, t = res.x
-    return max(float(t), 0.0), float(a - b * s.mean()), float(b)
-
-
-def _lines_from_survey(hm: HeightMap, survey) -> list:
-    index = {name: i for i, name in enumerate(hm.names or ())}
+    loaded = evaluation.loaded
+    hm, sv = loaded.heightmap, loaded.survey
+    pos = {n: i for i, n in enumerate(hm.names or ())}
+    rms = _line_rms(sv, loaded.reduction)
+    stated = {ln["name"]: ln for ln in evaluation.lines}
     out = []
-    for ln in survey.lines:
-        idx = [index.get(s) for s in ln.stations]
-        if any(i is None for i in idx):
-            continue
-        idx = np.asarray(idx, int)
-        x, y, h = hm.x_mm[idx], hm.y_mm[idx], hm.height_um[idx]
-        s = np.concatenate([[0.0], np.cumsum(np.hypot(np.diff(x), np.diff(y)))])
-        out.append((ln.name, s, h))
+    for ln in sv.lines:
+        idx = np.array([pos[s] for s in ln.stations], dtype=int)
+        # distance from the first station, as the shared evaluation measures it (lines are straight)
+        s = np.hypot(hm.x_mm[idx] - hm.x_mm[idx[0]], hm.y_mm[idx] - hm.y_mm[idx[0]])
+        h = hm.height_um[idx]
+        mzli = evaluate_straightness(s, h).mzli
+        d = stated.get(ln.name, {})
+        out.append(LineResult(
+            ln.name, s, h, float(d.get("straightness_um", mzli.strt_um)), mzli.a_um, mzli.b_um_per_mm,
+            rms.get(ln.name), d.get("run_spread_um"), d.get("closure_um"), d.get("closure_station"),
+            d.get("meaning"),
+        ))
     return out
 
 
-def _lines_from_grid(hm: HeightMap, max_lines: int = 8) -> list:
+def _grid_lines(hm: HeightMap, max_lines: int = 8) -> list:
+    """Rows and two columns of a gridded height map, with their minimum-zone straightness."""
+    from .straightness import evaluate_straightness
+
     g = hm.grid
     if g is None:
         return []
     xs, ys, index = g
-    out = []
+    raw = []
     rows = np.unique(np.linspace(0, ys.size - 1, min(ys.size, max_lines - 2)).round().astype(int))
     for j in rows:
-        idx = index[j]
-        out.append((f"y = {ys[j]:.4g} mm", xs - xs[0], hm.height_um[idx]))
+        raw.append((f"y = {ys[j]:.4g} mm", xs - xs[0], hm.height_um[index[j]]))
     for i in np.unique([0, xs.size // 2]):
-        idx = index[:, i]
-        out.append((f"x = {xs[i]:.4g} mm", ys - ys[0], hm.height_um[idx]))
+        raw.append((f"x = {xs[i]:.4g} mm", ys - ys[0], hm.height_um[index[:, i]]))
+    out = []
+    for name, s, h in raw:
+        if s.size < 2:
+            continue
+        mzli = evaluate_straightness(s, h).mzli
+        out.append(LineResult(name, s, h, mzli.strt_um, mzli.a_um, mzli.b_um_per_mm))
     return out
 
 
+def _plane_fits(flat):
+    """PlaneFit views of the shared flatness report: the zone's lower plane, and the LS plane."""
+    from .flatness import PlaneFit
+
+    mz = flat.mzpl  # mid-plane of the zone; its lower plane lies FLTv below it
+    ls = flat.lspl
+    return (
+        PlaneFit(mz.a_um - mz.fltv_um, mz.b_um_per_mm, mz.c_um_per_mm, mz.fltt_um, "minimum_zone", mz.normal_fltt_um),
+        PlaneFit(ls.a_um, ls.b_um_per_mm, ls.c_um_per_mm, ls.fltt_um, "least_squares", ls.normal_fltt_um),
+    )
+
+
 def analyse(
-    hm: HeightMap,
+    evaluation,
     *,
-    survey=None,
-    reduction=None,
     standard: str | None = None,
     rule: str = "iso14253",
     carriage=None,
@@ -219,26 +286,25 @@ def analyse(
     marginal_from: float | None = None,
     budget=None,
     target_um: float | None = None,
+    target_source: str = "given",
     lap=None,
-    seed: int | None = None,
-    trials: int | None = None,
+    lap_notes=(),
+    lap_rate_assumed: bool = False,
+    uncertainty_missing: str | None = None,
     notes=(),
     today: _dt.date | None = None,
     progress=None,
 ) -> ReportContent:
-    """Evaluate a surface for the report.
+    """Gather what the report states about an evaluated surface.
 
     Parameters
     ----------
-    hm : HeightMap
-        The surface (positions mm, heights µm).
-    survey : Survey, optional
-        The survey the map was reduced from (identity, instrument, lines).
-    reduction : Reduction, optional
-        The reduction of ``survey`` (closures, residuals).
+    evaluation : SurfaceEvaluation
+        From :func:`flatcheck.evaluation.evaluate_surface`: flatness, lines, local flatness
+        and (optionally) Monte Carlo uncertainty. The report states these numbers as they are.
     standard : str, optional
         Standard to grade against (``"din-876"``, ``"iso-8512-2"``, ``"asme-b89.3.7"``); every
-        grade of it is decided.
+        grade of it is decided on the minimum-zone flatness and its expanded uncertainty.
     rule : {"iso14253", "simple"}
         Decision rule for the grades.
     carriage : Carriage, optional
@@ -246,15 +312,20 @@ def analyse(
     gap_fraction, marginal_from, budget
         Bearing limits (library defaults when ``None``).
     target_um : float, optional
-        Target flatness in µm: adds a lapping plan.
+        Target flatness in µm: adds a lapping plan (needs ``lap``).
+    target_source : str
+        Where the target came from (stated on the lapping page).
     lap : LapModel, optional
-        The lap for the plan (default: :func:`default_lap`, rate not calibrated).
-    seed : int, optional
-        Seed of the Monte Carlo uncertainty evaluation (reproducible when given).
-    trials : int, optional
-        Number of Monte Carlo trials.
+        The lap and its removal rate for the plan.
+    lap_notes : sequence of str
+        What was assumed about the lap (e.g. an assumed removal rate); stated on the
+        lapping page and among the summary's notes.
+    lap_rate_assumed : bool
+        The lap's removal rate is a placeholder (times are then relative); said on the lapping page.
+    uncertainty_missing : str, optional
+        Why the evaluation carries no uncertainty (stated instead of a value).
     notes : sequence of str
-        Remarks to state in the report.
+        Remarks to state in the report (e.g. what was assumed about the lap).
     today : date, optional
         Issue date (default: today).
     progress : callable, optional
@@ -263,42 +334,38 @@ def analyse(
     Returns
     -------
     ReportContent
+
+    Raises
+    ------
+    InputValueError
+        Fewer than three points, or a target without a lap.
     """
     say = progress or (lambda text: None)
+    loaded = evaluation.loaded
+    hm, survey, reduction = loaded.heightmap, loaded.survey, loaded.reduction
     if hm.n < 3:
         raise InputValueError("a report needs at least three points", fix="measure more stations")
-    say("flatness")
-    mz = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
-    ls = least_squares_plane(hm.x_mm, hm.y_mm, hm.height_um)
+    if target_um is not None and lap is None:
+        raise InputValueError("a lapping plan needs the lap", where="lap", fix="give a LapModel with its removal rate")
+    mz, ls = _plane_fits(evaluation.flatness)
     identity, method = _identity_rows(hm, survey, reduction)
-    raw = _lines_from_survey(hm, survey) if survey is not None else _lines_from_grid(hm)
-    rms = _line_rms(survey, reduction)
-    spread = {c.line: c.run_spread_um for c in getattr(reduction, "closures", ())}
-    lines = []
-    for name, s, h in raw:
-        t, a, b = _straightness_1d(s, h)
-        lines.append(LineResult(name, s, h, t, a, b, rms.get(name), spread.get(name)))
-    all_notes = list(notes)
-    closures = ()
-    residual = None
+    lines = _survey_lines(evaluation) if survey is not None else _grid_lines(hm)
+    all_notes = list(evaluation.notes) + list(notes) + (list(lap_notes) if target_um is not None else [])
     if reduction is not None:
-        say("closures")
-        closures = _classic_closures(survey, reduction)
-        residual = np.asarray(reduction.residual_um, float)
         all_notes += list(getattr(reduction, "warnings", ()))
         n_out = len(getattr(reduction, "outliers", ()))
         if n_out:
             all_notes.append(f"{n_out} reading(s) flagged as possible outliers by the reduction; see the residuals")
-    u_mz = u_ls = None
-    u_note = "not evaluated: a height map carries no reading uncertainty (report a survey to get one)"
-    if reduction is not None:
-        say("uncertainty")
-        u_mz, u_ls, u_note = _uncertainty(survey, reduction, seed=seed, trials=trials or DEFAULT_TRIALS)
+    if evaluation.uncertainty is None and not uncertainty_missing:
+        uncertainty_missing = ("not evaluated: a height map carries no reading uncertainty (give the uncertainty of "
+                               "one height, or report a survey)" if survey is None else "not evaluated")
     grades = ()
     rule_text = ""
     if standard is not None:
         say("grades")
-        grades, rule_text = _grades(hm, standard, mz.flatness_um, u_mz, rule)
+        u = evaluation.uncertainty
+        grades, rule_text = _grades(hm, standard, evaluation.flatness.mzpl.fltt_um,
+                                    None if u is None else float(u.minimum_zone.expanded_um), rule)
     bearing = None
     if carriage is not None:
         say("air bearing")
@@ -315,114 +382,59 @@ def analyse(
         say("lapping plan")
         from .lapping import least_removal, plan_lapping
 
-        if lap is None:
-            lap = default_lap(hm)
-            all_notes.append(f"lapping plan with an assumed {lap.describe()}: the removal rate is not calibrated, so "
-                             "times are relative; fit the rate from a measured test pass before lapping")
         lapping = plan_lapping(hm, least_removal(hm, float(target_um)), lap)
     issued = (today or _dt.date.today()).isoformat()
     date = survey.date if survey is not None and survey.date else "not stated"
     return ReportContent(
-        heightmap=hm,
+        evaluation=evaluation,
         identity=tuple(identity),
         method=tuple(method),
         mz=mz,
         ls=ls,
-        u_mz_um=u_mz,
-        u_ls_um=u_ls,
-        uncertainty_note=u_note,
         lines=tuple(lines),
-        closures=closures,
-        residual_um=residual,
-        survey=survey,
         grades=grades,
         decision_rule=rule_text,
         bearing=bearing,
         lapping=lapping,
+        lapping_target=target_source if target_um is not None else "",
+        lapping_notes=tuple(lap_notes) if target_um is not None else (),
+        lap_rate_assumed=bool(lap_rate_assumed) and target_um is not None,
         notes=tuple(all_notes),
+        uncertainty_missing=uncertainty_missing or "",
         date=date,
         issued=issued,
         sources=_SOURCES,
     )
 
 
-#: Monte Carlo trials when none are asked for. JCGM 101:2008 7.2 suggests M >= 1e4/(1-p), i.e. 2e5 for
-#: p = 0.95 for stable interval ends; 2e4 gives the standard deviation (hence U) to about 1 % relative.
-DEFAULT_TRIALS = 20_000
+_UM_NUMBER = re.compile(r"(-?\d+(?:\.\d+)?) µm")
 
 
-def _uncertainty(survey, reduction, *, seed, trials):
-    """Expanded uncertainties (k = 2 equivalent, µm) of MZ and LS flatness by Monte Carlo, and how."""
-    from .survey import observations
-    from .uncertainty import monte_carlo_flatness
+def uncertainty_text(content: ReportContent, units: str = "um") -> str:
+    """How the uncertainty was obtained (or why there is none), in the display units.
 
-    op = getattr(reduction, "operator", None)
-    if op is None:
-        return None, None, "not evaluated: the survey is too large for the dense reduction operator"
-    obs = observations(survey)
-    inst = survey.instrument
-    if inst.reading_uncertainty is not None:
-        u = float(inst.reading_uncertainty) * np.abs(obs.um_per_unit)
-        basis = f"reading standard uncertainty {inst.reading_uncertainty:g} {inst.unit} as stated for the instrument"
-    elif np.isfinite(reduction.sigma0_um) and reduction.redundancy > 0:
-        ref = reduction.ref_base_mm or 1.0
-        u = reduction.sigma0_um * (obs.base_mm / ref if reduction.ref_base_mm else np.ones(obs.base_mm.size))
-        basis = f"reading scatter estimated from the survey's own redundancy (sigma0 {reduction.sigma0_um:.3f} µm)"
-    else:
-        return None, None, "not evaluated: no reading uncertainty stated and no redundancy to estimate it"
-    kw = dict(G=op.G, u_value_um=u, trials=trials, seed=seed)
-    if inst.scale_uncertainty_rel:
-        kw["scale_u_rel"] = float(inst.scale_uncertainty_rel)
-        basis += f", scale {inst.scale_uncertainty_rel:g} relative"
-    if inst.foot_spacing_uncertainty_mm and not inst.reads_heights:
-        kw["group"] = obs.base_mm
-        kw["group_u_rel"] = {b: float(inst.foot_spacing_uncertainty_mm) / b for b in np.unique(obs.base_mm) if b > 0}
-        basis += f", foot spacing {inst.foot_spacing_uncertainty_mm:g} mm"
-    mz = monte_carlo_flatness(survey.x_mm[_order(survey, op)], survey.y_mm[_order(survey, op)], obs.value_um,
-                              reference="minimum_zone", **kw)
-    ls = monte_carlo_flatness(survey.x_mm[_order(survey, op)], survey.y_mm[_order(survey, op)], obs.value_um,
-                              reference="least_squares", **kw)
+    Parameters
+    ----------
+    content : ReportContent
+    units : {"um", "in"}
+        Heights in µm, or in µin with ``"in"`` (1 µin = 0.0254 µm exactly).
+
+    Returns
+    -------
+    str
+    """
+    unc = content.uncertainty
+    if unc is None:
+        return content.uncertainty_missing
+    mz = unc.minimum_zone
     lo, hi = mz.interval_um
-    note = (f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {basis}. "
+    basis = unc.basis
+    if units == "in":  # the basis may quote a scatter in µm: state it in µin like every other height
+        basis = _UM_NUMBER.sub(lambda m: _h(float(m.group(1)), units), basis)
+    return (f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {basis}. "
             f"U is twice the standard deviation of the simulated flatness (k = 2 equivalent); "
-            f"95 % interval of the minimum zone {lo:.3f} to {hi:.3f} µm (simulated mean {mz.mean_um:.3f} µm).")
-    return float(mz.expanded_um), float(ls.expanded_um), note
-
-
-def _order(survey, op):
-    """Station indices of the survey in the row order of the reduction operator."""
-    idx = survey.station_index
-    return np.array([idx[n] for n in op.station_names], dtype=int)
-
-
-def _classic_closures(survey, reduction) -> tuple:
-    """Classic centre closures of a Union Jack, placed at the centre station: ``(label, x_mm, y_mm, um)``."""
-    if survey is None or survey.pattern != "union-jack":
-        return ()
-    if reduction.method == "moody":
-        moody = reduction
-    else:
-        from .reduction import reduce_survey
-
-        moody = reduce_survey(survey, method="moody")
-    out = []
-    for c in moody.closures:
-        try:
-            ln = survey.line(c.line)
-        except KeyError:
-            continue
-        mid = survey.stations[survey.station_index[ln.stations[len(ln.stations) // 2]]]
-        out.append((f"line {c.line}", mid.x_mm, mid.y_mm, float(c.closure_um)))
-    return tuple(out)
-
-
-def default_lap(hm: HeightMap):
-    """A round lap a fifth of the surveyed width across (10 mm steps, 50 to 250 mm), 1 µm per minute (assumed)."""
-    from .lapping import LapModel
-
-    xmin, xmax, ymin, ymax = hm.extent_mm
-    d = float(np.clip(round(min(xmax - xmin, ymax - ymin) / 5 / 10) * 10, 50, 250))
-    return LapModel(shape="round", diameter_mm=d, rate_um=1.0, time_unit="min")
+            f"95 % interval of the minimum zone {_h(lo, units)} to {_h(hi, units)} "
+            f"(simulated mean {_h(mz.mean_um, units)}).")
 
 
 def _line_rms(survey, reduction) -> dict:
@@ -510,13 +522,17 @@ def _identity_rows(hm, survey, reduction):
 _SOURCES = (
     "Minimum zone and least-squares reference planes: ISO 12781-1:2011 (flatness terms and parameters).",
     "Straightness of lines: ISO 12780-1:2011 (straightness terms), minimum-zone reference line.",
-    "Union Jack layout and closure errors: J. C. Moody, 'How to calibrate surface plates in the plant', "
+    "Union Jack layout and closure errors: Moody, 'How to calibrate surface plates in the plant', "
     "The Tool Engineer, Oct. 1955.",
     "Least-squares network reduction: 'Moody revisited: least-squares solutions of the Union Jack surface plate "
     "measurement method', Metrology 6(2) 27 (2026), doi:10.3390/metrology6020027.",
     "Uncertainty by Monte Carlo propagation: JCGM 101:2008 (Supplement 1 to the GUM).",
     "Decision rules: ISO 14253-1:2017 (conformity with specifications, guard bands).",
     "Granite plate grades: DIN 876-1:1984; ISO 8512-2:1990; ASME B89.3.7-2013 (formerly Fed. Spec. GGG-P-463c).",
+    "Local flatness: minimum zone inside a window moved over the surface; ISO 8512-2:1990 states a local "
+    "tolerance over any 250 x 250 mm area.",
+    "Lapping plan: least removal to the target zone; removal under the lap by the Preston equation "
+    "(rate calibrated by the user or assumed as stated).",
 )
 
 
@@ -528,6 +544,8 @@ def page_titles(content: ReportContent) -> list:
 
 def _page_plan(content):
     plan = [("Summary", _page_summary), ("Surface map", _page_map)]
+    if content.local is not None:
+        plan.append(("Local flatness", _page_local))
     per_page = 8
     for k in range(0, len(content.lines), per_page):
         chunk = content.lines[k : k + per_page]
@@ -573,6 +591,22 @@ def _h(v_um, units):
     return f"{v_um:.3f} µm"
 
 
+def _pos(v_mm, units):
+    from .units import MM_PER_INCH
+
+    if units == "in":
+        return f"{v_mm / MM_PER_INCH:.2f} in"
+    return f"{v_mm:.0f} mm"
+
+
+_REFERENCE_NAMES = {
+    "MZPL": "minimum zone (MZ)",
+    "LSPL": "least squares (LS)",
+    "three-corner": "three corners",
+    "diagonal": "diagonals",
+}
+
+
 def _page_summary(fig, c, units):
     from . import plot
 
@@ -580,18 +614,27 @@ def _page_summary(fig, c, units):
     y = 1.0
     y = plot.flow_table(ax, y, c.identity, col_x=(0.0, 0.3), title="What was measured", wrap_chars=(None, 80))
     y = plot.flow_table(ax, y, c.method, col_x=(0.0, 0.3), title="How it was measured", wrap_chars=(None, 80))
-    rows = [
-        ("minimum zone (MZ)", _h(c.mz.flatness_um, units),
-         "not evaluated" if c.u_mz_um is None else _h(c.u_mz_um, units)),
-        ("least squares (LS), peak to valley", _h(c.ls.flatness_um, units),
-         "not evaluated" if c.u_ls_um is None else _h(c.u_ls_um, units)),
-    ]
-    for label, _x, _y, v in c.closures:
-        rows.append((f"closure error at the centre, {label}", _h(v, units), ""))
-    y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.45, 0.65), col_labels=("flatness", "value", "expanded uncertainty"),
-                        title="Results", bold_cols=(1,))
-    if c.uncertainty_note:
-        y = plot.text_block(ax, [("Uncertainty: " + c.uncertainty_note, "s")], y0=y, wrap_chars=110)
+    fr = c.flatness
+    u = {"MZPL": c.u_mz_um, "LSPL": c.u_ls_um}
+    rows = []
+    for p in (fr.mzpl, fr.lspl, fr.three_corner, fr.diagonal):
+        if p is None:
+            continue
+        unc = u.get(p.reference)
+        rows.append((_REFERENCE_NAMES.get(p.reference, p.reference), _h(p.fltt_um, units), _h(p.fltp_um, units),
+                     _h(p.fltv_um, units), _h(p.fltq_um, units),
+                     "" if p.reference not in u else "not evaluated" if unc is None else _h(unc, units)))
+    y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.25, 0.41, 0.55, 0.69, 0.83),
+                        col_labels=("reference plane", "flatness FLTt", "peak FLTp", "valley FLTv", "RMS FLTq", "U"),
+                        title="Flatness about each reference plane", bold_cols=(1,), fontsize=8)
+    text = [("The flatness of the surface is the minimum zone (ISO 1101 zone between two parallel planes); "
+             "U is its expanded uncertainty. Uncertainty: " + uncertainty_text(c, units), "s")]
+    if c.local is not None:
+        lf = c.local
+        text.append((f"Local flatness (minimum zone inside a {c.window.text} window moved over the surface): "
+                     f"largest {_h(lf.worst_um, units)}, window centred at x = {_pos(lf.worst_x_mm, units)}, "
+                     f"y = {_pos(lf.worst_y_mm, units)}.", "s"))
+    y = plot.text_block(ax, text, y0=y, wrap_chars=110)
     if c.grades:
         rows = [(g.grade, _h(g.tolerance_um, units), g.verdict) for g in c.grades]
         y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.3, 0.55), col_labels=("grade", "tolerance", "verdict"),
@@ -618,6 +661,56 @@ def _page_map(fig, c, units):
                       title="the same surface in three dimensions (heights exaggerated)")
 
 
+def _local_grid(lf):
+    """Window centres of a local-flatness scan as a (ny, nx) grid (NaN where a window was left out)."""
+    xs = np.unique(lf.centre_x_mm)
+    ys = np.unique(lf.centre_y_mm)
+    grid = np.full((ys.size, xs.size), np.nan)
+    grid[np.searchsorted(ys, lf.centre_y_mm), np.searchsorted(xs, lf.centre_x_mm)] = lf.flatness_um
+    return xs, ys, grid
+
+
+def _page_local(fig, c, units):
+    from . import plot
+
+    lf, win = c.local, c.window
+    xs, ys, grid = _local_grid(lf)
+    ax = fig.add_axes([0.09, 0.48, 0.80, 0.42])
+    title = f"local flatness of a {win.text} window, by the position of its centre"
+    if xs.size >= 2 and ys.size >= 2:
+        plot.local_flatness_map(ax, xs, ys, grid, window_mm=win.length_mm, units=units, title=title)
+    else:  # one row or column of positions: a profile along it
+        plot.local_flatness_profile(ax, xs if xs.size > 1 else ys, grid.ravel(), along="x" if xs.size > 1 else "y",
+                                    units=units, title=title)
+    hm = c.heightmap
+    plot.mark_window(ax, lf.worst_x_mm, lf.worst_y_mm, shape=win.shape, length_mm=win.length_mm,
+                     width_mm=win.width_mm, label=f"worst {_h(lf.worst_um, units)}", units=units,
+                     stations_xy_mm=np.column_stack([hm.x_mm, hm.y_mm]),
+                     profile=not (xs.size >= 2 and ys.size >= 2), along="x" if xs.size > 1 else "y")
+    ax = fig.add_axes([0.06, 0.06, 0.88, 0.36])
+    rows = [
+        ("window", f"{win.text} ({'circle' if win.shape == 'circle' else 'rectangle'})"),
+        ("largest local flatness", _h(lf.worst_um, units)),
+        ("at the window centred at", f"x = {_pos(lf.worst_x_mm, units)}, y = {_pos(lf.worst_y_mm, units)}"),
+        ("window positions", f"{np.size(lf.flatness_um)}, centres {_pos(_step(xs, ys), units)} apart"),
+        ("smallest local flatness", _h(float(np.min(lf.flatness_um)), units)),
+        ("stations per window", f"{int(np.min(lf.stations_in_window))} to {int(np.max(lf.stations_in_window))}"),
+        ("heights between stations", lf.interpolation),
+    ]
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.35), title="Local flatness", bold_cols=(1,),
+                        wrap_chars=(None, 75))
+    text = ["Each value is the minimum-zone flatness of the surface inside the window centred there (the window "
+            "lies wholly inside the surveyed area). The outlined window is the worst one. ISO 8512-2 states a "
+            "local tolerance over any 250 x 250 mm area; its values are not built in here."]
+    text += list(lf.notes)
+    plot.text_block(ax, [(t, "s") for t in text], y0=y, fontsize=8, wrap_chars=110)
+
+
+def _step(xs, ys):
+    d = [float(np.min(np.diff(v))) for v in (xs, ys) if v.size > 1]
+    return min(d) if d else 0.0
+
+
 def _page_profiles(fig, c, units, chunk):
     from . import plot
 
@@ -634,26 +727,29 @@ def _page_layout(fig, c, units):
     sv = c.survey
     index = {s.name: i for i, s in enumerate(sv.stations)}
     lines = [(ln.name, np.array([index[s] for s in ln.stations])) for ln in sv.lines]
+    notes = {ln.name: f"closure {_h(ln.closure_um, units)}" for ln in c.lines if ln.closure_um is not None}
     ax = fig.add_axes([0.09, 0.55, 0.84, 0.36])
     plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, length_mm=sv.surface.length_mm,
-                       width_mm=sv.surface.width_mm, closures=c.closures, units=units,
+                       width_mm=sv.surface.width_mm, line_notes=notes, units=units,
                        title="lines walked (arrow: towards the line's last station)")
     rows = []
     for ln in c.lines:
-        rows.append((ln.name, f"{ln.s_mm[-1]:.0f} mm", f"{len(ln.s_mm) - 1}",
+        closure = "" if ln.closure_um is None else _h(ln.closure_um, units) + (
+            f" at {ln.closure_station}" if ln.closure_station else "")
+        rows.append((ln.name, _pos(ln.s_mm[-1], units), f"{len(ln.s_mm) - 1}",
                      "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units),
                      "" if ln.run_spread_um is None else _h(ln.run_spread_um, units),
-                     _h(ln.straightness_um, units)))
+                     closure, _h(ln.straightness_um, units)))
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.44])
-    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.16, 0.30, 0.40, 0.60, 0.80), fontsize=8,
-                        col_labels=("line", "length", "steps", "rms residual", "run spread", "straightness"),
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.13, 0.25, 0.33, 0.49, 0.64, 0.84), fontsize=8,
+                        col_labels=("line", "length", "steps", "rms residual", "run spread", "closure",
+                                    "straightness"),
                         title="Lines")
     notes = ["rms residual: readings minus the adjusted surface, per line. run spread: largest difference between "
              "the end-to-end rises of the runs of a line walked more than once. straightness: minimum zone of the "
-             "line's station heights."]
-    if c.closures:
-        notes.append("closure error (classic Union Jack): centre-line value at the centre minus the diagonals' "
-                     "value there; it shows reading errors, not flatness.")
+             "line's station heights (ISO 12780-1)."]
+    meanings = sorted({ln.closure_meaning for ln in c.lines if ln.closure_meaning})
+    notes += [f"closure: {m}." for m in meanings]
     y = plot.text_block(ax, [(t, "s") for t in notes], y0=y, fontsize=8, wrap_chars=110)
     if c.residual_um is not None and np.size(c.residual_um):
         bottom = 0.09
@@ -716,17 +812,25 @@ def _page_lapping(fig, c, units):
                      title=f"least removal to reach {_h(rm.target_um, units)} (deepest {_h(rm.max_depth_um, units)})")
     ax = fig.add_axes([0.10, 0.36, 0.80, 0.25])
     plot.dwell_map(ax, p.xs_mm, p.ys_mm, p.plan_dwell, dwell_unit=p.lap.time_unit, units=units,
-                   title=f"dwell of the {p.lap.describe()}")
+                   title=f"dwell of the {p.lap.describe()}" + (" (rate assumed)" if c.lap_rate_assumed else ""))
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.26])
     rows = [(f"{q.order}", q.zone, _h(q.depth_um, units), f"{q.time:.2f} {q.time_unit}") for q in p.passes[:8]]
     y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.1, 0.45, 0.7), col_labels=("pass", "cells", "depth", "time"),
                         fontsize=7.5, title=f"Passes (first {len(rows)} of {len(p.passes)}, highest first)",
                         wrap_chars=(None, 40, None, None))
-    text = (f"Flatness now {_h(rm.flatness_before_um, units)}; after the plan {_h(p.predicted_flatness_um, units)} "
-            f"predicted (best this lap can do: {_h(p.dwell_flatness_um, units)}). Total time "
-            f"{p.total_time:.1f} {p.lap.time_unit}. Cells: columns A.. from the west, rows 1.. from the south. "
-            "Lap wet or with extraction; see the cautions.")
-    plot.text_block(ax, [(text, "s")], y0=y, fontsize=8, wrap_chars=110)
+    text = [(f"Target {_h(rm.target_um, units)} ({c.lapping_target}). Flatness now "
+             f"{_h(rm.flatness_before_um, units)}; after the plan {_h(p.predicted_flatness_um, units)} predicted "
+             f"(best this lap can do: {_h(p.dwell_flatness_um, units)}). Total time {p.total_time:.1f} "
+             f"{p.lap.time_unit}. Cells: columns A.. from the west, rows 1.. from the south.", "s")]
+    rate = f"{p.lap.rate_um:g} µm per {p.lap.time_unit}"
+    if c.lap_rate_assumed:
+        text.append((f"The removal rate is assumed ({rate}), not calibrated: the times are relative. Measure the "
+                     "rate on a test pass and plan again with it (--rate-um-per-min).", "b"))
+    else:
+        text.append((f"Removal rate as given by the user: {rate}.", "s"))
+    text += [("Note: " + n + ".", "s") for n in c.lapping_notes]
+    text.append(("Lap wet or with extraction; see the cautions.", "s"))
+    plot.text_block(ax, text, y0=y, fontsize=8, wrap_chars=110)
 
 
 def _page_sources(fig, c, units):

@@ -15,9 +15,11 @@ from scipy.optimize import linprog, minimize_scalar
 
 from flatcheck import report
 from flatcheck.bearing import Carriage, Pad
-from flatcheck.errors import OutputError
+from flatcheck.errors import InputValueError, OutputError
+from flatcheck.evaluation import LoadedInput, evaluate_surface
 from flatcheck.heightmap import HeightMap
 from flatcheck.io.survey_toml import read_survey
+from flatcheck.lapping import LapModel
 from flatcheck.reduction import reduce_survey
 
 SAMPLE = Path(report.__file__).parent / "data" / "plate-KY-P3-2024-03-11.toml"
@@ -40,6 +42,15 @@ def _text(pdf: Path) -> str:
     return res.stdout
 
 
+def _page_text(draw, content, units):
+    """Every text one page of the report draws (one figure, no PDF), joined into one string."""
+    from flatcheck import plot
+
+    fig = plot.new_figure()
+    draw(fig, content, units)
+    return " ".join(" ".join(t.get_text() for t in ax.texts) + " " + ax.get_title() for ax in fig.axes)
+
+
 def _mz_reference(x, y, z):
     """Minimum-zone flatness by a direct linear program (scipy), independent of flatcheck's solvers."""
     n = x.size
@@ -49,18 +60,27 @@ def _mz_reference(x, y, z):
     return res.x[3]
 
 
+def _loaded(path=SAMPLE):
+    survey = read_survey(path)
+    red = reduce_survey(survey)
+    return LoadedInput(str(path), red.heightmap, survey, red)
+
+
+def _map_report(hm, **kw):
+    return report.analyse(evaluate_surface(LoadedInput("map.csv", hm), window="none"), **kw)
+
+
 @pytest.fixture(scope="module")
 def sample_report(tmp_path_factory):
     """The full report of the bundled sample: grades, a pad, a lapping target; pictures as PNG too."""
     tmp = tmp_path_factory.mktemp("report")
-    survey = read_survey(SAMPLE)
-    red = reduce_survey(survey)
+    ev = evaluate_surface(_loaded(), monte_carlo=dict(trials=2000, seed=7))
     carriage = Carriage.single(Pad("rect", 80.0, 40.0, 8.0))
-    content = report.analyse(red.heightmap, survey=survey, reduction=red, standard="din-876", carriage=carriage,
-                             target_um=1.5, seed=7, trials=2000)
+    content = report.analyse(ev, standard="din-876", carriage=carriage, target_um=1.5,
+                             lap=LapModel("round", diameter_mm=120.0, rate_um=1.0), lap_rate_assumed=True)
     pngs = tmp / "png"
     pngs.mkdir()
-    files = report.write_report(tmp / "sample.pdf", content, png_dir=pngs)
+    files = report.write_report(tmp / "sample.pdf", content, png_dir=pngs, png_dpi=40)
     return content, files, tmp
 
 
@@ -74,7 +94,7 @@ def test_every_page_renders_with_content(sample_report):
         dark = (body < 0.5).mean()
         assert dark > 0.003, f"{page.name} looks blank ({dark:.4f} dark pixels)"
         assert body.std() > 0.05, f"{page.name} has no contrast"
-    assert {"Summary", "Surface map", "Survey layout and closure", "Grades and decision rule", "Lapping plan",
+    assert {"Summary", "Surface map", "Local flatness", "Survey layout and closure", "Grades and decision rule", "Lapping plan",
             "Air bearing: fitness and carriage motion", "Methods, sources and cautions"} <= set(report.page_titles(content))
 
 
@@ -124,7 +144,7 @@ def test_heightmap_report_matches_the_worked_3x3_example(tmp_path):
     z = np.zeros_like(x)
     z[2, 2] = 1.0
     hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="corner bump")
-    content = report.analyse(hm)
+    content = _map_report(hm)
     files = report.write_report(tmp_path / "small.pdf", content)
     text = _text(files.pdf)
     # Source: REFERENCE.md check value 7 (derived with numpy): MZ 0.7500 µm, LS peak-to-valley 0.8333 µm
@@ -135,26 +155,81 @@ def test_heightmap_report_matches_the_worked_3x3_example(tmp_path):
 
 def test_straightness_of_a_parabola_is_a_quarter_of_its_sagitta():
     # Analytic: h = k s^2 on [0, L]; the minimum zone is parallel to the chord and its width is k L^2 / 4.
-    s = np.linspace(0.0, 800.0, 17)
-    h = 2e-6 * s**2
-    t, a, b = report._straightness_1d(s, h)
-    assert t == pytest.approx(2e-6 * 800.0**2 / 4, rel=1e-9)
-    assert b == pytest.approx(2e-6 * 800.0, rel=1e-9)  # chord slope
+    x, y = np.meshgrid(np.linspace(0.0, 800.0, 17), np.linspace(0.0, 300.0, 4))
+    hm = HeightMap(x.ravel(), y.ravel(), (2e-6 * x**2).ravel())
+    content = _map_report(hm)
+    rows = [ln for ln in content.lines if ln.name.startswith("y =")]
+    assert rows
+    for ln in rows:
+        assert ln.straightness_um == pytest.approx(2e-6 * 800.0**2 / 4, rel=1e-9)
+        assert ln.ref_slope_um_per_mm == pytest.approx(2e-6 * 800.0, rel=1e-9)  # chord slope
 
 
-def test_straightness_matches_a_brute_force_search(rng):
-    s = np.sort(rng.uniform(0, 500, 25))
-    h = rng.normal(0, 1, 25)
-    t, _, _ = report._straightness_1d(s, h)
-    # reference: width of the zone minimised over the slope by scipy's bounded scalar search (convex in the slope)
-    ref = minimize_scalar(lambda b: np.ptp(h - b * s), bounds=(-1, 1), method="bounded", options={"xatol": 1e-12})
-    assert t == pytest.approx(ref.fun, abs=1e-6)
+def test_line_straightness_matches_a_brute_force_search(sample_report):
+    content, _, _ = sample_report
+    assert len(content.lines) == 8
+    for ln in content.lines:
+        s, h = ln.s_mm, ln.height_um
+        # reference: width of the zone minimised over the slope by scipy's bounded scalar search (convex in the slope)
+        ref = minimize_scalar(lambda b: np.ptp(h - b * s), bounds=(-1, 1), method="bounded", options={"xatol": 1e-12})
+        assert ln.straightness_um == pytest.approx(ref.fun, abs=1e-6)
+        # the drawn zone: deviations from the reference mid-line span exactly the straightness
+        dev = h - (ln.ref_offset_um + ln.ref_slope_um_per_mm * s)
+        assert np.ptp(dev) == pytest.approx(ln.straightness_um, abs=1e-9)
+
+
+def test_local_flatness_page_states_the_worst_window_checked_by_linear_programs(tmp_path, rng):
+    # 600 x 400 mm grid at 50 mm; a 200 x 200 mm window moved in 50 mm steps has its edges on grid lines, so the
+    # linear interpolant adds only points on straight segments between stations: the local flatness is the
+    # minimum zone of the stations inside each window, found here by a direct scipy LP per position.
+    x, y = np.meshgrid(np.arange(0.0, 601.0, 50.0), np.arange(0.0, 401.0, 50.0))
+    z = rng.normal(0.0, 0.5, x.shape)
+    hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="bumpy map")
+    content = report.analyse(evaluate_surface(LoadedInput("m.csv", hm), window="200x200"))
+    best, where = -1.0, None
+    for cx in np.arange(100.0, 501.0, 50.0):
+        for cy in np.arange(100.0, 301.0, 50.0):
+            inside = (np.abs(hm.x_mm - cx) <= 100.0 + 1e-9) & (np.abs(hm.y_mm - cy) <= 100.0 + 1e-9)
+            t = _mz_reference(hm.x_mm[inside], hm.y_mm[inside], hm.height_um[inside])
+            if t > best:
+                best, where = t, (cx, cy)
+    assert content.local.worst_um == pytest.approx(best, abs=1e-6)
+    assert (content.local.worst_x_mm, content.local.worst_y_mm) == pytest.approx(where)
+    assert "Local flatness" in report.page_titles(content)
+    text = _page_text(report._page_local, content, "um")
+    assert f"{best:.3f} µm" in text and "200 x 200 mm" in text
+    assert f"x = {where[0]:.0f} mm, y = {where[1]:.0f} mm" in text
+
+
+def test_uncertainty_note_follows_the_display_units(tmp_path):
+    # a copy of the sample without the stated reading uncertainty: the note then quotes sigma0 in µm
+    src = SAMPLE.read_text().replace("reading_uncertainty = 0.15", "")
+    path = tmp_path / "no-u.toml"
+    path.write_text(src)
+    ev = evaluate_surface(_loaded(path), monte_carlo=dict(trials=500, seed=3))
+    content = report.analyse(ev)
+    um, uin = report.uncertainty_text(content, "um"), report.uncertainty_text(content, "in")
+    lo, hi = ev.uncertainty.minimum_zone.interval_um
+    s0 = ev.loaded.reduction.sigma0_um
+    # 1 µin = 0.0254 µm exactly (international inch, 1959)
+    assert f"{lo / 0.0254:.1f} µin to {hi / 0.0254:.1f} µin" in uin
+    assert f"{s0 / 0.0254:.1f} µin" in uin and "µm" not in uin
+    assert f"{lo:.3f} µm to {hi:.3f} µm" in um and f"{s0:.3f} µm" in um
+    text = _page_text(report._page_summary, content, "in")
+    assert f"{lo / 0.0254:.1f} µin" in text and f"{s0:.3f} µm" not in text
+
+
+def test_a_lapping_target_needs_a_lap():
+    x, y = np.meshgrid(np.arange(4.0) * 100, np.arange(3.0) * 100)
+    hm = HeightMap(x.ravel(), y.ravel(), (x * y).ravel() * 1e-4)
+    with pytest.raises(InputValueError):
+        _map_report(hm, target_um=0.5)
 
 
 def test_write_report_refuses_a_missing_picture_folder_and_keeps_the_old_pdf(tmp_path):
     x, y = np.meshgrid(np.arange(4.0) * 100, np.arange(3.0) * 100)
     hm = HeightMap(x.ravel(), y.ravel(), (x * y).ravel() * 1e-4)
-    content = report.analyse(hm)
+    content = _map_report(hm)
     target = tmp_path / "r.pdf"
     target.write_bytes(b"old")
     with pytest.raises(OutputError):

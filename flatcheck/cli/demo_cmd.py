@@ -9,7 +9,7 @@ import typer
 
 from ..errors import OutputError
 from ._app import app
-from .common import Units, load_surface, stdout_console
+from .common import Units, load_input, progress_bar, stdout_console
 
 #: The bundled sample (a copy of sample_readings/plate-KY-P3-2024-03-11.toml, shipped as package data).
 DEMO_SAMPLE = "plate-KY-P3-2024-03-11.toml"
@@ -17,6 +17,8 @@ DEMO_SAMPLE = "plate-KY-P3-2024-03-11.toml"
 DEMO_FILES = ("flatcheck-demo-report.pdf", "flatcheck-demo-survey.toml")
 DEMO_STANDARD = "din-876"
 DEMO_SEED = 20240311  # fixed so every run of the demo prints the same uncertainty
+#: Monte Carlo trials of the demo: enough for U to about 1 % (JCGM 101 would ask 2e5 for stable interval ends).
+DEMO_TRIALS = 20_000
 
 
 def sample_path() -> Path:
@@ -34,54 +36,48 @@ def demo_cmd(
     out: Path = typer.Option(Path("flatcheck-demo"), "--out", help="Folder for the demo's report (created if needed)."),
     units: Units = typer.Option(Units.um, "--units", help="Display units: um or in."),
 ) -> None:
-    """Reduce the bundled sample survey, print its flatness, closure and grade, and write its PDF report."""
+    """Reduce the bundled sample as 'flatcheck reduce' does, grade it, and write its PDF report."""
+    from ..evaluation import evaluate_surface
     from ..io.atomic import write_bytes_atomic
-    from ..io.survey_toml import read_survey
-    from ..units import height_unit_label, um_to
-    from .report_cmd import make_report
+    from . import grade_cmd, reduce_cmd
+    from .report_cmd import check_outputs, make_report
 
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out} exists and is not a folder", where="--out", fix="choose another folder")
     src = sample_path()
     out.mkdir(parents=True, exist_ok=True)
+    pdf = out / DEMO_FILES[0]
+    check_outputs(pdf, None, DEMO_STANDARD)
     replaced = [name for name in DEMO_FILES if (out / name).exists()]
     survey_copy = out / DEMO_FILES[1]
     write_bytes_atomic(survey_copy, src.read_bytes())
-    hm, red = load_surface(survey_copy)
-    survey = read_survey(survey_copy)
-    pdf = out / DEMO_FILES[0]
-    content, files = make_report(hm, red, output=pdf, png=None, units=units.value, show_progress=True,
-                                 survey=survey, standard=DEMO_STANDARD, seed=DEMO_SEED)
-
-    hu = height_unit_label(units.value)
-
-    def h(v):
-        return "not evaluated" if v is None else f"{um_to(v, units.value):.3f} {hu}"
+    loaded = load_input(survey_copy)
+    with progress_bar("Monte Carlo", DEMO_TRIALS) as advance:
+        mc = dict(trials=DEMO_TRIALS, seed=DEMO_SEED, u_height_um=None, progress=advance)
+        ev = evaluate_surface(loaded, window="auto", monte_carlo=mc)
 
     con = stdout_console()
-    ident = dict(content.identity)
     con.print("[bold]flatcheck demo[/bold]: a fictional tool room's granite plate, surveyed before lapping")
-    con.print(f"surface    {ident.get('surface')} ({ident.get('identity')}), {ident.get('size (length x width)')}")
-    meth = dict(content.method)
-    con.print(f"method     {meth.get('instrument')}; {meth.get('layout')}; reduction: {meth.get('reduction')}")
-    con.print(f"flatness   minimum zone [bold]{h(content.mz.flatness_um)}[/bold]  U = {h(content.u_mz_um)}")
-    con.print(f"           least squares {h(content.ls.flatness_um)}  U = {h(content.u_ls_um)}"
-              "  (U: k = 2 equivalent, Monte Carlo)")
-    for label, _x, _y, v in content.closures:
-        con.print(f"closure    {label}: {h(v)} (classic Union Jack centre closure)")
-    if content.residual_um is not None:
-        import numpy as np
+    con.print(f"[dim]1. as 'flatcheck reduce {survey_copy} --uncertainty --seed {DEMO_SEED} --trials {DEMO_TRIALS}' "
+              "states it:[/dim]", soft_wrap=True)
+    reduce_cmd._render(ev, ev.to_dict(), units.value, None)
 
-        rms = float(np.sqrt(np.mean(np.asarray(content.residual_um) ** 2)))
-        con.print(f"residuals  rms {h(rms)} over {np.size(content.residual_um)} readings")
-    best = next((g for g in content.grades if g.verdict == "conforms"), None)
-    std = content.grades[0].standard if content.grades else DEMO_STANDARD
-    if best is not None:
-        con.print(f"grade      {std}: finest grade proven: [bold]{best.grade}[/bold] "
-                  f"(tolerance {h(best.tolerance_um)}{'; ' + best.note if best.note else ''})")
-    else:
-        con.print(f"grade      {std}: no grade proven")
-    con.print(f"rule       {content.decision_rule}", soft_wrap=True)
-    con.print(f"report     {files.pdf.resolve()} ({files.pages} pages)")
+    con.print()
+    con.print(f"[dim]2. graded as 'flatcheck grade {survey_copy} --standard {DEMO_STANDARD} --uncertainty "
+              f"--seed {DEMO_SEED} --trials {DEMO_TRIALS}' grades it:[/dim]", soft_wrap=True)
+    grading = grade_cmd.build_grade_report(
+        loaded.heightmap, standard=DEMO_STANDARD, grade=None, tolerance_um=None, rule="iso14253",
+        expanded_uncertainty_um=ev.uncertainty.minimum_zone.expanded_um, length_mm=None, width_mm=None,
+        length_basis=None, basis="formula", asme_form="inch",
+    )
+    grading["input"] = str(survey_copy)
+    grade_cmd._render(grading, units.value)
+
+    content, files = make_report(ev, output=pdf, png=None, units=units.value, show_progress=True,
+                                 standard=DEMO_STANDARD)
+    con.print()
+    con.print(f"[dim]3. the report, as 'flatcheck report {survey_copy} -o {pdf} --standard {DEMO_STANDARD} "
+              f"--seed {DEMO_SEED} --trials {DEMO_TRIALS}' writes it:[/dim]", soft_wrap=True)
+    con.print(f"report     {files.pdf.resolve()} ({files.pages} pages)", soft_wrap=True)
     if replaced:
         con.print(f"           replaced the earlier demo files in {out}: {', '.join(replaced)}")

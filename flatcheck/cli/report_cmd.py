@@ -1,4 +1,9 @@
-"""``flatcheck report``: a multi-page PDF record of one surface, and optionally its pictures as PNG."""
+"""``flatcheck report``: a multi-page PDF record of one surface, and optionally its pictures as PNG.
+
+The numbers come from the shared evaluation (:func:`flatcheck.evaluation.evaluate_surface`),
+so for the same input, ``--seed`` and ``--trials`` the report states what ``flatcheck reduce
+--uncertainty`` and ``flatcheck grade --uncertainty`` state.
+"""
 
 from __future__ import annotations
 
@@ -8,7 +13,10 @@ import typer
 
 from ..errors import InputValueError, OutputError
 from ._app import app
-from .common import Units, emit_json, load_surface, progress_bar, stdout_console
+from .common import Units, emit_json, load_input, progress_bar, stdout_console, window_option
+
+#: Monte Carlo trials when none are asked for: the same default as ``flatcheck reduce --uncertainty``.
+DEFAULT_TRIALS = 100_000
 
 
 def carriage_from_options(bearing: Path | None, pad: str | None, gap_um: float | None):
@@ -21,24 +29,75 @@ def carriage_from_options(bearing: Path | None, pad: str | None, gap_um: float |
                           travel_start_mm=None, travel_end_mm=None, step_mm=None)
 
 
-def make_report(hm, red, *, output: Path, png: Path | None, units: str, show_progress: bool, **analysis):
-    """Analyse and write the report with a progress bar on stderr; returns (content, files)."""
-    from ..report import analyse, page_titles, write_report
-
-    survey = analysis.pop("survey", None)
+def check_outputs(output: Path, png: Path | None = None, standard: str | None = None) -> None:
+    """Refuse a bad PDF name, a missing folder or an unknown standard before any work is done."""
+    if output.suffix.lower() != ".pdf":
+        raise OutputError(f"{output} does not end in .pdf", where="-o", fix="name the report file *.pdf")
     folder = output.parent if str(output.parent) else Path(".")
     if not folder.is_dir():
         raise OutputError(f"cannot write {output}: folder {folder} does not exist", where="-o",
                           fix="create the folder or choose another path")
-    if analysis.get("standard") is not None:
+    if png is not None and not png.is_dir():
+        raise OutputError(f"{png} is not an existing folder", where="--png", fix="create the folder first")
+    if standard is not None:
         from ..tolerance import get_standard
 
-        get_standard(analysis["standard"])  # an unknown name fails here, before any work
-    content = analyse(hm, survey=survey, reduction=red, **analysis)  # errors surface before any bar is drawn
+        get_standard(standard)  # an unknown name fails here
+
+
+def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, seed: int | None,
+                        u_height_um: float | None, show_progress: bool = True):
+    """The shared evaluation, with Monte Carlo uncertainty when it can be had.
+
+    Returns ``(evaluation, why_not)``: ``why_not`` says why there is no uncertainty (or is None).
+    A height map without ``u_height_um`` has none. A survey with nothing to propagate (no stated
+    reading uncertainty and no redundancy) is reported without one, and the report says why.
+    """
+    from ..evaluation import evaluate_surface, parse_window
+
+    if str(window).strip().lower() != "auto":
+        parse_window(window)  # a bad window fails here, so the only input error below is the uncertainty's
+    if not uncertainty:
+        return evaluate_surface(loaded, window=window), "not evaluated (--no-uncertainty)"
+    if loaded.survey is None and u_height_um is None:
+        return evaluate_surface(loaded, window=window), (
+            "not evaluated: a height map carries no reading uncertainty (give --u-height-um)")
+    mc = dict(trials=trials, seed=seed, u_height_um=u_height_um)
+    try:
+        with progress_bar("Monte Carlo", trials, enabled=show_progress) as advance:
+            return evaluate_surface(loaded, window=window, monte_carlo=dict(mc, progress=advance)), None
+    except InputValueError as exc:  # nothing to propagate: say so in the report instead of failing
+        return evaluate_surface(loaded, window=window), f"not evaluated: {exc.message}"
+
+
+def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_progress: bool, **analysis):
+    """Gather and write the report with a progress bar on stderr; returns (content, files)."""
+    from ..report import analyse, page_titles, write_report
+
+    content = analyse(evaluation, **analysis)
     n = len(page_titles(content))
     with progress_bar("drawing pages", n, enabled=show_progress) as advance:
         files = write_report(output, content, units=units, png_dir=png, on_page=lambda: advance(1))
     return content, files
+
+
+def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_size_mm, rate_um_per_min,
+                         rate_um_per_pass, strokes_per_pass, stroke_mm) -> dict:
+    """Target, lap and notes of the lapping page, parsed as ``flatcheck lap`` parses them (empty: no page)."""
+    lap_given = any(v is not None for v in (lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass,
+                                            strokes_per_pass)) or stroke_mm
+    if target_um is None and target_grade is None:
+        if lap_given:
+            raise InputValueError("lap options without a target", where="--target-um/--target-grade",
+                                  fix="add --target-um T or --target-grade STANDARD:GRADE for the lapping page")
+        return {}
+    from .lap_cmd import build_lap, resolve_target
+
+    target, source = resolve_target(hm, target_um, target_grade)
+    lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
+                           stroke_mm or 0.0)
+    return dict(target_um=target, target_source=source, lap=lap, lap_notes=tuple(notes),
+                lap_rate_assumed=rate_um_per_min is None and rate_um_per_pass is None)
 
 
 @app.command("report")
@@ -51,47 +110,86 @@ def report_cmd(
     bearing: Path | None = typer.Option(None, "--bearing", help="Bearing description (.toml): pads and travel."),
     pad: str | None = typer.Option(None, "--pad", help="One pad, e.g. 80x40 (mm) or d50 (diameter, mm)."),
     gap_um: float | None = typer.Option(None, "--gap-um", help="Nominal air gap of the pad, µm."),
+    window: str = window_option(),
     target_um: float | None = typer.Option(None, "--target-um", help="Target flatness, µm: adds a lapping plan."),
+    target_grade: str | None = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
+    lap_diameter_mm: float | None = typer.Option(None, "--lap-diameter-mm", help="Round lap diameter (mm)."),
+    lap_size_mm: str | None = typer.Option(
+        None, "--lap-size-mm", help="Rectangular lap LENGTHxWIDTH (mm), length along x."),
+    rate_um_per_min: float | None = typer.Option(
+        None, "--rate-um-per-min", help="Your calibrated removal rate under the lap (default: assumed, said so)."),
+    rate_um_per_pass: float | None = typer.Option(
+        None, "--rate-um-per-pass", help="Removal per pass (times then in passes)."),
+    strokes_per_pass: int | None = typer.Option(
+        None, "--strokes-per-pass", help="Strokes in one pass (with a rate per pass)."),
+    stroke_mm: float = typer.Option(0.0, "--stroke-mm", help="Length of the lap's working strokes about each spot (mm)."),
     units: Units = typer.Option(Units.um, "--units", help="Display units: um (µm, mm) or in (µin, inches)."),
+    uncertainty: bool = typer.Option(
+        True, "--uncertainty/--no-uncertainty", help="Monte Carlo uncertainty of the flatness (JCGM 101)."),
     seed: int | None = typer.Option(None, "--seed", help="Seed of the Monte Carlo uncertainty (reproducible runs)."),
-    trials: int | None = typer.Option(None, "--trials", help="Monte Carlo trials for the uncertainty."),
+    trials: int = typer.Option(DEFAULT_TRIALS, "--trials", help="Monte Carlo trials, as 'flatcheck reduce --trials'."),
+    u_height_um: float | None = typer.Option(
+        None, "--u-height-um", min=0.0, help="Height maps: standard uncertainty of each height in µm."),
     method: str = typer.Option("least-squares", "--method", help="Survey reduction: least-squares or moody."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
 ) -> None:
-    """Write a PDF report: identity, method, map, profiles, flatness with uncertainty, grades, cautions."""
-    if output.suffix.lower() != ".pdf":
-        raise OutputError(f"{output} does not end in .pdf", where="-o", fix="name the report file *.pdf")
-    if png is not None and not png.is_dir():
-        raise OutputError(f"{png} is not an existing folder", where="--png", fix="create the folder first")
-    if trials is not None and trials < 1:
-        raise InputValueError(f"--trials {trials} must be at least 1", where="--trials", fix="give e.g. --trials 2000")
+    """Write a PDF report: identity, method, map, local flatness, profiles, flatness with uncertainty, grades."""
+    check_outputs(output, png, standard)
+    if trials < 100:
+        raise InputValueError(f"--trials {trials} is too few", where="--trials", fix="give at least 100, e.g. --trials 20000")
     carriage, fraction, marginal, budget = carriage_from_options(bearing, pad, gap_um)
-    hm, red = load_surface(input, method=method)
-    survey = None
-    if red is not None:
-        from ..io.survey_toml import read_survey
-
-        survey = read_survey(input)
+    loaded = load_input(input, method=method)
+    lapping = lapping_from_options(
+        loaded.heightmap, target_um=target_um, target_grade=target_grade, lap_diameter_mm=lap_diameter_mm,
+        lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
+        strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm,
+    )
+    ev, why_not = evaluate_for_report(loaded, window=window, uncertainty=uncertainty, trials=trials, seed=seed,
+                                      u_height_um=u_height_um, show_progress=not json_out)
     content, files = make_report(
-        hm, red, output=output, png=png, units=units.value, show_progress=not json_out,
-        survey=survey, standard=standard, rule=rule, carriage=carriage, gap_fraction=fraction,
-        marginal_from=marginal, budget=budget, target_um=target_um, seed=seed, trials=trials,
+        ev, output=output, png=png, units=units.value, show_progress=not json_out,
+        standard=standard, rule=rule, carriage=carriage, gap_fraction=fraction,
+        marginal_from=marginal, budget=budget, uncertainty_missing=why_not, **lapping,
     )
     if json_out:
-        emit_json({
-            "command": "report",
-            "input": str(input),
-            "pdf": str(files.pdf),
-            "pages": files.pages,
-            "png": [str(p) for p in files.pngs],
-            "flatness_mz_um": content.mz.flatness_um,
-            "flatness_ls_um": content.ls.flatness_um,
-            "u_mz_um": content.u_mz_um,
-            "grades": [{"grade": g.grade, "tolerance_um": g.tolerance_um, "verdict": g.verdict} for g in content.grades],
-            "bearing_verdict": None if content.bearing is None else content.bearing.verdict,
-        })
+        emit_json(report_json(content, files, input))
         return
     con = stdout_console()
     con.print(f"[bold]Report[/bold] {files.pdf} ({files.pages} pages) for {content.heightmap.label}")
     if files.pngs:
         con.print(f"pictures: {len(files.pngs)} PNG files in {png}")
+
+
+def report_json(content, files, input_path) -> dict:
+    """The JSON object of ``flatcheck report --json`` (heights µm, positions mm)."""
+    from ..report import uncertainty_text
+
+    unc = content.uncertainty
+    lf = content.local
+    return {
+        "command": "report",
+        "input": str(input_path),
+        "pdf": str(files.pdf),
+        "pages": files.pages,
+        "png": [str(p) for p in files.pngs],
+        "flatness_mz_um": content.flatness.mzpl.fltt_um,
+        "flatness_ls_um": content.flatness.lspl.fltt_um,
+        "u_mz_um": content.u_mz_um,
+        "u_ls_um": content.u_ls_um,
+        "monte_carlo": None if unc is None else {"trials": unc.minimum_zone.trials, "seed": unc.minimum_zone.seed},
+        "uncertainty_note": uncertainty_text(content, "um"),
+        "local_flatness": None if lf is None else {
+            "window": content.window.text, "max_um": lf.worst_um, "x_mm": lf.worst_x_mm, "y_mm": lf.worst_y_mm,
+        },
+        "lines": [{"name": ln.name, "straightness_um": ln.straightness_um, "closure_um": ln.closure_um}
+                  for ln in content.lines],
+        "grades": [{"grade": g.grade, "tolerance_um": g.tolerance_um, "verdict": g.verdict} for g in content.grades],
+        "bearing_verdict": None if content.bearing is None else content.bearing.verdict,
+        "lapping": None if content.lapping is None else {
+            "target_um": content.lapping.removal.target_um,
+            "lap": content.lapping.lap.describe(),
+            "rate_assumed": content.lap_rate_assumed,
+            "total_time": content.lapping.total_time,
+            "time_unit": content.lapping.lap.time_unit,
+        },
+    }

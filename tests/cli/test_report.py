@@ -3,6 +3,7 @@
 import json
 import shutil
 import subprocess
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -62,6 +63,8 @@ def test_report_human_summary(cli, plate_csv, tmp_path):
         ("-o", "r.pdf", "--trials", "0"),
         ("-o", "r.pdf", "--standard", "no-such-standard"),
         ("-o", "r.pdf", "--pad", "80x40"),  # a pad without its gap
+        ("-o", "r.pdf", "--window", "big"),
+        ("-o", "r.pdf", "--target-um", "1", "--lap-size-mm", "80by40"),
     ],
 )
 def test_bad_options_are_one_line_errors(cli, plate_csv, tmp_path, monkeypatch, args):
@@ -74,3 +77,75 @@ def test_bad_options_are_one_line_errors(cli, plate_csv, tmp_path, monkeypatch, 
 def test_missing_input_is_a_one_line_error(cli, tmp_path):
     code, out, err = cli("report", tmp_path / "nothing.csv", "-o", tmp_path / "r.pdf")
     _one_line_error(code, err)
+
+
+SAMPLE = Path(__file__).resolve().parents[2] / "flatcheck" / "data" / "plate-KY-P3-2024-03-11.toml"
+
+
+def test_reduce_grade_and_report_state_the_same_numbers(cli, tmp_path):
+    """One input, one seed, one trial count: the three commands must agree (they share one evaluation)."""
+    mc = ("--seed", "11", "--trials", "2000")
+    code, out, err = cli("reduce", SAMPLE, "--uncertainty", "--json", *mc)
+    assert code == 0, err
+    red = json.loads(out)
+    code, out, err = cli("grade", SAMPLE, "--standard", "din-876", "--uncertainty", "--json", *mc)
+    assert code == 0, err
+    grd = json.loads(out)
+    code, out, err = cli("report", SAMPLE, "-o", tmp_path / "r.pdf", "--standard", "din-876", "--json", *mc)
+    assert code == 0, err
+    rep = json.loads(out)
+    f = red["flatness"]
+    assert rep["flatness_mz_um"] == f["minimum_zone_um"] == pytest.approx(grd["flatness_um"], abs=1e-12)
+    assert rep["flatness_ls_um"] == f["least_squares_um"]
+    assert rep["u_mz_um"] == f["expanded_uncertainty_um"] == grd["expanded_uncertainty_um"]
+    assert rep["u_ls_um"] == f["least_squares_expanded_uncertainty_um"]
+    assert rep["monte_carlo"] == {"trials": 2000, "seed": 11}
+    assert [(ln["name"], ln["straightness_um"], ln["closure_um"]) for ln in rep["lines"]] == [
+        (ln["name"], ln["straightness_um"], ln["closure_um"]) for ln in red["lines"]
+    ]
+    lf = red["local_flatness"]
+    assert rep["local_flatness"] == {"window": lf["window"], "max_um": lf["max_um"], "x_mm": lf["x_mm"],
+                                     "y_mm": lf["y_mm"]}
+    assert [(g["grade"], g["tolerance_um"], g["verdict"].replace("-", " ")) for g in grd["grades"]] == [
+        (g["grade"], g["tolerance_um"], g["verdict"]) for g in rep["grades"]
+    ]
+    # independent of all three: minimum zone of the reduced nodes by a direct scipy LP
+    from scipy.optimize import linprog
+
+    x = np.array([n["x_mm"] for n in red["nodes"]])
+    y = np.array([n["y_mm"] for n in red["nodes"]])
+    z = np.array([n["height_um"] for n in red["nodes"]])
+    A = np.column_stack([np.ones(x.size), x, y])
+    res = linprog([0, 0, 0, 1], A_ub=np.vstack([np.column_stack([A, np.zeros(x.size)]),
+                                                 np.column_stack([-A, -np.ones(x.size)])]),
+                  b_ub=np.concatenate([z, -z]), bounds=[(None, None)] * 4, method="highs")
+    assert rep["flatness_mz_um"] == pytest.approx(res.x[3], abs=1e-6)
+
+
+def test_lapping_page_takes_the_users_lap_and_rate(cli, plate_csv, tmp_path):
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "a.pdf", "--target-um", "1", "--json", "--window", "none")
+    assert code == 0, err
+    assumed = json.loads(out)["lapping"]
+    assert assumed["rate_assumed"] is True and "1 µm per min" in assumed["lap"]
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "g.pdf", "--target-um", "1", "--json",
+                         "--window", "none", "--lap-diameter-mm", "100", "--rate-um-per-min", "0.5")
+    assert code == 0, err
+    given = json.loads(out)["lapping"]
+    assert given["rate_assumed"] is False and given["lap"] == "round lap 100 mm, 0.5 µm per min"
+    # Preston equation: removal = rate x time, so at half the rate the same lap needs twice the time
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "h.pdf", "--target-um", "1", "--json",
+                         "--window", "none", "--lap-diameter-mm", "100", "--rate-um-per-min", "1")
+    assert code == 0, err
+    assert given["total_time"] == pytest.approx(2 * json.loads(out)["lapping"]["total_time"], rel=1e-9)
+    res = subprocess.run([shutil.which("pdftotext"), "-layout", str(tmp_path / "a.pdf"), "-"], capture_output=True,
+                         text=True, check=True)
+    assert "removal rate is assumed" in res.stdout
+    res = subprocess.run([shutil.which("pdftotext"), "-layout", str(tmp_path / "g.pdf"), "-"], capture_output=True,
+                         text=True, check=True)
+    assert "Removal rate as given by the user: 0.5 µm per min" in res.stdout
+
+
+def test_lap_options_without_a_target_are_a_one_line_error(cli, plate_csv, tmp_path):
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf", "--rate-um-per-min", "0.5")
+    _one_line_error(code, err)
+    assert not (tmp_path / "r.pdf").exists()
