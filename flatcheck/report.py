@@ -829,6 +829,9 @@ def _page_lapping(fig, c, units):
     else:
         text.append((f"Removal rate as given by the user: {rate}.", "s"))
     text += [("Note: " + n + ".", "s") for n in c.lapping_notes]
+    if p.passes and p.predicted_flatness_um > rm.target_um:
+        text.append(("This lap cannot reach the target in one plan (its footprint is wider than the shapes to "
+                     "remove): survey again after the plan and plan again, or use a smaller lap.", "b"))
     text.append(("Lap wet or with extraction; see the cautions.", "s"))
     plot.text_block(ax, text, y0=y, fontsize=8, wrap_chars=110)
 

@@ -50,7 +50,7 @@ def test_report_writes_pdf_and_pictures(cli, plate_csv, tmp_path):
 
 
 def test_report_human_summary(cli, plate_csv, tmp_path):
-    code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf", "--units", "in")
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf", "--units", "in", "--window", "none")
     assert code == 0 and "r.pdf" in out and "pages" in out
 
 
@@ -123,26 +123,21 @@ def test_reduce_grade_and_report_state_the_same_numbers(cli, tmp_path):
 
 
 def test_lapping_page_takes_the_users_lap_and_rate(cli, plate_csv, tmp_path):
-    code, out, err = cli("report", plate_csv, "-o", tmp_path / "a.pdf", "--target-um", "1", "--json", "--window", "none")
+    common = ("--target-um", "1", "--json", "--window", "none", "--lap-diameter-mm", "100")
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "a.pdf", *common)
     assert code == 0, err
     assumed = json.loads(out)["lapping"]
-    assert assumed["rate_assumed"] is True and "1 µm per min" in assumed["lap"]
-    code, out, err = cli("report", plate_csv, "-o", tmp_path / "g.pdf", "--target-um", "1", "--json",
-                         "--window", "none", "--lap-diameter-mm", "100", "--rate-um-per-min", "0.5")
+    assert assumed["rate_assumed"] is True and assumed["lap"] == "round lap 100 mm, 1 µm per min"
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "g.pdf", *common, "--rate-um-per-min", "0.5")
     assert code == 0, err
     given = json.loads(out)["lapping"]
     assert given["rate_assumed"] is False and given["lap"] == "round lap 100 mm, 0.5 µm per min"
-    # Preston equation: removal = rate x time, so at half the rate the same lap needs twice the time
-    code, out, err = cli("report", plate_csv, "-o", tmp_path / "h.pdf", "--target-um", "1", "--json",
-                         "--window", "none", "--lap-diameter-mm", "100", "--rate-um-per-min", "1")
-    assert code == 0, err
-    assert given["total_time"] == pytest.approx(2 * json.loads(out)["lapping"]["total_time"], rel=1e-9)
-    res = subprocess.run([shutil.which("pdftotext"), "-layout", str(tmp_path / "a.pdf"), "-"], capture_output=True,
-                         text=True, check=True)
-    assert "removal rate is assumed" in res.stdout
-    res = subprocess.run([shutil.which("pdftotext"), "-layout", str(tmp_path / "g.pdf"), "-"], capture_output=True,
-                         text=True, check=True)
-    assert "Removal rate as given by the user: 0.5 µm per min" in res.stdout
+    # Preston equation: removal = rate x time, so at half the (assumed 1 µm/min) rate the same lap needs twice the time
+    assert given["total_time"] == pytest.approx(2 * assumed["total_time"], rel=1e-9)
+    text = {name: subprocess.run([shutil.which("pdftotext"), "-layout", str(tmp_path / name), "-"],
+                                 capture_output=True, text=True, check=True).stdout for name in ("a.pdf", "g.pdf")}
+    assert "removal rate is assumed" in text["a.pdf"] and "removal rate is assumed" not in text["g.pdf"]
+    assert "Removal rate as given by the user: 0.5 µm per min" in text["g.pdf"]
 
 
 def test_lap_options_without_a_target_are_a_one_line_error(cli, plate_csv, tmp_path):
