@@ -838,7 +838,7 @@ def _page_lapping(fig, c, units):
 
 def _page_sources(fig, c, units):
     from . import plot
-    from .cli.common import SAFETY_LINES
+    from .safety import SAFETY_LINES
 
     lines = [("Sources of the methods", "h")]
     lines += [f"• {s}" for s in c.sources]

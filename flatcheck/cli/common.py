@@ -13,6 +13,7 @@ import numpy as np
 from rich.console import Console
 
 from ..errors import InputFormatError
+from ..safety import SAFETY_LINES as _SAFETY_LINES
 
 __all__ = [
     "Units",
@@ -175,18 +176,5 @@ def window_option():
     )
 
 
-#: Cautions shown by commands whose work involves handling, lapping or air.
-SAFETY_LINES = {
-    "lifting": (
-        "Granite plates weigh hundreds of kilograms to tonnes: lift and move them only with rated lifting gear "
-        "and trained people, and support them on their marked points; follow local regulations."
-    ),
-    "dust": (
-        "Grinding or lapping granite can release respirable crystalline silica: use wet methods or local "
-        "extraction and respiratory protection as local rules require; never dry-sweep or blow dust with compressed air."
-    ),
-    "air": (
-        "Compressed air: depressurise before working on air bearings or lines, never point air at people, and follow "
-        "local codes for pressure equipment."
-    ),
-}
+#: Cautions, kept in the core (flatcheck.safety) so that the report uses the same words.
+SAFETY_LINES = _SAFETY_LINES

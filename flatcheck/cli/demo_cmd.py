@@ -60,7 +60,7 @@ def demo_cmd(
     con.print("[bold]flatcheck demo[/bold]: a fictional tool room's granite plate, surveyed before lapping")
     con.print(f"[dim]1. as 'flatcheck reduce {survey_copy} --uncertainty --seed {DEMO_SEED} --trials {DEMO_TRIALS}' "
               "states it:[/dim]", soft_wrap=True)
-    reduce_cmd._render(ev, ev.to_dict(), units.value, None)
+    reduce_cmd.render_reduction(ev, ev.to_dict(), units.value, None)
 
     con.print()
     con.print(f"[dim]2. graded as 'flatcheck grade {survey_copy} --standard {DEMO_STANDARD} --uncertainty "
@@ -71,7 +71,7 @@ def demo_cmd(
         length_basis=None, basis="formula", asme_form="inch",
     )
     grading["input"] = str(survey_copy)
-    grade_cmd._render(grading, units.value)
+    grade_cmd.render_grades(grading, units.value)
 
     content, files = make_report(ev, output=pdf, png=None, units=units.value, show_progress=True,
                                  standard=DEMO_STANDARD)

@@ -237,7 +237,7 @@ _SHORT_STATUS = {"secondary source": "secondary", "given by the user": "user"}
 _VERDICT_STYLE = {"conforms": "green", "does-not-conform": "red", "undecided": "yellow"}
 
 
-def _render(report: dict, units: str) -> None:
+def render_grades(report: dict, units: str) -> None:
     con = stdout_console()
     hu = height_unit_label(units)
 
@@ -362,6 +362,6 @@ def grade_cmd(
     if json_out:
         emit_json(report)
     else:
-        _render(report, units_value)
+        render_grades(report, units_value)
     if fail_on_reject and report["reject"]:
         raise typer.Exit(code=int(ExitStatus.REJECT))

@@ -67,7 +67,7 @@ def reduce_cmd(
     if json_out:
         emit_json(doc)
         return
-    _render(ev, doc, units.value, map_out)
+    render_reduction(ev, doc, units.value, map_out)
 
 
 def _fmt(v, units):
@@ -76,7 +76,7 @@ def _fmt(v, units):
     return f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
 
 
-def _render(ev, doc, units, map_out) -> None:
+def render_reduction(ev, doc, units, map_out) -> None:
     con = stdout_console()
     hu = height_unit_label(units)
     f = doc["flatness"]
@@ -108,8 +108,13 @@ def _render(ev, doc, units, map_out) -> None:
             f"{_fmt(lo, units)} to {_fmt(hi, units)} {hu}"
         )
     con.print(line)
-    if ev.uncertainty_note:
-        con.print(f"  [dim]{ev.uncertainty_note}[/dim]")
+    if ev.uncertainty is not None:
+        mz = ev.uncertainty.minimum_zone
+        con.print(
+            f"  [dim]Monte Carlo (JCGM 101), {mz.trials} trials, seed {mz.seed}: {ev.uncertainty.basis}; "
+            f"U = 2 x standard deviation; simulated mean {_fmt(mz.mean_um, units)} {hu} "
+            f"(random errors inflate a zone)[/dim]"
+        )
     lf = doc.get("local_flatness")
     if lf:
         con.print(
