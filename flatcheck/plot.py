@@ -916,3 +916,30 @@ def flow_table(ax, y: float, rows, *, col_x, col_labels=None, fontsize: float = 
         y -= lh * (1 + 0.93 * (n_lines - 1)) + 0.2 * lh
         rule(y + 0.25 * lh, 0.3)
     return y - 0.3 * lh
+
+
+def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92)):
+    """The carriage path, rail profile, pitch and local flatness of an air-bearing result.
+
+    Parameters
+    ----------
+    fig : matplotlib Figure
+    result : flatcheck.bearing.BearingResult
+        Heights in µm, positions in mm, pitch in arcsec.
+    units : {"um", "in"}
+        Display units (µm or µin).
+    rect : (left, bottom, right, top)
+        Part of the figure the panels fill (figure fractions).
+    """
+    m = result.motion
+    st = list(result.stations)
+    local = np.array([s.local_flatness_um for s in st]) if len(st) == len(m.x_mm) else None
+    u = "µm" if units == "um" else "µin"
+    k = 1.0 if units == "um" else 1.0 / 0.0254  # 1 µin = 0.0254 µm exactly
+    return carriage_path(
+        fig, m.x_mm, m.raw_profile_um, m.path_um, pitch=m.pitch_path_arcsec, pitch_unit="arcsec",
+        local_um=local, local_limit_um=result.limit_um, units=units,
+        title=(f"carriage over its travel: path straightness {m.straightness_um * k:.3f} {u} "
+               f"(surface alone {m.raw_straightness_um * k:.3f} {u})"),
+        rect=rect,
+    )

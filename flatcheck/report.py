@@ -780,14 +780,7 @@ def _page_bearing(fig, c, units):
     from . import plot
 
     b = c.bearing
-    m = b.motion
-    st = [s for s in b.stations]
-    local = np.array([s.local_flatness_um for s in st]) if len(st) == len(m.x_mm) else None
-    plot.carriage_path(fig, m.x_mm, m.raw_profile_um, m.path_um, pitch=m.pitch_path_arcsec, pitch_unit="arcsec",
-                       local_um=local, local_limit_um=b.limit_um, units=units,
-                       title=f"carriage over its travel: path straightness {_h(m.straightness_um, units)} "
-                             f"(surface alone {_h(m.raw_straightness_um, units)})",
-                       rect=(0.1, 0.50, 0.88, 0.90))
+    plot.bearing_motion(fig, b, units=units, rect=(0.1, 0.50, 0.88, 0.90))
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.36])
     rows = []
     for ch in b.checks:

@@ -226,6 +226,9 @@ def bearing_cmd(
         True, "--film-pivot/--film-fixed", help="Porous-pad film: pads on ball pivots (tilt free) or held level."
     ),
     film_mesh: int = typer.Option(64, "--film-mesh", help="Porous-pad film: mesh cells along each side of a pad."),
+    plot_out: Path = typer.Option(
+        None, "--plot", help="Write a PNG of the carriage path, rail profile, pitch and local flatness along the travel."
+    ),
 ) -> None:
     """Judge the surface for an air-bearing pad or carriage: local flatness against a fraction of the gap,
     least clearance, and the carriage's straightness, pitch and roll over the travel."""
@@ -268,6 +271,12 @@ def bearing_cmd(
         film, result = _film(surface, carriage, result, supply_kpa, permeability_m2, layer_mm, ambient_kpa,
                              load_n, film_pivot, film_mesh, interp.value)
     label = surface.label or input.name
+    if plot_out is not None:
+        from .. import plot
+
+        fig = plot.new_figure((11.0, 7.0))
+        plot.bearing_motion(fig, result, units=units.value)
+        plot.save_png(fig, plot_out, dpi=120)
     if json_out:
         data = result_json(result, input_path=input, label=label, units=units.value)
         if film is not None:
@@ -277,6 +286,8 @@ def bearing_cmd(
         render_summary(result, label=label, units=units.value)
         if film is not None:
             _render_film(film, units=units.value)
+        if plot_out is not None:
+            stdout_console().print(f"picture written to {plot_out}")
 
 
 def _film(surface, carriage, result, supply_kpa, permeability_m2, layer_mm, ambient_kpa, load_n, pivot, mesh, method):

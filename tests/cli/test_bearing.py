@@ -149,3 +149,18 @@ def test_bad_options_one_line(cli, sine_csv, args, match):
 def test_missing_input(cli, tmp_path):
     code, out, err = cli("bearing", tmp_path / "nothing.csv", "--pad", "100x60", "--gap-um", "8")
     one_line_error(code, out, err)
+
+
+def test_plot_of_the_carriage_path(cli, sine_csv, tmp_path):
+    png = tmp_path / "carriage.png"
+    code, out, err = cli("bearing", sine_csv, "--pad", "60x40", "--gap-um", "10", "--plot", png)
+    assert code == 0, err
+    import matplotlib.image as mpimg
+    import numpy as np
+
+    img = mpimg.imread(png)
+    assert img.shape[0] > 500 and img.shape[1] > 800
+    grey = img[..., :3].mean(axis=2)
+    assert (grey < 0.5).mean() > 0.005  # lines and text drawn, not a blank page
+    code, out, err = cli("bearing", sine_csv, "--pad", "60x40", "--gap-um", "10", "--plot", tmp_path / "no" / "x.png")
+    assert code == 2 and "does not exist" in err and err.count("\n") == 1
