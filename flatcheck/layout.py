@@ -37,6 +37,7 @@ from .survey import Instrument, Station, Survey, SurveyLine, Surface
 
 __all__ = [
     "DEFAULT_MARGIN_MM",
+    "MAX_READINGS_PER_PASS",
     "UNION_JACK_LINES",
     "ReadingStep",
     "LayoutSummary",
@@ -213,6 +214,35 @@ def _margin(value, flag: str = "margin_mm") -> float:
     return v
 
 
+#: Most readings one pass of a planned survey may need. A layout beyond this is almost always a typing
+#: slip (a foot spacing in the wrong unit); refusing it early avoids building and printing hundreds of
+#: thousands of stations. A 3000 x 1500 mm plate on a 25 mm grid needs about 14 000 readings.
+MAX_READINGS_PER_PASS = 20000
+
+
+def _check_room(L: float, W: float, m: float) -> None:
+    """Refuse a margin that leaves no surface to survey."""
+    short = min(L, W)
+    if 2 * m >= short:
+        which = "length" if L <= W else "width"
+        raise LayoutError(
+            f"a margin of {m:g} mm on each side leaves nothing of the {short:g} mm {which} to survey",
+            where="margin_mm",
+            fix=f"use a margin under {short / 2:g} mm (typically 25-38 mm)",
+        )
+
+
+def _check_readings(n_readings: int, B: float) -> None:
+    """Refuse a layout with more readings than anyone reads by hand (see MAX_READINGS_PER_PASS)."""
+    if n_readings > MAX_READINGS_PER_PASS:
+        raise LayoutError(
+            f"a foot spacing of {B:g} mm gives {n_readings} readings per pass, more than the "
+            f"{MAX_READINGS_PER_PASS} flatcheck plans",
+            where="foot_spacing_mm",
+            fix="check the foot spacing is in mm (instrument bases are usually 50-300 mm)",
+        )
+
+
 def _steps_fitting(available_mm: float, base_mm: float, *, even: bool) -> int:
     n = int(math.floor(available_mm / base_mm + 1e-9))
     if even and n % 2:
@@ -311,6 +341,7 @@ def plan_union_jack(
     W = _positive(width_mm, "width", "width_mm")
     B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm")
     m = _margin(margin_mm)
+    _check_room(L, W, m)
     ax, ay = L - 2 * m, W - 2 * m
     if steps is None:
         nx = _steps_fitting(ax, B, even=True)
@@ -344,6 +375,7 @@ def plan_union_jack(
         q = diag / B
         nd = max(2, 2 * int(round(q / 2.0)))
     bd = diag / nd
+    _check_readings(3 * nx + 3 * ny + 2 * nd, B)
     named = {
         "SW": (x0, y0), "SE": (x1, y0), "NE": (x1, y1), "NW": (x0, y1),
         "S": (xm, y0), "E": (x1, ym), "N": (xm, y1), "W": (x0, ym), "C": (xm, ym),
@@ -434,6 +466,7 @@ def plan_grid(
     W = _positive(width_mm, "width", "width_mm")
     B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm")
     m = _margin(margin_mm)
+    _check_room(L, W, m)
     ax, ay = L - 2 * m, W - 2 * m
     if steps is None:
         nx = _steps_fitting(ax, B, even=False)
@@ -462,6 +495,10 @@ def plan_grid(
             where="diagonals",
             fix=f"use steps {min(nx, ny)} x {min(nx, ny)}, plan a Union Jack, or use a level (gravity sees twist)",
         )
+    if instrument.reads_heights:
+        _check_readings((nx + 1) * (ny + 1), B)
+    else:
+        _check_readings((ny + 1) * nx + (nx + 1) * ny + (2 * nx if diagonals else 0), B)
     x0 = (L - nx * B) / 2.0
     y0 = (W - ny * B) / 2.0
     xs = [x0 + i * B for i in range(nx + 1)]

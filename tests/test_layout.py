@@ -221,3 +221,26 @@ def test_union_jack_property(length, width, base, margin):
     for stn in s.stations:
         assert margin - 1e-6 <= stn.x_mm <= length - margin + 1e-6
         assert margin - 1e-6 <= stn.y_mm <= width - margin + 1e-6
+
+
+def test_margin_leaving_no_room_is_named():
+    # 2 x 400 mm of margin on a 630 mm width leaves nothing: the margin is the culprit, not the spacing
+    for plan in (plan_union_jack, plan_grid):
+        with pytest.raises(LayoutError) as exc:
+            plan(1000, 630, 100, margin_mm=400)
+        assert exc.value.where == "margin_mm" and "315" in exc.value.fix
+
+
+def test_reading_cap_counts_what_is_read():
+    from flatcheck.layout import MAX_READINGS_PER_PASS
+
+    # Union Jack readings = 3 n_x + 3 n_y + 2 n_d (two diagonals, three lines each way); 1000 x 630 at 100 mm:
+    # 3*8 + 3*4 + 2*8 = 52 (the count the plan command prints, checked by hand in tests/cli/test_plan.py)
+    s = plan_union_jack(1000, 630, 100)
+    assert summarize_layout(s).readings_per_pass == 52
+    # a grid of (n_x+1) rows of n_x steps and (n_x+1) columns: 2 n (n+1) readings; n = 99 -> 19 800, n = 100 -> 20 200
+    ok = plan_grid(99 * 10 + 60, 99 * 10 + 60, 10)
+    assert summarize_layout(ok).readings_per_pass == 2 * 99 * 100 <= MAX_READINGS_PER_PASS
+    with pytest.raises(LayoutError) as exc:
+        plan_grid(100 * 10 + 60, 100 * 10 + 60, 10)
+    assert exc.value.where == "foot_spacing_mm" and "20200" in exc.value.message

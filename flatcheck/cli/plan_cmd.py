@@ -8,7 +8,7 @@ from pathlib import Path
 import typer
 from rich.table import Table
 
-from ..errors import OutputError
+from ..errors import LayoutError, OutputError
 from ..io.survey_toml import write_survey
 from ..layout import DEFAULT_MARGIN_MM, plan_grid, plan_union_jack, reading_sequence, summarize_layout
 from ..survey import Instrument, Surface
@@ -32,6 +32,28 @@ class Kind(str, enum.Enum):
 class Reports(str, enum.Enum):
     mirror_tilt = "mirror-tilt"
     beam_deviation = "beam-deviation"
+
+
+#: Layout parameter -> command-line option, for error messages.
+_OPTION_OF = {
+    "length_mm": "--length-mm",
+    "width_mm": "--width-mm",
+    "foot_spacing_mm": "--foot-spacing-mm",
+    "margin_mm": "--margin-mm",
+    "diagonals": "--diagonals",
+}
+
+
+def _check_output_path(path: Path) -> None:
+    """Refuse an output path whose folder is missing or which is a folder (before doing any work)."""
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(
+            f"cannot write {path}: folder {folder} does not exist", where="--output",
+            fix="create the folder or choose another path",
+        )
+    if path.is_dir():
+        raise OutputError(f"cannot write {path}: it is a folder", where="--output", fix="give a file name, e.g. survey.toml")
 
 
 _DEFAULT_UNIT = {"autocollimator": "arcsec", "level": "um/m", "differential-level": "um/m", "indicator": "um"}
@@ -65,19 +87,25 @@ def plan_cmd(
         raise InputValueError("--reports beam-deviation applies to autocollimators only", where="--reports", fix="omit it")
     inst = Instrument(kind, unit, reports=reports.value)
     surface = Surface(description, length_mm, width_mm, ident=ident, material=material)
-    if pattern is Pattern.union_jack:
-        if diagonals:
-            from ..errors import InputValueError
-
-            raise InputValueError("--diagonals applies to grids only", where="--diagonals", fix="omit it (a Union Jack has them)")
-        survey = plan_union_jack(length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface)
-    else:
-        survey = plan_grid(
-            length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface, diagonals=diagonals
-        )
-    if output is not None:
-        if output.exists() and not force:
+    if output is not None:  # before any work: a bad output path is reported first
+        if output.exists() and not force and not output.is_dir():
             raise OutputError(f"{output} exists", where="--output", fix="choose another name or add --force to overwrite it")
+        _check_output_path(output)
+    try:
+        if pattern is Pattern.union_jack:
+            if diagonals:
+                from ..errors import InputValueError
+
+                raise InputValueError("--diagonals applies to grids only", where="--diagonals", fix="omit it (a Union Jack has them)")
+            survey = plan_union_jack(length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface)
+        else:
+            survey = plan_grid(
+                length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface, diagonals=diagonals
+            )
+    except LayoutError as exc:
+        # the layout names its parameters; on the command line they are options
+        raise LayoutError(exc.message, where=_OPTION_OF.get(exc.where, exc.where), fix=exc.fix) from None
+    if output is not None:
         write_survey(output, survey)
     summary = summarize_layout(survey)
     seq = reading_sequence(survey)

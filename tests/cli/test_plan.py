@@ -69,3 +69,57 @@ def test_plan_bad_input(cli, args, needle):
     code, out, err = cli("plan", *args)
     _one_line_error(code, out, err)
     assert needle in err
+
+
+# ---------------------------------------------------------------- regressions found by trying the command as a new user
+
+
+@pytest.mark.parametrize(
+    "args, option, needle",
+    [
+        # layout errors name the command-line option, not the library's parameter name
+        (("--length-mm", 0, "--width-mm", 630, "--foot-spacing-mm", 100), "--length-mm", "positive"),
+        (("--length-mm", 1000, "--width-mm", -630, "--foot-spacing-mm", 100), "--width-mm", "positive"),
+        (("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", "nan"), "--foot-spacing-mm", "positive"),
+        # a margin wider than half the plate: said so, not "use a foot spacing of at most 0 mm"
+        (("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--margin-mm", 400), "--margin-mm", "315"),
+        (("--pattern", "grid", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--diagonals"),
+         "--diagonals", "square"),
+    ],
+)
+def test_plan_errors_name_the_option(cli, args, option, needle):
+    code, out, err = cli("plan", *args)
+    _one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {option}:") and needle in err
+
+
+def test_plan_refuses_absurd_foot_spacing_quickly(cli):
+    # 0.01 mm (a slip for 100 mm) once built ~670 000 readings and printed 9 MB over 30 s.
+    # 1000 x 630 mm less 30 mm margins: 94 000 x 57 000 steps of 0.01 mm -> far above the cap.
+    import time
+
+    t0 = time.perf_counter()
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 0.01)
+    _one_line_error(code, out, err)
+    assert "--foot-spacing-mm" in err and "readings per pass" in err
+    assert time.perf_counter() - t0 < 5.0
+
+
+def test_plan_output_checked_before_work(cli, tmp_path):
+    # a folder given as the output file, and a missing folder: one-line errors naming --output
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", tmp_path)
+    _one_line_error(code, out, err)
+    assert "--output" in err and "folder" in err
+    code, out, err = cli(
+        "plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", tmp_path / "no" / "x.toml"
+    )
+    _one_line_error(code, out, err)
+    assert "does not exist" in err
+
+
+def test_plan_failure_keeps_existing_file(cli, tmp_path):
+    p = tmp_path / "exists.toml"
+    p.write_text("keep me")
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 0, "-o", p, "--force")
+    _one_line_error(code, out, err)
+    assert p.read_text() == "keep me"
