@@ -410,7 +410,9 @@ class LapModel:
                 f"lap size {self.length_mm} x {self.width_mm} mm must be > 0", fix="give the lap length and width"
             )
         if not (np.isfinite(self.rate_um) and self.rate_um > 0):
-            raise InputValueError(f"removal rate {self.rate_um} µm must be > 0", fix="give your calibrated rate")
+            raise InputValueError(
+                f"removal rate {self.rate_um} µm per {self.time_unit} must be > 0", fix="give your calibrated rate"
+            )
         if self.time_unit not in ("min", "pass"):
             raise InputValueError(f"unknown time unit {self.time_unit!r}", fix="use 'min' or 'pass'")
         if self.strokes_per_pass is not None and (self.time_unit != "pass" or self.strokes_per_pass < 1):

@@ -9,7 +9,7 @@ from pathlib import Path
 import typer
 from rich.table import Table
 
-from ..errors import InputValueError
+from ..errors import InputValueError, OutputError
 from ..lapping import LapModel, LapPlan, least_removal, plan_lapping
 from ..units import height_unit_label, um_to
 from ._app import app
@@ -37,7 +37,10 @@ def resolve_target(hm, target_um: float | None, target_grade: str | None) -> tup
             f"grade {target_grade!r} is not STANDARD:GRADE", where="--target-grade", fix="e.g. din-876:0 or asme-b89.3.7:AA"
         )
     size = plate_size(hm)
-    tol = tolerance(std.strip(), grade.strip(), size.length_mm, size.width_mm)
+    try:
+        tol = tolerance(std.strip(), grade.strip(), size.length_mm, size.width_mm)
+    except InputValueError as exc:  # the tables name --standard/--grade; here both come from --target-grade
+        raise InputValueError(exc.message, where="--target-grade", fix=exc.fix) from None
     where = "the surface's stated size" if size.source == "surface" else "the extent of the measured points"
     return tol.tolerance_um, (
         f"{tol.standard} grade {tol.grade} for {size.length_mm:g} x {size.width_mm:g} mm ({where}; {tol.status})"
@@ -45,13 +48,63 @@ def resolve_target(hm, target_um: float | None, target_grade: str | None) -> tup
 
 
 def _parse_size(text: str) -> tuple[float, float]:
-    parts = text.lower().replace("×", "x").split("x")
+    parts = text.lower().replace("×", "x").replace("mm", "").split("x")
     try:
         if len(parts) != 2:
             raise ValueError
-        return float(parts[0]), float(parts[1])
+        length, width = float(parts[0]), float(parts[1])
     except ValueError:
         raise InputValueError(f"lap size {text!r} is not LENGTHxWIDTH in mm", where="--lap-size-mm", fix="e.g. 200x100") from None
+    if not (math.isfinite(length) and math.isfinite(width) and length > 0 and width > 0):
+        raise InputValueError(
+            f"lap size {text!r} must be two positive lengths", where="--lap-size-mm", fix="e.g. 200x100 (mm)"
+        )
+    return length, width
+
+
+def check_option(value, option: str, *, minimum: float = 0.0, strict: bool = True, what: str = "a number") -> None:
+    """Refuse an option value that is not finite or not above (``strict``) / at least ``minimum``.
+
+    ``None`` (option not given) passes. The message names the option, so the user knows which one to fix.
+    """
+    if value is None:
+        return
+    ok = math.isfinite(value) and (value > minimum if strict else value >= minimum)
+    if not ok:
+        rel = ">" if strict else ">="
+        raise InputValueError(f"{value:g} is not allowed", where=option, fix=f"give {what} {rel} {minimum:g}")
+
+
+def check_output(path: Path | None, option: str) -> None:
+    """Refuse, before any work, an output path whose folder is missing or which is a folder."""
+    if path is None:
+        return
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(
+            f"cannot write {path}: folder {folder} does not exist", where=option, fix="create the folder or choose another path"
+        )
+    if path.is_dir():
+        raise OutputError(f"cannot write {path}: it is a folder", where=option, fix="give a file name")
+
+
+def check_lap_fits(hm, lap: LapModel, option: str) -> None:
+    """Refuse a lap that covers the whole surface from every position: it removes evenly and cannot level anything."""
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    span_x, span_y = xmax - xmin, ymax - ymin
+    if lap.shape == "round":
+        too_big = lap.diameter_mm >= 2.0 * math.hypot(span_x, span_y)
+        size = f"{lap.diameter_mm:g} mm"
+    else:
+        too_big = lap.length_mm >= 2.0 * span_x and lap.width_mm >= 2.0 * span_y
+        size = f"{lap.length_mm:g} x {lap.width_mm:g} mm"
+    if too_big:
+        raise InputValueError(
+            f"a {size} lap is more than twice the size of the surveyed area ({span_x:g} x {span_y:g} mm): it would "
+            "cover everything wherever it stands and cannot lower the high spots alone",
+            where=option,
+            fix="give the lap's real size in mm",
+        )
 
 
 def build_lap(hm, diameter_mm, size_mm, rate_per_min, rate_per_pass, strokes_per_pass, stroke_mm) -> tuple[LapModel, list]:
@@ -133,7 +186,26 @@ def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str
 
 
 def _fmt_time(t: float, unit: str) -> str:
-    return f"{t:.1f} min" if unit == "min" else f"{t:.2f} passes"
+    # two significant figures below 10: a pass of a few seconds must not read "0.0 min"
+    if unit == "min":
+        return f"{t:.1f} min" if t >= 10 else f"{t:.2g} min"
+    return f"{t:.1f} passes" if t >= 10 else f"{t:.2g} passes"
+
+
+def _fmt_extent(extent_mm) -> str:
+    """``x0-x1, y0-y1`` in whole mm (a single spot as one number)."""
+    x0, x1, y0, y1 = (float(v) for v in extent_mm)
+
+    def span(a, b):
+        return f"{a:.0f}" if round(a) == round(b) else f"{a:.0f}-{b:.0f}"
+
+    return f"{span(x0, x1)}, {span(y0, y1)}"
+
+
+def _fmt_cell(t: float) -> str:
+    if t <= 0:
+        return "."
+    return f"{t:.1f}" if t >= 0.05 else "<0.1"
 
 
 def chart_text(plan: LapPlan) -> str:
@@ -144,10 +216,10 @@ def chart_text(plan: LapPlan) -> str:
     lines = [f"Time per cell ({unit}); columns A.. from west, rows 1.. from south; north is up"]
     lines.append("    " + "".join(f"{c:>{width}}" for c in ch.columns))
     for j in range(len(ch.rows) - 1, -1, -1):
-        cells = "".join(f"{(f'{t:.1f}' if t > 0 else '.'):>{width}}" for t in ch.time[j])
+        cells = "".join(f"{_fmt_cell(t):>{width}}" for t in ch.time[j])
         lines.append(f"{ch.rows[j]:>3} {cells}")
-    edges_x = ", ".join(f"{v:g}" for v in ch.x_edges_mm)
-    edges_y = ", ".join(f"{v:g}" for v in ch.y_edges_mm)
+    edges_x = ", ".join(f"{round(float(v), 1):g}" for v in ch.x_edges_mm)
+    edges_y = ", ".join(f"{round(float(v), 1):g}" for v in ch.y_edges_mm)
     lines.append(f"cell edges x (mm): {edges_x}")
     lines.append(f"cell edges y (mm): {edges_y}")
     return "\n".join(lines)
@@ -173,14 +245,16 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
         f"{'#':>3}  {'zone':<10} {'centre x, y (mm)':<18} {'extent x, y (mm)':<26} {'depth':>12}  time",
     ]
     for p in plan.passes:
-        ext = f"{p.extent_mm[0]:g}-{p.extent_mm[1]:g}, {p.extent_mm[2]:g}-{p.extent_mm[3]:g}"
+        ext = _fmt_extent(p.extent_mm)
         t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
         out.append(
             f"{p.order:>3}  {p.zone:<10} {f'{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}':<18} {ext:<26} {h(p.depth_um):>12}  {t}"
         )
     if not plan.passes:
         out.append("  none: the surface is already within the target")
-    out += ["", chart_text(plan), ""]
+    else:
+        out += ["", chart_text(plan)]
+    out.append("")
     out += [f"Note: {n}" for n in notes]
     out.append(f"Caution: {SAFETY_LINES['dust']}")
     return "\n".join(out) + "\n"
@@ -212,14 +286,14 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
         table.add_row(
             str(p.order), p.zone, f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
-            f"{p.extent_mm[0]:g}-{p.extent_mm[1]:g}, {p.extent_mm[2]:g}-{p.extent_mm[3]:g}",
+            _fmt_extent(p.extent_mm),
             f"{um_to(p.depth_um, units):.3f}", t,
         )
     if plan.passes:
         con.print(table)
+        con.print(chart_text(plan), markup=False)
     else:
         con.print("No passes: the surface is already within the target.")
-    con.print(chart_text(plan), markup=False)
     for n in notes:
         con.print(f"Note: {n}", markup=False)
     con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['dust']}")
@@ -240,17 +314,32 @@ def lap_cmd(
     cell_mm: float = typer.Option(None, "--cell-mm", help="Chart cell size (mm); default the lap size."),
     levels: int = typer.Option(4, "--levels", help="Time steps the dwell map is rounded to (more = more passes)."),
     smoothing: float = typer.Option(0.01, "--smoothing", help="Regularisation of the dwell deconvolution."),
-    removal_csv: Path = typer.Option(None, "--removal-csv", help="Write the least-removal map (x_mm,y_mm,remove_um)."),
-    plan_out: Path = typer.Option(None, "--plan-out", help="Write the plan and cell chart as a text file for the bench."),
+    removal_csv: Path = typer.Option(None, "--removal-csv", help="Write the least-removal map (x_mm,y_mm,remove_um); replaced if it exists."),
+    plan_out: Path = typer.Option(None, "--plan-out", help="Write the plan and cell chart as a text file for the bench; replaced if it exists."),
     units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
 ) -> None:
     """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness."""
     from ..io.atomic import write_text_atomic
 
+    # options first, so a typing slip is reported before the survey is reduced
+    check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
+    check_option(rate_um_per_min, "--rate-um-per-min", what="a removal rate in µm/min")
+    check_option(rate_um_per_pass, "--rate-um-per-pass", what="a removal in µm per pass")
+    check_option(strokes_per_pass, "--strokes-per-pass", minimum=1, strict=False, what="a whole number of strokes")
+    check_option(stroke_mm, "--stroke-mm", strict=False, what="a stroke length in mm")
+    check_option(step_mm, "--step-mm", what="a grid pitch in mm")
+    check_option(cell_mm, "--cell-mm", what="a cell size in mm")
+    check_option(levels, "--levels", minimum=1, strict=False, what="a whole number of levels")
+    check_option(smoothing, "--smoothing", strict=False, what="a regularisation weight")
+    if lap_size_mm is not None:
+        _parse_size(lap_size_mm)
+    check_output(removal_csv, "--removal-csv")
+    check_output(plan_out, "--plan-out")
     hm, _ = load_surface(input)
     target, source = resolve_target(hm, target_um, target_grade)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass, stroke_mm)
+    check_lap_fits(hm, lap, "--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm")
     with progress_bar("planning", 2, enabled=sys.stderr.isatty() and not json_out) as advance:
         lr = least_removal(hm, target)
         advance(1)

@@ -132,3 +132,81 @@ def test_bad_files_one_line(cli, tmp_path, hill_csv):
     bad.write_text("x_mm,y_mm,height_um\n0,0,1\n1,0,abc\n", encoding="utf-8")
     one_line_error(*cli("lap", bad, "--target-um", "1"))
     one_line_error(*cli("lap", hill_csv, "--target-um", "1", "--plan-out", tmp_path / "nofolder" / "p.txt"))
+
+
+# ---------------------------------------------------------------- regressions found by trying the command as a new user
+
+
+@pytest.mark.parametrize(
+    "args, option",
+    [
+        (("--lap-diameter-mm", "0"), "--lap-diameter-mm"),
+        (("--lap-diameter-mm", "nan"), "--lap-diameter-mm"),
+        (("--lap-size-mm", "0x80"), "--lap-size-mm"),
+        (("--lap-size-mm", "nanx80"), "--lap-size-mm"),
+        (("--rate-um-per-min", "0"), "--rate-um-per-min"),
+        (("--rate-um-per-pass", "-0.1"), "--rate-um-per-pass"),
+        (("--rate-um-per-pass", "0.1", "--strokes-per-pass", "0"), "--strokes-per-pass"),
+        (("--stroke-mm", "-5"), "--stroke-mm"),
+        (("--step-mm", "0"), "--step-mm"),
+        (("--cell-mm", "0"), "--cell-mm"),
+        (("--levels", "-2"), "--levels"),
+        (("--smoothing", "nan"), "--smoothing"),
+        # a lap that covers the whole 600 x 400 mm area from anywhere (2 x the 721 mm diagonal) levels nothing
+        (("--lap-diameter-mm", "5000"), "--lap-diameter-mm"),
+        (("--lap-size-mm", "1300x900"), "--lap-size-mm"),
+    ],
+)
+def test_bad_option_names_the_option(cli, hill_csv, args, option):
+    code, out, err = cli("lap", hill_csv, "--target-um", "1", *args)
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {option}:")
+
+
+def test_bad_grade_names_target_grade(cli, hill_csv):
+    # the tolerance tables said "--grade", an option lap does not have
+    code, out, err = cli("lap", hill_csv, "--target-grade", "din-876:7")
+    one_line_error(code, out, err)
+    assert err.startswith("flatcheck: error: --target-grade:") and "00, 0, 1, 2, 3" in err
+
+
+def test_lap_of_usable_size_is_accepted(cli, hill_csv):
+    # 1000 mm is larger than the 600 x 400 mm area but less than twice its diagonal: still a (poor) plan, no error
+    code, out, err = cli("lap", hill_csv, "--target-um", "1", "--lap-diameter-mm", "1000", "--json")
+    assert code == 0, err
+
+
+def test_no_output_written_when_another_output_is_bad(cli, hill_csv, tmp_path):
+    # the removal map used to be written before the plan file's missing folder was found
+    rem = tmp_path / "removal.csv"
+    code, out, err = cli(
+        "lap", hill_csv, "--target-um", "0.8", "--removal-csv", rem, "--plan-out", tmp_path / "nofolder" / "p.txt"
+    )
+    one_line_error(code, out, err)
+    assert "--plan-out" in err and not rem.exists()
+
+
+def test_pass_table_readable(cli, hill_csv, tmp_path):
+    plan = tmp_path / "plan.txt"
+    code, out, err = cli("lap", hill_csv, "--target-um", "0.8", "--lap-diameter-mm", "100", "--plan-out", plan, "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    text = plan.read_text(encoding="utf-8")
+    for p in doc["passes"]:
+        # extents in whole mm (no 463.636-463.636), and no pass reads "0.0 min"
+        x0, x1, y0, y1 = p["extent_mm"]
+        xs = f"{x0:.0f}" if round(x0) == round(x1) else f"{x0:.0f}-{x1:.0f}"
+        ys = f"{y0:.0f}" if round(y0) == round(y1) else f"{y0:.0f}-{y1:.0f}"
+        assert f"{xs}, {ys}" in text
+    assert " 0.0 min" not in text and ".636" not in text
+    # cell edges to 0.1 mm at most
+    edges = [ln for ln in text.splitlines() if ln.startswith("cell edges")]
+    assert edges and all(len(v.split(".")[-1]) <= 1 for ln in edges for v in ln.split(": ")[1].split(", ") if "." in v)
+
+
+def test_target_already_met_prints_no_empty_chart(cli, hill_csv, tmp_path):
+    plan = tmp_path / "plan.txt"
+    code, out, err = cli("lap", hill_csv, "--target-um", "50", "--plan-out", plan)
+    assert code == 0, err
+    assert "already within the target" in out and "Time per cell" not in out
+    assert "Time per cell" not in plan.read_text(encoding="utf-8")
