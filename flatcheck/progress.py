@@ -103,11 +103,14 @@ class DwellLog:
         Centres of the lap's working spots (mm).
     minutes : ndarray, shape (k,)
         Time spent about each spot (min), >= 0.
+    source : str
+        Where the log came from (a file name), named in error messages; may be empty.
     """
 
     x_mm: np.ndarray
     y_mm: np.ndarray
     minutes: np.ndarray
+    source: str = ""
 
     def __post_init__(self):
         x = np.asarray(self.x_mm, float).ravel()
@@ -263,7 +266,10 @@ def compare_surveys(
             raise InputValueError("a dwell log is in minutes; give the lap's size without a rate per pass")
         dwell_min = log.total_min
         if dwell_min <= 0:
-            raise InputValueError("the dwell log's total time is zero")
+            raise InputValueError(
+                "the dwell log's total time is zero", where=log.source or None,
+                fix="log the minutes the lap spent about each spot",
+            )
         rate, rms = _fit_rate(x, y, -change, w, lap, log)
     vrate = None
     if dwell_min is not None:
@@ -310,7 +316,8 @@ def _fit_rate(x, y, lost_um, w, lap: LapModel, log: DwellLog):
     shape = under.astype(float) @ log.minutes
     if not (shape > 0).any():
         raise InputValueError(
-            "no surveyed node lies under the lap at any logged position", fix="check the log's positions (mm)"
+            "no surveyed node lies under the lap at any logged position", where=log.source or None,
+            fix="check the log's positions (mm from the surface's south-west corner) and the lap size",
         )
     xm, ym = x.mean(), y.mean()
     span = max(float(np.ptp(x)), float(np.ptp(y)), 1e-12)

@@ -8,11 +8,24 @@ import typer
 
 from ..errors import InputValueError
 from ..lapping import LapModel
-from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys
+from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, Units, emit_json, load_surface, stdout_console
-from .lap_cmd import _parse_size, resolve_target
+from .common import SAFETY_LINES, Units, emit_json, load_input, stdout_console
+from .lap_cmd import _parse_size, check_option, resolve_target
+
+
+def cautions(pr: Progress) -> list:
+    """Warnings about results that suggest a mistake in the input (files swapped, nothing removed)."""
+    out = []
+    if pr.flatness_after_um > pr.flatness_before_um * 1.01:
+        out.append(
+            "the surface is less flat after the session than before: if that is unexpected, check the files are "
+            "given as BEFORE AFTER (a rate calibrated from swapped files is meaningless)"
+        )
+    if pr.dwell_min is not None and not pr.removed_volume_mm3 > 0:
+        out.append("nothing was removed between the two surveys, so no removal rate can be calibrated")
+    return out
 
 
 def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | None, target_source, units: str) -> dict:
@@ -42,7 +55,7 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
         "target_source": target_source,
         "remaining_volume_mm3": pr.remaining_volume_mm3,
         "sessions_to_target": pr.sessions_to_target,
-        "notes": [
+        "notes": cautions(pr) + [
             "each survey is referred to its own least-squares plane; the removal is the least consistent with the "
             "change (untouched areas read zero) and is a lower bound if the whole surface was lapped"
         ],
@@ -61,9 +74,24 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
     con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
     con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")
     con.print(f"Removed {pr.removed_volume_mm3:.4g} mm^3, deepest {h(pr.max_removed_um)}")
+    for c in cautions(pr)[:1]:
+        if c.startswith("the surface is less flat"):
+            con.print(f"[bold]Warning:[/bold] {c}")
     if pr.dwell_min is not None:
         con.print(f"Lapping time {pr.dwell_min:g} min: {pr.volume_rate_mm3_per_min:.4g} mm^3/min")
-    if pr.rate_um_per_min is not None:
+    if pr.dwell_min is not None and not pr.removed_volume_mm3 > 0:
+        con.print(
+            "Nothing was removed between the two surveys, so no removal rate can be calibrated "
+            "(check that the files are the surveys before and after the session, in that order).",
+            markup=False,
+        )
+    elif pr.rate_um_per_min is not None and not pr.rate_um_per_min > 0:
+        con.print(
+            "The fitted rate is not positive: the change does not follow the logged dwell "
+            "(check the log's positions and the lap size).",
+            markup=False,
+        )
+    elif pr.rate_um_per_min is not None:
         how = "fitted to the logged dwell" if pr.rate_fit_rms_um is not None else "volume / (lap area x time)"
         extra = f", fit RMS {h(pr.rate_fit_rms_um)}" if pr.rate_fit_rms_um is not None else ""
         con.print(f"Calibrated rate for {lap.describe().split(',')[0]}: [bold]{pr.rate_um_per_min:.4g} µm/min[/bold] ({how}{extra})")
@@ -88,6 +116,28 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
     con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['dust']}")
 
 
+def _check_same_surface(lb, la) -> None:
+    """Refuse two surveys that their own files say are of different surfaces (identity or size)."""
+    if lb.survey is None or la.survey is None:
+        return  # height maps carry no identity; node matching still checks the positions
+    sb, sa = lb.survey.surface, la.survey.surface
+    where = f"{lb.path} -> {la.path}"
+    if sb.ident.strip() and sa.ident.strip() and sb.ident.strip() != sa.ident.strip():
+        raise InputValueError(
+            f"the surveys are of different surfaces: {sb.ident!r} before, {sa.ident!r} after",
+            where=where,
+            fix="compare two surveys of the same surface (or correct [surface] ident in one file)",
+        )
+    size_b, size_a = (sb.length_mm, sb.width_mm), (sa.length_mm, sa.width_mm)
+    if any(abs(p - q) > 0.5 for p, q in zip(size_b, size_a)):
+        raise InputValueError(
+            f"the surveys are of different surfaces: {size_b[0]:g} x {size_b[1]:g} mm before, "
+            f"{size_a[0]:g} x {size_a[1]:g} mm after",
+            where=where,
+            fix="compare two surveys of the same surface (or correct [surface] length_mm/width_mm in one file)",
+        )
+
+
 @app.command("compare")
 def compare_cmd(
     before: Path = typer.Argument(..., help="Survey TOML or height-map CSV before the session."),
@@ -107,8 +157,20 @@ def compare_cmd(
         raise InputValueError("give --dwell-min or --log, not both", where="--dwell-min/--log")
     if lap_diameter_mm is not None and lap_size_mm is not None:
         raise InputValueError("give a round or a rectangular lap, not both", where="--lap-diameter-mm/--lap-size-mm")
-    hb, _ = load_surface(before)
-    ha, _ = load_surface(after)
+    # options first, so a typing slip is reported before the surveys are reduced
+    check_option(dwell_min, "--dwell-min", what="the session's lapping time in minutes")
+    check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
+    check_option(match_tol_mm, "--match-tol-mm", what="a distance in mm")
+    if lap_size_mm is not None:
+        _parse_size(lap_size_mm)
+    lb = load_input(before)
+    la = load_input(after)
+    _check_same_surface(lb, la)
+    hb, ha = lb.heightmap, la.heightmap
+    try:
+        match_nodes(hb, ha, tol_mm=match_tol_mm)
+    except InputValueError as exc:  # name both files: the message speaks of "before" and "after" surveys
+        raise InputValueError(exc.message, where=f"{before} -> {after}", fix=exc.fix) from None
     lap = None
     if lap_size_mm is not None:
         l, w = _parse_size(lap_size_mm)

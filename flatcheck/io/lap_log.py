@@ -36,7 +36,12 @@ def read_lap_log(path) -> DwellLog:
         A value that is not a finite number, or a negative time.
     """
     path = Path(path)
-    lines = read_text(path).splitlines()
+    try:
+        text = read_text(path)
+    except InputFormatError as exc:  # the generic reader suggests a survey; here a log is wanted
+        fix = exc.fix if exc.fix and "survey" not in exc.fix else "give the lapping log CSV (x_mm,y_mm,minutes)"
+        raise InputFormatError(exc.message, where=exc.where, fix=fix) from None
+    lines = text.splitlines()
     rows = [(no, s.strip()) for no, s in enumerate(lines, start=1) if s.strip() and not s.strip().startswith("#")]
     if not rows:
         raise InputFormatError("the log has no data", where=str(path), fix="add the header x_mm,y_mm,minutes")
@@ -68,4 +73,4 @@ def read_lap_log(path) -> DwellLog:
         xs.append(vals[0])
         ys.append(vals[1])
         ts.append(vals[2])
-    return DwellLog(xs, ys, ts)
+    return DwellLog(xs, ys, ts, source=str(path))

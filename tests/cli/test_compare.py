@@ -105,3 +105,102 @@ def test_bad_log_one_line(cli, pair, tmp_path):
     bad.write_text("x_mm,y_mm,minutes\n1,2,-3\n", encoding="utf-8")
     one_line_error(*cli("compare", before, after, "--log", bad, "--lap-diameter-mm", "100"))
     one_line_error(*cli("compare", before, tmp_path / "missing.csv"))
+
+
+# ---------------------------------------------------------------- regressions found by trying the command as a new user
+
+
+def _survey_file(path, ident, length_mm=600.0, width_mm=400.0, bump_um=1.0):
+    """A Union Jack survey (level, exact readings) of a crowned surface, written as TOML."""
+    from flatcheck.io.survey_toml import write_survey
+    from flatcheck.layout import plan_union_jack
+    from flatcheck.simulate import simulate_survey
+    from flatcheck.survey import Instrument, Surface
+
+    plan = plan_union_jack(length_mm, width_mm, 100.0, instrument=Instrument("level", "um/m"),
+                           surface=Surface("plate", length_mm, width_mm, ident=ident))
+    s = simulate_survey(plan, lambda x, y: bump_um * np.exp(-((x - 300) ** 2 + (y - 200) ** 2) / 2e4))
+    write_survey(path, s)
+    return path
+
+
+def test_surveys_of_different_surfaces_refused(cli, tmp_path):
+    a = _survey_file(tmp_path / "a.toml", "P-1")
+    b = _survey_file(tmp_path / "b.toml", "P-2", bump_um=0.5)
+    code, out, err = cli("compare", a, b)
+    one_line_error(code, out, err)
+    assert "different surfaces" in err and "'P-1'" in err and "'P-2'" in err and str(a) in err and str(b) in err
+    # same identity but another stated size: also another surface (the stations could match by chance)
+    c = _survey_file(tmp_path / "c.toml", "P-1", length_mm=600.0, width_mm=430.0)
+    code, out, err = cli("compare", a, c)
+    one_line_error(code, out, err)
+    assert "600 x 400 mm before, 600 x 430 mm after" in err
+    # the same surface after lapping passes
+    d = _survey_file(tmp_path / "d.toml", "P-1", bump_um=0.5)
+    code, out, err = cli("compare", a, d, "--json")
+    assert code == 0, err
+    # exact level readings of z = b exp(...): the change is (0.5 - 1) exp(...) about planes; removal > 0
+    assert json.loads(out)["removed_volume_mm3"] > 0
+
+
+def test_unmatched_names_both_files(cli, pair, tmp_path):
+    before, after, *_ = pair
+    x, y = _grid(pitch=40.0)
+    other = write_csv(tmp_path / "other.csv", x, y, np.zeros(x.size))
+    code, out, err = cli("compare", before, other)
+    one_line_error(code, out, err)
+    assert f"{before} -> {other}:" in err
+
+
+@pytest.mark.parametrize(
+    "extra, option",
+    [
+        (("--dwell-min", "-2"), "--dwell-min"),
+        (("--dwell-min", "nan"), "--dwell-min"),
+        (("--match-tol-mm", "0"), "--match-tol-mm"),
+        (("--dwell-min", "5", "--lap-diameter-mm", "0"), "--lap-diameter-mm"),
+        (("--dwell-min", "5", "--lap-size-mm", "-100x50"), "--lap-size-mm"),
+    ],
+)
+def test_bad_option_names_the_option(cli, pair, extra, option):
+    before, after, *_ = pair
+    code, out, err = cli("compare", before, after, *extra)
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {option}:")
+
+
+def test_log_errors_name_the_log(cli, pair, tmp_path):
+    before, after, *_ = pair
+    log = tmp_path / "far.csv"
+    log.write_text("x_mm,y_mm,minutes\n5000,3000,5\n", encoding="utf-8")  # 5 m away from a 600 x 400 mm surface
+    code, out, err = cli("compare", before, after, "--log", log, "--lap-diameter-mm", "100")
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {log}:") and "under the lap" in err
+    log.write_text("x_mm,y_mm,minutes\n200,250,0\n", encoding="utf-8")
+    code, out, err = cli("compare", before, after, "--log", log, "--lap-diameter-mm", "100")
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {log}:") and "zero" in err
+    log.write_text("", encoding="utf-8")
+    code, out, err = cli("compare", before, after, "--log", log, "--lap-diameter-mm", "100")
+    one_line_error(code, out, err)
+    assert "x_mm,y_mm,minutes" in err and "survey" not in err  # the fix asks for a log, not a survey
+
+
+def test_nothing_removed_gives_no_rate_to_use(cli, pair):
+    before, *_ = pair
+    code, out, err = cli("compare", before, before, "--dwell-min", "10", "--lap-diameter-mm", "100")
+    assert code == 0, err
+    text = " ".join(out.split())  # the console wraps at the terminal width
+    assert "no removal rate can be calibrated" in text and "--rate-um-per-min" not in text
+
+
+def test_swapped_files_warned(cli, pair):
+    before, after, *_ = pair
+    # after -> before: the lapped hill grows back (about 1.45 -> 1.54 µm here); flatness gets worse by more than 1 %
+    code, out, err = cli("compare", after, before, "--dwell-min", "5", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["flatness_after_um"] > doc["flatness_before_um"], (doc["flatness_before_um"], doc["flatness_after_um"])
+    assert any("BEFORE AFTER" in n for n in doc["notes"])
+    code, out, err = cli("compare", before, after, "--dwell-min", "5", "--json")
+    assert not any("BEFORE AFTER" in n for n in json.loads(out)["notes"])
