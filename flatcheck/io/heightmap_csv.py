@@ -55,10 +55,13 @@ def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
         )
     names = tuple(f.strip().lower() for f in lines[header_no - 1].split(","))
     if names != HEADER:
+        head = lines[header_no - 1].strip()
+        sep = next((c for c in (";", "\t") if c in head and "," not in head), None)
+        hint = f", separated by commas, not {'semicolons' if sep == ';' else 'tabs'}" if sep else ""
         raise InputFormatError(
-            f"the header is {lines[header_no - 1].strip()!r}",
+            f"the header is {head!r}",
             where=f"{path}, line {header_no}",
-            fix="the first non-comment line must be exactly x_mm,y_mm,height_um (convert other units first)",
+            fix=f"the first non-comment line must be exactly x_mm,y_mm,height_um{hint} (convert other units first)",
         )
     # Fast path: numpy's C parser reads the body (comments and blank lines skipped); a
     # line-by-line scan runs only when it fails, to name the offending line.
@@ -95,6 +98,15 @@ def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
             f"{_line_of_point(body_rows, first)})",
             where=f"{path}, line {_line_of_point(body_rows, dup)}",
             fix="average repeated readings into one point per position",
+        )
+    # points on one line (or one spot) enclose no area: say so here, where the file can be named
+    dx, dy = x - x.mean(), y - y.mean()
+    cxx, cyy, cxy = float(dx @ dx), float(dy @ dy), float(dx @ dy)
+    if cxx * cyy - cxy * cxy <= 1e-12 * (cxx + cyy) ** 2:
+        raise InputValueError(
+            f"all {x.size} points lie on one line, so they do not describe a surface",
+            where=str(path),
+            fix="give points spread over the surface in x and y (a single line is a straightness profile)",
         )
     return HeightMap(x, y, z, label=label if label is not None else path.stem)
 

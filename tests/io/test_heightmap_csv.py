@@ -61,3 +61,26 @@ def test_binary_file(tmp_path):
 def test_missing_file(tmp_path):
     with pytest.raises(InputFormatError, match="no such file"):
         read_heightmap_csv(tmp_path / "nope.csv")
+
+
+# ---------------------------------------------------------------- regressions found by trying the commands as a new user
+
+
+def test_points_on_one_line_named_with_the_file(tmp_path):
+    # three points on y = 0 (and a diagonal line y = 2x + 1): no area, so no flatness; the file is named
+    for body in ("0,0,1\n1,0,2\n2,0,3\n", "0,1,0\n1,3,0\n2,5,0\n3,7,1\n"):
+        p = _write(tmp_path, "x_mm,y_mm,height_um\n" + body)
+        with pytest.raises(InputValueError) as exc:
+            read_heightmap_csv(p)
+        assert exc.value.where == str(p) and "one line" in exc.value.message
+    # a right triangle is a surface
+    p = _write(tmp_path, "x_mm,y_mm,height_um\n0,0,1\n1,0,2\n0,1,3\n")
+    assert read_heightmap_csv(p).height_um.size == 3
+
+
+@pytest.mark.parametrize("sep, word", [(";", "semicolons"), ("\t", "tabs")])
+def test_wrong_separator_hinted(tmp_path, sep, word):
+    p = _write(tmp_path, sep.join(["x_mm", "y_mm", "height_um"]) + "\n" + sep.join(["0", "0", "1"]) + "\n")
+    with pytest.raises(InputFormatError) as exc:
+        read_heightmap_csv(p)
+    assert word in exc.value.fix and exc.value.where.endswith("line 1")
