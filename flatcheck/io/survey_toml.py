@@ -395,7 +395,7 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
             unit = angle_unit(unit).name
     except UnitError as exc:
         raise UnitError(
-            exc.message + (" for an indicator" if kind == "indicator" else f" for a {kind}"),
+            exc.message + f" for {'an' if kind[0] in 'aeiou' else 'a'} {kind}",
             where=ctx.where(it, "unit"),
             fix=exc.fix,
         ) from None

@@ -294,3 +294,11 @@ def test_sample_plate_recovers_true_shape():
     d = d - m @ np.linalg.lstsq(m, d, rcond=None)[0]
     assert np.sqrt(np.mean(d**2)) < 0.15  # measured 0.06 µm; the lapped files differ by 0.37 µm
     assert np.ptp(truth - m @ np.linalg.lstsq(m, truth, rcond=None)[0]) > 2.0  # the shape is well above the noise
+
+
+def test_unknown_unit_message_reads_correctly(tmp_path):
+    # "for a autocollimator" read badly: the article follows the instrument's name
+    bad = _uj_text().replace('unit = "arcsec"', 'unit = "furlong"')
+    e = _err(tmp_path, bad, UnitError)
+    assert "for an autocollimator" in e.message and "arcsec" in e.fix
+    assert f"line {_line_of(bad, 'furlong')}" in e.where
