@@ -39,6 +39,7 @@ angles in arcsec: the key names say so.
 
 from __future__ import annotations
 
+import math
 import re
 import tomllib
 from dataclasses import dataclass
@@ -127,13 +128,23 @@ def _check_keys(table: dict, allowed: set, where: str) -> None:
         )
 
 
-def _number(table: dict, key: str, where: str, default=None):
+def _number(
+    table: dict, key: str, where: str, default=None, *, positive: bool = False, at_most: float | None = None, what: str = ""
+):
     if key not in table:
         return default
     v = table[key]
+    here = f"{where}, field {key!r}"
     if isinstance(v, bool) or not isinstance(v, (int, float)):
-        raise InputValueError(f"{key} must be a number, got {v!r}", where=f"{where}, field {key!r}", fix="give a number")
-    return float(v)
+        raise InputValueError(f"{key} must be a number, got {v!r}", where=here, fix="give a number")
+    v = float(v)
+    if not math.isfinite(v):
+        raise InputValueError(f"{key} is {v}, not a finite number", where=here, fix="give a number")
+    if positive and not v > 0:
+        raise InputValueError(f"{what or key} must be positive, got {v:g}", where=here, fix=f"give {key} > 0")
+    if at_most is not None and v > at_most:
+        raise InputValueError(f"{key} must be at most {at_most:g}, got {v:g}", where=here, fix="give a fraction such as 0.25")
+    return v
 
 
 def _text(table: dict, key: str, where: str, default=None):
@@ -189,11 +200,11 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
     w = f"{source}, [bearing]"
     _check_keys(b, _BEARING_KEYS, w)
     size = _text(b, "pad", w)
-    gap = _number(b, "gap_um", w)
+    gap = _number(b, "gap_um", w, positive=True, what="air gap (µm)")
     kind = _text(b, "kind", w, "porous")
     label = _text(b, "label", w, "")
-    gap_fraction = _number(b, "gap_fraction", w)
-    marginal_from = _number(b, "marginal_from", w)
+    gap_fraction = _number(b, "gap_fraction", w, positive=True, at_most=1.0)
+    marginal_from = _number(b, "marginal_from", w, positive=True, at_most=1.0)
 
     c = doc.get("carriage", {})
     if not isinstance(c, dict):
@@ -208,19 +219,30 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
         if not pad_tables:
             placed = [PlacedPad(_make_pad(size, gap, kind, w), name="pad", face=face)]
         else:
-            placed = []
+            placed, names = [], []
             for i, t in enumerate(pad_tables, start=1):
                 wp = f"{source}, [[carriage.pad]] #{i}"
                 _check_keys(t, _PAD_KEYS, wp)
-                pad = _make_pad(_text(t, "pad", wp, size), _number(t, "gap_um", wp, gap), _text(t, "kind", wp, kind), wp)
+                if not isinstance(t, dict):
+                    raise InputFormatError("a pad must be a [[carriage.pad]] table", where=wp, fix="write [[carriage.pad]]")
+                name = _text(t, "name", wp, f"pad {i}")
+                if name in names:
+                    raise InputValueError(
+                        f"pad name {name!r} is used twice (first in [[carriage.pad]] #{names.index(name) + 1})",
+                        where=f"{wp}, field 'name'", fix="give each pad its own name",
+                    )
+                names.append(name)
+                pad = _make_pad(
+                    _text(t, "pad", wp, size), _number(t, "gap_um", wp, gap, positive=True, what="air gap (µm)"), _text(t, "kind", wp, kind), wp
+                )
                 placed.append(
                     PlacedPad(
                         pad,
                         along_mm=_number(t, "along_mm", wp, 0.0),
                         across_mm=_number(t, "across_mm", wp, 0.0),
-                        name=_text(t, "name", wp, f"pad {i}"),
+                        name=name,
                         face=_text(t, "face", wp, face),
-                        stiffness=_number(t, "stiffness", wp, 1.0),
+                        stiffness=_number(t, "stiffness", wp, 1.0, positive=True),
                     )
                 )
         carriage = Carriage(
@@ -229,7 +251,7 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
             y_mm=_number(c, "y_mm", wc),
             travel_start_mm=_number(c, "travel_start_mm", wc),
             travel_end_mm=_number(c, "travel_end_mm", wc),
-            step_mm=_number(c, "step_mm", wc),
+            step_mm=_number(c, "step_mm", wc, positive=True),
             label=label,
         )
         bt = doc.get("budget", {})
@@ -237,7 +259,9 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
         if not isinstance(bt, dict):
             raise InputFormatError("[budget] must be a table", where=source, fix="write it as a [budget] section")
         _check_keys(bt, _BUDGET_KEYS, wb)
-        budget = MotionBudget(*(_number(bt, k, wb) for k in ("straightness_um", "pitch_arcsec", "roll_arcsec")))
+        budget = MotionBudget(
+            *(_number(bt, k, wb, positive=True) for k in ("straightness_um", "pitch_arcsec", "roll_arcsec"))
+        )
     except FlatcheckError as exc:
         if exc.where is None:
             raise type(exc)(exc.message, where=source, fix=exc.fix) from None
@@ -263,4 +287,9 @@ def read_bearing_toml(path) -> BearingDescription:
         As :func:`parse_bearing_toml`, plus missing, empty or binary files.
     """
     path = Path(path)
-    return parse_bearing_toml(read_text(path), source=str(path))
+    try:
+        text = read_text(path)
+    except InputFormatError as exc:  # the generic reader suggests a survey; here a bearing description is wanted
+        fix = exc.fix if exc.fix and "survey" not in exc.fix else "give a bearing description (.toml with a [bearing] section)"
+        raise InputFormatError(exc.message, where=exc.where, fix=fix) from None
+    return parse_bearing_toml(text, source=str(path))

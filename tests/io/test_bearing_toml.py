@@ -109,3 +109,44 @@ def test_empty_and_missing_files(tmp_path):
         read_bearing_toml(empty)
     with pytest.raises(InputFormatError, match="no such file"):
         read_bearing_toml(tmp_path / "missing.toml")
+
+
+# ---------------------------------------------------------------- regressions found by trying the commands as a new user
+
+
+@pytest.mark.parametrize(
+    "old, new, where",
+    [
+        # a bad gap is in [bearing], not in the first pad table the old message named
+        ("gap_um = 8.0", "gap_um = -8.0", "[bearing], field 'gap_um'"),
+        ("gap_fraction = 0.2", "gap_fraction = 0", "[bearing], field 'gap_fraction'"),
+        ("gap_fraction = 0.2", "gap_fraction = 2", "[bearing], field 'gap_fraction'"),
+        ("pitch_arcsec = 2.0", "pitch_arcsec = -2.0", "[budget], field 'pitch_arcsec'"),
+        ("along_mm = 150", "along_mm = nan", "[[carriage.pad]] #1, field 'along_mm'"),
+        ("along_mm = -150", "along_mm = inf", "[[carriage.pad]] #2, field 'along_mm'"),
+        ("stiffness = 2", "stiffness = 0", "[[carriage.pad]] #2, field 'stiffness'"),
+        ("step_mm = 10", "step_mm = 0", "[carriage], field 'step_mm'"),
+        ('name = "rear"', 'name = "front"', "[[carriage.pad]] #2, field 'name'"),
+    ],
+)
+def test_errors_name_table_and_field(old, new, where):
+    assert old in TANDEM
+    with pytest.raises(InputValueError) as exc:
+        parse_bearing_toml(TANDEM.replace(old, new, 1), source="slide.toml")
+    assert exc.value.where == f"slide.toml, {where}"
+    assert exc.value.fix
+
+
+def test_duplicate_pad_name_is_named():
+    with pytest.raises(InputValueError) as exc:
+        parse_bearing_toml(TANDEM.replace('name = "rear"', 'name = "front"'), source="slide.toml")
+    assert "'front'" in exc.value.message and "#1" in exc.value.message
+
+
+def test_empty_file_fix_asks_for_a_bearing_file(tmp_path):
+    for data in (b"", b"\x00\x01binary"):
+        p = tmp_path / "b.toml"
+        p.write_bytes(data)
+        with pytest.raises(InputFormatError) as exc:
+            read_bearing_toml(p)
+        assert "[bearing]" in exc.value.fix and "survey" not in exc.value.fix
