@@ -360,10 +360,12 @@ def _build_model(survey: Survey) -> _Model:
     inst = survey.instrument
     for ln in survey.lines:
         if not ln.runs:
+            where = f"{survey.source}, line {ln.name!r}" if survey.source else f"line {ln.name!r}"
             raise InputValueError(
                 "the line has no readings",
-                where=f"line {ln.name!r}",
-                fix="fill in its readings or remove the line",
+                where=where,
+                fix=f"fill in its {len(ln.stations) if inst.reads_heights else ln.steps} readings "
+                "(readings = [...]) in the order taken",
             )
     obs = observations(survey)
     m = obs.value_um.size

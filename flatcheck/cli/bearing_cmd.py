@@ -198,13 +198,13 @@ def bearing_cmd(
     kind: PadKind = typer.Option(PadKind.porous, "--kind", help="How the pad is fed with air."),
     bearing: Path = typer.Option(None, "--bearing", help="Bearing description (TOML): pads, carriage, travel, budget."),
     gap_fraction: float = typer.Option(
-        None, "--gap-fraction", help=f"Local form limit as a fraction of the gap [default {DEFAULT_GAP_FRACTION:g}, common practice]."
+        None, "--gap-fraction", help=f"Local form limit as a fraction of the gap (default {DEFAULT_GAP_FRACTION:g}, common practice)."
     ),
     marginal_from: float = typer.Option(
-        None, "--marginal-from", help=f"Marginal from this fraction of a limit [default {DEFAULT_MARGINAL_FROM:g}]."
+        None, "--marginal-from", help=f"Marginal from this fraction of a limit (default {DEFAULT_MARGINAL_FROM:g})."
     ),
     pad_face: Path = typer.Option(None, "--pad-face", help="Height-map CSV of the pad face (µm, + towards the guide)."),
-    y_mm: float = typer.Option(None, "--y-mm", help="Carriage centre across the face in mm [default: centred]."),
+    y_mm: float = typer.Option(None, "--y-mm", help="Carriage centre across the face in mm (default: centred)."),
     travel_start_mm: float = typer.Option(None, "--travel-start-mm", help="First carriage position, mm."),
     travel_end_mm: float = typer.Option(None, "--travel-end-mm", help="Last carriage position, mm."),
     step_mm: float = typer.Option(None, "--step-mm", help="Travel step in mm (at most a tenth of the pad length)."),
@@ -220,7 +220,7 @@ def bearing_cmd(
     layer_mm: float = typer.Option(None, "--layer-mm", help="Porous-pad film: porous layer thickness, mm."),
     ambient_kpa: float = typer.Option(101.325, "--ambient-kpa", help="Porous-pad film: ambient pressure, kPa absolute."),
     load_n: float = typer.Option(
-        None, "--load-n", help="Porous-pad film: load per pad, N [default: what the pad carries at --gap-um on a flat guide]."
+        None, "--load-n", help="Porous-pad film: load per pad, N (default: what the pad carries at --gap-um on a flat guide)."
     ),
     film_pivot: bool = typer.Option(
         True, "--film-pivot/--film-fixed", help="Porous-pad film: pads on ball pivots (tilt free) or held level."
@@ -230,8 +230,7 @@ def bearing_cmd(
         None, "--plot", help="Write a PNG of the carriage path, rail profile, pitch and local flatness along the travel."
     ),
 ) -> None:
-    """Judge the surface for an air-bearing pad or carriage: local flatness against a fraction of the gap,
-    least clearance, and the carriage's straightness, pitch and roll over the travel."""
+    """Judge the surface for air-bearing pads: local flatness against the gap, clearance, carriage motion."""
     from ..io.heightmap_csv import read_heightmap_csv
 
     carriage, fraction, marginal, budget = build_carriage(

@@ -85,9 +85,11 @@ def emit_json(obj) -> None:
 def progress_bar(description: str, total: int, *, enabled: bool = True):
     """A rich progress bar on standard error; yields ``advance(n)``.
 
-    Disabled (a no-op) when ``enabled`` is false, e.g. for small jobs.
+    Disabled (a no-op) when ``enabled`` is false, e.g. for small jobs, and when
+    standard error is not a terminal.
     """
-    if not enabled:
+    if not enabled or not sys.stderr.isatty():
+        # no terminal (a pipe, a log file, a test): a bar would only leave blank lines behind
         yield lambda n=1: None
         return
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn

@@ -132,7 +132,8 @@ def build_grade_report(
     if not first.uncertainty_known and first.rule_requested == "iso14253-1":
         notes.append(
             "expanded uncertainty unknown: the ISO 14253-1 rule could not be applied; verdicts use simple "
-            "acceptance and do not account for measurement uncertainty (give --uncertainty-um U)"
+            "acceptance and do not account for measurement uncertainty (evaluate it with --uncertainty, "
+            "or state U with --uncertainty-um or --uncertainty-uin)"
         )
     for v in verdicts:
         for n in v.tolerance.notes:

@@ -13,6 +13,8 @@ import typer
 
 from ..errors import InputValueError, OutputError
 from ._app import app
+from .grade_cmd import Rule
+from .reduce_cmd import Method
 from .common import Units, emit_json, load_input, progress_bar, stdout_console, window_option
 
 #: Monte Carlo trials when none are asked for: the same default as ``flatcheck reduce --uncertainty``.
@@ -106,7 +108,7 @@ def report_cmd(
     output: Path = typer.Option(..., "-o", "--output", help="PDF file to write (replaced if it exists)."),
     png: Path | None = typer.Option(None, "--png", help="Also write each picture as a PNG file into this folder."),
     standard: str | None = typer.Option(None, "--standard", help="Grade against: din-876, iso-8512-2, asme-b89.3.7."),
-    rule: str = typer.Option("iso14253", "--rule", help="Decision rule for grades: iso14253 or simple."),
+    rule: Rule = typer.Option(Rule.iso14253, "--rule", help="Decision rule for grades: iso14253 or simple."),
     bearing: Path | None = typer.Option(None, "--bearing", help="Bearing description (.toml): pads and travel."),
     pad: str | None = typer.Option(None, "--pad", help="One pad, e.g. 80x40 (mm) or d50 (diameter, mm)."),
     gap_um: float | None = typer.Option(None, "--gap-um", help="Nominal air gap of the pad, µm."),
@@ -130,7 +132,7 @@ def report_cmd(
     trials: int = typer.Option(DEFAULT_TRIALS, "--trials", help="Monte Carlo trials, as 'flatcheck reduce --trials'."),
     u_height_um: float | None = typer.Option(
         None, "--u-height-um", min=0.0, help="Height maps: standard uncertainty of each height in µm."),
-    method: str = typer.Option("least-squares", "--method", help="Survey reduction: least-squares or moody."),
+    method: Method = typer.Option(Method.least_squares, "--method", help="Survey reduction: least-squares or moody."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
 ) -> None:
     """Write a PDF report: identity, method, map, local flatness, profiles, flatness with uncertainty, grades."""
@@ -138,7 +140,7 @@ def report_cmd(
     if trials < 100:
         raise InputValueError(f"--trials {trials} is too few", where="--trials", fix="give at least 100, e.g. --trials 20000")
     carriage, fraction, marginal, budget = carriage_from_options(bearing, pad, gap_um)
-    loaded = load_input(input, method=method)
+    loaded = load_input(input, method=method.value)
     lapping = lapping_from_options(
         loaded.heightmap, target_um=target_um, target_grade=target_grade, lap_diameter_mm=lap_diameter_mm,
         lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
@@ -148,7 +150,7 @@ def report_cmd(
                                       u_height_um=u_height_um, show_progress=not json_out)
     content, files = make_report(
         ev, output=output, png=png, units=units.value, show_progress=not json_out,
-        standard=standard, rule=rule, carriage=carriage, gap_fraction=fraction,
+        standard=standard, rule=rule.value, carriage=carriage, gap_fraction=fraction,
         marginal_from=marginal, budget=budget, uncertainty_missing=why_not, **lapping,
     )
     if json_out:

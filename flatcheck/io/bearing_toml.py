@@ -287,9 +287,5 @@ def read_bearing_toml(path) -> BearingDescription:
         As :func:`parse_bearing_toml`, plus missing, empty or binary files.
     """
     path = Path(path)
-    try:
-        text = read_text(path)
-    except InputFormatError as exc:  # the generic reader suggests a survey; here a bearing description is wanted
-        fix = exc.fix if exc.fix and "survey" not in exc.fix else "give a bearing description (.toml with a [bearing] section)"
-        raise InputFormatError(exc.message, where=exc.where, fix=fix) from None
+    text = read_text(path, wanted="a bearing description (.toml with a [bearing] section)")
     return parse_bearing_toml(text, source=str(path))

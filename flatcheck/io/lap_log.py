@@ -36,11 +36,7 @@ def read_lap_log(path) -> DwellLog:
         A value that is not a finite number, or a negative time.
     """
     path = Path(path)
-    try:
-        text = read_text(path)
-    except InputFormatError as exc:  # the generic reader suggests a survey; here a log is wanted
-        fix = exc.fix if exc.fix and "survey" not in exc.fix else "give the lapping log CSV (x_mm,y_mm,minutes)"
-        raise InputFormatError(exc.message, where=exc.where, fix=fix) from None
+    text = read_text(path, wanted="the lapping log CSV (x_mm,y_mm,minutes)")
     lines = text.splitlines()
     rows = [(no, s.strip()) for no, s in enumerate(lines, start=1) if s.strip() and not s.strip().startswith("#")]
     if not rows:

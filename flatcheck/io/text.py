@@ -9,8 +9,11 @@ from ..errors import InputFormatError
 __all__ = ["read_text"]
 
 
-def read_text(path) -> str:
+def read_text(path, *, wanted: str = "a TOML survey or a CSV height map") -> str:
     """Read a UTF-8 text file (a leading byte-order mark is accepted).
+
+    ``wanted`` says what kind of file the caller expects, for the fix in messages
+    (e.g. "a bearing description (.toml)").
 
     Raises
     ------
@@ -27,10 +30,10 @@ def read_text(path) -> str:
     except OSError as exc:
         raise InputFormatError(f"cannot read the file ({exc.strerror})", where=str(path), fix="check permissions") from None
     if not data.strip():
-        raise InputFormatError("the file is empty", where=str(path), fix="give a survey file or a height-map CSV")
+        raise InputFormatError("the file is empty", where=str(path), fix=f"give {wanted}")
     if b"\x00" in data[:65536]:
         raise InputFormatError(
-            "the file is binary, not text", where=str(path), fix="give a TOML survey or a CSV height map"
+            "the file is binary, not text", where=str(path), fix=f"give {wanted}"
         )
     try:
         return data.decode("utf-8-sig")
