@@ -19,11 +19,39 @@ from .common import SAFETY_LINES, Units, emit_json, load_surface, progress_bar, 
 _ASSUMED_RATE_UM_PER_MIN = 1.0
 
 
-def resolve_target(hm, target_um: float | None, target_grade: str | None) -> tuple[float, str]:
-    """Target flatness in µm and a description of where it came from."""
-    if (target_um is None) == (target_grade is None):
+def resolve_target(
+    hm,
+    target_um: float | None,
+    target_grade: str | None,
+    target_gap_um: float | None = None,
+    gap_fraction: float | None = None,
+) -> tuple[float, str]:
+    """Target flatness in µm and a description of where it came from.
+
+    The target is a number (``target_um``), a grade of a standard (``target_grade``,
+    STANDARD:GRADE) or the air-bearing limit for a gap (``target_gap_um``): the
+    fraction ``gap_fraction`` of the gap (flatcheck.bearing's default when None)
+    applied to the whole surface, which is conservative, since the bearing limit
+    applies to the form under each pad's footprint.
+    """
+    given = [v is not None for v in (target_um, target_grade, target_gap_um)]
+    if sum(given) != 1:
         raise InputValueError(
-            "give exactly one target", where="--target-um/--target-grade", fix="e.g. --target-um 3 or --target-grade din-876:0"
+            "give exactly one target",
+            where="--target-um/--target-grade/--target-gap-um",
+            fix="e.g. --target-um 3, --target-grade din-876:0 or --target-gap-um 8",
+        )
+    if target_gap_um is not None:
+        from ..bearing import DEFAULT_GAP_FRACTION
+
+        check_option(target_gap_um, "--target-gap-um", what="an air gap in µm")
+        fraction = DEFAULT_GAP_FRACTION if gap_fraction is None else gap_fraction
+        check_option(fraction, "--gap-fraction", what="a fraction of the gap")
+        if fraction >= 1:
+            raise InputValueError(f"gap fraction {fraction:g} is not below 1", where="--gap-fraction", fix="e.g. 0.25")
+        return float(fraction * target_gap_um), (
+            f"air-bearing limit {fraction:g} x {target_gap_um:g} µm gap (the local limit under a pad, applied to "
+            "the whole surface: conservative; the fraction is common practice, not a published standard)"
         )
     if target_um is not None:
         if not (math.isfinite(target_um) and target_um >= 0):
@@ -304,6 +332,12 @@ def lap_cmd(
     input: Path = typer.Argument(..., help="Survey TOML or height-map CSV."),
     target_um: float = typer.Option(None, "--target-um", help="Target flatness in µm."),
     target_grade: str = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
+    target_gap_um: float = typer.Option(
+        None, "--target-gap-um", help="Target: the air-bearing limit for this gap in µm (a fraction of it, see --gap-fraction)."
+    ),
+    gap_fraction: float = typer.Option(
+        None, "--gap-fraction", help="With --target-gap-um: the fraction of the gap (default 0.25, common practice)."
+    ),
     lap_diameter_mm: float = typer.Option(None, "--lap-diameter-mm", help="Round lap diameter (mm)."),
     lap_size_mm: str = typer.Option(None, "--lap-size-mm", help="Rectangular lap LENGTHxWIDTH (mm), length along x."),
     rate_um_per_min: float = typer.Option(None, "--rate-um-per-min", help="Your calibrated removal rate under the lap."),
@@ -337,7 +371,7 @@ def lap_cmd(
     check_output(removal_csv, "--removal-csv")
     check_output(plan_out, "--plan-out")
     hm, _ = load_surface(input)
-    target, source = resolve_target(hm, target_um, target_grade)
+    target, source = resolve_target(hm, target_um, target_grade, target_gap_um, gap_fraction)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass, stroke_mm)
     check_lap_fits(hm, lap, "--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm")
     with progress_bar("planning", 2, enabled=sys.stderr.isatty() and not json_out) as advance:

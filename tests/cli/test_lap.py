@@ -210,3 +210,18 @@ def test_target_already_met_prints_no_empty_chart(cli, hill_csv, tmp_path):
     assert code == 0, err
     assert "already within the target" in out and "Time per cell" not in out
     assert "Time per cell" not in plan.read_text(encoding="utf-8")
+
+
+def test_target_from_the_air_bearing_gap(cli):
+    # The bearing limit is a fraction of the gap (common practice, no single source; default 1/4):
+    # an 8 µm gap with fraction 0.25 gives the same plan as --target-um 2.
+    from pathlib import Path
+
+    plate = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
+    code, out_gap, err = cli("lap", plate, "--target-gap-um", "8", "--gap-fraction", "0.25", "--json")
+    assert code == 0, err
+    code, out_num, err = cli("lap", plate, "--target-um", "2", "--json")
+    a, b = json.loads(out_gap), json.loads(out_num)
+    assert a["removed_volume_mm3"] == pytest.approx(b["removed_volume_mm3"], rel=1e-9)
+    code, out, err = cli("lap", plate, "--target-gap-um", "8", "--gap-fraction", "1.5")
+    assert code == 2 and "--gap-fraction" in err and err.count("\n") == 1
