@@ -1508,7 +1508,7 @@ def with_film_checks(result, film: BearingFilm, *, stiffness_change_limit: float
         r = dk_worst / stiffness_change_limit
         checks.append(Check(
             "film: stiffness change over the travel", 100.0 * dk_worst, 100.0 * stiffness_change_limit, "%", r,
-            _film_status(r, mf), (dk_x,),
+            _film_status(r, mf), ((dk_x[0], dk_x[0]), (dk_x[1], dk_x[1])),  # positions of least and most stiffness
             "porous-pad film model; limit 10 % of the flat-guide stiffness, a convention of this tool",
         ))
     all_checks = tuple(result.checks) + tuple(checks)
