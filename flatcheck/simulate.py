@@ -28,10 +28,11 @@ from collections.abc import Mapping
 import numpy as np
 
 from .errors import InputValueError
+from .heightmap import HeightMap
 from .survey import Run, Survey
 from .units import ARCSEC_TO_RAD, angle_unit, length_unit
 
-__all__ = ["RUN_KINDS", "simulate_survey", "DEFAULT_RANDOM_ZERO_RAD"]
+__all__ = ["RUN_KINDS", "simulate_survey", "DEFAULT_RANDOM_ZERO_RAD", "surface_grid"]
 
 #: Run kinds accepted by :func:`simulate_survey`: walking order, and whether the
 #: instrument was turned round (readings stored negated with ``flip_sign``).
@@ -229,3 +230,28 @@ def simulate_survey(
         "unit": inst.unit,
     }
     return dataclasses.replace(plan, instrument=inst, lines=tuple(new_lines), meta=meta)
+
+
+def surface_grid(height_fn, length_mm: float, width_mm: float, pitch_mm: float, *, label: str = "") -> HeightMap:
+    """A known surface sampled on a regular grid from (0, 0) to (length, width), as a height map.
+
+    Parameters
+    ----------
+    height_fn : callable
+        ``height_fn(X_mm, Y_mm) -> height_um`` on arrays.
+    length_mm, width_mm : float
+        Extent along x and y in mm (the last node lies on the edge when the pitch divides it).
+    pitch_mm : float
+        Grid pitch in mm.
+
+    Examples
+    --------
+    >>> hm = surface_grid(lambda x, y: 0.001 * x, 100.0, 50.0, 25.0)
+    >>> hm.n, float(hm.height_um.max())
+    (15, 0.1)
+    """
+    x = np.arange(0.0, length_mm + 1e-9, pitch_mm)
+    y = np.arange(0.0, width_mm + 1e-9, pitch_mm)
+    X, Y = np.meshgrid(x, y)
+    Z = np.broadcast_to(np.asarray(height_fn(X, Y), dtype=float), X.shape)
+    return HeightMap(X.ravel(), Y.ravel(), Z.ravel(), length_mm=length_mm, width_mm=width_mm, label=label)

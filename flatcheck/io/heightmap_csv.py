@@ -161,13 +161,13 @@ def _locate_bad_row(path, body_rows):
 
 
 def format_heightmap_csv(hm: HeightMap, *, comment: str = "") -> str:
-    """The height map as CSV text with the standard header (heights to 1 nm)."""
+    """The height map as CSV text with the standard header (10 significant digits)."""
     out = []
     for ln in comment.splitlines():
         out.append(f"# {ln}".rstrip())
     out.append(",".join(HEADER))
     for x, y, z in zip(hm.x_mm, hm.y_mm, hm.height_um):
-        out.append(f"{x:.6g},{y:.6g},{z:.4f}")
+        out.append(f"{x:.10g},{y:.10g},{z:.10g}")
     return "\n".join(out) + "\n"
 
 

@@ -6,18 +6,16 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from flatcheck.io.heightmap_csv import write_heightmap_csv
+from flatcheck.simulate import surface_grid
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_readings" / "bearing_tandem_slide.toml"
 ARCSEC_PER_UM_PER_MM = 1e-3 * 648000 / math.pi  # exact: 1 µm/mm = 1e-3 rad
 
 
 def write_surface(path, func, length=600.0, width=300.0, pitch=10.0):
-    x = np.arange(0, length + 1e-9, pitch)
-    y = np.arange(0, width + 1e-9, pitch)
-    X, Y = np.meshgrid(x, y)
-    Z = func(X, Y)
-    lines = ["x_mm,y_mm,height_um"] + [f"{a:.6f},{b:.6f},{c:.9f}" for a, b, c in zip(X.ravel(), Y.ravel(), Z.ravel())]
-    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    """A known surface on a regular grid, written as a height-map CSV."""
+    write_heightmap_csv(path, surface_grid(func, length, width, pitch))
     return path
 
 

@@ -11,18 +11,16 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 from scipy.special import i0
+from flatcheck.io.heightmap_csv import write_heightmap_csv
+from flatcheck.simulate import surface_grid
 
 PA, PS = 101325.0, 600000.0
 FILM = ["--supply-kpa", f"{(PS - PA) / 1e3:.6f}", "--permeability-m2", "1e-15", "--layer-mm", "5"]
 
 
 def write_surface(path, func, length=200.0, width=100.0, pitch=5.0):
-    x = np.arange(0, length + 1e-9, pitch)
-    y = np.arange(0, width + 1e-9, pitch)
-    X, Y = np.meshgrid(x, y)
-    Z = func(X, Y)
-    lines = ["x_mm,y_mm,height_um"] + [f"{a:.6f},{b:.6f},{c:.9f}" for a, b, c in zip(X.ravel(), Y.ravel(), Z.ravel())]
-    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    """A known surface on a regular grid, written as a height-map CSV."""
+    write_heightmap_csv(path, surface_grid(func, length, width, pitch))
     return path
 
 
