@@ -23,7 +23,7 @@ from ..errors import InputValueError
 from ..io.bearing_toml import parse_pad_size, read_bearing_toml
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, Units, emit_json, load_surface, progress_bar, stdout_console
+from .common import SAFETY_LINES, emit_json, load_surface, progress_bar, stdout_console, Units, units_option
 
 
 class PadKind(str, Enum):
@@ -213,7 +213,7 @@ def bearing_cmd(
     budget_roll_arcsec: float = typer.Option(None, "--budget-roll-arcsec", help="Motion budget: roll (P-V), arcsec."),
     sample_pitch_mm: float = typer.Option(None, "--sample-pitch-mm", help="Largest spacing of samples under a pad, mm."),
     interp: Interp = typer.Option(Interp.linear, "--interp", help="Interpolation between surveyed stations."),
-    units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
+    units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object (µm, mm, arcsec) instead of the summary."),
     supply_kpa: float = typer.Option(None, "--supply-kpa", help="Porous-pad film: supply pressure, kPa gauge."),
     permeability_m2: float = typer.Option(None, "--permeability-m2", help="Porous-pad film: layer permeability, m²."),

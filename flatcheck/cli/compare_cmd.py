@@ -11,7 +11,7 @@ from ..lapping import LapModel
 from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, Units, emit_json, load_input, stdout_console
+from .common import SAFETY_LINES, emit_json, load_input, stdout_console, Units, units_option
 from .lap_cmd import _parse_size, check_option, resolve_target
 
 
@@ -149,7 +149,7 @@ def compare_cmd(
     target_um: float = typer.Option(None, "--target-um", help="Target flatness in µm (for the sessions estimate)."),
     target_grade: str = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
     match_tol_mm: float = typer.Option(DEFAULT_MATCH_TOL_MM, "--match-tol-mm", help="Node matching tolerance (mm)."),
-    units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
+    units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
 ) -> None:
     """Change map, removed volume, flatness before/after, calibrated rate and sessions to the target."""

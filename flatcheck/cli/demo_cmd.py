@@ -9,7 +9,7 @@ import typer
 
 from ..errors import OutputError
 from ._app import app
-from .common import Units, load_input, progress_bar, stdout_console
+from .common import load_input, progress_bar, stdout_console, Units, units_option
 
 #: The bundled sample (a copy of sample_readings/plate-KY-P3-2024-03-11.toml, shipped as package data).
 DEMO_SAMPLE = "plate-KY-P3-2024-03-11.toml"
@@ -34,7 +34,7 @@ def sample_path() -> Path:
 @app.command("demo")
 def demo_cmd(
     out: Path = typer.Option(Path("flatcheck-demo"), "--out", help="Folder for the demo's report (created if needed)."),
-    units: Units = typer.Option(Units.um, "--units", help="Display units: um or in."),
+    units: Units = units_option(),
 ) -> None:
     """Reduce the bundled sample as 'flatcheck reduce' does, grade it, and write its PDF report."""
     from ..evaluation import evaluate_surface

@@ -29,7 +29,17 @@ from ..tolerance import (
 from ..units import MM_PER_INCH, UM_PER_UIN, height_unit_label, um_to
 from ._app import app
 from ..evaluation import survey_uncertainty
-from .common import Units, emit_json, load_input, progress_bar, stdout_console
+from .common import (
+    emit_json,
+    load_input,
+    progress_bar,
+    seed_option,
+    stdout_console,
+    trials_option,
+    u_height_option,
+    Units,
+    units_option,
+)
 
 
 class Rule(str, Enum):
@@ -302,7 +312,7 @@ def grade_cmd(
     rule: Rule = typer.Option(Rule.iso14253, "--rule", help="iso14253 (guard band U, default) or simple (F <= T)."),
     uncertainty_um: float = typer.Option(None, "--uncertainty-um", help="Expanded uncertainty U of the flatness in µm."),
     uncertainty_uin: float = typer.Option(None, "--uncertainty-uin", help="Expanded uncertainty U in µin."),
-    units: Units = typer.Option(Units.um, "--units", help="Display heights in um or (with 'in') µin."),
+    units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object on stdout."),
     fail_on_reject: bool = typer.Option(False, "--fail-on-reject", help="Exit 1 when the verdict is a reject."),
     length_mm: float = typer.Option(None, "--length-mm", help="Plate length in mm (with --width-mm)."),
@@ -317,11 +327,9 @@ def grade_cmd(
     monte_carlo: bool = typer.Option(
         False, "--uncertainty", help="Evaluate U by Monte Carlo (JCGM 101) from the survey, as 'flatcheck reduce --uncertainty'."
     ),
-    trials: int = typer.Option(100_000, "--trials", min=100, help="Monte Carlo trials (with --uncertainty)."),
-    seed: int = typer.Option(None, "--seed", help="Monte Carlo seed, for reproducible results."),
-    u_height_um: float = typer.Option(
-        None, "--u-height-um", min=0.0, help="Height maps: standard uncertainty of each height in µm (with --uncertainty)."
-    ),
+    trials: int = trials_option(),
+    seed: int = seed_option(),
+    u_height_um: float = u_height_option(),
 ) -> None:
     """Grade the surface's flatness against a standard, with an ISO 14253-1 decision rule."""
     tol = _one_of(tolerance_um, tolerance_uin, "tolerance")

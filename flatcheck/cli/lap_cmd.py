@@ -13,7 +13,7 @@ from ..errors import InputValueError, OutputError
 from ..lapping import LapModel, LapPlan, least_removal, plan_lapping
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, Units, emit_json, load_surface, progress_bar, stdout_console
+from .common import SAFETY_LINES, emit_json, load_surface, progress_bar, stdout_console, Units, units_option
 
 #: Placeholder rate when the user has not calibrated one: times are then "per µm/min" and scale by 1/rate.
 _ASSUMED_RATE_UM_PER_MIN = 1.0
@@ -350,7 +350,7 @@ def lap_cmd(
     smoothing: float = typer.Option(0.01, "--smoothing", help="Regularisation of the dwell deconvolution."),
     removal_csv: Path = typer.Option(None, "--removal-csv", help="Write the least-removal map (x_mm,y_mm,remove_um); replaced if it exists."),
     plan_out: Path = typer.Option(None, "--plan-out", help="Write the plan and cell chart as a text file for the bench; replaced if it exists."),
-    units: Units = typer.Option(Units.um, "--units", help="Display units: um, or in (heights in µin)."),
+    units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
 ) -> None:
     """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness."""

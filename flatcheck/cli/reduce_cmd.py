@@ -13,7 +13,18 @@ from ..evaluation import evaluate_surface
 from ..io.heightmap_csv import write_heightmap_csv
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import Units, emit_json, load_input, progress_bar, stdout_console, window_option
+from .common import (
+    emit_json,
+    load_input,
+    progress_bar,
+    seed_option,
+    stdout_console,
+    trials_option,
+    u_height_option,
+    Units,
+    units_option,
+    window_option,
+)
 
 
 class Method(str, Enum):
@@ -29,16 +40,14 @@ def reduce_cmd(
     ),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
     map_out: Path = typer.Option(None, "--map-out", help="Write the nodes as a height-map CSV (x_mm,y_mm,height_um)."),
-    units: Units = typer.Option(Units.um, "--units", help="Show heights in um, or in µin with 'in'."),
+    units: Units = units_option(),
     window: str = window_option(),
     uncertainty: bool = typer.Option(
         False, "--uncertainty", help="Monte Carlo uncertainty of the flatness (JCGM 101), with a progress bar."
     ),
-    trials: int = typer.Option(100_000, "--trials", min=100, help="Monte Carlo trials."),
-    seed: int = typer.Option(None, "--seed", help="Seed of the Monte Carlo run, for reproducible results."),
-    u_height_um: float = typer.Option(
-        None, "--u-height-um", min=0.0, help="Standard uncertainty of each height of a CSV map, in µm (for --uncertainty)."
-    ),
+    trials: int = trials_option(),
+    seed: int = seed_option(),
+    u_height_um: float = u_height_option(),
 ) -> None:
     """Reduce a survey (or read a height map) and state its flatness."""
     loaded = load_input(input, method=method.value)

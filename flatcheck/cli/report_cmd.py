@@ -15,10 +15,20 @@ from ..errors import InputValueError, OutputError
 from ._app import app
 from .grade_cmd import Rule
 from .reduce_cmd import Method
-from .common import Units, emit_json, load_input, progress_bar, stdout_console, window_option
+from .common import (
+    emit_json,
+    load_input,
+    progress_bar,
+    seed_option,
+    stdout_console,
+    trials_option,
+    u_height_option,
+    Units,
+    units_option,
+    window_option,
+)
 
 #: Monte Carlo trials when none are asked for: the same default as ``flatcheck reduce --uncertainty``.
-DEFAULT_TRIALS = 100_000
 
 
 def carriage_from_options(bearing: Path | None, pad: str | None, gap_um: float | None):
@@ -125,13 +135,12 @@ def report_cmd(
     strokes_per_pass: int | None = typer.Option(
         None, "--strokes-per-pass", help="Strokes in one pass (with a rate per pass)."),
     stroke_mm: float = typer.Option(0.0, "--stroke-mm", help="Length of the lap's working strokes about each spot (mm)."),
-    units: Units = typer.Option(Units.um, "--units", help="Display units: um (µm, mm) or in (µin, inches)."),
+    units: Units = units_option(),
     uncertainty: bool = typer.Option(
         True, "--uncertainty/--no-uncertainty", help="Monte Carlo uncertainty of the flatness (JCGM 101)."),
-    seed: int | None = typer.Option(None, "--seed", help="Seed of the Monte Carlo uncertainty (reproducible runs)."),
-    trials: int = typer.Option(DEFAULT_TRIALS, "--trials", help="Monte Carlo trials, as 'flatcheck reduce --trials'."),
-    u_height_um: float | None = typer.Option(
-        None, "--u-height-um", min=0.0, help="Height maps: standard uncertainty of each height in µm."),
+    seed: int | None = seed_option(),
+    trials: int = trials_option(),
+    u_height_um: float | None = u_height_option(),
     method: Method = typer.Option(Method.least_squares, "--method", help="Survey reduction: least-squares or moody."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
 ) -> None:
