@@ -809,6 +809,7 @@ def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarra
     if carriage.travel_start_mm is None and carriage.travel_end_mm is None and end < start - 1e-9:
         raise GeometryError(
             f"the carriage is {hi - lo:g} mm long but the surveyed area is only {xmax - xmin:g} mm long",
+            where="pad size / carriage",
             fix="use a smaller pad or carriage, or measure a longer surface",
         )
     if end < start:
@@ -973,9 +974,12 @@ def evaluate_bearing(
         if progress is not None:
             progress(1)
     if not stations:
+        xmin, xmax, ymin, ymax = surface.extent_mm
         raise GeometryError(
-            "no carriage position keeps every pad over the surveyed area",
-            fix="check the travel limits, the pad offsets and y position against the measured surface",
+            "no carriage position keeps every pad over the surveyed area "
+            f"(x {xmin:g} to {xmax:g} mm, y {ymin:g} to {ymax:g} mm)",
+            where="travel / pad positions",
+            fix="check the travel limits, the pad offsets and the y position (--y-mm) against the measured surface",
         )
 
     x_ok = np.array([s.x_mm for s in stations])
