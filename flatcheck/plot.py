@@ -493,12 +493,15 @@ def survey_layout(
         ax.set_xlim(-pad, L + pad)
         ax.set_ylim(-pad, W + pad)
     dash = ["-", "--", "-.", ":"]
+    span = float(np.ptp(xy, axis=0).max()) if len(xy) else 1.0
+    placed = []  # label positions already used
     for k, (name, idx) in enumerate(lines):
         idx = np.asarray(idx, int)
         p = xy[idx]
         ax.plot(p[:, 0], p[:, 1], dash[k % len(dash)], color=_INK, lw=1.0, zorder=2)
         ax.annotate("", xy=p[-1], xytext=p[-2], arrowprops=dict(arrowstyle="-|>", color=_INK, lw=1.0), zorder=3)
-        mid = p[len(p) // 2] if len(p) % 2 else 0.5 * (p[len(p) // 2 - 1] + p[len(p) // 2])
+        mid = _label_spot(p, placed, 0.12 * span)
+        placed.append(mid)
         note = name if not line_notes or name not in line_notes else f"{name}\n{line_notes[name]}"
         d = p[-1] - p[0]
         ang = float(np.degrees(np.arctan2(d[1], d[0])))
@@ -530,6 +533,26 @@ def survey_layout(
     if title:
         ax.set_title(title, fontsize=10, loc="left")
     return ax
+
+
+def _label_spot(p, placed, clearance):
+    """Where along the polyline ``p`` (shape (n, 2)) to write its label.
+
+    The midpoint unless another label is within ``clearance`` of it (the lines of a
+    Union Jack all cross at the centre): then the first of a few points further along
+    the line that keeps clear of the labels already placed.
+    """
+    seg = np.hypot(*np.diff(p, axis=0).T)
+    s = np.r_[0.0, np.cumsum(seg)]
+    best, best_gap = None, -1.0
+    for t in (0.5, 0.3, 0.7, 0.2, 0.8, 0.4, 0.6):
+        q = np.array([np.interp(t * s[-1], s, p[:, 0]), np.interp(t * s[-1], s, p[:, 1])])
+        gap = min((float(np.hypot(*(q - o))) for o in placed), default=np.inf)
+        if gap >= clearance:
+            return q
+        if gap > best_gap:
+            best, best_gap = q, gap
+    return best
 
 
 # ---------------------------------------------------------------------------- derived fields

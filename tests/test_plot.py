@@ -162,3 +162,25 @@ def test_pdf_book_is_atomic(tmp_path):
         book.add(plot.new_figure((3, 3)))
         book.add(plot.new_figure((3, 3)))
     assert book.pages == 2 and target.read_bytes()[:5] == b"%PDF-"
+
+
+def test_survey_layout_keeps_labels_of_lines_crossing_at_the_centre_apart():
+    # Union Jack on 1000 x 600 mm: both diagonals and both centre lines cross at C = (500, 300);
+    # their labels used to sit on top of each other at C (unreadable in the report).
+    xy = np.array([[0, 0], [1000, 600], [1000, 0], [0, 600], [500, 300], [0, 300], [1000, 300], [500, 0], [500, 600]],
+                  float)
+    lines = [("SW-NE", [0, 4, 1]), ("SE-NW", [2, 4, 3]), ("W-E", [5, 4, 6]), ("S-N", [7, 4, 8])]
+    fig = plot.new_figure((6, 4))
+    ax = plot.survey_layout(fig.add_subplot(), xy, lines, length_mm=1000, width_mm=600)
+    pos = {t.get_text(): np.array(t.get_position()) for t in ax.texts if t.get_text() in dict(lines)}
+    assert set(pos) == set(dict(lines))
+    names = list(pos)
+    gaps = [np.hypot(*(pos[a] - pos[b])) for i, a in enumerate(names) for b in names[i + 1:]]
+    # each label stays at least 12 % of the layout's span (1000 mm) from every other
+    assert min(gaps) >= 0.12 * 1000 - 1e-9
+    # and every label still lies on its own line (distance from the segment's supporting line is zero)
+    for name, idx in lines:
+        a, b = xy[idx[0]], xy[idx[-1]]
+        d = b - a
+        q = pos[name] - a
+        assert abs(d[0] * q[1] - d[1] * q[0]) / np.hypot(*d) == pytest.approx(0.0, abs=1e-9)
