@@ -295,9 +295,8 @@ def contour_map(
         pad = 0.03 * max(L, W)
         ax.set_xlim(-pad, L + pad)
         ax.set_ylim(-pad, W + pad)
-    ax.set_aspect("equal")
     ax.set_xlabel(f"x, along the length ({pu})")
-    ax.set_ylabel(f"y, across ({pu})")
+    ax.set_ylabel(_plan_aspect(ax, f"y, across ({pu})"))
     if title:
         ax.set_title(title, fontsize=10, loc="left")
     return ax
@@ -527,12 +526,37 @@ def survey_layout(
             bbox=dict(boxstyle="round,pad=0.25", fc="white", ec=_ACCENT, lw=0.6),
             zorder=8,
         )
-    ax.set_aspect("equal")
     ax.set_xlabel(f"x ({pu})")
-    ax.set_ylabel(f"y ({pu})")
+    ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"))
     if title:
         ax.set_title(title, fontsize=10, loc="left")
     return ax
+
+
+_MAX_PLAN_RATIO = 4.0  # longest drawn length : width of a plan view
+
+
+def _plan_aspect(ax, ylabel: str) -> str:
+    """Equal scales on a plan view, unless the surface is long and narrow.
+
+    A 2000 x 200 mm guideway drawn to scale is a strip too thin to read; such a
+    view is stretched across so that it is drawn at most ``_MAX_PLAN_RATIO`` times
+    longer than wide, and the returned axis label says by how much.
+
+    Returns
+    -------
+    str
+        ``ylabel``, with the stretch factor added when there is one.
+    """
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    ratio = abs(x1 - x0) / max(abs(y1 - y0), 1e-12)
+    if ratio <= _MAX_PLAN_RATIO:
+        ax.set_aspect("equal")
+        return ylabel
+    stretch = ratio / _MAX_PLAN_RATIO
+    ax.set_aspect(stretch)  # one unit across is drawn `stretch` times as long as one unit along
+    return f"{ylabel}\ndrawn {stretch:.2g}x the x scale"
 
 
 def _label_spot(p, placed, clearance):
@@ -607,9 +631,8 @@ def field_map(ax, x_mm, y_mm, values, *, label: str, cmap: str = FIELD_CMAP, uni
             ax.contourf(x, y, V, levels=[lim, float(V.max()) + 1e-9], colors="none", hatches=["////"])
             ax.contour(x, y, V, levels=[lim], colors=_ACCENT, linewidths=1.6)
         cb.ax.axhline(lim, color=_ACCENT, lw=2)
-    ax.set_aspect("equal")
     ax.set_xlabel(f"x ({pu})")
-    ax.set_ylabel(f"y ({pu})")
+    ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"))
     if title:
         ax.set_title(title, fontsize=10, loc="left")
     return ax

@@ -184,3 +184,25 @@ def test_survey_layout_keeps_labels_of_lines_crossing_at_the_centre_apart():
         d = b - a
         q = pos[name] - a
         assert abs(d[0] * q[1] - d[1] * q[0]) / np.hypot(*d) == pytest.approx(0.0, abs=1e-9)
+
+
+def test_plan_views_of_a_long_narrow_surface_are_stretched_across_and_say_so():
+    # A 2000 x 200 mm guideway drawn to scale is a strip 10 times longer than wide; the plan
+    # views stretch it so the drawn length : width is at most 4 (common practice, no single
+    # source: a legible plan), and the axis label states the stretch.
+    x, y = np.meshgrid(np.linspace(0, 2000, 21), np.linspace(0, 200, 5))
+    z = 1e-3 * (x - 1000) ** 2 / 1000  # a bowl along the length, µm
+    hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), length_mm=2000, width_mm=200, label="guide")
+    fig = plot.new_figure((6, 4))
+    ax = plot.contour_map(fig.add_subplot(), hm)
+    fig.canvas.draw()
+    bb = ax.get_position()
+    w_in, h_in = bb.width * fig.get_figwidth(), bb.height * fig.get_figheight()
+    assert w_in / h_in == pytest.approx(4.0, rel=0.02)
+    assert "drawn" in ax.get_ylabel() and "x the x scale" in ax.get_ylabel()
+    # a plate of ordinary proportions (1000 x 630 mm) is still drawn to scale, label unchanged
+    x, y = np.meshgrid(np.linspace(0, 1000, 11), np.linspace(0, 630, 7))
+    hm = HeightMap(x.ravel(), y.ravel(), (1e-3 * x).ravel(), length_mm=1000, width_mm=630, label="plate")
+    ax = plot.contour_map(plot.new_figure((6, 4)).add_subplot(), hm)
+    assert ax.get_aspect() == 1.0
+    assert ax.get_ylabel() == "y, across (mm)"
