@@ -1,4 +1,4 @@
-"""Air film of a porous aerostatic pad over a measured surface (Reynolds equation).
+"""Air film of a porous or orifice-fed aerostatic pad over a measured surface (Reynolds equation).
 
 A porous pad is fed through a thin porous layer (permeability ``k`` in m², thickness ``H``) whose back is
 held at the supply pressure ``ps``. The air crosses the layer (Darcy's law), spreads through the film of
@@ -29,6 +29,19 @@ each cell inside the pad). One LU factorisation (scipy.sparse.linalg.splu) per f
 pressure and, by reusing the factors, its exact derivatives with respect to fly height and tilts
 (stiffness and the Newton steps of the equilibrium).
 
+Orifice-fed pads
+----------------
+An :class:`OrificeFeed` replaces the porous layer by N orifices (bore ``d``, discharge coefficient ``Cd``,
+optional pocket of uniform pressure). The land obeys ``div(h³ grad P) = 0``, ``P = pa²`` on the edge and
+``P = pr_k²`` over feed region k. For fixed film and feed pressures the field is ``P = pa² + sum X_k U_k``
+(``X_k = pr_k² - pa²``, ``U_k`` the field of a unit ``X`` at feed k, one LU factorisation and N solves), so
+the film's outflow from each feed is linear in ``X``: ``G X``. The feed pressures solve
+``mdot_k(pr_k) = (G X)_k`` (isentropic nozzle, :func:`orifice_mass_flow`): a 1-D root find (brentq) for
+one orifice, Newton for several. A feed narrower than about a fifth of a cell is joined to its nearest node
+by Peaceman's well-block relation ``Q = 2 pi h³ (pr² - P_node) / ln(r_eq / r0)``, ``r_eq = 0.1985 dx``
+[5]_; a wider one holds its nodes at ``pr²`` (staircase, first order in the pocket's radius). Derivatives for
+stiffness and Newton come from the same factors plus the implicit derivative of the feed balance.
+
 Units: positions in mm (pad-local, origin at the pad centre, ``x`` along the travel), films in µm,
 pressures in Pa, loads in N, moments in N·mm, stiffness in N/µm, mass flow in kg/s, volumetric flow in
 l/min of free air at the ambient pressure and the film temperature.
@@ -45,6 +58,9 @@ References
    (1938) (boundary-adapted five-point differences; from memory).
 .. [4] R. B. Bird, W. E. Stewart, E. N. Lightfoot, Transport Phenomena, Table 1.1-2: air at 20 °C and
    1 atm, 0.01813 mPa·s.
+.. [5] D. W. Peaceman, "Interpretation of well-block pressures in numerical reservoir simulation", SPE
+   Journal 18(3):183-194 (1978) (from memory; the constant e^-gamma / (2 sqrt 2) = 0.1985 is the far field of
+   the five-point Green's function, and the tests confirm it against the exact radial solution).
 """
 
 from __future__ import annotations
@@ -68,6 +84,12 @@ __all__ = [
     "STANDARD_AMBIENT_KPA",
     "FILM_ASSUMPTIONS",
     "PorousFeed",
+    "OrificeFeed",
+    "ORIFICE_ASSUMPTIONS",
+    "AIR_HEAT_CAPACITY_RATIO",
+    "critical_pressure_ratio",
+    "orifice_mass_flow",
+    "orifice_ring",
     "PadMesh",
     "PadDeviation",
     "FilmState",
@@ -89,6 +111,7 @@ __all__ = [
     "bearing_film",
     "with_film_checks",
     "check_carriage_load",
+    "orifice_notes",
 ]
 
 #: Dynamic viscosity of air at 20 °C, 1 atm: 0.01813 mPa·s in Bird, Stewart & Lightfoot, Transport Phenomena,
@@ -196,6 +219,265 @@ class PorousFeed:
     def ambient_density_kg_m3(self) -> float:
         """Density of the air at the ambient pressure and the film temperature (ideal gas), kg/m³."""
         return self.ambient_pa / (self.gas_constant_j_per_kg_k * self.temperature_k)
+
+
+#: Ratio of specific heats of air (diatomic ideal gas, 7/5), used by the orifice nozzle formula.
+AIR_HEAT_CAPACITY_RATIO = 1.4
+
+#: The orifice model's assumptions, stated in every orifice-fed result (the CLI prints them).
+ORIFICE_ASSUMPTIONS = (
+    "steady film, no sliding (squeeze and shear terms of the Reynolds equation ignored)",
+    "isothermal ideal gas (air, R = 287.05 J/(kg K)) in the film at the stated temperature",
+    "laminar film with no slip at the pad face or the guide",
+    "isentropic nozzle flow through each orifice (gamma 1.4) times a discharge coefficient; the restriction "
+    "is the smaller of the bore pi d^2/4 and the curtain pi d (h + pocket depth)",
+    "uniform pressure over each feed pocket (over the bore's radius without a pocket); a feed smaller than "
+    "the mesh is joined to its nearest mesh node by Peaceman's well-block relation (radial flow near the feed)",
+    "supply pressure upstream of every orifice; ambient pressure at the pad's edge",
+    "rigid pad face and rigid guide; the gap follows the measured surface under the footprint",
+    "air viscosity 1.81e-5 Pa s (20 °C) unless stated otherwise",
+)
+
+
+def critical_pressure_ratio(gamma: float = AIR_HEAT_CAPACITY_RATIO) -> float:
+    """Downstream/upstream pressure ratio below which an isentropic nozzle is choked, ``(2/(g+1))^(g/(g-1))``.
+
+    Parameters
+    ----------
+    gamma : float
+        Ratio of specific heats (dimensionless), 1.4 for air.
+
+    Returns
+    -------
+    float
+        Critical pressure ratio (0.52828 for gamma = 1.4).
+    """
+    g = float(gamma)
+    return (2.0 / (g + 1.0)) ** (g / (g - 1.0))
+
+
+def orifice_mass_flow(
+    recess_pa,
+    supply_pa: float,
+    area_m2,
+    *,
+    cd: float = 0.8,
+    gamma: float = AIR_HEAT_CAPACITY_RATIO,
+    gas_constant_j_per_kg_k: float = AIR_GAS_CONSTANT_J_PER_KG_K,
+    temperature_k: float = ROOM_TEMPERATURE_K,
+):
+    """Mass flow of an isentropic nozzle with a discharge coefficient (standard gas dynamics).
+
+    ``mdot = Cd A ps sqrt(2g/((g-1) R T)) sqrt(r^(2/g) - r^((g+1)/g))`` with ``r = pr/ps`` above the critical
+    ratio; below it the flow is choked at ``Cd A ps sqrt(g/(R T)) (2/(g+1))^((g+1)/(2(g-1)))``.
+
+    Parameters
+    ----------
+    recess_pa : float or ndarray
+        Absolute pressure downstream of the orifice (feed pocket or film at the orifice), Pa.
+    supply_pa : float
+        Absolute supply pressure upstream, Pa.
+    area_m2 : float or ndarray
+        Restriction area, m².
+    cd : float
+        Discharge coefficient (dimensionless).
+    gamma : float
+        Ratio of specific heats.
+    gas_constant_j_per_kg_k, temperature_k : float
+        Specific gas constant (J/(kg K)) and supply temperature (K).
+
+    Returns
+    -------
+    float or ndarray
+        Mass flow, kg/s (0 where ``recess_pa >= supply_pa``).
+    """
+    g = float(gamma)
+    r = np.clip(np.asarray(recess_pa, dtype=float) / float(supply_pa), 0.0, 1.0)
+    rc = critical_pressure_ratio(g)
+    r = np.maximum(r, rc)  # choked: the flow of the critical ratio
+    psi = np.sqrt(2.0 * g / (g - 1.0) * np.clip(r ** (2.0 / g) - r ** ((g + 1.0) / g), 0.0, None))
+    out = cd * np.asarray(area_m2, dtype=float) * float(supply_pa) * psi / math.sqrt(
+        gas_constant_j_per_kg_k * temperature_k
+    )
+    return float(out) if np.ndim(out) == 0 else out
+
+
+def _orifice_dflow_dp(recess_pa, supply_pa, area_m2, cd, gamma, rt):
+    """d(mdot)/d(pr) of :func:`orifice_mass_flow` (kg/(s Pa)); zero when choked."""
+    g = gamma
+    r = min(max(recess_pa / supply_pa, 0.0), 1.0)
+    if r <= critical_pressure_ratio(g) or r >= 1.0:
+        return 0.0
+    a, b = r ** (2.0 / g), r ** ((g + 1.0) / g)
+    s = math.sqrt(2.0 * g / (g - 1.0) * (a - b))
+    ds_dr = (2.0 * g / (g - 1.0)) * ((2.0 / g) * a / r - ((g + 1.0) / g) * b / r) / (2.0 * s)
+    return cd * area_m2 * ds_dr / math.sqrt(rt)
+
+
+@dataclass(frozen=True)
+class OrificeFeed:
+    """Orifices, optional feed pockets, air supply and gas properties of an orifice-fed pad.
+
+    Attributes
+    ----------
+    orifice_mm : float
+        Orifice (bore) diameter ``d`` in mm, > 0.
+    supply_gauge_kpa : float
+        Supply pressure above ambient (gauge) in kPa, > 0.
+    cd : float
+        Discharge coefficient, in (0, 1] (default 0.8).
+    positions_mm : tuple of (float, float)
+        Orifice centres in pad-local mm (origin at the pad centre, x along the travel); default one central
+        orifice ``((0.0, 0.0),)``.
+    pocket_mm : float
+        Diameter of a feed pocket (recess) around each orifice in mm; 0 for none (inherent compensation).
+    pocket_depth_um : float
+        Pocket depth in µm (0 without a pocket).
+    ambient_kpa, viscosity_pa_s, gas_constant_j_per_kg_k, temperature_k
+        As in :class:`PorousFeed`.
+    gamma : float
+        Ratio of specific heats (1.4 for air).
+    """
+
+    orifice_mm: float
+    supply_gauge_kpa: float
+    cd: float = 0.8
+    positions_mm: tuple = ((0.0, 0.0),)
+    pocket_mm: float = 0.0
+    pocket_depth_um: float = 0.0
+    ambient_kpa: float = STANDARD_AMBIENT_KPA
+    viscosity_pa_s: float = AIR_VISCOSITY_20C_PA_S
+    gas_constant_j_per_kg_k: float = AIR_GAS_CONSTANT_J_PER_KG_K
+    temperature_k: float = ROOM_TEMPERATURE_K
+    gamma: float = AIR_HEAT_CAPACITY_RATIO
+
+    def __post_init__(self):
+        checks = {
+            "orifice_mm": ("orifice diameter (mm)", "give the orifice bore in mm, e.g. 0.2"),
+            "supply_gauge_kpa": ("supply pressure (kPa gauge)", "give the supply above ambient, e.g. 500"),
+            "cd": ("discharge coefficient", "give a discharge coefficient such as 0.8"),
+            "ambient_kpa": ("ambient pressure (kPa)", "give the absolute ambient pressure, e.g. 101.325"),
+            "viscosity_pa_s": ("air viscosity (Pa s)", "give a viscosity such as 1.81e-5"),
+            "gas_constant_j_per_kg_k": ("gas constant (J/(kg K))", "give 287.05 for air"),
+            "temperature_k": ("temperature (K)", "give an absolute temperature such as 293.15"),
+            "gamma": ("ratio of specific heats", "give 1.4 for air"),
+        }
+        for attr, (name, fix) in checks.items():
+            object.__setattr__(self, attr, _positive(getattr(self, attr), name, fix))
+        if self.cd > 1.0:
+            raise InputValueError(f"discharge coefficient must be at most 1, got {self.cd:g}", fix="give e.g. 0.8")
+        if self.gamma <= 1.0:
+            raise InputValueError(f"ratio of specific heats must exceed 1, got {self.gamma:g}", fix="give 1.4")
+        for attr, name in (("pocket_mm", "pocket diameter (mm)"), ("pocket_depth_um", "pocket depth (µm)")):
+            v = getattr(self, attr)
+            try:
+                v = float(v)
+            except (TypeError, ValueError):
+                raise InputValueError(f"{name} must be a number, got {v!r}", fix="give 0 for no pocket") from None
+            if not math.isfinite(v) or v < 0.0:
+                raise InputValueError(f"{name} must be 0 or positive, got {v!r}", fix="give 0 for no pocket")
+            object.__setattr__(self, attr, v)
+        if (self.pocket_mm > 0.0) != (self.pocket_depth_um > 0.0):
+            raise InputValueError(
+                "a feed pocket needs both a diameter and a depth",
+                fix="give pocket diameter (mm) and depth (µm) together, or neither",
+            )
+        if self.pocket_mm > 0.0 and self.pocket_mm <= self.orifice_mm:
+            raise InputValueError(
+                f"pocket diameter {self.pocket_mm:g} mm is not larger than the orifice ({self.orifice_mm:g} mm)",
+                fix="give a pocket wider than the bore, or no pocket",
+            )
+        try:
+            pos = tuple((float(x), float(y)) for x, y in self.positions_mm)
+        except (TypeError, ValueError):
+            raise InputValueError(
+                "orifice positions must be (x_mm, y_mm) pairs", fix="give e.g. ((0, 0),) for one central orifice"
+            ) from None
+        if not pos or not all(math.isfinite(v) for p in pos for v in p):
+            raise InputValueError("give at least one finite orifice position", fix="e.g. ((0, 0),)")
+        object.__setattr__(self, "positions_mm", pos)
+
+    @property
+    def supply_pa(self) -> float:
+        """Absolute supply pressure in Pa."""
+        return (self.supply_gauge_kpa + self.ambient_kpa) * 1e3
+
+    @property
+    def ambient_pa(self) -> float:
+        """Absolute ambient pressure in Pa."""
+        return self.ambient_kpa * 1e3
+
+    @property
+    def ambient_density_kg_m3(self) -> float:
+        """Density of the air at the ambient pressure and the film temperature (ideal gas), kg/m³."""
+        return self.ambient_pa / (self.gas_constant_j_per_kg_k * self.temperature_k)
+
+    @property
+    def feed_radius_mm(self) -> float:
+        """Radius of the uniform-pressure feed region around each orifice, mm (pocket, else bore)."""
+        return 0.5 * (self.pocket_mm if self.pocket_mm > 0.0 else self.orifice_mm)
+
+    @property
+    def pocket_volume_mm3(self) -> float:
+        """Volume of one feed pocket, mm³ (0 without a pocket)."""
+        return math.pi * self.pocket_mm**2 / 4.0 * self.pocket_depth_um * 1e-3
+
+    def restriction_area_m2(self, gap_um):
+        """Restriction area of one orifice at a film of ``gap_um`` µm at the orifice, m².
+
+        The smaller of the bore ``pi d²/4`` and the curtain ``pi d (h + pocket depth)`` through which the air
+        leaves the bore.
+        """
+        d = self.orifice_mm * 1e-3
+        curtain = math.pi * d * (np.asarray(gap_um, dtype=float) + self.pocket_depth_um) * 1e-6
+        return np.minimum(math.pi * d * d / 4.0, curtain)
+
+    @property
+    def assumptions(self) -> tuple:
+        return ORIFICE_ASSUMPTIONS
+
+    def mass_flow(self, recess_pa, gap_um):
+        """Mass flow (kg/s) of one orifice into a recess at ``recess_pa`` (Pa abs) with ``gap_um`` µm there."""
+        return orifice_mass_flow(
+            recess_pa, self.supply_pa, self.restriction_area_m2(gap_um), cd=self.cd, gamma=self.gamma,
+            gas_constant_j_per_kg_k=self.gas_constant_j_per_kg_k, temperature_k=self.temperature_k,
+        )
+
+
+def orifice_ring(shape: str, length_mm: float, width_mm: float, count: int) -> tuple:
+    """Default orifice layout: one at the centre, or ``count`` evenly spaced.
+
+    A circular pad gets a ring at half its radius; a rectangular pad a row along its longer centre line, at
+    the centres of ``count`` equal parts. (A layout convention of this tool.)
+
+    Parameters
+    ----------
+    shape : {"circle", "rect"}
+    length_mm, width_mm : float
+        Pad size in mm.
+    count : int
+        Number of orifices, >= 1.
+
+    Returns
+    -------
+    tuple of (float, float)
+        Orifice centres in pad-local mm.
+    """
+    try:
+        k = int(count)
+    except (TypeError, ValueError):
+        raise InputValueError(f"orifice count must be a whole number, got {count!r}", fix="give e.g. 1") from None
+    if k < 1 or k != count:
+        raise InputValueError(f"orifice count must be a whole number of at least 1, got {count!r}", fix="give e.g. 1")
+    if k == 1:
+        return ((0.0, 0.0),)
+    if shape == "circle":
+        r = 0.25 * length_mm
+        return tuple((r * math.cos(2 * math.pi * i / k), r * math.sin(2 * math.pi * i / k)) for i in range(k))
+    along = length_mm >= width_mm
+    size = length_mm if along else width_mm
+    pos = [-0.5 * size + (i + 0.5) * size / k for i in range(k)]
+    return tuple((p, 0.0) if along else (0.0, p) for p in pos)
 
 
 # --------------------------------------------------------------------------- mesh
@@ -660,6 +942,9 @@ class FilmState:
     flow_l_per_min : float
         Volumetric flow of free air at the ambient pressure and film temperature, l/min.
     assumptions : tuple of str
+    feed_pressure_ratios : ndarray, shape (N,)
+        Orifice-fed pads: absolute feed (pocket) pressure over absolute supply pressure at each of the N
+        orifices (dimensionless); empty for a porous pad.
     """
 
     gap_um: np.ndarray
@@ -674,6 +959,13 @@ class FilmState:
     edge_outflow_kg_s: float
     flow_l_per_min: float
     assumptions: tuple = FILM_ASSUMPTIONS
+    feed_pressure_ratios: np.ndarray = field(default_factory=lambda: np.array([]))
+
+    @property
+    def feed_pressure_ratio(self) -> float:
+        """Mean feed pressure ratio ``pr / ps`` over the orifices (NaN for a porous pad)."""
+        r = np.asarray(self.feed_pressure_ratios, dtype=float)
+        return float(r.mean()) if r.size else float("nan")
 
 
 @dataclass(frozen=True, eq=False)
@@ -699,6 +991,8 @@ class FilmCurve:
     peak_inside : bool
         False when the greatest stiffness is at an end of the sampled range (then widen the range).
     assumptions : tuple of str
+    feed_pressure_ratio : ndarray, shape (k,)
+        Orifice-fed pads: mean ``pr / ps`` over the orifices at each gap; NaN for a porous pad.
     """
 
     gap_um: np.ndarray
@@ -710,6 +1004,7 @@ class FilmCurve:
     peak_stiffness_n_per_um: float
     peak_inside: bool
     assumptions: tuple = FILM_ASSUMPTIONS
+    feed_pressure_ratio: np.ndarray = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -759,7 +1054,8 @@ class FilmTravel:
     """Equilibrium of a pad at each carriage position (arrays of shape (k,), one entry per position).
 
     ``converged[i]`` is False where no film equilibrium exists (the pad would touch the surface); the other
-    fields are NaN there and ``failure`` names the reason.
+    fields are NaN there and ``failure`` names the reason. ``feed_pressure_ratio`` is the mean ``pr / ps`` over
+    the orifices of an orifice-fed pad (NaN for a porous pad).
     """
 
     fly_height_um: np.ndarray
@@ -775,6 +1071,7 @@ class FilmTravel:
     converged: np.ndarray
     failure: tuple
     assumptions: tuple = FILM_ASSUMPTIONS
+    feed_pressure_ratio: np.ndarray = None
 
 
 # --------------------------------------------------------------------------- solver core
@@ -785,21 +1082,30 @@ class _Contact(Exception):
 class _Solver:
     """Film solutions on one mesh with one feed; methods are thread-safe (no shared mutable state)."""
 
-    def __init__(self, mesh: PadMesh, feed: PorousFeed):
+    def __init__(self, mesh: PadMesh, feed):
+        if not isinstance(feed, (PorousFeed, OrificeFeed)):
+            raise InputValueError(
+                f"unknown feed {type(feed).__name__}", fix="give a PorousFeed or an OrificeFeed"
+            )
         self.mesh = mesh
         self.feed = feed
         ops = mesh._ops
         self.ops = ops
-        self.beta = feed.feed_coefficient
         pa, ps = feed.ambient_pa, feed.supply_pa
         self.pa = pa
         self.dP = ps * ps - pa * pa
         mu, R, T = feed.viscosity_pa_s, feed.gas_constant_j_per_kg_k, feed.temperature_k
         self.rt = R * T
-        # Darcy inflow k (ps² - p²) / (2 mu R T H) per m²; Pn form: k dP (1 - Pn) / (2 mu R T H)
-        self.inflow_coef = feed.permeability_m2 * self.dP / (2 * mu * R * T * feed.layer_mm * 1e-3)
         # film flux h³ grad(p²) / (24 mu R T), h in µm, grad in 1/mm, length in mm: 1e-18 * 1e3 * 1e-3
-        self.outflow_coef = self.dP * 1e-18 / (24 * mu * R * T)
+        self.flux_coef = 1e-18 / (24 * mu * R * T)
+        self.outflow_coef = self.dP * self.flux_coef
+        self.orifice = isinstance(feed, OrificeFeed)
+        if self.orifice:
+            self._setup_orifices()
+        else:
+            self.beta = feed.feed_coefficient
+            # Darcy inflow k (ps² - p²) / (2 mu R T H) per m²; Pn form: k dP (1 - Pn) / (2 mu R T H)
+            self.inflow_coef = feed.permeability_m2 * self.dP / (2 * mu * R * T * feed.layer_mm * 1e-3)
         self.w = mesh.area_mm2 * _MM2_TO_M2
         self.x = mesh.x_mm
         self.y = mesh.y_mm
@@ -810,9 +1116,178 @@ class _Solver:
         self.fx, self.fy = px[self.face_sl], py[self.face_sl]
         self.px, self.py = px, py
 
+    # ---- orifice feeds
+    def _setup_orifices(self):
+        """Feed regions on the mesh: node sets, coupling kind and the Peaceman well geometry."""
+        feed, mesh = self.feed, self.mesh
+        dx, dy = mesh.spacing_mm
+        # Peaceman's equivalent well-block radius for the five-point scheme on square cells, e^-gamma / (2 sqrt 2)
+        # times the spacing = 0.1985 dx; 0.14 sqrt(dx² + dy²) for rectangular cells (Peaceman 1978/1983)
+        r_eq = 0.14 * math.hypot(dx, dy) if abs(dx - dy) > 1e-9 * dx else 0.19850 * dx
+        r0 = feed.feed_radius_mm
+        half = 0.5 * mesh.length_mm, 0.5 * mesh.width_mm
+        nodes, region, well_geom, hub = [], [], [], []
+        for k, (xo, yo) in enumerate(feed.positions_mm):
+            if mesh.shape == "circle":
+                room = half[0] - math.hypot(xo, yo)
+            else:
+                room = min(half[0] - abs(xo), half[1] - abs(yo))
+            if room <= r0 + 1.5 * max(dx, dy):
+                raise GeometryError(
+                    f"orifice {k + 1} at ({xo:g}, {yo:g}) mm is too close to the pad's edge for its feed radius "
+                    f"{r0:g} mm on this mesh",
+                    fix="move the orifice inwards, use a smaller pocket or a finer mesh",
+                )
+            d2 = (mesh.x_mm - xo) ** 2 + (mesh.y_mm - yo) ** 2
+            j = int(np.argmin(d2))
+            hub.append(j)
+            if r0 < r_eq:
+                nodes.append(j)
+                region.append(k)
+                # radial flow from the feed radius r0 to the well-block radius: Q = 2 pi h³ dP / ln(r_eq / r0),
+                # per unit cell area in the node's equation
+                well_geom.append(2.0 * math.pi / (math.log(r_eq / r0) * mesh.area_mm2[j]))
+            else:
+                inside = np.flatnonzero(d2 < r0 * r0)
+                inside = np.union1d(inside, [j])
+                nodes.extend(inside.tolist())
+                region.extend([k] * inside.size)
+                well_geom.extend([0.0] * inside.size)  # 0 marks a node held at the feed pressure
+        nodes = np.array(nodes, dtype=np.int64)
+        if np.unique(nodes).size != nodes.size:
+            raise GeometryError("two orifices' feed regions overlap on this mesh",
+                                fix="space the orifices further apart or use a finer mesh")
+        self.feed_nodes = nodes
+        self.feed_region = np.array(region, dtype=np.int64)
+        self.well_geom = np.array(well_geom)
+        self.is_well = self.well_geom > 0.0
+        self.hub = np.array(hub, dtype=np.int64)  # node of each orifice (film at the orifice)
+        self.n_orifice = len(feed.positions_mm)
+        self.feed_area = mesh.area_mm2[nodes]
+        self.well_radius_mm = r_eq
+        inv = np.argsort(self.ops["perm"])
+        self.feed_diag = self.ops["diag_pos"][inv[nodes]]  # data index of each feed node's diagonal
+        self.X_max = self.dP
+        # region-sum matrix: (N, len(nodes)), 1 where a node belongs to orifice k
+        self.region_sum = np.zeros((self.n_orifice, nodes.size))
+        self.region_sum[self.feed_region, np.arange(nodes.size)] = 1.0
+
+    def _feed_flows(self, X, gaps_hub):
+        """Orifice mass flows (kg/s) and d(mdot)/dX (X = pr² - pa²) at feed pressures given by X."""
+        f = self.feed
+        pr = np.sqrt(self.pa * self.pa + np.clip(X, 0.0, self.X_max))
+        area = f.restriction_area_m2(gaps_hub)
+        m = np.array([f.mass_flow(pr[k], gaps_hub[k]) for k in range(X.size)])
+        dm = np.array([
+            _orifice_dflow_dp(pr[k], f.supply_pa, float(area[k]), f.cd, f.gamma, self.rt) / (2.0 * pr[k])
+            for k in range(X.size)
+        ])
+        return m, dm, pr, area
+
+    def _balance(self, G, gaps_hub):
+        """Feed states X_k = pr_k² - pa² at which each orifice's flow equals the film's outflow ``G X``."""
+        from scipy.optimize import brentq
+
+        N = self.n_orifice
+        if N == 1:
+            g = float(G[0, 0])
+
+            def f(x):
+                return self._feed_flows(np.array([x]), gaps_hub)[0][0] - g * x
+
+            X = np.array([brentq(f, 0.0, self.X_max, xtol=1e-14 * self.X_max, rtol=1e-14, maxiter=200)])
+            return X
+        # several orifices: Newton on m(X) - G X = 0 (monotone: m falls, G X rises with each X_k)
+        X = np.full(N, 0.5 * self.X_max)
+        scale = max(float(np.abs(G).max()) * self.X_max, 1e-300)
+        for _ in range(100):
+            m, dm, _, _ = self._feed_flows(X, gaps_hub)
+            F = m - G @ X
+            if np.max(np.abs(F)) < 1e-13 * scale:
+                break
+            step = np.linalg.solve(np.diag(dm) - G, -F)
+            alpha = 1.0
+            while True:
+                Xn = np.clip(X + alpha * step, 0.0, self.X_max)
+                Fn = self._feed_flows(Xn, gaps_hub)[0] - G @ Xn
+                if np.max(np.abs(Fn)) < np.max(np.abs(F)) or alpha < 1e-4:
+                    break
+                alpha *= 0.5
+            X = Xn
+        return X
+
+    def _solve_orifice(self, probe_gap_um, deriv_xy: bool):
+        ops = self.ops
+        n = self.mesh.n
+        perm = ops["perm"]
+        hf = probe_gap_um[self.face_sl]
+        c = hf * hf * hf
+        data = ops["assemble"] @ c
+        h_nodes = probe_gap_um[self.feed_nodes]
+        w = self.well_geom * h_nodes**3
+        # nodes held at the feed pressure: a penalty a million times the largest diagonal (error ~1e-6)
+        w_pen = 1e6 * float(data[ops["diag_pos"]].max())
+        w = np.where(self.is_well, w, w_pen)
+        data[self.feed_diag] += w
+        Ap = sp.csc_matrix((data, ops["indices"], ops["indptr"]), shape=(n, n))
+        lu = splu(Ap, permc_spec="NATURAL", options=dict(SymmetricMode=True, DiagPivotThresh=0.0))
+        N = self.n_orifice
+        B = np.zeros((n, N))
+        B[self.feed_nodes, self.feed_region] = w
+        U = np.empty((n, N))
+        U[perm] = lu.solve(B[perm])  # field of unit X at each orifice, others at 0
+        aw = self.feed_area * w
+        # film outflow from feed k per unit X_j: G_kj = C (delta_kj sum_k a w - sum_k a w U_j)
+        G = self.flux_coef * (np.diag(self.region_sum @ aw) - self.region_sum @ (aw[:, None] * U[self.feed_nodes]))
+        gaps_hub = probe_gap_um[self.hub]
+        X = self._balance(G, gaps_hub)
+        phi = U @ X
+        # derivatives at fixed X: (K + W) dPhi = -(dK) Phi - dW (Phi - X)
+        dc = 3.0 * hf * hf
+        fj = (ops["jump"] @ phi) * dc
+        if deriv_xy:
+            D = np.column_stack([fj, fj * (self.fx * 1e-3), fj * (self.fy * 1e-3)])
+            dh_nodes = np.column_stack([np.ones(n), self.x * 1e-3, self.y * 1e-3])
+        else:
+            D = fj[:, None]
+            dh_nodes = np.ones((n, 1))
+        rhs = -(ops["scatter"] @ D)
+        Xn = X[self.feed_region]
+        dw = np.where(self.is_well, 3.0 * w / h_nodes, 0.0)[:, None] * dh_nodes[self.feed_nodes]
+        np.add.at(rhs, self.feed_nodes, -dw * (phi[self.feed_nodes] - Xn)[:, None])
+        dphi = np.empty_like(rhs)
+        dphi[perm] = lu.solve(rhs[perm])
+        # outflow from each feed at fixed X, and the orifice flows, as functions of u
+        d_out = self.flux_coef * (
+            self.region_sum @ (self.feed_area[:, None] * (dw * (Xn - phi[self.feed_nodes])[:, None]
+                                                          - w[:, None] * dphi[self.feed_nodes]))
+        )
+        m, dm_dX, pr, area = self._feed_flows(X, gaps_hub)
+        f = self.feed
+        bore = math.pi * (f.orifice_mm * 1e-3) ** 2 / 4.0
+        curtain = area < bore
+        dA_dh = np.where(curtain, math.pi * f.orifice_mm * 1e-3 * 1e-6, 0.0)  # m² per µm
+        dm_dA = np.where(area > 0, m / np.where(area > 0, area, 1.0), 0.0)
+        dm_du = (dm_dA * dA_dh)[:, None] * dh_nodes[self.hub]
+        JX = np.diag(dm_dX) - G
+        dX = -np.linalg.solve(JX, dm_du - d_out)
+        dphi = dphi + U @ dX
+        phi_c = np.clip(phi, 0.0, self.X_max)
+        p = np.sqrt(self.pa * self.pa + phi_c)
+        dp = dphi / (2.0 * p)[:, None]
+        q = self.w * (p - self.pa)
+        wd = self.w[:, None] * dp
+        J = np.vstack([wd.sum(axis=0), self.x @ wd, self.y @ wd])
+        return dict(pn=phi / self.dP, p=p, load=float(q.sum()), mx=float(q @ self.x), my=float(q @ self.y), J=J,
+                    hmin=float(probe_gap_um.min()), mass=float(m.sum()), ratio=pr / f.supply_pa)
+
     # ---- one film solution
     def solve(self, probe_gap_um, deriv_xy: bool):
         """Solve for a film given at the probe points; derivatives wrt h0 (and tilts if deriv_xy)."""
+        if self.orifice:
+            if not float(probe_gap_um.min()) > 0.0:
+                raise _Contact()
+            return self._solve_orifice(probe_gap_um, deriv_xy)
         ops = self.ops
         n = self.mesh.n
         hmin = float(probe_gap_um.min())
@@ -856,7 +1331,12 @@ class _Solver:
         area = self.mesh.area_mm2
         # inflow = coef * ∫(1 - Pn) dA = coef * (face area - ∫Pn dA); Pn vanishes at the edge, so the node
         # quadrature of ∫Pn dA keeps second order where ∫(1 - Pn) dA would lose the cut cells' area
-        mass = self.inflow_coef * (self.mesh.pad_area_mm2 * _MM2_TO_M2 - float(self.w @ sol["pn"]))
+        if self.orifice:
+            mass = sol["mass"]
+            ratios = np.asarray(sol["ratio"], dtype=float)
+        else:
+            mass = self.inflow_coef * (self.mesh.pad_area_mm2 * _MM2_TO_M2 - float(self.w @ sol["pn"]))
+            ratios = np.array([])
         he = probe_gap_um[ops["edge_probe"]]
         edge = self.outflow_coef * float(np.sum(he**3 * (ops["edge_grad"] @ sol["pn"])))
         return FilmState(
@@ -871,7 +1351,13 @@ class _Solver:
             mass_flow_kg_s=mass,
             edge_outflow_kg_s=edge,
             flow_l_per_min=self.litres_per_min(mass),
+            assumptions=self.feed_assumptions,
+            feed_pressure_ratios=ratios,
         )
+
+    @property
+    def feed_assumptions(self):
+        return self.feed.assumptions if self.orifice else FILM_ASSUMPTIONS
 
     def litres_per_min(self, mass_kg_s):
         return mass_kg_s / self.feed.ambient_density_kg_m3 * 1e3 * 60.0
@@ -993,7 +1479,7 @@ def solve_film(
     Parameters
     ----------
     mesh : PadMesh
-    feed : PorousFeed
+    feed : PorousFeed or OrificeFeed
     fly_height_um : float
         Height of the pad face's centre above the zero of ``s``, µm.
     tilt_x_urad, tilt_y_urad : float
@@ -1044,7 +1530,7 @@ def flat_guide_curve(mesh: PadMesh, feed: PorousFeed, gaps_um) -> FilmCurve:
     Parameters
     ----------
     mesh : PadMesh
-    feed : PorousFeed
+    feed : PorousFeed or OrificeFeed
     gaps_um : array_like, shape (k,)
         Uniform gaps in µm (k >= 3), sorted into increasing order.
 
@@ -1061,7 +1547,7 @@ def flat_guide_curve(mesh: PadMesh, feed: PorousFeed, gaps_um) -> FilmCurve:
         raise InputValueError("a film curve needs at least three positive gaps", fix="give gaps in µm above 0")
     solver = _Solver(mesh, feed)
     zero = np.zeros(mesh.probe_x_mm.size)
-    loads, stiff, mass = [], [], []
+    loads, stiff, mass, ratio = [], [], [], []
     for g in gaps:
         gap = zero + g
         sol = solver.solve(gap, False)
@@ -1069,6 +1555,7 @@ def flat_guide_curve(mesh: PadMesh, feed: PorousFeed, gaps_um) -> FilmCurve:
         loads.append(st.load_n)
         stiff.append(st.stiffness_n_per_um)
         mass.append(st.mass_flow_kg_s)
+        ratio.append(st.feed_pressure_ratio)
     stiff = np.array(stiff)
     i = int(np.argmax(stiff))
     inside = 0 < i < gaps.size - 1
@@ -1094,6 +1581,8 @@ def flat_guide_curve(mesh: PadMesh, feed: PorousFeed, gaps_um) -> FilmCurve:
         peak_stiffness_gap_um=g_peak,
         peak_stiffness_n_per_um=k_peak,
         peak_inside=bool(inside),
+        assumptions=solver.feed_assumptions,
+        feed_pressure_ratio=np.array(ratio),
     )
 
 
@@ -1116,7 +1605,7 @@ def film_equilibrium(
     Parameters
     ----------
     mesh : PadMesh
-    feed : PorousFeed
+    feed : PorousFeed or OrificeFeed
     load_n : float
         Load on the pad, N (below the closed-film capacity ``(ps - pa) * area``).
     deviation : None, callable, array or PadDeviation
@@ -1167,6 +1656,7 @@ def _make_equilibrium(solver, out) -> FilmEquilibrium:
         flow_l_per_min=st.flow_l_per_min,
         iterations=int(it),
         state=st,
+        assumptions=st.assumptions,
     )
 
 
@@ -1188,7 +1678,7 @@ def film_along_travel(
     Parameters
     ----------
     mesh : PadMesh
-    feed : PorousFeed
+    feed : PorousFeed or OrificeFeed
     load_n : float
         Load on the pad, N, the same at every position.
     deviations : sequence of (None, callable, array or PadDeviation), length k
@@ -1216,7 +1706,7 @@ def film_along_travel(
     except _Contact:  # pragma: no cover - excluded by the capacity check
         raise GeometryError("no film equilibrium on a flat guide", fix="reduce the load") from None
     nw = max(1, min(int(workers or min(2, os.cpu_count() or 1)), k))
-    names = ("fly", "minf", "padh", "tx", "ty", "load", "stiff", "mass", "flow", "it")
+    names = ("fly", "minf", "padh", "tx", "ty", "load", "stiff", "mass", "flow", "it", "ratio")
     out = {nm: np.full(k, np.nan) for nm in names}
     conv = np.zeros(k, dtype=bool)
     failure = [""] * k
@@ -1234,7 +1724,8 @@ def film_along_travel(
             else:
                 eq = _make_equilibrium(solver, res)
                 vals = (eq.fly_height_um, eq.min_film_um, eq.pad_height_um, eq.tilt_x_urad, eq.tilt_y_urad,
-                        eq.load_n, eq.stiffness_n_per_um, eq.mass_flow_kg_s, eq.flow_l_per_min, eq.iterations)
+                        eq.load_n, eq.stiffness_n_per_um, eq.mass_flow_kg_s, eq.flow_l_per_min, eq.iterations,
+                        eq.state.feed_pressure_ratio)
                 for nm, v in zip(names, vals):
                     out[nm][i] = v
                 conv[i] = True
@@ -1269,6 +1760,8 @@ def film_along_travel(
         iterations=out["it"].astype(float),
         converged=conv,
         failure=tuple(failure),
+        assumptions=solver.feed_assumptions,
+        feed_pressure_ratio=out["ratio"],
     )
 
 
@@ -1305,11 +1798,11 @@ class PadFilmTravel:
 
 @dataclass(frozen=True, eq=False)
 class BearingFilm:
-    """Porous-pad film of every active pad of a carriage at each station, plus the first pad's curve.
+    """Film of every active pad of a carriage at each station, plus the first pad's curve.
 
     Attributes
     ----------
-    feed : PorousFeed
+    feed : PorousFeed or OrificeFeed
     pivot : bool
         Pads on ball pivots (tilt free) or held parallel to the carriage reference (tilt 0).
     x_mm : ndarray, shape (k,)
@@ -1322,6 +1815,8 @@ class BearingFilm:
     mesh_cells : int
         Mesh cells along each side of a pad.
     assumptions : tuple of str
+    meshes : tuple of PadMesh
+        The pad meshes used (one per pad size).
     """
 
     feed: PorousFeed
@@ -1332,6 +1827,11 @@ class BearingFilm:
     curve_pad: str
     mesh_cells: int
     assumptions: tuple = FILM_ASSUMPTIONS
+    meshes: tuple = ()
+
+    def __post_init__(self):
+        if isinstance(self.feed, OrificeFeed) and self.assumptions is FILM_ASSUMPTIONS:
+            object.__setattr__(self, "assumptions", ORIFICE_ASSUMPTIONS)
 
     def station(self, i: int) -> dict:
         """Film at station ``i`` for the pad with the least film there (JSON-ready dict, µm, N, l/min)."""
@@ -1353,10 +1853,13 @@ class BearingFilm:
             "flow_l_per_min": float(t.flow_l_per_min[i]),
             "tilt_x_urad": float(t.tilt_x_urad[i]),
             "tilt_y_urad": float(t.tilt_y_urad[i]),
+            **({"feed_pressure_ratio": float(t.feed_pressure_ratio[i])} if isinstance(self.feed, OrificeFeed) else {}),
         }
 
 
-def _pad_mesh_for(pad, n):
+def _pad_mesh_for(pad, n, feed=None):
+    if isinstance(feed, OrificeFeed) and n % 2 == 0:
+        n += 1  # odd: a node at the pad centre, where a central orifice sits
     if pad.shape == "circle":
         return circular_pad_mesh(pad.length_mm, n)
     return rectangular_pad_mesh(pad.length_mm, pad.width_mm, n, n)
@@ -1384,7 +1887,9 @@ def bearing_film(
         Pads and their places (pad centre = station position + ``along_mm``/``across_mm``).
     stations : sequence of objects with ``x_mm`` and ``y_mm``
         Carriage stations (e.g. ``BearingResult.stations``).
-    feed : PorousFeed
+    feed : PorousFeed or OrificeFeed
+        How the pads are fed (orifice positions pad-local; an even ``n`` is raised by one for orifice feeds so
+        that a node sits at the pad centre).
     load_n : float, optional
         Load per pad, N. Default: for each pad, the load it carries at its nominal gap over a flat guide, so
         the flat-guide fly height equals the nominal gap.
@@ -1409,7 +1914,7 @@ def bearing_film(
     for p in pads:
         key = (p.pad.shape, p.pad.length_mm, p.pad.width_mm)
         if key not in meshes:
-            meshes[key] = _pad_mesh_for(p.pad, n)
+            meshes[key] = _pad_mesh_for(p.pad, n, feed)
         mesh = meshes[key]
         design = solve_film(mesh, feed, fly_height_um=p.pad.gap_um)
         load = design.load_n if load_n is None else float(load_n)
@@ -1424,8 +1929,47 @@ def bearing_film(
             curve = flat_guide_curve(mesh, feed, default_curve_gaps_um(p.pad.gap_um))
             curve_pad = p.name
     return BearingFilm(
-        feed=feed, pivot=bool(pivot), x_mm=xs, pads=tuple(out), curve=curve, curve_pad=curve_pad, mesh_cells=int(n)
+        feed=feed, pivot=bool(pivot), x_mm=xs, pads=tuple(out), curve=curve, curve_pad=curve_pad, mesh_cells=int(n),
+        meshes=tuple(meshes.values()),
     )
+
+
+def orifice_notes(feed, meshes=()) -> tuple:
+    """Notes to show with an orifice-fed film result (pneumatic hammer, resolution of the feed regions).
+
+    Parameters
+    ----------
+    feed : OrificeFeed
+    meshes : iterable of PadMesh
+        Meshes the film was solved on.
+
+    Returns
+    -------
+    tuple of str
+    """
+    notes = []
+    if feed.pocket_mm > 0.0:
+        notes.append(
+            f"pneumatic hammer: pocketed orifices ({feed.pocket_volume_mm3:.3g} mm³ per pocket) can make the film "
+            "self-excited; the risk grows with pocket volume and supply pressure and falls with damping "
+            "(Lubricants 12(11):395, 2024; ASME J. Lubr. Technol. 93(4):498, 1971); this static model does not "
+            "predict it: keep pockets shallow or test the bearing"
+        )
+    else:
+        notes.append(
+            "pneumatic hammer: orifice-fed films can be self-excited; inherent (pocket-free) feeds are less prone "
+            "than pocketed ones, and this static model does not predict it"
+        )
+    r0 = feed.feed_radius_mm
+    for m in meshes:
+        dx = max(m.spacing_mm)
+        if 0.1985 * min(m.spacing_mm) <= r0 < 3.0 * dx:
+            notes.append(
+                f"feed radius {r0:g} mm spans fewer than 3 mesh cells ({dx:.3g} mm): its uniform-pressure region "
+                "is resolved only to whole cells; use a finer mesh for a closer estimate"
+            )
+            break
+    return tuple(notes)
 
 
 def check_carriage_load(carriage, feed: PorousFeed, load_n: float | None) -> None:
@@ -1477,6 +2021,7 @@ def with_film_checks(result, film: BearingFilm, *, stiffness_change_limit: float
     from .bearing import Check
 
     order = {"fit": 0, "marginal": 1, "unfit": 2}
+    kind = "orifice" if isinstance(film.feed, OrificeFeed) else "porous"
     mf = result.marginal_from
     loss_worst, loss_limit, loss_x = -np.inf, np.inf, float("nan")
     dk_worst, dk_x = -np.inf, (float("nan"), float("nan"))
@@ -1502,14 +2047,14 @@ def with_film_checks(result, film: BearingFilm, *, stiffness_change_limit: float
         checks.append(Check(
             "film: loss of least film vs flat guide", loss_worst, loss_limit, "um", r, _film_status(r, mf),
             ((loss_x, loss_x),),
-            "porous-pad film model (Reynolds equation); limit gap fraction x gap, common practice",
+            f"{kind}-pad film model (Reynolds equation); limit gap fraction x gap, common practice",
         ))
     if np.isfinite(dk_worst):
         r = dk_worst / stiffness_change_limit
         checks.append(Check(
             "film: stiffness change over the travel", 100.0 * dk_worst, 100.0 * stiffness_change_limit, "%", r,
             _film_status(r, mf), ((dk_x[0], dk_x[0]), (dk_x[1], dk_x[1])),  # positions of least and most stiffness
-            "porous-pad film model; limit 10 % of the flat-guide stiffness, a convention of this tool",
+            f"{kind}-pad film model; limit 10 % of the flat-guide stiffness, a convention of this tool",
         ))
     all_checks = tuple(result.checks) + tuple(checks)
     verdict = max((c.status for c in all_checks), key=order.get, default=result.verdict)

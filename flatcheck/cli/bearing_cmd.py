@@ -6,6 +6,7 @@ import dataclasses
 from enum import Enum
 from pathlib import Path
 
+import numpy as np
 import typer
 from rich.table import Table
 
@@ -225,7 +226,12 @@ def bearing_cmd(
     film_pivot: bool = typer.Option(
         True, "--film-pivot/--film-fixed", help="Porous-pad film: pads on ball pivots (tilt free) or held level."
     ),
-    film_mesh: int = typer.Option(64, "--film-mesh", help="Porous-pad film: mesh cells along each side of a pad."),
+    film_mesh: int = typer.Option(64, "--film-mesh", help="Film: mesh cells along each side of a pad (odd for orifices)."),
+    orifice_mm: float = typer.Option(None, "--orifice-mm", help="Orifice-pad film: orifice bore diameter, mm."),
+    cd: float = typer.Option(None, "--cd", help="Orifice-pad film: discharge coefficient (default 0.8)."),
+    orifices: int = typer.Option(None, "--orifices", help="Orifice-pad film: orifices per pad (1 central; more on a ring or a row)."),
+    pocket_mm: float = typer.Option(None, "--pocket-mm", help="Orifice-pad film: feed pocket diameter, mm (none by default)."),
+    pocket_depth_um: float = typer.Option(None, "--pocket-depth-um", help="Orifice-pad film: feed pocket depth, µm."),
     plot_out: Path = typer.Option(
         None, "--plot", help="Write a PNG of the carriage path, rail profile, pitch and local flatness along the travel."
     ),
@@ -266,9 +272,11 @@ def bearing_cmd(
             progress=advance,
         )
     film = None
-    if any(v is not None for v in (supply_kpa, permeability_m2, layer_mm)):
-        film, result = _film(surface, carriage, result, supply_kpa, permeability_m2, layer_mm, ambient_kpa,
-                             load_n, film_pivot, film_mesh, interp.value)
+    orifice_opts = {"--orifice-mm": orifice_mm, "--cd": cd, "--orifices": orifices, "--pocket-mm": pocket_mm,
+                    "--pocket-depth-um": pocket_depth_um}
+    if any(v is not None for v in (supply_kpa, permeability_m2, layer_mm, *orifice_opts.values())):
+        feed = _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts)
+        film, result = _film(surface, carriage, result, feed, load_n, film_pivot, film_mesh, interp.value)
     label = surface.label or input.name
     if plot_out is not None:
         from .. import plot
@@ -289,21 +297,66 @@ def bearing_cmd(
             stdout_console().print(f"picture written to {plot_out}")
 
 
-def _film(surface, carriage, result, supply_kpa, permeability_m2, layer_mm, ambient_kpa, load_n, pivot, mesh, method):
-    """Porous-pad film at every station and the bearing result with the film checks added."""
-    from ..film import PorousFeed, bearing_film, check_carriage_load, with_film_checks
+def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts):
+    """The film feed (porous layer or orifices) from the options; wrong-kind or missing options refused."""
+    from ..film import OrificeFeed, PorousFeed, orifice_ring
 
-    missing = [n for n, v in (("--supply-kpa", supply_kpa), ("--permeability-m2", permeability_m2),
-                              ("--layer-mm", layer_mm)) if v is None]
-    if missing:
+    pads = carriage.active_pads
+    kinds = sorted({p.pad.kind for p in pads})
+    if len(kinds) != 1:
         raise InputValueError(
-            f"the film model needs {', '.join(missing)} as well", where="film options",
-            fix="give --supply-kpa, --permeability-m2 and --layer-mm together",
+            f"the film model needs pads of one kind; this carriage has {' and '.join(kinds)} pads",
+            where="film options", fix="describe porous and orifice pads in separate bearing files",
         )
+    kind = kinds[0]
+    porous_opts = {"--permeability-m2": permeability_m2, "--layer-mm": layer_mm}
+    given_orifice = [k for k, v in orifice_opts.items() if v is not None]
+    given_porous = [k for k, v in porous_opts.items() if v is not None]
+    if kind == "porous" and given_orifice:
+        raise InputValueError(
+            f"{', '.join(given_orifice)} {'describes' if len(given_orifice) == 1 else 'describe'} orifice pads, but the pads are porous", where="film options",
+            fix="add --kind orifice (or kind = \"orifice\" in the bearing file), or drop the orifice options",
+        )
+    if kind == "orifice" and given_porous:
+        raise InputValueError(
+            f"{', '.join(given_porous)} {'describes' if len(given_porous) == 1 else 'describe'} porous pads, but the pads are orifice-fed", where="film options",
+            fix="use --kind porous for a porous pad, or drop the porous options",
+        )
+    if kind == "porous":
+        missing = [n for n, v in (("--supply-kpa", supply_kpa), *porous_opts.items()) if v is None]
+        fix = "give --supply-kpa, --permeability-m2 and --layer-mm together"
+    else:
+        missing = [n for n, v in (("--supply-kpa", supply_kpa), ("--orifice-mm", orifice_opts["--orifice-mm"]))
+                   if v is None]
+        fix = "give --supply-kpa and --orifice-mm together (with --kind orifice)"
+    if missing:
+        raise InputValueError(f"the film model needs {', '.join(missing)} as well", where="film options", fix=fix)
     try:
-        feed = PorousFeed(permeability_m2, layer_mm, supply_kpa, ambient_kpa)
+        if kind == "porous":
+            return PorousFeed(permeability_m2, layer_mm, supply_kpa, ambient_kpa)
+        shapes = {(p.pad.shape, p.pad.length_mm, p.pad.width_mm) for p in pads}
+        count = orifice_opts["--orifices"]
+        if count is not None and count > 1 and len(shapes) > 1:
+            raise InputValueError(
+                "--orifices lays orifices out on one pad size, but the pads differ in size", where="--orifices",
+                fix="give pads of one size, or one central orifice",
+            )
+        shape, length, width = next(iter(shapes))
+        layout = orifice_ring(shape, length, width, 1 if count is None else count)
+        cd = orifice_opts["--cd"]
+        return OrificeFeed(
+            orifice_opts["--orifice-mm"], supply_kpa, 0.8 if cd is None else cd, positions_mm=layout,
+            pocket_mm=orifice_opts["--pocket-mm"] or 0.0, pocket_depth_um=orifice_opts["--pocket-depth-um"] or 0.0,
+            ambient_kpa=ambient_kpa,
+        )
     except InputValueError as exc:
-        raise InputValueError(exc.message, where="film options", fix=exc.fix) from None
+        raise InputValueError(exc.message, where=exc.where or "film options", fix=exc.fix) from None
+
+
+def _film(surface, carriage, result, feed, load_n, pivot, mesh, method):
+    """Film at every station and the bearing result with the film checks added."""
+    from ..film import bearing_film, check_carriage_load, with_film_checks
+
     check_carriage_load(carriage, feed, load_n)
     total = len(result.stations) * len(carriage.active_pads)
     with progress_bar("film at each position", total, enabled=total > 20) as advance:
@@ -316,13 +369,42 @@ def _add_film_json(data: dict, film) -> None:
     """Add the pinned ``film`` object and a ``film`` entry to each station object."""
     from .common import jsonable
 
+    from ..film import OrificeFeed, orifice_notes
+
     c = film.curve
+    f = film.feed
+    orifice = isinstance(f, OrificeFeed)
+    if orifice:
+        feed = {
+            "kind": "orifice",
+            "model": "orifice pad: isentropic orifice flow into feed regions of the isothermal Reynolds equation in p^2",
+            "supply_kpa_gauge": f.supply_gauge_kpa,
+            "ambient_kpa": f.ambient_kpa,
+            "orifice_mm": f.orifice_mm,
+            "cd": f.cd,
+            "orifice_positions_mm": [list(xy) for xy in f.positions_mm],
+            "pocket_mm": f.pocket_mm,
+            "pocket_depth_um": f.pocket_depth_um,
+            "notes": list(orifice_notes(f, film.meshes)),
+        }
+    else:
+        feed = {
+            "kind": "porous",
+            "model": "porous pad: Darcy flow across a thin layer feeding the isothermal Reynolds equation in p^2",
+            "supply_kpa_gauge": f.supply_gauge_kpa,
+            "ambient_kpa": f.ambient_kpa,
+            "permeability_m2": f.permeability_m2,
+            "layer_mm": f.layer_mm,
+        }
+    curve = [
+        {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q}
+        for g, w, k, q in zip(c.gap_um, c.load_n, c.stiffness_n_per_um, c.flow_l_per_min)
+    ]
+    if orifice:
+        for row, r in zip(curve, c.feed_pressure_ratio):
+            row["feed_pressure_ratio"] = r
     data["film"] = {
-        "model": "porous pad: Darcy flow across a thin layer feeding the isothermal Reynolds equation in p^2",
-        "supply_kpa_gauge": film.feed.supply_gauge_kpa,
-        "ambient_kpa": film.feed.ambient_kpa,
-        "permeability_m2": film.feed.permeability_m2,
-        "layer_mm": film.feed.layer_mm,
+        **feed,
         "pivot": film.pivot,
         "mesh_cells": film.mesh_cells,
         "pads": [
@@ -331,10 +413,7 @@ def _add_film_json(data: dict, film) -> None:
             for p in film.pads
         ],
         "curve_pad": film.curve_pad,
-        "curve": [
-            {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q}
-            for g, w, k, q in zip(c.gap_um, c.load_n, c.stiffness_n_per_um, c.flow_l_per_min)
-        ],
+        "curve": curve,
         "peak_stiffness_gap_um": c.peak_stiffness_gap_um,
         "peak_stiffness_n_per_um": c.peak_stiffness_n_per_um,
         "peak_inside_curve": c.peak_inside,
@@ -347,13 +426,24 @@ def _add_film_json(data: dict, film) -> None:
 
 
 def _render_film(film, *, units: str) -> None:
+    from ..film import OrificeFeed, orifice_notes
+
     con = stdout_console()
     hu = height_unit_label(units)
     c = film.curve
-    con.print(
-        f"[bold]Porous-pad film[/bold] ({'ball pivot' if film.pivot else 'held level'}, "
-        f"{film.feed.supply_gauge_kpa:g} kPa gauge, k {film.feed.permeability_m2:g} m², layer {film.feed.layer_mm:g} mm)"
-    )
+    f = film.feed
+    orifice = isinstance(f, OrificeFeed)
+    if orifice:
+        pocket = f", pocket Ø{f.pocket_mm:g} mm x {f.pocket_depth_um:g} µm" if f.pocket_mm > 0 else ", no pocket"
+        con.print(
+            f"[bold]Orifice-pad film[/bold] ({'ball pivot' if film.pivot else 'held level'}, "
+            f"{f.supply_gauge_kpa:g} kPa gauge, {len(f.positions_mm)} x Ø{f.orifice_mm:g} mm orifice, Cd {f.cd:g}{pocket})"
+        )
+    else:
+        con.print(
+            f"[bold]Porous-pad film[/bold] ({'ball pivot' if film.pivot else 'held level'}, "
+            f"{f.supply_gauge_kpa:g} kPa gauge, k {f.permeability_m2:g} m², layer {f.layer_mm:g} mm)"
+        )
     for p in film.pads:
         t = p.travel
         ok = t.converged
@@ -367,4 +457,10 @@ def _render_film(film, *, units: str) -> None:
         f"  flat guide ({film.curve_pad}): peak stiffness {c.peak_stiffness_n_per_um:.1f} N/µm at a gap of "
         f"{um_to(c.peak_stiffness_gap_um, units):.3f} {hu}" + ("" if c.peak_inside else " (at the end of the range)")
     )
+    if orifice:
+        i = int(np.argmin(np.abs(c.gap_um - film.pads[0].design_fly_height_um)))
+        con.print(f"  feed pressure / supply (absolute) at the nominal gap: {c.feed_pressure_ratio[i]:.3f}")
+        for note in orifice_notes(f, film.meshes):
+            con.print(f"[yellow]Note:[/yellow] {note}")
+        con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['air']}")
     con.print("[dim]Film model assumptions: " + "; ".join(film.assumptions) + "[/dim]")
