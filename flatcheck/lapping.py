@@ -566,14 +566,38 @@ def _check_kernel(kern):
         raise InputValueError("the influence function must be finite and >= 0")
 
 
-def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None) -> np.ndarray:
+def _difference_matrix(shape: tuple[int, int]):
+    """Sparse forward differences along x and y between neighbouring grid nodes, shape (edges, ny * nx).
+
+    ``||D t||^2`` is the sum of squared steps of the dwell map between 4-neighbours (a discrete gradient
+    norm, unit spacing); ``D^T D`` is the graph Laplacian of the grid, whose largest eigenvalue is below 8.
+    """
+    from scipy.sparse import coo_matrix
+
+    ny, nx = shape
+    idx = np.arange(ny * nx).reshape(ny, nx)
+    a = np.concatenate([idx[:, :-1].ravel(), idx[:-1, :].ravel()])
+    b = np.concatenate([idx[:, 1:].ravel(), idx[1:, :].ravel()])
+    m = a.size
+    rows = np.concatenate([np.arange(m), np.arange(m)])
+    cols = np.concatenate([a, b])
+    vals = np.concatenate([-np.ones(m), np.ones(m)])
+    return coo_matrix((vals, (rows, cols)), shape=(m, ny * nx)).tocsr()
+
+
+def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None, smoothness: float = 0.0,
+                     start=None) -> np.ndarray:
     """Non-negative dwell map whose convolution with ``kernel`` best reproduces ``removal_um``.
 
-    Solves ``min ||M (A t - r)||^2 + lam^2 ||t||^2`` subject to ``t >= 0`` (``A`` is the convolution of
-    :func:`removal_from_dwell`, ``M`` the mask, ``lam = smoothing * ||kernel||``, a Tikhonov term that keeps a
-    noisy map from asking for wild dwell and prefers less total time). Small problems (<= 400 nodes) use
-    scipy's active-set ``nnls`` (exact); larger ones an accelerated projected gradient (FISTA) on the sparse
-    convolution, which agrees with ``nnls`` to about 1e-12 in the objective where both can be run.
+    Solves ``min ||M (A t - r)||^2 + lam^2 ||t||^2 + mu^2 ||D t||^2`` subject to ``t >= 0`` (``A`` is the
+    convolution of :func:`removal_from_dwell`, ``M`` the mask, ``D`` the forward differences between
+    neighbouring nodes, ``lam = smoothing * ||kernel||`` and ``mu = smoothness * ||kernel||``). The ``lam``
+    term (zero-order Tikhonov) prefers less total time; the ``mu`` term (first-order Tikhonov) penalises
+    steps between neighbouring nodes, so noise in the removal map does not turn into a blotchy dwell map
+    (the deconvolution amplifies exactly the short wavelengths the lap cannot make). Small problems
+    (<= 400 nodes) use scipy's active-set ``nnls`` (exact); larger ones an accelerated projected gradient
+    (FISTA) on the sparse operators, which agrees with ``nnls`` to about 1e-12 in the objective where both
+    can be run.
 
     Parameters
     ----------
@@ -582,9 +606,13 @@ def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None) -
     kernel : ndarray, shape (ky, kx), odd sizes
         Influence function, µm per time unit (see :func:`lap_kernel`).
     smoothing : float
-        Regularisation strength relative to the kernel's norm (dimensionless, >= 0).
+        Zero-order regularisation strength relative to the kernel's norm (dimensionless, >= 0).
     mask : ndarray of bool, shape (ny, nx), optional
         Nodes where the removal is known (outside the surveyed area: False, not fitted).
+    smoothness : float
+        First-order (gradient) regularisation strength relative to the kernel's norm (dimensionless, >= 0).
+    start : ndarray, shape (ny, nx), optional
+        Starting dwell for the iterative solver (a warm start; ignored by ``nnls``).
 
     Returns
     -------
@@ -593,7 +621,9 @@ def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None) -
 
     References
     ----------
-    Light: Advanced Manufacturing 5 (2024), doi:10.37188/lam.2024.021; Applied Optics 54 (2015) 2747.
+    Light: Advanced Manufacturing 5 (2024), doi:10.37188/lam.2024.021; Applied Optics 54 (2015) 2747
+    (Tikhonov-regularised dwell with bounds). First-order Tikhonov (a difference operator in place of the
+    identity): P. C. Hansen, "Rank-Deficient and Discrete Ill-Posed Problems", SIAM 1998 (from memory).
     """
     from scipy.optimize import nnls
     from scipy.sparse import diags, identity, vstack
@@ -603,20 +633,30 @@ def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None) -
     _check_kernel(kern)
     if not np.all(np.isfinite(r)):
         raise InputValueError("the removal map has non-finite values", fix="mask nodes outside the surface")
-    if not (np.isfinite(smoothing) and smoothing >= 0):
-        raise InputValueError(f"smoothing {smoothing} must be >= 0")
+    for name, v in (("smoothing", smoothing), ("smoothness", smoothness)):
+        if not (np.isfinite(v) and v >= 0):
+            raise InputValueError(f"{name} {v} must be >= 0")
     m = np.ones(r.shape, bool) if mask is None else np.asarray(mask, bool).reshape(r.shape)
     A = diags(m.ravel().astype(float)) @ _conv_matrix(r.shape, kern)
     b = np.where(m, r, 0.0).ravel()
     n = r.size
-    lam = smoothing * float(np.sqrt((kern**2).sum()))
+    knorm = float(np.sqrt((kern**2).sum()))
+    lam = smoothing * knorm
+    mu = smoothness * knorm
+    reg = []
+    if lam > 0:
+        reg.append(lam * identity(n, format="csr"))
+    if mu > 0:
+        reg.append(mu * _difference_matrix(r.shape))
+    R = vstack(reg, format="csr") if reg else None
     if n <= _NNLS_MAX_NODES:
-        if lam > 0:
-            A = vstack([A, lam * identity(n)], format="csr")
-            b = np.concatenate([b, np.zeros(n)])
+        if R is not None:
+            A = vstack([A, R], format="csr")
+            b = np.concatenate([b, np.zeros(R.shape[0])])
         t, _ = nnls(A.toarray(), b, maxiter=50 * n)
     else:
-        t = _projected_gradient(A.tocsr(), b, lam)
+        t0 = None if start is None else np.maximum(np.asarray(start, float).ravel(), 0.0)
+        t = _projected_gradient(A.tocsr(), b, lam, R=R, start=t0)
     return np.maximum(t, 0.0).reshape(r.shape)
 
 
@@ -625,29 +665,41 @@ def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None) -
 _NNLS_MAX_NODES = 400
 
 
-def _projected_gradient(A, b, lam: float, *, max_iter: int = 5000, rtol: float = 1e-9) -> np.ndarray:
-    """min ||A t - b||^2 + lam^2 ||t||^2, t >= 0, by FISTA with projection and adaptive restart.
+def _projected_gradient(A, b, lam: float, *, R=None, start=None, max_iter: int = 5000,
+                        rtol: float = 1e-9) -> np.ndarray:
+    """min ||A t - b||^2 + ||R t||^2, t >= 0, by FISTA with projection and adaptive restart.
 
-    Beck & Teboulle, SIAM J. Imaging Sciences 2 (2009) 183-202 (accelerated proximal gradient; the proximal
-    step of the bound t >= 0 is the projection max(0, .)); restart when the momentum points uphill
-    (O'Donoghue & Candes, Found. Comput. Math. 15 (2015) 715-732). Each iteration costs two sparse products.
+    ``R`` stacks the regularisation operators (``lam I`` and ``mu D``); without it the penalty is
+    ``lam^2 ||t||^2``. Beck & Teboulle, SIAM J. Imaging Sciences 2 (2009) 183-202 (accelerated proximal
+    gradient; the proximal step of the bound t >= 0 is the projection max(0, .)); restart when the momentum
+    points uphill (O'Donoghue & Candes, Found. Comput. Math. 15 (2015) 715-732). Each iteration costs two
+    sparse products per operator.
     """
     At = A.T.tocsr()
     n = A.shape[1]
+    if R is None:
+        def hess(v):
+            return At @ (A @ v) + lam**2 * v
+    else:
+        Rt = R.T.tocsr()
+
+        def hess(v):
+            return At @ (A @ v) + Rt @ (R @ v)
     v = np.ones(n) / math.sqrt(n)
     s = 1.0
-    for _ in range(60):  # power iteration for the largest eigenvalue of A^T A (Lipschitz constant)
-        v = At @ (A @ v)
+    for _ in range(60):  # power iteration for the largest eigenvalue of the Hessian (Lipschitz constant)
+        v = hess(v)
         s = float(np.linalg.norm(v))
         if s == 0:
             return np.zeros(n)
         v /= s
-    L = 1.05 * s + lam**2
-    t = np.zeros(n)
+    L = 1.05 * s
+    Atb = At @ b
+    t = np.zeros(n) if start is None else start.copy()
     y = t.copy()
     theta = 1.0
     for _ in range(max_iter):
-        g = At @ (A @ y - b) + lam**2 * y
+        g = hess(y) - Atb
         t_new = np.maximum(0.0, y - g / L)
         theta_new = 0.5 * (1.0 + math.sqrt(1.0 + 4.0 * theta * theta))
         if (y - t_new) @ (t_new - t) > 0:
@@ -773,8 +825,22 @@ class LapPlan:
     total_time : float
         Sum of the plan's time (time unit).
     passes : tuple of Pass
-        Ordered, highest first.
+        Ordered, highest first; none shorter than ``min_pass_time``.
     chart : CellChart
+    smoothness : float
+        First-order regularisation used for the dwell map (dimensionless, see :func:`deconvolve_dwell`),
+        chosen automatically unless given.
+    min_pass_time : float
+        Shortest pass allowed in the plan (time unit); shorter ones were dropped, merged or lengthened.
+    passes_unmerged : int
+        Passes the rounded dwell map was cut into before short ones were resolved.
+    unmerged_flatness_um : float
+        Minimum-zone flatness predicted for that unmerged plan (µm).
+    merges : tuple of str
+        What happened to each short pass, in order ("dropped", "merged into ...", "lengthened").
+    pass_regions : tuple of ndarray of bool, shape (ny, nx)
+        Dwell-grid nodes each pass works, aligned with ``passes``; the pass's time is spread evenly over
+        them, so ``plan_dwell == sum(region * p.time / region.sum())``.
     """
 
     lap: LapModel
@@ -791,6 +857,12 @@ class LapPlan:
     total_time: float
     passes: tuple
     chart: CellChart
+    smoothness: float = 0.0
+    min_pass_time: float = 0.0
+    passes_unmerged: int = 0
+    unmerged_flatness_um: float = float("nan")
+    merges: tuple = ()
+    pass_regions: tuple = ()
 
 
 def _dwell_grid(hm: HeightMap, step_mm: float | None, max_nodes: int, lap: LapModel):
@@ -819,6 +891,18 @@ def _dwell_grid(hm: HeightMap, step_mm: float | None, max_nodes: int, lap: LapMo
     return np.linspace(xmin, xmax, nx), np.linspace(ymin, ymax, ny), None
 
 
+#: Gradient-penalty strengths tried by the automatic choice, in increasing order (dimensionless, relative to
+#: the kernel's norm; see :func:`deconvolve_dwell`). The ladder steps by about 2 to 2.5.
+_SMOOTHNESS_LADDER = (0.0, 0.01, 0.02, 0.05, 0.1, 0.2, 0.5, 1.0, 2.0, 5.0)
+
+#: Predicted flatness the smoothing, and the tidying of short passes, may give away: this fraction of the
+#: target (a choice of this module, stated in docs/methods.md).
+DEFAULT_ALLOWANCE = 0.05
+
+#: Shortest pass, as a fraction of the longest pass of the rounded plan (a choice of this module).
+DEFAULT_MIN_PASS_FRACTION = 0.1
+
+
 def plan_lapping(
     hm: HeightMap,
     removal: LeastRemoval,
@@ -829,15 +913,27 @@ def plan_lapping(
     levels: int = 4,
     smoothing: float = 0.01,
     max_nodes: int = 1600,
+    smoothness: float | None = None,
+    allowance: float = DEFAULT_ALLOWANCE,
+    min_pass_fraction: float = DEFAULT_MIN_PASS_FRACTION,
+    min_pass_time: float = 0.0,
 ) -> LapPlan:
     """Dwell map, pass plan and predicted surface for bringing ``hm`` down by ``removal`` with ``lap``.
 
     The least-removal map is put on a regular grid (the input grid itself when it is one, else a linear
-    interpolation at pitch ``step_mm``), deconvolved by the lap's influence function into a non-negative dwell
-    map, rounded to ``levels`` equal steps and cut into layers: each connected region of a layer is one pass in
-    which the lap is worked evenly over that region. Passes are ordered from the top layer (the high spots,
-    small regions) down to the widest. The predicted surface is the input minus the removal of the rounded
-    plan, evaluated at the input nodes; its flatness is the minimum zone.
+    interpolation at pitch ``step_mm``) and deconvolved by the lap's influence function into a non-negative
+    dwell map with a gradient penalty (:func:`deconvolve_dwell`). Unless ``smoothness`` is given, its
+    strength is the largest on a fixed ladder whose dwell map still predicts a flatness within
+    ``allowance * target`` of the unpenalised one (a discrepancy rule stated in the quantity the plan is
+    judged by): the map is as smooth as the target allows. The dwell is rounded to ``levels`` equal steps
+    and cut into layers: each connected region of a layer is one pass in which the lap is worked evenly over
+    that region. A pass shorter than the minimum (``min_pass_fraction`` of the longest pass, at least
+    ``min_pass_time``) is then, shortest first, dropped, merged into its neighbouring pass (its time spread
+    evenly over that pass's zone) or lengthened to the minimum: the first of these whose predicted flatness
+    stays within ``max(target, unmerged plan) + allowance * target``, else the best of the three. Passes are
+    ordered from the top layer (the high spots) down to the widest. The predicted surface is the input minus
+    the removal of the final plan (the passes as printed), evaluated at the input nodes; its flatness is the
+    minimum zone.
 
     Parameters
     ----------
@@ -854,9 +950,17 @@ def plan_lapping(
     levels : int
         Number of equal time steps the dwell is rounded to (>= 1).
     smoothing : float
-        Regularisation of the deconvolution, see :func:`deconvolve_dwell`.
+        Zero-order regularisation of the deconvolution, see :func:`deconvolve_dwell`.
     max_nodes : int
         Largest dwell grid used without an explicit step.
+    smoothness : float, optional
+        Gradient regularisation of the deconvolution (>= 0); default chosen automatically (see above).
+    allowance : float
+        Fraction of the target flatness (dimensionless, >= 0) that smoothing and pass tidying may cost.
+    min_pass_fraction : float
+        Shortest pass as a fraction of the longest (dimensionless, 0 <= f <= 1); 0 keeps every pass.
+    min_pass_time : float
+        Shortest pass in the lap's time unit (>= 0), e.g. one stroke cycle; the larger minimum applies.
 
     Returns
     -------
@@ -868,6 +972,12 @@ def plan_lapping(
         raise InputValueError("the removal map does not belong to this surface")
     if int(levels) < 1:
         raise InputValueError(f"levels {levels} must be >= 1")
+    for name, v, hi in (("allowance", allowance, math.inf), ("minimum pass fraction", min_pass_fraction, 1.0),
+                        ("minimum pass time", min_pass_time, math.inf)):
+        if not (np.isfinite(v) and 0 <= v <= hi):
+            raise InputValueError(f"{name} {v} must be a number from 0 to {hi:g}")
+    if smoothness is not None and not (np.isfinite(smoothness) and smoothness >= 0):
+        raise InputValueError(f"smoothness {smoothness} must be >= 0")
     levels = int(levels)
     xs, ys, index = _dwell_grid(hm, step_mm, max_nodes, lap)
     if index is not None:
@@ -881,16 +991,8 @@ def plan_lapping(
     dx = float(np.diff(xs).mean())
     dy = float(np.diff(ys).mean())
     kern = lap_kernel(lap, dx, dy)
+    conv = _conv_matrix(wanted.shape, kern)
     target = np.where(mask, wanted, 0.0)
-    dwell = deconvolve_dwell(target, kern, smoothing=smoothing, mask=mask)
-
-    tmax = float(dwell.max())
-    if tmax > 0:
-        dl = tmax / levels
-        plan_dwell = dl * np.round(dwell / dl)
-    else:
-        dl = 0.0
-        plan_dwell = np.zeros_like(dwell)
 
     def _at_nodes(grid_vals):
         if index is not None:
@@ -900,14 +1002,74 @@ def plan_lapping(
         interp = RegularGridInterpolator((ys, xs), grid_vals, bounds_error=False, fill_value=None)
         return interp(np.column_stack([hm.y_mm, hm.x_mm]))
 
-    achieved = removal_from_dwell(plan_dwell, kern)
+    def _flatness_after(dwell_map) -> float:
+        made = (conv @ dwell_map.ravel()).reshape(dwell_map.shape)
+        return float(minimum_zone(hm.x_mm, hm.y_mm, hm.height_um - _at_nodes(made)).flatness_um)
+
+    slack = allowance * removal.target_um
+
+    def _plan_of(ls):
+        out = np.zeros_like(target)
+        for layer in ls:
+            out += layer.region * layer.per_node
+        return out
+
+    def _cut(dwell_map):
+        """Layers of the rounded dwell map and their predicted flatness."""
+        tmax = float(dwell_map.max())
+        if tmax <= 0:
+            return [], _flatness_after(np.zeros_like(target))
+        dl = tmax / levels
+        steps = np.round(dwell_map / dl).astype(int)
+        ls = [_Layer(level, reg, dl) for level, reg in _layer_regions(xs, ys, steps, levels, lap)]
+        return ls, _flatness_after(_plan_of(ls))
+
+    # candidate dwell maps: the given smoothness, or every admissible one on the ladder (discrepancy rule)
+    if smoothness is not None:
+        d = deconvolve_dwell(target, kern, smoothing=smoothing, mask=mask, smoothness=float(smoothness))
+        candidates = [(float(smoothness), d, _flatness_after(d))]
+    elif not removal.remove_um.any():
+        z = np.zeros_like(target)
+        candidates = [(0.0, z, _flatness_after(z))]
+    else:
+        d = deconvolve_dwell(target, kern, smoothing=smoothing, mask=mask)
+        candidates = [(0.0, d, _flatness_after(d))]
+        budget = candidates[0][2] + slack
+        for cand in _SMOOTHNESS_LADDER[1:]:
+            d = deconvolve_dwell(target, kern, smoothing=smoothing, mask=mask, smoothness=cand, start=d)
+            f = _flatness_after(d)
+            if f > budget * (1 + 1e-9) + 1e-12:
+                break
+            candidates.append((cand, d, f))
+    cut = [_cut(c[1]) for c in candidates]
+    # the limit every tidied plan must keep: the target, or the plain plan (least smoothing) where the lap
+    # cannot reach the target, plus the allowance
+    limit = max(removal.target_um, cut[0][1]) + slack
+    best = None
+    for (mu_c, dwell_c, flat_c), (layers_c, unmerged_flat_c) in zip(candidates, cut):
+        t_min_c = max(min_pass_fraction * max((layer.time for layer in layers_c), default=0.0), float(min_pass_time))
+        final, merges_c = _resolve_short(
+            layers_c, t_min_c, lambda ls: _flatness_after(_plan_of(ls)), limit, xs, ys
+        )
+        final_flat = _flatness_after(_plan_of(final))
+        within = final_flat <= limit * (1 + 1e-9) + 1e-12
+        short = sum(layer.time < t_min_c * (1 - 1e-9) for layer in final)
+        # fewest passes that keep the limit, then fewest short ones, then the smoothest dwell
+        key = (not within, len(final), short, -mu_c)
+        if best is None or key < best[0]:
+            best = (key, mu_c, dwell_c, flat_c, final, merges_c, t_min_c, len(layers_c), unmerged_flat_c)
+    _, mu, dwell, dwell_flat, layers, merges, t_min, unmerged, unmerged_flat = best
+    plan_dwell = _plan_of(layers)
+    achieved = (conv @ plan_dwell.ravel()).reshape(plan_dwell.shape)
     predicted = hm.height_um - _at_nodes(achieved)
     pred_flat = minimum_zone(hm.x_mm, hm.y_mm, predicted).flatness_um
-    dwell_flat = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um - _at_nodes(removal_from_dwell(dwell, kern))).flatness_um
 
     chart = _chart(hm, lap, xs, ys, plan_dwell, cell_mm)
-    passes = _passes(xs, ys, plan_dwell, dl, levels, kern, lap, chart)
-    for a in (xs, ys, wanted, dwell, plan_dwell, achieved, predicted):
+    depth = [float((conv @ (layer.region * layer.per_node).ravel()).max()) for layer in layers]
+    order = sorted(range(len(layers)), key=lambda i: (-layers[i].level, -depth[i]))
+    passes = tuple(_make_pass(k + 1, layers[i], depth[i], xs, ys, lap, chart) for k, i in enumerate(order))
+    regions = tuple(layers[i].region for i in order)
+    for a in (xs, ys, wanted, dwell, plan_dwell, achieved, predicted, *regions):
         a.setflags(write=False)
     return LapPlan(
         lap=lap,
@@ -924,6 +1086,12 @@ def plan_lapping(
         total_time=float(plan_dwell.sum()),
         passes=passes,
         chart=chart,
+        smoothness=mu,
+        min_pass_time=t_min,
+        passes_unmerged=unmerged,
+        unmerged_flatness_um=unmerged_flat,
+        merges=tuple(merges),
+        pass_regions=regions,
     )
 
 
@@ -962,13 +1130,24 @@ def _chart(hm, lap, xs, ys, plan_dwell, cell_mm) -> CellChart:
     )
 
 
-def _passes(xs, ys, plan_dwell, dl, levels, kern, lap, chart) -> tuple:
-    if dl <= 0:
-        return ()
+@dataclass(frozen=True, eq=False)
+class _Layer:
+    """A pass before it is named: its level, the dwell-grid nodes it works and the time per node."""
+
+    level: int
+    region: np.ndarray
+    per_node: float
+    keep: bool = False
+
+    @property
+    def time(self) -> float:
+        return self.per_node * int(self.region.sum())
+
+
+def _layer_regions(xs, ys, steps, levels, lap):
+    """(level, region) for every connected part of every layer of the rounded dwell, top layer first."""
     from scipy import ndimage
 
-    X, Y = np.meshgrid(xs, ys)
-    steps = np.round(plan_dwell / dl).astype(int)
     # parts of a layer less than half a lap apart are worked in one pass: join them before labelling
     hx, hy = lap.half_size_mm
     dx, dy = float(np.diff(xs).mean()), float(np.diff(ys).mean())
@@ -980,43 +1159,97 @@ def _passes(xs, ys, plan_dwell, dl, levels, kern, lap, chart) -> tuple:
         layer = steps >= level
         joined, nlab = ndimage.label(ndimage.binary_dilation(layer, structure=disk))
         lab = np.where(layer, joined, 0)
-        regions = []
         for k in range(1, nlab + 1):
             reg = lab == k
-            if not reg.any():
-                continue
-            depth = float(removal_from_dwell(reg * dl, kern).max())
-            regions.append((depth, reg))
-        regions.sort(key=lambda d: -d[0])
-        for depth, reg in regions:
-            xr, yr = X[reg], Y[reg]
-            cells = sorted(set(chart.cell_of(xr, yr)), key=lambda s: (_split_cell(s)[1], _split_cell(s)[0]))
-            cols = [_split_cell(c)[0] for c in cells]
-            rows = [_split_cell(c)[1] for c in cells]
-            if len(cells) == 1:
-                zone = cells[0]
-            else:
-                zone = f"{min(cols, key=lambda c: (len(c), c))}{min(rows)}:{max(cols, key=lambda c: (len(c), c))}{max(rows)}"
-            time = dl * int(reg.sum())
-            strokes = None
-            if lap.strokes_per_pass is not None:
-                strokes = int(round(time * lap.strokes_per_pass))
-            out.append(
-                Pass(
-                    order=len(out) + 1,
-                    level=level,
-                    zone=zone,
-                    cells=tuple(cells),
-                    centre_x_mm=float(xr.mean()),
-                    centre_y_mm=float(yr.mean()),
-                    extent_mm=(float(xr.min()), float(xr.max()), float(yr.min()), float(yr.max())),
-                    depth_um=depth,
-                    time=float(time),
-                    time_unit=lap.time_unit,
-                    strokes=strokes,
-                )
-            )
-    return tuple(out)
+            if reg.any():
+                out.append((level, reg))
+    return out
+
+
+def _neighbour(layers, i, xs, ys):
+    """Index of the pass that touches pass ``i`` most (nearest level on a tie), else the nearest by centre."""
+    from scipy import ndimage
+
+    grown = ndimage.binary_dilation(layers[i].region, structure=np.ones((3, 3), bool))
+    best, key = None, None
+    X, Y = np.meshgrid(xs, ys)
+    ci = (X[layers[i].region].mean(), Y[layers[i].region].mean())
+    for j, other in enumerate(layers):
+        if j == i:
+            continue
+        touch = int((grown & other.region).sum())
+        dist = math.hypot(X[other.region].mean() - ci[0], Y[other.region].mean() - ci[1])
+        k = (-touch, abs(other.level - layers[i].level), dist)
+        if key is None or k < key:
+            best, key = j, k
+    return best
+
+
+def _resolve_short(layers, t_min, flatness_of, limit_um, xs, ys):
+    """Drop, merge or lengthen passes shorter than ``t_min``, shortest first (see :func:`plan_lapping`).
+
+    Returns the new layers and a description of each change.
+    """
+    layers = list(layers)
+    log = []
+    while True:
+        short = [i for i, layer in enumerate(layers) if layer.time < t_min * (1 - 1e-9) and not layer.keep]
+        if not short:
+            return layers, log
+        i = min(short, key=lambda k: (layers[k].time, -layers[k].level))
+        me = layers[i]
+        options = [("dropped", layers[:i] + layers[i + 1 :])]
+        j = _neighbour(layers, i, xs, ys)
+        if j is not None:
+            nb = layers[j]
+            merged = _Layer(nb.level, nb.region, nb.per_node + me.time / int(nb.region.sum()), nb.keep)
+            rest = [merged if k == j else layer for k, layer in enumerate(layers) if k != i]
+            options.append(("merged into the neighbouring pass", rest))
+        longer = _Layer(me.level, me.region, t_min / int(me.region.sum()))
+        options.append(("lengthened to the minimum", [longer if k == i else layer for k, layer in enumerate(layers)]))
+        scored = [(what, ls, flatness_of(ls)) for what, ls in options]
+        chosen = next((o for o in scored if o[2] <= limit_um * (1 + 1e-9) + 1e-12), None)
+        if chosen is None:
+            chosen = ("kept (every change would break the limit)", [
+                _Layer(layer.level, layer.region, layer.per_node, keep=True) if k == i else layer
+                for k, layer in enumerate(layers)
+            ])
+        X, Y = np.meshgrid(xs, ys)
+        log.append(
+            f"pass at x {X[me.region].mean():.0f}, y {Y[me.region].mean():.0f} mm "
+            f"({me.time:.2g} of minimum {t_min:.2g}) {chosen[0]}"
+        )
+        layers = chosen[1]
+
+
+def _make_pass(order, layer, depth, xs, ys, lap, chart) -> Pass:
+    X, Y = np.meshgrid(xs, ys)
+    reg = layer.region
+    xr, yr = X[reg], Y[reg]
+    cells = sorted(set(chart.cell_of(xr, yr)), key=lambda s: (_split_cell(s)[1], _split_cell(s)[0]))
+    cols = [_split_cell(c)[0] for c in cells]
+    rows = [_split_cell(c)[1] for c in cells]
+    if len(cells) == 1:
+        zone = cells[0]
+    else:
+        zone = f"{min(cols, key=lambda c: (len(c), c))}{min(rows)}:{max(cols, key=lambda c: (len(c), c))}{max(rows)}"
+    time = layer.time
+    strokes = None
+    if lap.strokes_per_pass is not None:
+        strokes = int(round(time * lap.strokes_per_pass))
+    return Pass(
+        order=order,
+        level=layer.level,
+        zone=zone,
+        cells=tuple(cells),
+        centre_x_mm=float(xr.mean()),
+        centre_y_mm=float(yr.mean()),
+        extent_mm=(float(xr.min()), float(xr.max()), float(yr.min()), float(yr.max())),
+        depth_um=depth,
+        time=float(time),
+        time_unit=lap.time_unit,
+        strokes=strokes,
+    )
 
 
 def _split_cell(name: str) -> tuple[str, int]:
