@@ -113,3 +113,71 @@ def test_film_options_errors_are_one_line(cli, flat_csv):
         assert out == ""
         assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
         assert "Traceback" not in err
+
+
+# --------------------------------------------------------------------------- orifice-fed pads
+ORIFICE = ["--kind", "orifice", "--supply-kpa", f"{(PS - PA) / 1e3:.6f}", "--orifice-mm", "0.2"]
+
+
+def _radial_orifice(h_um, d_mm=0.2, R=0.025, mu=1.81e-5, rg=287.05, t=293.15):
+    """Central orifice on a circular pad, uniform gap: exact log solution + brentq + quad (see test_film_orifice)."""
+    from scipy.optimize import brentq
+
+    from flatcheck.film import orifice_mass_flow
+
+    r0 = d_mm / 2 * 1e-3
+    area = min(math.pi * (d_mm * 1e-3) ** 2 / 4, math.pi * d_mm * 1e-3 * h_um * 1e-6)
+    cond = 2 * math.pi * (h_um * 1e-6) ** 3 / (math.log(R / r0) * 24 * mu * rg * t)
+    pr = brentq(lambda p: orifice_mass_flow(p, PS, area) - cond * (p * p - PA * PA), PA, PS, xtol=1e-9)
+    prof = lambda r: math.sqrt(pr**2 + (PA**2 - pr**2) * math.log(r / r0) / math.log(R / r0))  # noqa: E731
+    load = (pr - PA) * math.pi * r0**2 + quad(lambda r: (prof(r) - PA) * 2 * math.pi * r, r0, R, limit=200)[0]
+    return pr / PS, load
+
+
+def test_orifice_film_json_on_flat_guide(cli, flat_csv):
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "10", *ORIFICE, "--film-mesh", "30", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    film = doc["film"]
+    assert film["kind"] == "orifice" and film["orifice_mm"] == 0.2 and film["cd"] == 0.8
+    for row in film["curve"]:
+        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "feed_pressure_ratio"}
+    at = min(film["curve"], key=lambda r: abs(r["gap_um"] - 10.0))
+    # Source: exact radial solution P = pr² + (pa² - pr²) ln(r/r0)/ln(R/r0) with the orifice formula of
+    # REFERENCE.md §6, solved with scipy brentq/quad
+    ratio, load = _radial_orifice(10.0)
+    assert at["feed_pressure_ratio"] == pytest.approx(ratio, rel=1e-3)
+    assert at["load_n"] == pytest.approx(load, rel=2e-3)
+    assert film["peak_inside_curve"]
+    for st in doc["stations"]:
+        f = st["film"]
+        assert f["fly_height_um"] == pytest.approx(10.0, abs=1e-3)
+        assert f["feed_pressure_ratio"] == pytest.approx(ratio, rel=1e-3)
+    assert any("pneumatic hammer" in n for n in film["notes"])
+    assert any("Peaceman" in a for a in film["assumptions"])
+    assert doc["safety"]
+
+
+def test_orifice_film_summary_mentions_hammer_and_caution(cli, wavy_csv):
+    code, out, err = cli("bearing", wavy_csv, "--pad", "40x20", "--gap-um", "8", *ORIFICE, "--orifices", "2",
+                         "--pocket-mm", "1.5", "--pocket-depth-um", "20", "--film-mesh", "20")
+    assert code == 0, err
+    assert "Orifice-pad film" in out
+    assert "pneumatic hammer" in out
+    assert out.count("Caution:") >= 2
+    assert "feed pressure / supply" in out
+
+
+def test_film_options_of_the_wrong_kind_are_refused(cli, flat_csv):
+    cases = (
+        ["--supply-kpa", "500", "--orifice-mm", "0.2"],  # porous pad (default kind) with an orifice option
+        [*ORIFICE, "--layer-mm", "5"],  # orifice pad with a porous option
+        ["--kind", "orifice", "--supply-kpa", "500"],  # orifice pad without a bore
+        [*ORIFICE, "--pocket-mm", "2"],  # pocket without depth
+    )
+    for args in cases:
+        code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *args, "--film-mesh", "16", "--json")
+        assert code == 2, (args, err)
+        assert out == ""
+        assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
+        assert "Traceback" not in err
