@@ -64,3 +64,24 @@ def test_bench_film_200_positions(shape, pivot):
         f"({solves / N_POS:.2f} per position), time per solution / baseline {t_one / solves / t_base:.2f}"
     )
     assert t_two < 10.0 or t_two / t_base < 500  # 10 s budget; on a loaded machine judge by the ratio
+
+
+@pytest.mark.benchmark
+def test_bench_orifice_film_200_positions():
+    """Orifice-fed Ø50 mm pad (one central 0.2 mm orifice), 65 x 65 mesh, ball pivot, same baseline."""
+    from flatcheck.film import OrificeFeed
+
+    mesh = circular_pad_mesh(50.0, 65)
+    feed = OrificeFeed(0.2, 500.0)
+    devs = [pad_deviation(mesh, _guide(c)) for c in np.linspace(0.0, 400.0, N_POS)]
+    A = _poisson(64)
+    b = np.ones(A.shape[0])
+    t_base, _ = _best_of(lambda: spla.spsolve(A, b), repeat=5)
+    t_two, travel = _best_of(lambda: film_along_travel(mesh, feed, 100.0, devs, pivot=True, workers=2), repeat=1)
+    assert travel.converged.all()
+    solves = float(np.sum(travel.iterations))
+    print(
+        f"\norifice film circle n={mesh.n} pivot: 200 positions {t_two:.2f} s (2 threads); baseline {t_base * 1e3:.1f} ms; "
+        f"ratio {t_two / t_base:.0f}; film solutions {solves / N_POS:.2f} per position"
+    )
+    assert t_two < 10.0 or t_two / t_base < 500
