@@ -308,3 +308,150 @@ def test_flat_surface_plan_is_empty(rng):
 
 def test_column_names():
     assert [cell_column_name(i) for i in (0, 25, 26, 27, 51, 52)] == ["A", "Z", "AA", "AB", "AZ", "BA"]
+
+
+# ----------------------------------------------------------------------------- smooth dwell and a plan to follow
+def _independent_flatness_after(hm, plan, rate_um, diameter_mm, sub=12):
+    """Removal of the printed passes recomputed without flatcheck's kernel: Preston with a uniform rate under a
+    round footprint (dz/dt = rate where a point is under the lap), the lap's centre spread evenly over each
+    dwell node's cell (sub x sub positions); then the minimum zone as the LP min h s.t. p_i <= z_i <= p_i + h
+    (scipy HiGHS)."""
+    from scipy.optimize import linprog
+
+    xs, ys = plan.xs_mm, plan.ys_mm
+    dx, dy = float(np.diff(xs).mean()), float(np.diff(ys).mean())
+    dwell = np.zeros((ys.size, xs.size))
+    for p, reg in zip(plan.passes, plan.pass_regions):
+        dwell += reg * (p.time / reg.sum())  # the pass's time spread evenly over its zone
+    f = (np.arange(sub) + 0.5) / sub - 0.5
+    removed = np.zeros(hm.n)
+    for j, i in zip(*np.nonzero(dwell)):
+        cx = xs[i] + f[:, None] * dx + 0 * f[None, :]
+        cy = ys[j] + 0 * f[:, None] + f[None, :] * dy
+        cx, cy = cx.ravel(), cy.ravel()
+        under = (hm.x_mm[:, None] - cx) ** 2 + (hm.y_mm[:, None] - cy) ** 2 <= (diameter_mm / 2) ** 2
+        removed += rate_um * dwell[j, i] * under.mean(axis=1)
+    z = hm.height_um - removed
+    n = hm.n
+    A = np.column_stack([np.ones(n), hm.x_mm, hm.y_mm])
+    res = linprog([0, 0, 0, 1], A_ub=np.vstack([np.c_[A, np.zeros(n)], np.c_[-A, -np.ones(n)]]),
+                  b_ub=np.r_[z, -z], bounds=[(None, None)] * 3 + [(0, None)], method="highs")
+    return res.fun, dwell
+
+
+def _noisy_dome(rng, noise=0.02):
+    x, y = _grid(17, 17, 80.0, 80.0)
+    z = 0.6 * np.exp(-((x - 40) ** 2 + (y - 40) ** 2) / (2 * 20.0**2)) + rng.normal(0, noise, x.size)
+    return HeightMap(x, y, z, length_mm=80.0, width_mm=80.0)
+
+
+def test_printed_plan_flatness_recomputed_independently(rng):
+    hm = _noisy_dome(rng)
+    lap = LapModel("round", diameter_mm=20.0, rate_um=0.5)
+    plan = plan_lapping(hm, least_removal(hm, 0.1), lap)
+    assert plan.passes
+    flat, dwell = _independent_flatness_after(hm, plan, 0.5, 20.0)
+    # the passes as printed add up to the plan's dwell map
+    assert dwell == pytest.approx(plan.plan_dwell, abs=1e-12)
+    # reference: the Preston model evaluated directly (12 x 12 sub-positions against the kernel's 8 x 8)
+    assert plan.predicted_flatness_um == pytest.approx(flat, abs=0.01)
+
+
+def test_no_pass_shorter_than_the_minimum_unless_kept(rng):
+    hm = _noisy_dome(rng)
+    lap = LapModel("round", diameter_mm=20.0, rate_um=0.5)
+    lr = least_removal(hm, 0.1)
+    plan = plan_lapping(hm, lr, lap)
+    raw = plan_lapping(hm, lr, lap, smoothness=0.0, min_pass_fraction=0.0)
+    longest = max(p.time for p in raw.passes)
+    # the stated minimum: 10 % of the longest pass of the rounded plan at the chosen smoothness
+    same = plan_lapping(hm, lr, lap, smoothness=plan.smoothness, min_pass_fraction=0.0)
+    assert plan.min_pass_time == pytest.approx(0.1 * max(p.time for p in same.passes), rel=1e-12)
+    kept = sum("kept" in m for m in plan.merges)
+    short = [p for p in plan.passes if p.time < plan.min_pass_time * (1 - 1e-9)]
+    assert len(short) <= kept
+    assert len(plan.passes) < len(raw.passes)
+    # the limit: target or the plain plan, plus 5 % of the target (the stated allowance)
+    assert plan.predicted_flatness_um <= max(0.1, raw.predicted_flatness_um) + 0.05 * 0.1 + 1e-9
+    assert longest > 0
+    # highest first, and each pass's stated extent is exactly that of the nodes it works
+    assert [p.level for p in plan.passes] == sorted((p.level for p in plan.passes), reverse=True)
+    X, Y = np.meshgrid(plan.xs_mm, plan.ys_mm)
+    for p, reg in zip(plan.passes, plan.pass_regions):
+        x0, x1, y0, y1 = p.extent_mm
+        assert X[reg].min() == x0 and X[reg].max() == x1 and Y[reg].min() == y0 and Y[reg].max() == y1
+
+
+def test_with_no_minimum_every_pass_is_kept_and_minimum_one_forces_merging(rng):
+    hm = _noisy_dome(rng)
+    lap = LapModel("round", diameter_mm=20.0, rate_um=0.5)
+    lr = least_removal(hm, 0.1)
+    a = plan_lapping(hm, lr, lap, smoothness=0.05, min_pass_fraction=0.0)
+    assert a.passes_unmerged == len(a.passes) and a.merges == ()
+    b = plan_lapping(hm, lr, lap, smoothness=0.05, min_pass_fraction=0.0, min_pass_time=1e9)
+    # every pass is short: each is dropped/merged/lengthened or kept, none silently
+    assert len(b.merges) >= 1
+    with pytest.raises(InputValueError):
+        plan_lapping(hm, lr, lap, min_pass_fraction=1.5)
+
+
+def test_smooth_removal_gives_dwell_of_bounded_total_variation(rng):
+    # A smooth (Gaussian) removal plus 0.02 µm noise: without a gradient penalty the deconvolution turns the
+    # noise into a blotchy dwell map; with the chosen one its total variation (sum of |steps| between
+    # neighbours, per unit of peak dwell) stays near that of the smooth removal itself.
+    hm = _noisy_dome(rng)
+    lap = LapModel("round", diameter_mm=20.0, rate_um=0.5)
+    lr = least_removal(hm, 0.1)
+
+    def tv(a):
+        return (np.abs(np.diff(a, axis=0)).sum() + np.abs(np.diff(a, axis=1)).sum()) / a.max()
+
+    gx, gy = _grid(17, 17, 80.0, 80.0)
+    smooth_removal = np.maximum(0, 0.6 * np.exp(-((gx - 40) ** 2 + (gy - 40) ** 2) / 800.0) - 0.1).reshape(17, 17)
+    raw = plan_lapping(hm, lr, lap, smoothness=0.0, smoothing=0.0)
+    strong = plan_lapping(hm, lr, lap, smoothness=1.0)
+    assert tv(strong.dwell) < tv(raw.dwell)
+    # a noise-free smooth removal: total variation of a single hill is about 4 x (extent in nodes) / 2 per
+    # unit height (hand estimate: each row and column rises once and falls once); the dwell must not exceed
+    # three times the removal's own figure
+    assert tv(strong.dwell) <= 3 * tv(smooth_removal)
+    assert (strong.dwell >= 0).all()
+
+
+def test_gradient_penalty_matches_scipy_nnls(rng):
+    # reference: scipy.optimize.nnls on the stacked system [A; mu D] written out densely here
+    k = lap_kernel(LapModel(diameter_mm=40.0), 10.0, 10.0)
+    yy, xx = np.mgrid[0:12, 0:14]
+    r = np.maximum(0.0, 2 * np.exp(-((xx - 6) ** 2 + (yy - 5) ** 2) / 10.0) - 0.3) + rng.normal(0, 0.02, xx.shape)
+    r = np.maximum(r, 0)
+    from flatcheck.lapping import _conv_matrix
+
+    mu = 0.3 * np.sqrt((k**2).sum())
+    A = _conv_matrix(r.shape, k).toarray()
+    n = r.size
+    D = []
+    for j in range(12):
+        for i in range(14):
+            for dj, di in ((0, 1), (1, 0)):
+                if j + dj < 12 and i + di < 14:
+                    row = np.zeros(n)
+                    row[j * 14 + i], row[(j + dj) * 14 + i + di] = -1, 1
+                    D.append(row)
+    t_ref, _ = nnls(np.vstack([A, mu * np.array(D)]), np.r_[r.ravel(), np.zeros(len(D))], maxiter=20000)
+    t = deconvolve_dwell(r, k, smoothness=0.3)
+    assert t.ravel() == pytest.approx(t_ref, abs=1e-8)
+    # and the iterative solver on a grid above the nnls limit reaches the same objective as nnls there
+    yy, xx = np.mgrid[0:21, 0:21]
+    r2 = np.maximum(0.0, 2 * np.exp(-((xx - 8) ** 2 + (yy - 12) ** 2) / 20.0) - 0.4)
+    t2 = deconvolve_dwell(r2, k, smoothness=0.3)
+    A2 = _conv_matrix(r2.shape, k)
+    from flatcheck.lapping import _difference_matrix
+
+    D2 = _difference_matrix(r2.shape)
+    t2_ref, _ = nnls(np.vstack([A2.toarray(), mu * D2.toarray()]), np.r_[r2.ravel(), np.zeros(D2.shape[0])],
+                     maxiter=20000)
+
+    def obj(v):
+        return np.sum((A2 @ v - r2.ravel()) ** 2) + np.sum((mu * (D2 @ v)) ** 2)
+
+    assert obj(t2.ravel()) == pytest.approx(obj(t2_ref), rel=1e-7)

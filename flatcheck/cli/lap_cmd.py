@@ -200,6 +200,11 @@ def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str
         ],
         "dwell_grid": {"xs_mm": plan.xs_mm, "ys_mm": plan.ys_mm, "dwell": plan.plan_dwell},
         "passes": plan.passes,
+        "dwell_smoothness": plan.smoothness,
+        "min_pass_time": plan.min_pass_time,
+        "passes_before_tidying": plan.passes_unmerged,
+        "predicted_flatness_before_tidying_um": plan.unmerged_flatness_um,
+        "short_passes": list(plan.merges),
         "chart": {
             "columns": plan.chart.columns,
             "rows": plan.chart.rows,
@@ -228,6 +233,21 @@ def _fmt_extent(extent_mm) -> str:
         return f"{a:.0f}" if round(a) == round(b) else f"{a:.0f}-{b:.0f}"
 
     return f"{span(x0, x1)}, {span(y0, y1)}"
+
+
+def tidy_line(plan: LapPlan) -> str:
+    """One line on how the dwell was smoothed and the short passes resolved."""
+    if not plan.passes:
+        return ""
+    kept = sum("kept" in m for m in plan.merges)
+    line = (
+        f"Dwell smoothness {plan.smoothness:g}; {len(plan.passes)} passes "
+        f"({plan.passes_unmerged} before passes shorter than {_fmt_time(plan.min_pass_time, plan.lap.time_unit)} "
+        "were dropped, merged or lengthened)"
+    )
+    if kept:
+        line += f"; {kept} short pass(es) kept: changing them would lose flatness"
+    return line
 
 
 def _fmt_cell(t: float) -> str:
@@ -268,6 +288,7 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
         f"Lap: {plan.lap.describe()}",
         f"Predicted flatness after the plan: {h(plan.predicted_flatness_um)} "
         f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}",
+        tidy_line(plan),
         "",
         "Passes, highest first (work the lap evenly over the zone for the time given):",
         f"{'#':>3}  {'zone':<10} {'centre x, y (mm)':<18} {'extent x, y (mm)':<26} {'depth':>12}  time",
@@ -307,6 +328,8 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         f"Predicted flatness after the plan: [bold]{h(plan.predicted_flatness_um)}[/bold] "
         f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}"
     )
+    if plan.passes:
+        con.print(tidy_line(plan), markup=False)
     table = Table(title="Passes, highest first", title_justify="left")
     for col in ("#", "zone", "centre (mm)", "extent x, y (mm)", f"depth ({hu})", "time"):
         table.add_column(col)
@@ -348,6 +371,12 @@ def lap_cmd(
     cell_mm: float = typer.Option(None, "--cell-mm", help="Chart cell size (mm); default the lap size."),
     levels: int = typer.Option(4, "--levels", help="Time steps the dwell map is rounded to (more = more passes)."),
     smoothing: float = typer.Option(0.01, "--smoothing", help="Regularisation of the dwell deconvolution."),
+    smoothness: float = typer.Option(
+        None, "--smoothness", help="Gradient penalty on the dwell map (default: chosen from the target, see docs)."
+    ),
+    min_pass_fraction: float = typer.Option(
+        0.1, "--min-pass-fraction", help="Shortest pass as a fraction of the longest (0 keeps every pass)."
+    ),
     removal_csv: Path = typer.Option(None, "--removal-csv", help="Write the least-removal map (x_mm,y_mm,remove_um); replaced if it exists."),
     plan_out: Path = typer.Option(None, "--plan-out", help="Write the plan and cell chart as a text file for the bench; replaced if it exists."),
     units: Units = units_option(),
@@ -366,6 +395,10 @@ def lap_cmd(
     check_option(cell_mm, "--cell-mm", what="a cell size in mm")
     check_option(levels, "--levels", minimum=1, strict=False, what="a whole number of levels")
     check_option(smoothing, "--smoothing", strict=False, what="a regularisation weight")
+    check_option(smoothness, "--smoothness", strict=False, what="a gradient penalty")
+    check_option(min_pass_fraction, "--min-pass-fraction", strict=False, what="a fraction (at most 1)")
+    if min_pass_fraction > 1:
+        raise InputValueError(f"{min_pass_fraction:g} is not allowed", where="--min-pass-fraction", fix="give a fraction from 0 to 1")
     if lap_size_mm is not None:
         _parse_size(lap_size_mm)
     check_output(removal_csv, "--removal-csv")
@@ -377,7 +410,8 @@ def lap_cmd(
     with progress_bar("planning", 2, enabled=sys.stderr.isatty() and not json_out) as advance:
         lr = least_removal(hm, target)
         advance(1)
-        plan = plan_lapping(hm, lr, lap, step_mm=step_mm, cell_mm=cell_mm, levels=levels, smoothing=smoothing)
+        plan = plan_lapping(hm, lr, lap, step_mm=step_mm, cell_mm=cell_mm, levels=levels, smoothing=smoothing,
+                            smoothness=smoothness, min_pass_fraction=min_pass_fraction)
         advance(1)
     if plan.predicted_flatness_um > target * 1.0000001 + 1e-9 and plan.passes:
         notes.append(

@@ -223,3 +223,33 @@ def test_target_from_the_air_bearing_gap(cli):
     assert a["removed_volume_mm3"] == pytest.approx(b["removed_volume_mm3"], rel=1e-9)
     code, out, err = cli("lap", plate, "--target-gap-um", "8", "--gap-fraction", "1.5")
     assert code == 2 and "--gap-fraction" in err and err.count("\n") == 1
+
+
+def test_sample_pad_plan_is_tidier(cli):
+    # The sample pad (80 x 80 mm, 5 mm grid) with a 20 mm lap: the plan before this change had 11 passes,
+    # 7 of them single spots of 0.048 min. Now no single-node pass shorter than the stated minimum is left
+    # unless changing it would lose flatness, and the printed plan's flatness is within the stated limit.
+    from pathlib import Path
+
+    pad = Path(__file__).resolve().parents[2] / "sample_readings" / "pad-KY-B4-heights.csv"
+    code, out, err = cli("lap", pad, "--target-um", "0.1", "--lap-diameter-mm", "20", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    code, out, err = cli("lap", pad, "--target-um", "0.1", "--lap-diameter-mm", "20", "--json",
+                         "--smoothness", "0", "--min-pass-fraction", "0")
+    raw = json.loads(out)
+    assert len(doc["passes"]) < len(raw["passes"])
+    kept = sum("kept" in s for s in doc["short_passes"])
+    assert sum(p["time"] < doc["min_pass_time"] for p in doc["passes"]) <= kept
+    # limit: max(target, plain plan) + 5 % of the target
+    assert doc["predicted_flatness_um"] <= max(0.1, raw["predicted_flatness_um"]) + 0.005 + 1e-9
+    assert doc["passes_before_tidying"] >= len(doc["passes"])
+    # the pinned keys are still there
+    for key in ("removal", "removed_volume_mm3", "predicted_flatness_um", "passes"):
+        assert key in doc
+
+
+def test_bad_min_pass_fraction_names_option(cli, hill_csv):
+    code, out, err = cli("lap", hill_csv, "--target-um", "1", "--min-pass-fraction", "1.5")
+    one_line_error(code, out, err)
+    assert err.startswith("flatcheck: error: --min-pass-fraction:")
