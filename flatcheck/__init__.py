@@ -24,7 +24,8 @@ Air bearings
     Pad, PlacedPad, Carriage, MotionBudget, evaluate_bearing, BearingResult,
     gap_field_um, GapField, DEFAULT_GAP_FRACTION, read_bearing_toml, parse_pad_size,
     PorousFeed, solve_film, film_equilibrium, film_along_travel, flat_guide_curve,
-    FilmState, FilmCurve, FilmEquilibrium, FilmTravel, FILM_ASSUMPTIONS
+    FilmState, FilmCurve, FilmEquilibrium, FilmTravel, FILM_ASSUMPTIONS, OrificeFeed,
+    orifice_mass_flow, critical_pressure_ratio, orifice_ring, ORIFICE_ASSUMPTIONS
 Lapping
     least_removal, LeastRemoval, plan_lapping, LapPlan, LapModel, Pass, CellChart,
     preston_rate_um_per_min, deconvolve_dwell, removal_from_dwell, compare_surveys,
@@ -66,7 +67,12 @@ from .film import (
     FilmEquilibrium,
     FilmState,
     FilmTravel,
+    ORIFICE_ASSUMPTIONS,
+    OrificeFeed,
     PorousFeed,
+    critical_pressure_ratio,
+    orifice_mass_flow,
+    orifice_ring,
     film_along_travel,
     film_equilibrium,
     flat_guide_curve,
@@ -142,6 +148,7 @@ __all__ = [
     "gap_field_um", "GapField", "DEFAULT_GAP_FRACTION", "read_bearing_toml", "parse_pad_size",
     "PorousFeed", "solve_film", "film_equilibrium", "film_along_travel", "flat_guide_curve",
     "FilmState", "FilmCurve", "FilmEquilibrium", "FilmTravel", "FILM_ASSUMPTIONS",
+    "OrificeFeed", "orifice_mass_flow", "critical_pressure_ratio", "orifice_ring", "ORIFICE_ASSUMPTIONS",
     # lapping
     "least_removal", "LeastRemoval", "plan_lapping", "LapPlan", "LapModel", "Pass", "CellChart",
     "preston_rate_um_per_min", "deconvolve_dwell", "removal_from_dwell", "compare_surveys",
