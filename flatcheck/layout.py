@@ -216,8 +216,9 @@ def _margin(value, flag: str = "margin_mm") -> float:
 
 #: Most readings one pass of a planned survey may need. A layout beyond this is almost always a typing
 #: slip (a foot spacing in the wrong unit); refusing it early avoids building and printing hundreds of
-#: thousands of stations. A 3000 x 1500 mm plate on a 25 mm grid needs about 14 000 readings.
-MAX_READINGS_PER_PASS = 20000
+#: thousands of stations. A 3000 x 1500 mm plate on a 25 mm grid needs about 14 000 readings; a 200 x 200
+#: station grid from an automated survey about 80 000.
+MAX_READINGS_PER_PASS = 250_000
 
 
 def _check_room(L: float, W: float, m: float) -> None:

@@ -238,9 +238,10 @@ def test_reading_cap_counts_what_is_read():
     # 3*8 + 3*4 + 2*8 = 52 (the count the plan command prints, checked by hand in tests/cli/test_plan.py)
     s = plan_union_jack(1000, 630, 100)
     assert summarize_layout(s).readings_per_pass == 52
-    # a grid of (n_x+1) rows of n_x steps and (n_x+1) columns: 2 n (n+1) readings; n = 99 -> 19 800, n = 100 -> 20 200
-    ok = plan_grid(99 * 10 + 60, 99 * 10 + 60, 10)
-    assert summarize_layout(ok).readings_per_pass == 2 * 99 * 100 <= MAX_READINGS_PER_PASS
+    # a grid of (n_x+1) rows of n_x steps and (n_x+1) columns: 2 n (n+1) readings; a 200 x 200 station grid
+    # (n = 199) -> 79 600 is planned; n = 354 -> 251 340 is over the cap of 250 000
+    ok = plan_grid(199 * 10 + 60, 199 * 10 + 60, 10)
+    assert summarize_layout(ok).readings_per_pass == 2 * 199 * 200 <= MAX_READINGS_PER_PASS
     with pytest.raises(LayoutError) as exc:
-        plan_grid(100 * 10 + 60, 100 * 10 + 60, 10)
-    assert exc.value.where == "foot_spacing_mm" and "20200" in exc.value.message
+        plan_grid(354 * 10 + 60, 354 * 10 + 60, 10)
+    assert exc.value.where == "foot_spacing_mm" and "251340" in exc.value.message
