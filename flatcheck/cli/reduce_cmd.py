@@ -136,7 +136,7 @@ def render_reduction(ev, doc, units, map_out) -> None:
         s0 = res["sigma0_um"]
         con.print(
             f"  redundancy {res['redundancy']}; one reading's standard deviation from the residuals: "
-            + ("-" if s0 is None else f"{s0:.3f} µm ({res['sigma0_reading']:.3g} {doc['instrument']['unit']})")
+            + ("-" if s0 is None else f"{_fmt(s0, units)} {hu} ({res['sigma0_reading']:.3g} {doc['instrument']['unit']})")
         )
         lines = doc.get("lines") or []
         if lines:
@@ -154,7 +154,7 @@ def render_reduction(ev, doc, units, map_out) -> None:
                 con.print(f"  [dim]closure: {m}[/dim]")
         for o in res["outliers"]:
             con.print(f"  [bold red]suspect reading[/bold red]: {o['text']}")
-    for w in doc.get("warnings", []):
+    for w in list(doc.get("notes") or []) + list(doc.get("warnings") or []):
         con.print(f"  [yellow]note:[/yellow] {w}")
     _render_map(con, ev, units)
     if map_out is not None:
@@ -168,13 +168,28 @@ def _render_map(con, ev, units) -> None:
         xs, ys, index = hm.grid
         if xs.size > 16 or ys.size > 30:
             return
-        t = Table(title=f"Height map ({hu}, about the least-squares plane; north at top)", title_justify="left")
-        t.add_column("y \\ x mm", justify="right")
-        for x in xs:
-            t.add_column(f"{x:.0f}", justify="right")
         Z = hm.grid_heights_um()
-        for j in range(ys.size - 1, -1, -1):
-            t.add_row(f"{ys[j]:.0f}", *[_fmt(z, units) for z in Z[j]])
+        cells = [[_fmt(z, units) for z in Z[j]] for j in range(ys.size - 1, -1, -1)]
+        ylab = [f"{y:g}" for y in ys[::-1]]
+        # one character of padding each side of a cell and a rule between cells
+        cw = max(max(len(c) for row in cells for c in row), max(len(f"{x:g}") for x in xs))
+        yw = max(len("y mm"), max(len(v) for v in ylab))
+        need = yw + 3 + xs.size * (cw + 3) + 1
+        if need > con.width:
+            con.print(
+                f"  height map ({xs.size} x {ys.size} points) needs {need} columns, the terminal has {con.width}: "
+                "widen it, or use --map-out or --json"
+            )
+            return
+        t = Table(
+            title=f"Height map, {hu} about the least-squares plane (rows y mm, columns x mm)",
+            title_justify="left",
+        )
+        t.add_column("y mm", justify="right", no_wrap=True)
+        for x in xs:
+            t.add_column(f"{x:g}", justify="right", no_wrap=True)
+        for lab, row in zip(ylab, cells):
+            t.add_row(lab, *row)
         con.print(t)
     elif hm.n <= 120 and hm.names is not None:
         t = Table(title=f"Station heights ({hu}, about the least-squares plane)", title_justify="left")

@@ -167,3 +167,56 @@ def test_failed_run_keeps_previous_map(cli, tmp_path):
     p = _edit(tmp_path, 'unit = "arcsec"', 'unit = "furlongs"')
     code, _, _ = cli("reduce", p, "--map-out", out_csv)
     assert code == 2 and out_csv.read_text() == "previous\n"
+
+
+GRID = SAMPLES / "plate-KY-P7-grid.toml"
+
+
+@pytest.mark.parametrize("columns", ["80", "120"])
+def test_grid_height_map_is_printed_whole_and_matches_the_nodes(cli, monkeypatch, columns):
+    # The table of the 8 x 5 grid was cut to '-0.2…' at 80 columns; every cell must be whole.
+    monkeypatch.setenv("COLUMNS", columns)
+    code, out, err = cli("reduce", GRID)
+    assert code == 0, err
+    assert "…" not in out
+    code, js, _ = cli("reduce", GRID, "--json")
+    doc = json.loads(js)
+    x = np.array([n["x_mm"] for n in doc["nodes"]])
+    y = np.array([n["y_mm"] for n in doc["nodes"]])
+    z = np.array([n["height_um"] for n in doc["nodes"]])
+    # Reference: numpy least squares; the map shows heights about the LS plane.
+    A = np.column_stack([np.ones_like(x), x, y])
+    r = z - A @ np.linalg.lstsq(A, z, rcond=None)[0]
+    rows = {}
+    for line in out.splitlines():
+        cells = [c.strip() for c in line.strip("│ ").split("│")]
+        if len(cells) == 1 + np.unique(x).size and re.fullmatch(r"-?\d+(\.\d+)?", cells[0]):
+            rows[float(cells[0])] = [float(c) for c in cells[1:]]
+    assert set(rows) == set(np.unique(y))
+    for yy, vals in rows.items():
+        on_row = np.isclose(y, yy)
+        order = np.argsort(x[on_row])
+        assert vals == pytest.approx(r[on_row][order], abs=0.0006)  # printed to 3 decimals
+
+
+def test_map_too_wide_for_the_terminal_is_said_not_truncated(cli, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "80")
+    code, out, err = cli("reduce", PAD)
+    assert code == 0, err
+    assert "…" not in out
+    assert "height map (15 x 15 points) needs" in out and "--map-out" in out
+
+
+def test_reading_scatter_in_microinches_with_units_in(cli):
+    code, js, _ = cli("reduce", PLATE, "--json")
+    s0_um = json.loads(js)["residuals"]["sigma0_um"]
+    code, out, err = cli("reduce", PLATE, "--units", "in")
+    assert code == 0, err
+    # 1 µin = 0.0254 µm exactly (international inch, 1959)
+    assert f"from the residuals: {s0_um / 0.0254:.1f} µin" in out
+
+
+def test_window_larger_than_the_surface_is_said_in_the_summary(cli):
+    code, out, err = cli("reduce", PLATE, "--window", "5000x5000")
+    assert code == 0, err
+    assert "5000 x 5000 mm does not fit inside the surveyed area" in " ".join(out.split())
