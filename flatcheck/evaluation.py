@@ -163,6 +163,9 @@ def survey_uncertainty(
     """
     from .uncertainty import monte_carlo_flatness
 
+    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
+        raise InputValueError(f"the seed must be a whole number 0 or above, got {seed!r}", where="--seed",
+                              fix="give --seed 0 or a larger whole number (or leave it out)")
     hm = loaded.heightmap
     if loaded.survey is None:
         if u_height_um is None:

@@ -45,7 +45,13 @@ def demo_cmd(
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out} exists and is not a folder", where="--out", fix="choose another folder")
     src = sample_path()
-    out.mkdir(parents=True, exist_ok=True)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:  # no permission, read-only or special file system, a file in the way
+        raise OutputError(
+            f"cannot create the folder {out}: {exc.strerror or exc}", where="--out",
+            fix="choose a folder you can write to (e.g. --out flatcheck-demo)",
+        ) from None
     pdf = out / DEMO_FILES[0]
     check_outputs(pdf, None, DEMO_STANDARD)
     replaced = [name for name in DEMO_FILES if (out / name).exists()]

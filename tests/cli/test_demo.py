@@ -67,3 +67,14 @@ def test_bundled_sample_is_the_repository_sample():
         assert repo.read_bytes() == sample_path().read_bytes()
     else:
         pytest.fail(f"{repo} is missing from the source tree")
+
+
+def test_demo_folder_that_cannot_be_created_is_a_one_line_error(cli, tmp_path):
+    # a folder below a plain file cannot be created (was an internal error, exit 3)
+    f = tmp_path / "file"
+    f.write_text("keep")
+    code, out, err = cli("demo", "--out", f / "sub")
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+    assert err.startswith("flatcheck: error: --out: cannot create the folder")
+    assert f.read_text() == "keep"

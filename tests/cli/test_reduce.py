@@ -220,3 +220,10 @@ def test_window_larger_than_the_surface_is_said_in_the_summary(cli):
     code, out, err = cli("reduce", PLATE, "--window", "5000x5000")
     assert code == 0, err
     assert "5000 x 5000 mm does not fit inside the surveyed area" in " ".join(out.split())
+
+
+def test_negative_seed_is_refused_naming_the_option(cli):
+    # numpy's SeedSequence refuses negative seeds; this was an internal error (exit 3)
+    code, out, err = cli("reduce", PLATE, "--uncertainty", "--trials", "100", "--seed", "-1")
+    assert code == 2
+    assert err.startswith("flatcheck: error: --seed:") and len(err.strip().splitlines()) == 1
