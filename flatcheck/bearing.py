@@ -79,6 +79,10 @@ DEFAULT_MARGINAL_FROM = 0.8
 SAMPLES_PER_PAD_SIDE = 20
 #: Travel step: at most this fraction of the shortest pad length along the travel.
 MAX_STEP_FRACTION = 0.1
+#: Most carriage positions evaluated along one travel (a 2 m guideway at 0.02 mm steps).
+MAX_POSITIONS = 100_000
+#: Most sample points under one pad face (a 400 x 400 grid).
+MAX_FOOTPRINT_POINTS = 160_000
 
 _SHAPES = ("rect", "circle")
 _KINDS = ("porous", "orifice")
@@ -315,6 +319,13 @@ def footprint(pad: Pad, *, pitch_mm: float | None = None) -> Footprint:
     h = min(pad.length_mm, pad.width_mm) / SAMPLES_PER_PAD_SIDE
     if pitch_mm is not None:
         h = min(h, _positive(pitch_mm, "sampling pitch (mm)"))
+    if (pad.length_mm / h) * (pad.width_mm / h) > MAX_FOOTPRINT_POINTS:
+        raise InputValueError(
+            f"a sampling pitch of {h:.3g} mm puts about {(pad.length_mm / h) * (pad.width_mm / h):.3g} points under "
+            f"a {pad.length_mm:g} x {pad.width_mm:g} mm pad; at most {MAX_FOOTPRINT_POINTS} are used",
+            where="sampling pitch",
+            fix=f"give a pitch of at least {math.sqrt(pad.length_mm * pad.width_mm / MAX_FOOTPRINT_POINTS):.3g} mm",
+        )
     if pad.shape == "rect":
         nu = 2 * max(1, math.ceil(pad.length_mm / h / 2.0 - 1e-9))
         nv = 2 * max(1, math.ceil(pad.width_mm / h / 2.0 - 1e-9))
@@ -827,6 +838,18 @@ def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarra
     if span <= 0:
         return np.array([start]), y, step
     n = max(1, math.ceil(span / step - 1e-9))
+    if n + 1 > MAX_POSITIONS:
+        raise InputValueError(
+            f"{n + 1:.3g} carriage positions ({span:g} mm of travel in steps of {step:.3g} mm); "
+            f"at most {MAX_POSITIONS} are evaluated",
+            where="pad size / travel step",
+            fix=(
+                f"the step follows the pad length ({min(p.pad.length_mm for p in pads):.3g} mm): check the pad size, "
+                "which is in mm"
+                if carriage.step_mm is None
+                else f"give a travel step of at least {span / (MAX_POSITIONS - 1):.3g} mm"
+            ),
+        )
     return np.linspace(start, end, n + 1), y, span / n
 
 

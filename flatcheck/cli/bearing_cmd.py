@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import dataclasses
+import math
 from enum import Enum
 from pathlib import Path
 
@@ -129,6 +130,29 @@ def result_json(result: BearingResult, *, input_path: Path, label: str, units: s
     }
 
 
+def _check_options(positive: dict, *, travel=(None, None)) -> None:
+    """Refuse bad numbers given on the command line, naming the option, before any work."""
+    for opt, v in positive.items():
+        if v is None:
+            continue
+        if not math.isfinite(v) or v <= 0:
+            raise InputValueError(f"{v:g} is not a positive number", where=opt, fix=f"give {opt} above 0")
+        if opt in ("--gap-fraction", "--marginal-from") and v > 1:
+            example = "0.25" if opt == "--gap-fraction" else "0.8"
+            raise InputValueError(f"{v:g} is not a fraction (above 1)", where=opt,
+                                  fix=f"give {opt} as a fraction such as {example}")
+    start, end = travel
+    for opt, v in (("--travel-start-mm", start), ("--travel-end-mm", end)):
+        if v is not None and not math.isfinite(v):
+            raise InputValueError(f"{v:g} is not a number", where=opt, fix=f"give {opt} in mm")
+    if start is not None and end is not None and end < start:
+        raise InputValueError(
+            f"the travel ends ({end:g} mm) before it starts ({start:g} mm)",
+            where="--travel-start-mm/--travel-end-mm",
+            fix="swap or correct the travel limits",
+        )
+
+
 def _fmt_where(where) -> str:
     if not where:
         return ""
@@ -143,7 +167,8 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
     hu = height_unit_label(units)
 
     def h(v):
-        return f"{um_to(v, units):.3f} {hu}"
+        # µm to the nm; µin to 0.1 µin (about 2.5 nm): no more digits than the µm figure carries
+        return f"{um_to(v, units):.3f} {hu}" if units == "um" else f"{um_to(v, units):.1f} {hu}"
 
     colour = {"fit": "green", "marginal": "yellow", "unfit": "red"}[result.verdict]
     pads = result.carriage.active_pads
@@ -239,6 +264,18 @@ def bearing_cmd(
     """Judge the surface for air-bearing pads: local flatness against the gap, clearance, carriage motion."""
     from ..io.heightmap_csv import read_heightmap_csv
 
+    _check_options(
+        {
+            "--gap-fraction": gap_fraction,
+            "--marginal-from": marginal_from,
+            "--step-mm": step_mm,
+            "--sample-pitch-mm": sample_pitch_mm,
+            "--budget-straightness-um": budget_straightness_um,
+            "--budget-pitch-arcsec": budget_pitch_arcsec,
+            "--budget-roll-arcsec": budget_roll_arcsec,
+        },
+        travel=(travel_start_mm, travel_end_mm),
+    )
     carriage, fraction, marginal, budget = build_carriage(
         bearing=bearing,
         pad=pad,

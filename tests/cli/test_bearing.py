@@ -162,3 +162,45 @@ def test_plot_of_the_carriage_path(cli, sine_csv, tmp_path):
     assert (grey < 0.5).mean() > 0.005  # lines and text drawn, not a blank page
     code, out, err = cli("bearing", sine_csv, "--pad", "60x40", "--gap-um", "10", "--plot", tmp_path / "no" / "x.png")
     assert code == 2 and "does not exist" in err and err.count("\n") == 1
+
+
+@pytest.mark.parametrize(
+    "args, where",
+    [
+        (["--step-mm", "0"], "--step-mm"),
+        (["--step-mm", "-1"], "--step-mm"),
+        (["--gap-fraction", "nan"], "--gap-fraction"),
+        (["--gap-fraction", "1.5"], "--gap-fraction"),
+        (["--marginal-from", "1.5"], "--marginal-from"),
+        (["--sample-pitch-mm", "0"], "--sample-pitch-mm"),
+        (["--budget-roll-arcsec", "0"], "--budget-roll-arcsec"),
+        (["--travel-start-mm", "400", "--travel-end-mm", "100"], "--travel-start-mm/--travel-end-mm"),
+    ],
+)
+def test_bad_numbers_name_their_option(cli, sine_csv, args, where):
+    code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", *args)
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {where}: ")
+
+
+@pytest.mark.parametrize(
+    "args, match",
+    [
+        (["--pad", "1e-9x1e-9", "--gap-um", "8"], "check the pad size"),  # was MemoryError, exit 3
+        (["--pad", "100x60", "--gap-um", "8", "--step-mm", "0.001"], "at least"),
+        (["--pad", "100x60", "--gap-um", "8", "--sample-pitch-mm", "1e-4"], "sampling pitch"),
+    ],
+)
+def test_absurdly_fine_sampling_is_refused_not_a_crash(cli, sine_csv, args, match):
+    code, out, err = cli("bearing", sine_csv, *args)
+    one_line_error(code, out, err)
+    assert match in err
+
+
+def test_microinch_summary_to_a_tenth(cli, sine_csv):
+    code, js, _ = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--json")
+    lf_um = json.loads(js)["local_flatness_max_um"]
+    code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--units", "in")
+    assert code == 0, err
+    # 1 µin = 0.0254 µm exactly (international inch, 1959)
+    assert f"Local flatness under the pads: max {lf_um / 0.0254:.1f} µin" in out
