@@ -8,6 +8,8 @@ result is a reject: with ``--grade`` or a given tolerance, when that one verdict
 
 from __future__ import annotations
 
+import math
+
 from enum import Enum
 from pathlib import Path
 
@@ -74,9 +76,24 @@ def _one_of(um: float | None, uin: float | None, name: str) -> float | None:
         raise InputValueError(
             f"both --{name}-um and --{name}-uin given", where=f"--{name}-um/--{name}-uin", fix="give only one"
         )
+    for opt, v in ((f"--{name}-um", um), (f"--{name}-uin", uin)):
+        if v is None:
+            continue
+        # a tolerance must be above 0; an expanded uncertainty may be 0 (not stated as negligible, but allowed)
+        bad = not math.isfinite(v) or (v <= 0 if name == "tolerance" else v < 0)
+        if bad:
+            need = "a positive number" if name == "tolerance" else "a number 0 or above"
+            raise InputValueError(f"{name} {v:g} is not {need}", where=opt, fix=f"give {opt} as {need}")
     if uin is not None:
         return float(uin) * UM_PER_UIN  # 1 µin = 0.0254 µm exactly
     return None if um is None else float(um)
+
+
+def _check_positive(options: dict) -> None:
+    """Refuse a size or tolerance option that is not a positive finite number, naming the option."""
+    for opt, v in options.items():
+        if v is not None and (not math.isfinite(v) or v <= 0):
+            raise InputValueError(f"{v:g} is not a positive number", where=opt, fix=f"give {opt} above 0")
 
 
 def build_grade_report(
@@ -338,6 +355,8 @@ def grade_cmd(
         raise InputValueError(
             "both --uncertainty and a stated uncertainty given", where="--uncertainty", fix="give only one"
         )
+    _check_positive({"--length-mm": length_mm, "--width-mm": width_mm,
+                     "--repeat-foot-radius-mm": repeat_foot_radius_mm, "--repeat-tolerance-um": repeat_tolerance_um})
     loaded = load_input(input)
     hm = loaded.heightmap
     mc_note = None

@@ -196,3 +196,29 @@ def test_monte_carlo_uncertainty_matches_reduce(cli):
     assert g["flatness_um"] == pytest.approx(r["minimum_zone_um"], abs=1e-9)
     code, out, err = cli("grade", plate, "--standard", "din-876", "--uncertainty-um", "0.2", "--uncertainty")
     assert code == 2 and err.count("\n") == 1
+
+
+@pytest.mark.parametrize(
+    "args, where",
+    [
+        (["--tolerance-um", "nan"], "--tolerance-um"),
+        (["--tolerance-uin", "0"], "--tolerance-uin"),
+        (["--standard", "din-876", "--uncertainty-um", "-1"], "--uncertainty-um"),
+        (["--standard", "din-876", "--uncertainty-uin", "nan"], "--uncertainty-uin"),
+        (["--standard", "din-876", "--repeat-foot-radius-mm", "-5"], "--repeat-foot-radius-mm"),
+        (["--standard", "din-876", "--repeat-foot-radius-mm", "50", "--repeat-tolerance-um", "0"],
+         "--repeat-tolerance-um"),
+        (["--standard", "din-876", "--length-mm", "0", "--width-mm", "630"], "--length-mm"),
+    ],
+)
+def test_bad_numbers_name_their_option(cli, dome, args, where):
+    code, out, err = cli("grade", dome, *args)
+    assert code == 2 and out == "" and "Traceback" not in err
+    assert err.count("\n") == 1 and err.startswith(f"flatcheck: error: {where}: ")
+
+
+def test_zero_uncertainty_is_accepted_and_decides_like_the_simple_rule(cli, dome):
+    # ISO 14253-1 with U = 0: accept F <= T, reject F > T (the guard band vanishes)
+    doc = _json(cli, "grade", dome, "--standard", "din-876", "--uncertainty-um", "0")
+    for g in doc["grades"]:
+        assert g["verdict"] == ("conforms" if doc["flatness_um"] <= g["tolerance_um"] else "does-not-conform")
