@@ -653,10 +653,11 @@ def _page_summary(fig, c, units):
 def _page_map(fig, c, units):
     from . import plot
 
-    ax = fig.add_axes([0.09, 0.50, 0.80, 0.40])
+    # the map's x label hangs below its axes: leave it room above the 3-D view's title (a square pad touched it)
+    ax = fig.add_axes([0.09, 0.54, 0.80, 0.36])
     plot.contour_map(ax, c.heightmap, reference=c.mz, units=units,
                      title="deviation from the minimum-zone plane (open circles: stations)")
-    ax3 = fig.add_axes([0.06, 0.07, 0.88, 0.40], projection="3d")
+    ax3 = fig.add_axes([0.06, 0.06, 0.88, 0.38], projection="3d")
     plot.surface_view(ax3, c.heightmap, reference=c.mz, units=units,
                       title="the same surface in three dimensions (heights exaggerated)")
 

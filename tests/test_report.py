@@ -237,3 +237,28 @@ def test_write_report_refuses_a_missing_picture_folder_and_keeps_the_old_pdf(tmp
     assert target.read_bytes() == b"old"
     with pytest.raises(OutputError):
         report.write_report(tmp_path / "no-folder" / "r.pdf", content)
+
+
+@pytest.mark.parametrize("size_mm", [(80.0, 80.0), (1000.0, 630.0), (2000.0, 200.0)])
+def test_map_page_x_label_clear_of_the_3d_title(size_mm):
+    # A square pad's map reached down so far that its x label ran into the 3-D view's title.
+    # Checked on the drawn extents (matplotlib's renderer), for a square, a plate and a guideway.
+    from flatcheck import plot
+
+    L, W = size_mm
+    x, y = np.meshgrid(np.linspace(0, L, 9), np.linspace(0, W, 9))
+    z = 1e-3 * np.hypot(x - L / 2, y - W / 2)  # a shallow cone, µm (invented shape)
+    hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), length_mm=L, width_mm=W, label="cone")
+    content = _map_report(hm)
+    fig = plot.new_figure()
+    report._page_map(fig, content, "um")
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    ax_map, ax3 = [a for a in fig.axes if a.name != "3d" and a.get_xlabel()][0], [a for a in fig.axes if a.name == "3d"][0]
+    label_box = ax_map.xaxis.label.get_window_extent(r)
+    from matplotlib.text import Text
+
+    title = ax3.get_title(loc="left")
+    assert title.startswith("the same surface in three dimensions")
+    title_box = [t for t in ax3.findobj(Text) if t.get_text() == title][0].get_window_extent(r)
+    assert label_box.y0 > title_box.y1, (label_box, title_box)
