@@ -152,6 +152,15 @@ def _positive(value, name: str, fix: str) -> float:
     return v
 
 
+
+#: Checks of the gas and ambient fields shared by every feed: field -> (name in messages, how to fix).
+_GAS_CHECKS = {
+    "ambient_kpa": ("ambient pressure (kPa)", "give the absolute ambient pressure, e.g. 101.325"),
+    "viscosity_pa_s": ("air viscosity (Pa s)", "give a viscosity such as 1.81e-5"),
+    "gas_constant_j_per_kg_k": ("gas constant (J/(kg K))", "give 287.05 for air"),
+    "temperature_k": ("temperature (K)", "give an absolute temperature such as 293.15"),
+}
+
 @dataclass(frozen=True)
 class PorousFeed:
     """Porous layer, air supply and gas properties of a porous pad.
@@ -187,10 +196,7 @@ class PorousFeed:
             "permeability_m2": ("permeability (m²)", "give the layer's permeability, e.g. 1e-15"),
             "layer_mm": ("porous layer thickness (mm)", "give the layer thickness in mm, e.g. 5"),
             "supply_gauge_kpa": ("supply pressure (kPa gauge)", "give the supply above ambient, e.g. 500"),
-            "ambient_kpa": ("ambient pressure (kPa)", "give the absolute ambient pressure, e.g. 101.325"),
-            "viscosity_pa_s": ("air viscosity (Pa s)", "give a viscosity such as 1.81e-5"),
-            "gas_constant_j_per_kg_k": ("gas constant (J/(kg K))", "give 287.05 for air"),
-            "temperature_k": ("temperature (K)", "give an absolute temperature such as 293.15"),
+            **_GAS_CHECKS,
         }
         for attr, (name, fix) in checks.items():
             object.__setattr__(self, attr, _positive(getattr(self, attr), name, fix))
@@ -356,10 +362,7 @@ class OrificeFeed:
             "orifice_mm": ("orifice diameter (mm)", "give the orifice bore in mm, e.g. 0.2"),
             "supply_gauge_kpa": ("supply pressure (kPa gauge)", "give the supply above ambient, e.g. 500"),
             "cd": ("discharge coefficient", "give a discharge coefficient such as 0.8"),
-            "ambient_kpa": ("ambient pressure (kPa)", "give the absolute ambient pressure, e.g. 101.325"),
-            "viscosity_pa_s": ("air viscosity (Pa s)", "give a viscosity such as 1.81e-5"),
-            "gas_constant_j_per_kg_k": ("gas constant (J/(kg K))", "give 287.05 for air"),
-            "temperature_k": ("temperature (K)", "give an absolute temperature such as 293.15"),
+            **_GAS_CHECKS,
             "gamma": ("ratio of specific heats", "give 1.4 for air"),
         }
         for attr, (name, fix) in checks.items():
