@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import sys
+import textwrap
 from pathlib import Path
 
 import typer
@@ -256,20 +257,30 @@ def _fmt_cell(t: float) -> str:
     return f"{t:.1f}" if t >= 0.05 else "<0.1"
 
 
-def chart_text(plan: LapPlan) -> str:
-    """The cell chart as plain text (north at the top), for printing and taking to the bench."""
+def chart_text(plan: LapPlan, max_width: int = 96) -> str:
+    """The cell chart as plain text (north at the top), for printing and taking to the bench.
+
+    A chart wider than ``max_width`` characters is cut into blocks of whole columns, west block first,
+    each with its own column letters, so that no line wraps on a terminal or a printed page.
+    """
     ch = plan.chart
     unit = "min" if ch.time_unit == "min" else "passes"
     width = max(6, max((len(f"{t:.1f}") for t in ch.time.ravel()), default=3) + 1)
+    per_block = max(1, (max_width - 4) // width)
+    n_cols = len(ch.columns)
     lines = [f"Time per cell ({unit}); columns A.. from west, rows 1.. from south; north is up"]
-    lines.append("    " + "".join(f"{c:>{width}}" for c in ch.columns))
-    for j in range(len(ch.rows) - 1, -1, -1):
-        cells = "".join(f"{_fmt_cell(t):>{width}}" for t in ch.time[j])
-        lines.append(f"{ch.rows[j]:>3} {cells}")
+    for start in range(0, n_cols, per_block):
+        stop = min(n_cols, start + per_block)
+        if n_cols > per_block:
+            lines.append(f"  columns {ch.columns[start]}-{ch.columns[stop - 1]}:")
+        lines.append("    " + "".join(f"{c:>{width}}" for c in ch.columns[start:stop]))
+        for j in range(len(ch.rows) - 1, -1, -1):
+            cells = "".join(f"{_fmt_cell(t):>{width}}" for t in ch.time[j, start:stop])
+            lines.append(f"{ch.rows[j]:>3} {cells}")
     edges_x = ", ".join(f"{round(float(v), 1):g}" for v in ch.x_edges_mm)
     edges_y = ", ".join(f"{round(float(v), 1):g}" for v in ch.y_edges_mm)
-    lines.append(f"cell edges x (mm): {edges_x}")
-    lines.append(f"cell edges y (mm): {edges_y}")
+    for label, edges in (("x", edges_x), ("y", edges_y)):
+        lines.append(textwrap.fill(f"cell edges {label} (mm): {edges}", width=max_width, subsequent_indent="    "))
     return "\n".join(lines)
 
 
@@ -306,7 +317,9 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
     out.append("")
     out += [f"Note: {n}" for n in notes]
     out.append(f"Caution: {SAFETY_LINES['dust']}")
-    return "\n".join(out) + "\n"
+    # 96 characters fit a printed A4 page in a monospaced font; the chart is already cut to fit.
+    return "\n".join(textwrap.fill(line, width=96, subsequent_indent="  ") if len(line) > 96 and "\n" not in line else line
+                     for line in out) + "\n"
 
 
 def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> None:
@@ -342,7 +355,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         )
     if plan.passes:
         con.print(table)
-        con.print(chart_text(plan), markup=False)
+        con.print(chart_text(plan, max_width=max(40, con.width)), markup=False)
     else:
         con.print("No passes: the surface is already within the target.")
     for n in notes:

@@ -253,3 +253,23 @@ def test_bad_min_pass_fraction_names_option(cli, hill_csv):
     code, out, err = cli("lap", hill_csv, "--target-um", "1", "--min-pass-fraction", "1.5")
     one_line_error(code, out, err)
     assert err.startswith("flatcheck: error: --min-pass-fraction:")
+
+
+def test_wide_cell_chart_is_cut_into_blocks_that_fit_a_page(cli, tmp_path):
+    # A 2 m guideway with 80 mm cells has 25 columns: the chart must not wrap on a printed page.
+    long_csv = write_surface(
+        tmp_path / "long.csv", lambda X, Y: 1.5 * np.exp(-((X - 1800) ** 2) / (2 * 60.0**2)) + 0.0 * Y,
+        length=2000.0, width=200.0, pitch=40.0,
+    )
+    plan = tmp_path / "plan.txt"
+    code, out, err = cli("lap", long_csv, "--target-um", "0.5", "--lap-diameter-mm", "80", "--cell-mm", "80",
+                         "--plan-out", plan)
+    assert code == 0, err
+    text = plan.read_text(encoding="utf-8")
+    assert max(len(line) for line in text.splitlines()) <= 96
+    blocks = [ln for ln in text.splitlines() if ln.startswith("  columns ")]
+    assert len(blocks) >= 2
+    # each block's header row holds its column letters; together they name every column once, west to east
+    lines = text.splitlines()
+    letters = [c for i, ln in enumerate(lines) if ln.startswith("  columns ") for c in lines[i + 1].split()]
+    assert letters == sorted(set(letters)) and letters[0] == "A" and len(letters) == 25
