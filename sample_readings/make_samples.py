@@ -73,7 +73,7 @@ def _p3_after(k):
 
 
 def plate_p3(rng, sessions: int):
-    inst = Instrument("autocollimator", "arcsec", reports="mirror-tilt", reading_uncertainty=0.15, model="autocollimator, tool-room asset 114")
+    inst = Instrument("autocollimator", "arcsec", reports="mirror-tilt", reading_uncertainty=0.15, model="tool-room asset 114")
     surface = Surface("granite surface plate, inspection bench 2", 1000.0, 630.0, ident="KY-P3", material="black granite")
     plan = plan_union_jack(1000.0, 630.0, 100.0, margin_mm=30.0, instrument=inst, surface=surface)
     runs = {name: ("forward", "reverse") for name in ("SW-SE", "NW-NE", "W-E")}
@@ -102,7 +102,7 @@ def _g1(x, y):
 
 
 def guideway_g1(rng):
-    inst = Instrument("level", "um/m", reading_uncertainty=0.3, model="electronic level, tool-room asset 207")
+    inst = Instrument("level", "um/m", reading_uncertainty=0.3, model="tool-room asset 207")
     surface = Surface("granite guideway, top bearing face of the X axis", 2000.0, 200.0, ident="KY-G1", material="granite")
     long_lines = [(f"long-{k + 1}", (50.0, y), (1950.0, y), 19) for k, y in enumerate((40.0, 100.0, 160.0))]
     cross = [(f"cross-{k + 1}", (x, 40.0), (x, 160.0), 2) for k, x in enumerate((50.0, 550.0, 1050.0, 1550.0, 1950.0))]
@@ -158,7 +158,7 @@ def _p7(x, y):
 
 
 def plate_p7(rng):
-    inst = Instrument("differential-level", "um/m", reading_uncertainty=0.2, model="differential level pair, tool-room asset 208")
+    inst = Instrument("differential-level", "um/m", reading_uncertainty=0.2, model="tool-room asset 208 (matched pair)")
     surface = Surface("granite surface plate, gauge room", 630.0, 400.0, ident="KY-P7", material="granite")
     plan = plan_grid(630.0, 400.0, 75.0, margin_mm=30.0, instrument=inst, surface=surface)
     sim = simulate_survey(plan, _p7, instrument_zero="random", noise_sd=0.2, rng=rng)
