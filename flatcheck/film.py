@@ -161,8 +161,23 @@ _GAS_CHECKS = {
     "temperature_k": ("temperature (K)", "give an absolute temperature such as 293.15"),
 }
 
+
+class _AirSupply:
+    """Absolute pressures of a feed with ``supply_gauge_kpa`` and ``ambient_kpa`` fields (kPa)."""
+
+    @property
+    def supply_pa(self) -> float:
+        """Absolute supply pressure in Pa."""
+        return (self.supply_gauge_kpa + self.ambient_kpa) * 1e3
+
+    @property
+    def ambient_pa(self) -> float:
+        """Absolute ambient pressure in Pa."""
+        return self.ambient_kpa * 1e3
+
+
 @dataclass(frozen=True)
-class PorousFeed:
+class PorousFeed(_AirSupply):
     """Porous layer, air supply and gas properties of a porous pad.
 
     Attributes
@@ -200,16 +215,6 @@ class PorousFeed:
         }
         for attr, (name, fix) in checks.items():
             object.__setattr__(self, attr, _positive(getattr(self, attr), name, fix))
-
-    @property
-    def supply_pa(self) -> float:
-        """Absolute supply pressure in Pa."""
-        return (self.supply_gauge_kpa + self.ambient_kpa) * 1e3
-
-    @property
-    def ambient_pa(self) -> float:
-        """Absolute ambient pressure in Pa."""
-        return self.ambient_kpa * 1e3
 
     @property
     def feed_coefficient(self) -> float:
@@ -321,7 +326,7 @@ def _orifice_dflow_dp(recess_pa, supply_pa, area_m2, cd, gamma, rt):
 
 
 @dataclass(frozen=True)
-class OrificeFeed:
+class OrificeFeed(_AirSupply):
     """Orifices, optional feed pockets, air supply and gas properties of an orifice-fed pad.
 
     Attributes
@@ -399,16 +404,6 @@ class OrificeFeed:
         if not pos or not all(math.isfinite(v) for p in pos for v in p):
             raise InputValueError("give at least one finite orifice position", fix="e.g. ((0, 0),)")
         object.__setattr__(self, "positions_mm", pos)
-
-    @property
-    def supply_pa(self) -> float:
-        """Absolute supply pressure in Pa."""
-        return (self.supply_gauge_kpa + self.ambient_kpa) * 1e3
-
-    @property
-    def ambient_pa(self) -> float:
-        """Absolute ambient pressure in Pa."""
-        return self.ambient_kpa * 1e3
 
     @property
     def ambient_density_kg_m3(self) -> float:
