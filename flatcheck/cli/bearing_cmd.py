@@ -248,8 +248,8 @@ def bearing_cmd(
     load_n: float = typer.Option(
         None, "--load-n", help="Porous-pad film: load per pad, N (default: what the pad carries at --gap-um on a flat guide)."
     ),
-    film_pivot: bool = typer.Option(
-        True, "--film-pivot/--film-fixed", help="Porous-pad film: pads on ball pivots (tilt free) or held level."
+    film_fixed: bool = typer.Option(
+        False, "--film-fixed", help="Film: pads held level (default: on ball pivots, tilt free)."
     ),
     film_mesh: int = typer.Option(64, "--film-mesh", help="Film: mesh cells along each side of a pad (odd for orifices)."),
     orifice_mm: float = typer.Option(None, "--orifice-mm", help="Orifice-pad film: orifice bore diameter, mm."),
@@ -313,7 +313,7 @@ def bearing_cmd(
                     "--pocket-depth-um": pocket_depth_um}
     if any(v is not None for v in (supply_kpa, permeability_m2, layer_mm, *orifice_opts.values())):
         feed = _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts)
-        film, result = _film(surface, carriage, result, feed, load_n, film_pivot, film_mesh, interp.value)
+        film, result = _film(surface, carriage, result, feed, load_n, not film_fixed, film_mesh, interp.value)
     label = surface.label or input.name
     if plot_out is not None:
         from .. import plot

@@ -203,7 +203,7 @@ def build_grade_report(
         notes.append("repeat-reading tolerance values of the standard are not built in (not verified); give your own")
     elif repeat_tolerance_um is not None:
         raise InputValueError(
-            "--repeat-tolerance-um needs --repeat-foot-radius-mm", where="--repeat-tolerance-um", fix="give the gage's foot radius"
+            "--repeat-tolerance-um needs --repeat-radius-mm", where="--repeat-tolerance-um", fix="give the gage's foot radius"
         )
 
     length_used = tols[0].length_used_mm
@@ -338,7 +338,7 @@ def grade_cmd(
     basis: Basis = typer.Option(Basis.formula, "--basis", help="formula (default, any size) or table (tabulated sizes)."),
     asme_form: AsmeForm = typer.Option(AsmeForm.inch, "--asme-form", help="ASME formula in inch form (default) or metric."),
     repeat_foot_radius_mm: float = typer.Option(
-        None, "--repeat-foot-radius-mm", help="Simulate a repeat-reading gage with feet at this radius (mm)."
+        None, "--repeat-radius-mm", help="Simulate a repeat-reading gage whose three feet sit at this radius (mm)."
     ),
     repeat_tolerance_um: float = typer.Option(None, "--repeat-tolerance-um", help="Repeat-reading tolerance in µm."),
     monte_carlo: bool = typer.Option(
@@ -356,7 +356,7 @@ def grade_cmd(
             "both --uncertainty and a stated uncertainty given", where="--uncertainty", fix="give only one"
         )
     _check_positive({"--length-mm": length_mm, "--width-mm": width_mm,
-                     "--repeat-foot-radius-mm": repeat_foot_radius_mm, "--repeat-tolerance-um": repeat_tolerance_um})
+                     "--repeat-radius-mm": repeat_foot_radius_mm, "--repeat-tolerance-um": repeat_tolerance_um})
     loaded = load_input(input)
     hm = loaded.heightmap
     mc_note = None

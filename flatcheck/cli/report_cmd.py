@@ -136,8 +136,8 @@ def report_cmd(
         None, "--strokes-per-pass", help="Strokes in one pass (with a rate per pass)."),
     stroke_mm: float = typer.Option(0.0, "--stroke-mm", help="Length of the lap's working strokes about each spot (mm)."),
     units: Units = units_option(),
-    uncertainty: bool = typer.Option(
-        True, "--uncertainty/--no-uncertainty", help="Monte Carlo uncertainty of the flatness (JCGM 101)."),
+    no_uncertainty: bool = typer.Option(
+        False, "--no-uncertainty", help="Leave out the Monte Carlo uncertainty of the flatness (JCGM 101)."),
     seed: int | None = seed_option(),
     trials: int = trials_option(),
     u_height_um: float | None = u_height_option(),
@@ -155,7 +155,7 @@ def report_cmd(
         lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
         strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm,
     )
-    ev, why_not = evaluate_for_report(loaded, window=window, uncertainty=uncertainty, trials=trials, seed=seed,
+    ev, why_not = evaluate_for_report(loaded, window=window, uncertainty=not no_uncertainty, trials=trials, seed=seed,
                                       u_height_um=u_height_um, show_progress=not json_out)
     content, files = make_report(
         ev, output=output, png=png, units=units.value, show_progress=not json_out,

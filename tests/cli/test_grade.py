@@ -132,7 +132,7 @@ def test_fail_on_reject(cli, dome):
 
 def test_repeat_reading_option(cli, tmp_path):
     flat = _write_map(tmp_path / "flat.csv", lambda x, y: 0.001 * x, size=(300.0, 300.0), step=(10.0, 10.0))
-    obj = _json(cli, "grade", flat, "-s", "asme", "--repeat-foot-radius-mm", "50", "--repeat-tolerance-um", "0.5")
+    obj = _json(cli, "grade", flat, "-s", "asme", "--repeat-radius-mm", "50", "--repeat-tolerance-um", "0.5")
     rr = obj["repeat_reading"]
     assert rr["variation_um"] == pytest.approx(0.0, abs=1e-6) and rr["verdict"] == "conforms"
 
@@ -151,7 +151,7 @@ def test_repeat_reading_option(cli, tmp_path):
         (("--standard", "din-876", "--length-mm", "1000"), "--width-mm"),
         (("--tolerance-um", "3", "--tolerance-uin", "100"), "only one"),
         ((), "no standard"),
-        (("--standard", "din-876", "--repeat-foot-radius-mm", "5"), "coarser"),
+        (("--standard", "din-876", "--repeat-radius-mm", "5"), "coarser"),
     ],
 )
 def test_bad_options_one_line(cli, dome, args, fragment):
@@ -205,8 +205,8 @@ def test_monte_carlo_uncertainty_matches_reduce(cli):
         (["--tolerance-uin", "0"], "--tolerance-uin"),
         (["--standard", "din-876", "--uncertainty-um", "-1"], "--uncertainty-um"),
         (["--standard", "din-876", "--uncertainty-uin", "nan"], "--uncertainty-uin"),
-        (["--standard", "din-876", "--repeat-foot-radius-mm", "-5"], "--repeat-foot-radius-mm"),
-        (["--standard", "din-876", "--repeat-foot-radius-mm", "50", "--repeat-tolerance-um", "0"],
+        (["--standard", "din-876", "--repeat-radius-mm", "-5"], "--repeat-radius-mm"),
+        (["--standard", "din-876", "--repeat-radius-mm", "50", "--repeat-tolerance-um", "0"],
          "--repeat-tolerance-um"),
         (["--standard", "din-876", "--length-mm", "0", "--width-mm", "630"], "--length-mm"),
     ],
