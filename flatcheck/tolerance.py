@@ -255,7 +255,7 @@ STANDARDS = {
         key="asme-b89.3.7",
         title="ASME B89.3.7-2013 (revises Federal Specification GGG-P-463c)",
         grades=("AA", "A", "B"),
-        grade_status=(VERIFIED, VERIFIED, VERIFIED),
+        grade_status=(VERIFIED, SECONDARY, SECONDARY),  # AA: Sandia quoting the spec; A, B: lab pages
         length_basis="diagonal",
         allowed_length_bases=("diagonal",),
         formula="AA = 40 + D^2/25 uin, D = diagonal in inches (exactly 1.016 + 1.5748e-6 D^2 um, D in mm); "

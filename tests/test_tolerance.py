@@ -80,6 +80,14 @@ def test_din876_range_flag():
 
 
 # ----------------------------------------------------------------------------- ASME B89.3.7
+
+
+def test_asme_provenance_labels():
+    # REFERENCE.md 4.3: the AA formula is seen in a faithful quotation of the federal spec (Sandia); the
+    # A = 2 AA and B = 4 AA multiples only on laboratory and supplier pages, so they are secondary.
+    assert tolerance("asme-b89.3.7", "AA", 1000, 630).status == "verified"
+    assert tolerance("asme-b89.3.7", "A", 1000, 630).status == "secondary source"
+    assert tolerance("asme-b89.3.7", "B", 1000, 630).status == "secondary source"
 def test_asme_inch_formula_items_12():
     # Source: REFERENCE.md section 10 item 12; formula AA = 40 + D^2/25 µin (Sandia SAND2008-2571C).
     aa = tolerance("asme-b89.3.7", "AA", 18 * 25.4, 24 * 25.4).tolerance_um / UIN

@@ -310,7 +310,9 @@ def render_grades(report: dict, units: str) -> None:
         con.print(f"Formula: {report['formula']}; rounding: {report['rounding']}")
     if report["best_grade"] is not None:
         how = "proven (ISO 14253-1)" if report["rule"] == "iso14253-1" else "under simple acceptance"
-        con.print(f"Finest grade that conforms, {how}: [bold]{report['best_grade']}[/bold]")
+        best = next(g for g in report["grades"] if g["grade"] == report["best_grade"])
+        outside = "" if best["in_range"] else " (the plate is outside the standard's size range: indicative only)"
+        con.print(f"Finest grade that conforms, {how}: [bold]{report['best_grade']}[/bold]{outside}")
     rr = report["repeat_reading"]
     if rr is not None:
         extra = "" if rr["verdict"] is None else f" against {h(rr['tolerance_um'])} {hu}: {rr['verdict']} ({rr['rule']})"
@@ -342,7 +344,12 @@ def grade_cmd(
     ),
     repeat_tolerance_um: float = typer.Option(None, "--repeat-tolerance-um", help="Repeat-reading tolerance in µm."),
     monte_carlo: bool = typer.Option(
-        False, "--uncertainty", help="Evaluate U by Monte Carlo (JCGM 101) from the survey, as 'flatcheck reduce --uncertainty'."
+        False, "--uncertainty",
+        help="Evaluate U by Monte Carlo (JCGM 101), as 'flatcheck reduce --uncertainty'; an error if it cannot be "
+        "had (default: evaluated whenever the input allows).",
+    ),
+    no_uncertainty: bool = typer.Option(
+        False, "--no-uncertainty", help="Do not evaluate U: only a stated U, or simple acceptance, decides."
     ),
     trials: int = trials_option(),
     seed: int = seed_option(),
@@ -355,16 +362,30 @@ def grade_cmd(
         raise InputValueError(
             "both --uncertainty and a stated uncertainty given", where="--uncertainty", fix="give only one"
         )
+    if monte_carlo and no_uncertainty:
+        raise InputValueError(
+            "both --uncertainty and --no-uncertainty given", where="--no-uncertainty", fix="give only one"
+        )
     _check_positive({"--length-mm": length_mm, "--width-mm": width_mm,
                      "--repeat-radius-mm": repeat_foot_radius_mm, "--repeat-tolerance-um": repeat_tolerance_um})
     loaded = load_input(input)
     hm = loaded.heightmap
     mc_note = None
-    if monte_carlo:
-        with progress_bar("Monte Carlo", trials) as advance:
-            mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
-        unc = mc.minimum_zone.expanded_um
-        mc_note = mc.note
+    # By default U comes from the flatness engine whenever the input carries what it needs (a survey's
+    # readings, or a height map with --u-height-um), so that the ISO 14253-1 rule can decide.
+    automatic = not (monte_carlo or no_uncertainty or unc is not None) and (
+        loaded.survey is not None or u_height_um is not None)
+    if monte_carlo or automatic:
+        try:
+            with progress_bar("Monte Carlo", trials) as advance:
+                mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
+        except InputValueError as exc:
+            if monte_carlo:
+                raise
+            mc_note = f"U not evaluated: {exc.message}"
+        else:
+            unc = mc.minimum_zone.expanded_um
+            mc_note = mc.note
     report = build_grade_report(
         hm,
         standard=standard,
@@ -381,6 +402,9 @@ def grade_cmd(
         repeat_tolerance_um=repeat_tolerance_um,
     )
     report["input"] = str(input)
+    if mc_note is None and unc is None:
+        mc_note = ("U not evaluated (--no-uncertainty)" if no_uncertainty else
+                   "U not evaluated: a height map carries no reading uncertainty (give --u-height-um or --uncertainty-um)")
     if mc_note is not None:
         report["uncertainty_note"] = mc_note
         report.setdefault("notes", []).append(mc_note)

@@ -222,3 +222,39 @@ def test_zero_uncertainty_is_accepted_and_decides_like_the_simple_rule(cli, dome
     doc = _json(cli, "grade", dome, "--standard", "din-876", "--uncertainty-um", "0")
     for g in doc["grades"]:
         assert g["verdict"] == ("conforms" if doc["flatness_um"] <= g["tolerance_um"] else "does-not-conform")
+
+
+def test_survey_gets_its_uncertainty_by_default_so_the_iso_rule_decides(cli):
+    # ISO 14253-1:2017 (default rule): a verdict on a survey uses the expanded uncertainty from the flatness
+    # engine without being asked; --no-uncertainty leaves it out and the rule falls back, saying so.
+    from pathlib import Path
+
+    plate = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
+    seeded = ("--trials", "2000", "--seed", "5")
+    auto = _json(cli, "grade", plate, "-s", "din-876", *seeded)
+    asked = _json(cli, "grade", plate, "-s", "din-876", "--uncertainty", *seeded)
+    assert auto["expanded_uncertainty_um"] is not None and auto["expanded_uncertainty_um"] > 0
+    assert auto["expanded_uncertainty_um"] == pytest.approx(asked["expanded_uncertainty_um"], rel=1e-12)
+    assert auto["rule"] == "iso14253-1"
+    off = _json(cli, "grade", plate, "-s", "din-876", "--no-uncertainty")
+    assert off["expanded_uncertainty_um"] is None and "--no-uncertainty" in off["uncertainty_note"]
+    code, out, err = cli("grade", plate, "-s", "din-876", "--uncertainty", "--no-uncertainty")
+    assert code == 2 and err.count("\n") == 1 and "--no-uncertainty" in err
+
+
+def test_height_map_without_reading_uncertainty_says_why_there_is_no_u(cli, dome):
+    obj = _json(cli, "grade", dome, "-s", "din-876")
+    assert obj["expanded_uncertainty_um"] is None and "--u-height-um" in obj["uncertainty_note"]
+    with_u = _json(cli, "grade", dome, "-s", "din-876", "--u-height-um", "0.05", "--trials", "2000", "--seed", "3")
+    assert with_u["expanded_uncertainty_um"] > 0
+
+
+def test_best_grade_of_a_plate_outside_the_range_is_called_indicative(cli, tmp_path):
+    # 200 x 150 mm is below the smallest plate the federal spec considers (12 x 12 in; REFERENCE.md 4.3).
+    small = _write_map(tmp_path / "small.csv", lambda x, y: 1e-4 * x, size=(200.0, 150.0), step=(50.0, 50.0))
+    code, out, err = cli("grade", small, "-s", "asme-b89.3.7")
+    assert code == 0, err
+    line = next(ln for ln in out.splitlines() if ln.startswith("Finest grade"))
+    assert "AA" in line and "outside" in " ".join(out.split())
+    code, out, err = cli("grade", _write_map(tmp_path / "big.csv", lambda x, y: 1e-4 * x), "-s", "asme-b89.3.7")
+    assert "indicative" not in out
