@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import sys
 from contextlib import contextmanager
 from enum import Enum
@@ -12,7 +13,7 @@ from pathlib import Path
 import numpy as np
 from rich.console import Console
 
-from ..errors import InputFormatError
+from ..errors import InputFormatError, OutputError
 from ..safety import SAFETY_LINES as _SAFETY_LINES
 
 __all__ = [
@@ -24,6 +25,7 @@ __all__ = [
     "progress_bar",
     "load_surface",
     "load_input",
+    "refuse_overwriting_inputs",
     "window_option",
     "units_option",
     "trials_option",
@@ -169,6 +171,66 @@ def load_input(path: Path, *, method: str = "least-squares"):
     survey = read_survey(path)
     red = reduce_survey(survey, method=method)
     return LoadedInput(str(path), red.heightmap, survey, red)
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    """True when ``a`` and ``b`` name one file: same resolved path, or (both existing) the same inode."""
+    try:
+        if a.resolve() == b.resolve():
+            return True
+    except OSError:  # a resolve loop: compare as written
+        if os.path.abspath(a) == os.path.abspath(b):
+            return True
+    if a.exists() and b.exists():
+        try:
+            return os.path.samefile(a, b)  # hard links, bind mounts, case-insensitive file systems
+        except OSError:
+            return False
+    return False
+
+
+def refuse_overwriting_inputs(outputs: dict[str, Path | None], inputs: list[Path | None]) -> None:
+    """Refuse an output path that names an input file (or another output), before any work.
+
+    Every command that reads files and writes others calls this first, so that a slip such as
+    ``flatcheck reduce p3.toml --map-out p3.toml`` can never replace a survey with its result.
+    Paths are compared after resolving symbolic links and ``..``, and with :func:`os.path.samefile`
+    when both exist (hard links, case-insensitive file systems).
+
+    Parameters
+    ----------
+    outputs : dict of str to Path or None
+        Output option as typed on the command line (e.g. ``"--map-out"``) -> its path; None
+        (option not given) is skipped.
+    inputs : list of Path or None
+        The input files of the command; None entries are skipped.
+
+    Raises
+    ------
+    OutputError
+        Naming the option and the file, with the fix "choose another path".
+    """
+    given_inputs = [Path(p) for p in inputs if p is not None]
+    seen: list[tuple[str, Path]] = []
+    for option, out in outputs.items():
+        if out is None:
+            continue
+        out = Path(out)
+        for inp in given_inputs:
+            if _same_file(out, inp):
+                raise OutputError(
+                    f"{out} is an input file of this command; writing it would destroy the input",
+                    where=option,
+                    fix=f"choose another path for {option}",
+                )
+        for other_option, other in seen:
+            if _same_file(out, other):
+                raise OutputError(
+                    f"{out} is also given to {other_option}; one output would replace the other",
+                    where=option,
+                    fix=f"choose another path for {option}",
+                )
+        seen.append((option, out))
 
 
 def window_option():

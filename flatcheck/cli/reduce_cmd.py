@@ -17,6 +17,7 @@ from .common import (
     emit_json,
     load_input,
     progress_bar,
+    refuse_overwriting_inputs,
     seed_option,
     stdout_console,
     trials_option,
@@ -50,6 +51,7 @@ def reduce_cmd(
     u_height_um: float = u_height_option(),
 ) -> None:
     """Reduce a survey (or read a height map) and state its flatness."""
+    refuse_overwriting_inputs({"--map-out": map_out}, [input])
     loaded = load_input(input, method=method.value)
     mc = None
     if uncertainty:

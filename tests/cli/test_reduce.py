@@ -227,3 +227,42 @@ def test_negative_seed_is_refused_naming_the_option(cli):
     code, out, err = cli("reduce", PLATE, "--uncertainty", "--trials", "100", "--seed", "-1")
     assert code == 2
     assert err.startswith("flatcheck: error: --seed:") and len(err.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("how", ["same", "dotted", "hardlink", "symlink"])
+def test_map_out_never_overwrites_the_input(cli, tmp_path, monkeypatch, how):
+    # `reduce p3.toml --map-out p3.toml` replaced the survey with the CSV and exited 0
+    survey = tmp_path / "p3.toml"
+    survey.write_bytes(PLATE.read_bytes())
+    before = survey.read_bytes()
+    monkeypatch.chdir(tmp_path)
+    target = {
+        "same": Path("p3.toml"),
+        "dotted": Path("sub/../p3.toml"),
+        "hardlink": tmp_path / "link.toml",
+        "symlink": tmp_path / "sym.csv",
+    }[how]
+    (tmp_path / "sub").mkdir()
+    if how == "hardlink":
+        import os
+
+        os.link(survey, target)
+    elif how == "symlink":
+        target.symlink_to(survey)
+    code, out, err = cli("reduce", "p3.toml", "--map-out", target)
+    assert code == 2 and out == "" and err.count("\n") == 1 and "Traceback" not in err
+    assert "--map-out" in err and "input" in err and "choose another path" in err
+    assert survey.read_bytes() == before
+
+
+def test_refuse_overwriting_inputs_helper(tmp_path):
+    from flatcheck.cli.common import refuse_overwriting_inputs
+    from flatcheck.errors import OutputError
+
+    a, b = tmp_path / "a.toml", tmp_path / "b.csv"
+    a.write_text("x")
+    refuse_overwriting_inputs({"--map-out": b, "-o": None}, [a, None])  # different paths pass
+    with pytest.raises(OutputError, match="-o"):
+        refuse_overwriting_inputs({"--map-out": b, "-o": tmp_path / "." / "b.csv"}, [a])  # two outputs, one file
+    with pytest.raises(OutputError, match="--map-out"):
+        refuse_overwriting_inputs({"--map-out": a}, [a])
