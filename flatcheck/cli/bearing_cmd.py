@@ -153,6 +153,22 @@ def _check_options(positive: dict, *, travel=(None, None)) -> None:
         )
 
 
+def _check_mesh(cells: int) -> None:
+    """Refuse a film mesh too coarse to mean anything or too fine to solve, naming ``--film-mesh``."""
+    from ..film import MAX_MESH_CELLS, MESH_LIMIT_REASON, MIN_MESH_CELLS
+
+    if cells < MIN_MESH_CELLS:
+        raise InputValueError(
+            f"{cells} mesh cells a side are too few (at least {MIN_MESH_CELLS})", where="--film-mesh",
+            fix="give e.g. 64 (the default)",
+        )
+    if cells > MAX_MESH_CELLS:
+        raise InputValueError(
+            f"{cells} mesh cells a side are too many (at most {MAX_MESH_CELLS}: {MESH_LIMIT_REASON})",
+            where="--film-mesh", fix="give e.g. 64 (the default) or 128",
+        )
+
+
 def _fmt_where(where) -> str:
     if not where:
         return ""
@@ -276,6 +292,7 @@ def bearing_cmd(
         },
         travel=(travel_start_mm, travel_end_mm),
     )
+    _check_mesh(film_mesh)
     carriage, fraction, marginal, budget = build_carriage(
         bearing=bearing,
         pad=pad,

@@ -120,6 +120,16 @@ def parse_pad_size(text: str, *, where: str | None = None) -> tuple[str, float, 
     return shape, length, width
 
 
+def _shown(value) -> str:
+    """A TOML value as a user would recognise it in a message (tables and long lists cut short)."""
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+        return "a list of tables"
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
 def _check_keys(table: dict, allowed: set, where: str) -> None:
     unknown = sorted(set(table) - allowed)
     if unknown:
@@ -136,7 +146,7 @@ def _number(
     v = table[key]
     here = f"{where}, field {key!r}"
     if isinstance(v, bool) or not isinstance(v, (int, float)):
-        raise InputValueError(f"{key} must be a number, got {v!r}", where=here, fix="give a number")
+        raise InputValueError(f"{key} must be a number, got {_shown(v)}", where=here, fix="give a number (no quotes)")
     v = float(v)
     if not math.isfinite(v):
         raise InputValueError(f"{key} is {v}, not a finite number", where=here, fix="give a number")
@@ -152,7 +162,8 @@ def _text(table: dict, key: str, where: str, default=None):
         return default
     v = table[key]
     if not isinstance(v, str):
-        raise InputValueError(f"{key} must be text, got {v!r}", where=f"{where}, field {key!r}", fix="quote the value")
+        fix = "write it as one quoted text value" if isinstance(v, (dict, list)) else "quote the value"
+        raise InputValueError(f"{key} must be text, got {_shown(v)}", where=f"{where}, field {key!r}", fix=fix)
     return v
 
 
@@ -194,8 +205,13 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
     except tomllib.TOMLDecodeError as exc:
         raise InputFormatError(f"not a valid TOML file ({exc})", where=source, fix="check the TOML syntax") from None
     _check_keys(doc, {"bearing", "carriage", "budget"}, source)
-    if not isinstance(doc.get("bearing"), dict):
+    if "bearing" not in doc:
         raise InputFormatError("no [bearing] section", where=source, fix="add [bearing] with pad and gap_um")
+    if not isinstance(doc["bearing"], dict):
+        raise InputFormatError(
+            f"bearing must be one table, got {_shown(doc['bearing'])}", where=f"{source}, field 'bearing'",
+            fix="write it as a [bearing] section with pad and gap_um",
+        )
     b = doc["bearing"]
     w = f"{source}, [bearing]"
     _check_keys(b, _BEARING_KEYS, w)
@@ -208,13 +224,19 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
 
     c = doc.get("carriage", {})
     if not isinstance(c, dict):
-        raise InputFormatError("[carriage] must be a table", where=source, fix="write it as a [carriage] section")
+        raise InputFormatError(
+            f"carriage must be one table, got {_shown(c)}", where=f"{source}, field 'carriage'",
+            fix="write it as a [carriage] section",
+        )
     wc = f"{source}, [carriage]"
     _check_keys(c, _CARRIAGE_KEYS, wc)
     face = _text(c, "face", wc, "top")
     pad_tables = c.get("pad", [])
     if not isinstance(pad_tables, list):
-        raise InputFormatError("pads must be [[carriage.pad]] tables", where=wc, fix="write one [[carriage.pad]] per pad")
+        raise InputFormatError(
+            f"pads must be [[carriage.pad]] tables, got {_shown(pad_tables)}", where=f"{wc}, field 'pad'",
+            fix="write one [[carriage.pad]] section per pad (the pad size goes in [bearing] or in each pad's table)",
+        )
     try:
         if not pad_tables:
             placed = [PlacedPad(_make_pad(size, gap, kind, w), name="pad", face=face)]
@@ -222,9 +244,12 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
             placed, names = [], []
             for i, t in enumerate(pad_tables, start=1):
                 wp = f"{source}, [[carriage.pad]] #{i}"
-                _check_keys(t, _PAD_KEYS, wp)
                 if not isinstance(t, dict):
-                    raise InputFormatError("a pad must be a [[carriage.pad]] table", where=wp, fix="write [[carriage.pad]]")
+                    raise InputFormatError(
+                        f"each pad must be a table, got {_shown(t)}", where=f"{wc}, field 'pad' entry #{i}",
+                        fix="write one [[carriage.pad]] section per pad (with name, along_mm, across_mm...)",
+                    )
+                _check_keys(t, _PAD_KEYS, wp)
                 name = _text(t, "name", wp, f"pad {i}")
                 if name in names:
                     raise InputValueError(
@@ -257,7 +282,10 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
         bt = doc.get("budget", {})
         wb = f"{source}, [budget]"
         if not isinstance(bt, dict):
-            raise InputFormatError("[budget] must be a table", where=source, fix="write it as a [budget] section")
+            raise InputFormatError(
+                f"budget must be one table, got {_shown(bt)}", where=f"{source}, field 'budget'",
+                fix="write it as a [budget] section",
+            )
         _check_keys(bt, _BUDGET_KEYS, wb)
         budget = MotionBudget(
             *(_number(bt, k, wb, positive=True) for k in ("straightness_um", "pitch_arcsec", "roll_arcsec"))

@@ -181,3 +181,20 @@ def test_film_options_of_the_wrong_kind_are_refused(cli, flat_csv):
         assert out == ""
         assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
         assert "Traceback" not in err
+
+
+@pytest.mark.parametrize("cells, match", [("2", "too few"), ("100000", "at most 512"), ("513", "at most 512")])
+def test_film_mesh_out_of_range_names_the_option(cli, flat_csv, cells, match):
+    # --film-mesh 100000 used to end in a MemoryError (exit 3); 2 gave a message naming "mesh size nx"
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *FILM, "--film-mesh", cells)
+    assert code == 2 and out == "" and "Traceback" not in err
+    assert err.count("\n") == 1 and err.startswith("flatcheck: error: --film-mesh:")
+    assert match in err
+
+
+def test_mesh_count_is_bounded_in_the_library():
+    from flatcheck.errors import InputValueError
+    from flatcheck.film import MAX_MESH_CELLS, circular_pad_mesh
+
+    with pytest.raises(InputValueError, match="above 512"):
+        circular_pad_mesh(50.0, MAX_MESH_CELLS + 1)

@@ -150,3 +150,45 @@ def test_empty_file_fix_asks_for_a_bearing_file(tmp_path):
         with pytest.raises(InputFormatError) as exc:
             read_bearing_toml(p)
         assert "[bearing]" in exc.value.fix and "survey" not in exc.value.fix
+
+
+_BASE = '[bearing]\npad = "120x80"\ngap_um = 8\n'
+
+
+@pytest.mark.parametrize(
+    "extra, where, match",
+    [
+        # a list of numbers or strings where [[carriage.pad]] tables belong: was a TypeError / "unknown key 'a'"
+        ("[carriage]\npad = [1, 2]\n", "[carriage], field 'pad' entry #1", "each pad must be a table, got 1"),
+        ('[carriage]\npad = ["a"]\n', "[carriage], field 'pad' entry #1", "each pad must be a table, got 'a'"),
+        ('[carriage]\npad = [{name = "a"}, 3]\n', "[carriage], field 'pad' entry #2", "got 3"),
+        # [carriage.pad] (one table) instead of [[carriage.pad]]
+        ('[carriage.pad]\nname = "a"\n', "[carriage], field 'pad'", "got a table"),
+        ('[carriage]\nface = ["top"]\n', "[carriage], field 'face'", "must be text"),
+    ],
+)
+def test_wrong_types_in_carriage_are_named(extra, where, match):
+    with pytest.raises((InputFormatError, InputValueError), match=match) as exc:
+        parse_bearing_toml(_BASE + extra, source="b.toml")
+    assert exc.value.where == f"b.toml, {where}"
+
+
+@pytest.mark.parametrize(
+    "text, where, match",
+    [
+        ('bearing = "120x80"\n', "field 'bearing'", "bearing must be one table, got '120x80'"),
+        ('[[bearing]]\npad = "120x80"\ngap_um = 8\n', "field 'bearing'", "a list of tables"),
+        ("carriage = 3\n" + _BASE, "field 'carriage'", "carriage must be one table"),
+        ("budget = [1]\n" + _BASE, "field 'budget'", "budget must be one table"),
+    ],
+)
+def test_wrong_types_of_sections_are_named(text, where, match):
+    with pytest.raises(InputFormatError, match=match) as exc:
+        parse_bearing_toml(text, source="b.toml")
+    assert exc.value.where == f"b.toml, {where}"
+
+
+def test_a_table_where_text_belongs_is_not_told_to_quote():
+    with pytest.raises(InputValueError, match="pad must be text, got a table") as exc:
+        parse_bearing_toml('[bearing]\npad = {l = 120}\ngap_um = 8\n', source="b.toml")
+    assert exc.value.fix != "quote the value"
