@@ -38,6 +38,9 @@ __all__ = [
     "Survey",
     "Observations",
     "observations",
+    "MAX_SLOPE_RAD",
+    "MAX_HEIGHT_UM",
+    "check_plausible_readings",
 ]
 
 #: Instruments flatcheck reduces. ``"level"`` and ``"differential-level"`` are
@@ -46,6 +49,17 @@ __all__ = [
 #: heights from a common datum.
 INSTRUMENT_KINDS = ("autocollimator", "level", "differential-level", "indicator")
 PATTERNS = ("union-jack", "grid", "lines")
+
+#: Largest slope (rad, or rise over run) a reading may imply: 0.02 = 20 mm/m ≈ 4125 arcsec. A surface
+#: surveyed for flatness is set up level, or its instrument re-aimed, to far better than this (levels
+#: and autocollimators read over a few hundred arcsec at most), so a larger reading is a slip: a wrong
+#: unit, a misplaced decimal point or a keyed-in serial number. Common practice, no single source.
+#: Beyond about 0.5 rad, base * tan(angle) would also stop meaning anything (tan changes sign at 90°).
+MAX_SLOPE_RAD = 0.02
+
+#: Largest indicator height accepted, µm (10 m): beyond any indicator or height gauge, so such a
+#: number is a slip (a wrong unit or a keyed-in serial number). Common practice, no single source.
+MAX_HEIGHT_UM = 1e7
 
 
 @dataclass(frozen=True)
@@ -249,6 +263,83 @@ class Observations:
     base_mm: np.ndarray
     um_per_unit: np.ndarray
     reading: np.ndarray
+
+
+def _g(v: float) -> str:
+    return f"{v:.4g}" if abs(v) < 1e6 else f"{v:.3g}"
+
+
+def check_plausible_readings(line: SurveyLine, readings, instrument: Instrument, *, where: str | None = None) -> None:
+    """Refuse readings no real survey gives (see :data:`MAX_SLOPE_RAD`, :data:`MAX_HEIGHT_UM`).
+
+    Slope instruments: the slope of each reading (beam deviation halved) must not exceed
+    :data:`MAX_SLOPE_RAD` in size. Indicators: each height must not exceed :data:`MAX_HEIGHT_UM`
+    in size, and two successive heights along the line must not differ by more than
+    :data:`MAX_SLOPE_RAD` times the station spacing (the same plausibility limit on slope).
+
+    Parameters
+    ----------
+    line : SurveyLine
+        The line read (its name and station spacing ``foot_spacing_mm``, mm).
+    readings : sequence of float
+        One run's readings in the instrument's unit, in the order taken (finite).
+    instrument : Instrument
+    where : str, optional
+        Where the readings are, for the message (file, line, field).
+
+    Raises
+    ------
+    InputValueError
+        Naming the first implausible reading, its slope and the limit in the reading's unit.
+    """
+    r = np.asarray(readings, dtype=float)
+    if r.size == 0:
+        return
+    if instrument.reads_heights:
+        unit = length_unit(instrument.unit)
+        with np.errstate(over="ignore", invalid="ignore"):
+            h = r * unit.factor_um
+            big = np.flatnonzero(~(np.abs(h) <= MAX_HEIGHT_UM))
+        if big.size:
+            k = int(big[0])
+            raise InputValueError(
+                f"height {k + 1} of line {line.name!r} is {r[k]:.10g} {unit.name}, more than the "
+                f"{_g(MAX_HEIGHT_UM / unit.factor_um)} {unit.name} (10 m) flatcheck accepts",
+                where=where,
+                fix=f"check the reading and the [instrument] unit ({unit.name!r}, the unit of the readings as written)",
+            )
+        spacing = float(line.foot_spacing_mm)
+        if r.size < 2 or not spacing > 0:
+            return
+        with np.errstate(over="ignore", invalid="ignore"):
+            slope = np.abs(np.diff(h)) / (spacing * 1e3)
+            bad = np.flatnonzero(~(slope <= MAX_SLOPE_RAD))
+        if bad.size:
+            k = int(bad[0])
+            lim = MAX_SLOPE_RAD * spacing * 1e3 / unit.factor_um
+            raise InputValueError(
+                f"heights {k + 1} and {k + 2} of line {line.name!r} ({r[k]:.10g} and {r[k + 1]:.10g} {unit.name}) "
+                f"differ by more than {_g(lim)} {unit.name} over the {spacing:.4g} mm between their stations, "
+                f"a slope above the {MAX_SLOPE_RAD * 1e3:g} mm/m flatcheck accepts",
+                where=where,
+                fix=f"check the two readings and the [instrument] unit ({unit.name!r}); a surface measured for "
+                "flatness has no such step",
+            )
+        return
+    unit = angle_unit(instrument.unit)
+    gain = 2.0 if (instrument.kind == "autocollimator" and instrument.reports == "beam-deviation") else 1.0
+    limit_units = MAX_SLOPE_RAD * gain / unit.factor  # the limit as a reading, in the instrument's unit
+    bad = np.flatnonzero(~(np.abs(r) <= limit_units))
+    if bad.size:
+        k = int(bad[0])
+        slope_mm_per_m = abs(float(r[k])) / gain * unit.factor * 1e3
+        raise InputValueError(
+            f"reading {k + 1} of line {line.name!r} is {r[k]:.10g} {unit.name}, a slope of {_g(slope_mm_per_m)} mm/m: "
+            f"more than the {MAX_SLOPE_RAD * 1e3:g} mm/m ({_g(limit_units)} {unit.name}) flatcheck accepts",
+            where=where,
+            fix=f"check the reading and the [instrument] unit ({unit.name!r}); a surface surveyed for flatness "
+            "is set up to well under that slope",
+        )
 
 
 def observations(survey: Survey) -> Observations:

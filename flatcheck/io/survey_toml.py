@@ -31,7 +31,7 @@ from pathlib import Path
 
 from ..errors import InputFormatError, InputValueError, LayoutError, UnitError
 from ..layout import UNION_JACK_LINES, plan_grid, plan_lines, plan_union_jack
-from ..survey import INSTRUMENT_KINDS, PATTERNS, Instrument, Run, Surface, Survey
+from ..survey import INSTRUMENT_KINDS, PATTERNS, Instrument, Run, Surface, Survey, check_plausible_readings
 from ..units import MM_PER_INCH, angle_unit, length_unit
 from .atomic import write_text_atomic
 from .text import read_text
@@ -614,6 +614,7 @@ def _read_readings(ctx, tab, data, line, instrument):
             where=ctx.where(tab, "readings"),
             fix=f"give exactly {expected} readings, one per {what[:-1]} in the order taken",
         )
+    check_plausible_readings(line, v, instrument, where=ctx.where(tab, "readings"))
     return tuple(float(r) for r in v)
 
 

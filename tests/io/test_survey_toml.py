@@ -302,3 +302,56 @@ def test_unknown_unit_message_reads_correctly(tmp_path):
     e = _err(tmp_path, bad, UnitError)
     assert "for an autocollimator" in e.message and "arcsec" in e.fix
     assert f"line {_line_of(bad, 'furlong')}" in e.where
+
+
+def _first_reading(text, line, value):
+    m = re.search(rf'name = "{line}"\n(?:#.*\n)?steps = \d+\nreadings = \[([^,\]]*),', text)
+    return text.replace(m.group(0), m.group(0).replace(m.group(1), value))
+
+
+@pytest.mark.parametrize(
+    "unit, reports, ok, bad",
+    [
+        # 0.02 rad = 0.02 * 648000 / pi arcsec = 4125.3 arcsec (1 arcsec = pi/648000 rad, exact)
+        ("arcsec", "mirror-tilt", "4125.0", "4126.0"),
+        ("arcsec", "beam-deviation", "8250.0", "8252.0"),  # beam deviation is twice the tilt
+        ("urad", "mirror-tilt", "-19999.0", "-20001.0"),
+        ("mm/m", "mirror-tilt", "20.0", "20.01"),
+        ("arcsec", "mirror-tilt", None, "1e308"),  # gave a 31 218 µm minimum zone
+        ("arcsec", "mirror-tilt", None, "400000.0"),  # tan changes sign: gave 169 mm
+    ],
+)
+def test_implausible_slope_is_refused(tmp_path, unit, reports, ok, bad):
+    # Limit: 20 mm/m = 0.02 rad (common practice, no single source; flatcheck.survey.MAX_SLOPE_RAD)
+    text = _uj_text().replace('unit = "arcsec"', f'unit = "{unit}"').replace('reports = "mirror-tilt"', f'reports = "{reports}"')
+    if ok is not None:
+        p = tmp_path / "ok.toml"
+        p.write_text(_first_reading(text, "S-N", ok))
+        read_survey(p)
+    t2 = _first_reading(text, "S-N", bad)
+    e = _err(tmp_path, t2, InputValueError)
+    assert "reading 1 of line 'S-N'" in e.message and "20 mm/m" in e.message
+    assert f"line {_line_of(t2, 'readings = .' + re.escape(bad))}" in e.where and "readings" in e.where
+    assert "unit" in e.fix
+
+
+def _indicator_text():
+    plan = PLANS["indicator"]()  # 80 x 80 mm, 10 mm pitch, heights in µm
+    return format_survey(simulate_survey(plan, _surface))
+
+
+@pytest.mark.parametrize("first, second, what", [("0.0", "199.0", None), ("0.0", "201.0", "heights 1 and 2"),
+                                                 ("2e10", "2e10", "height 1")])
+def test_implausible_indicator_heights_are_refused(tmp_path, first, second, what):
+    # 10 mm pitch x 20 mm/m = 200 µm between neighbours (common practice, no single source)
+    text = _indicator_text()
+    m = re.search(r'name = "row-1"\n(?:#.*\n)?steps = \d+\nreadings = \[([^,\]]*), ([^,\]]*),', text)
+    new = m.group(0).replace(f"[{m.group(1)}, {m.group(2)}", f"[{first}, {second}")
+    t2 = text.replace(m.group(0), new)
+    if what is None:
+        p = tmp_path / "ok.toml"
+        p.write_text(t2)
+        read_survey(p)
+        return
+    e = _err(tmp_path, t2, InputValueError)
+    assert what in e.message and "'row-1'" in e.message and "readings" in e.where
