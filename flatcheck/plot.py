@@ -53,6 +53,7 @@ __all__ = [
     "mark_window",
     "removal_map",
     "dwell_map",
+    "compare_change_map",
     "carriage_path",
     "residual_histogram",
     "text_block",
@@ -737,6 +738,195 @@ def dwell_map(ax, x_mm, y_mm, dwell, *, dwell_unit: str = "s", units: str = "um"
     """Map of the lap's dwell (time or passes per area) on a (ny, nx) grid, in ``dwell_unit``."""
     return field_map(ax, x_mm, y_mm, dwell, label=f"dwell ({dwell_unit})", cmap=FIELD_CMAP, units=units,
                      title=title)
+
+
+# ---------------------------------------------------------------------------- survey to survey
+def _colorbar_beside(ax, mappable, label: str, *, width_in: float = 0.12, pad_in: float = 0.08):
+    """A colour bar exactly as tall as ``ax``, just right of it, that follows the axes' drawn box.
+
+    Drawn as an inset of ``ax`` (axes coordinates), so a plan view shrunk to its aspect
+    still has its colour bar beside it, as tall as the map and never taller.
+    """
+    fw = ax.figure.get_figwidth() * ax.get_position().width
+    cax = ax.inset_axes([1.0 + pad_in / fw, 0.0, width_in / fw, 1.0])
+    cb = ax.figure.colorbar(mappable, cax=cax)
+    cb.set_label(label, fontsize=7)
+    cb.ax.tick_params(labelsize=6.5)
+    return cb
+
+
+def _plan_panels(fig, n: int, ncols: int, ratio: float, rect, *, top_in: float = 0.3, bottom_in: float = 0.5,
+                 right_in: float = 0.95, gap_in: float = 0.75):
+    """Axes for ``n`` plan views of one surface, sized to its drawn shape and stacked from the top of ``rect``.
+
+    ``ratio`` is the drawn length : width (already capped by the plan stretch); every view gets the same
+    box with room around it for its title (``top_in``), x label (``bottom_in``), colour bar (``right_in``)
+    and the next column (``gap_in``), all in inches. Returns the axes in reading order.
+    """
+    fw, fh = fig.get_figwidth(), fig.get_figheight()
+    left, bottom, right, top = rect
+    width_in, height_in = (right - left) * fw, (top - bottom) * fh
+    nrows = int(np.ceil(n / ncols))
+    aw = (width_in - ncols * right_in - (ncols - 1) * gap_in) / ncols
+    ah = aw / ratio
+    room = height_in - nrows * (top_in + bottom_in)
+    if nrows * ah > room:  # too tall for the space: shrink every view alike
+        ah = max(room / nrows, 0.3)
+        aw = ah * ratio
+    axes = []
+    for k in range(n):
+        r, c = divmod(k, ncols)
+        x_in = left * fw + c * (aw + right_in + gap_in)
+        y_in = top * fh - top_in - r * (ah + top_in + bottom_in) - ah
+        axes.append(fig.add_axes([x_in / fw, y_in / fh, aw / fw, ah / fh]))
+    return axes
+
+
+def _own_ls_deviation(x, y, z):
+    """Heights about their own least-squares plane (µm), as :mod:`flatcheck.progress` refers each survey."""
+    from .flatness import least_squares_plane
+
+    p = least_squares_plane(x, y, z)
+    return z - (p.a_um + p.b_um_per_mm * x + p.c_um_per_mm * y)
+
+
+def compare_change_map(
+    fig,
+    x_mm,
+    y_mm,
+    before_um,
+    after_um,
+    removed_um,
+    *,
+    units: str = "um",
+    length_mm: float | None = None,
+    width_mm: float | None = None,
+    own_planes: bool = True,
+    rect=(0.09, 0.06, 0.95, 0.93),
+):
+    """The change map of ``flatcheck compare``: before, after, change and the least removal, on the matched nodes.
+
+    Four plan views of the surface, each with its own colour bar (as tall as the view) and the
+    matched nodes marked as open circles:
+
+    1. *before* and 2. *after*: each survey about its own least-squares plane (the reference
+       :func:`flatcheck.progress.compare_surveys` uses), drawn on one shared colour scale so they compare;
+    3. *change = after - before* (µm; negative = lower now), its zero contour drawn thick and the
+       most-lowered node labelled (``gid`` "lowest");
+    4. the *least removal* consistent with the change (µm, >= 0; ``Progress.removed_um``), its
+       deepest node labelled (``gid`` "deepest").
+
+    Colour scales are perceptually uniform (legible in grey) and every filled map carries labelled
+    contour lines. A long surface is drawn as four views one above the other, a plate as a 2 x 2 grid;
+    the views are sized to the surface's shape and stacked from the top of ``rect``.
+
+    Parameters
+    ----------
+    fig : matplotlib Figure or None
+        The figure to draw in; ``None`` makes an A4-wide figure as tall as the views need
+        (``axes[0].figure``), e.g. for a PNG file.
+    x_mm, y_mm : ndarray, shape (n,)
+        Positions of the matched nodes (mm), e.g. ``Progress.x_mm``, ``Progress.y_mm``.
+    before_um, after_um : ndarray, shape (n,)
+        Heights of the two surveys at those nodes (µm), in the same order (the after survey's
+        heights re-ordered by :func:`flatcheck.progress.match_nodes`).
+    removed_um : ndarray, shape (n,)
+        Least removal consistent with the change (µm), e.g. ``Progress.removed_um``.
+    units : {"um", "in"}
+        Display units: µm and mm, or µin and inches.
+    length_mm, width_mm : float, optional
+        Outline of the surface (mm), drawn when given.
+    own_planes : bool
+        Refer each survey to its own least-squares plane first (default, as ``flatcheck compare``
+        does, since each survey fixes its own height reference). With ``False`` the heights are
+        drawn as given.
+    rect : (left, bottom, right, top)
+        Part of the figure the views fill (figure fractions).
+
+    Returns
+    -------
+    list of Axes
+        ``[before, after, change, removal]``.
+
+    Raises
+    ------
+    InputValueError
+        Arrays of different lengths, fewer than three nodes, or non-finite values.
+    """
+    from matplotlib.tri import Triangulation
+
+    x = np.asarray(x_mm, float).ravel()
+    y = np.asarray(y_mm, float).ravel()
+    zb = np.asarray(before_um, float).ravel()
+    za = np.asarray(after_um, float).ravel()
+    rem = np.asarray(removed_um, float).ravel()
+    if not (x.size == y.size == zb.size == za.size == rem.size):
+        raise InputValueError("the change map needs one position, two heights and one removal per node",
+                              fix="give arrays of the matched nodes, all of one length")
+    if x.size < 3 or not all(np.all(np.isfinite(v)) for v in (x, y, zb, za, rem)):
+        raise InputValueError("the change map needs at least three nodes with finite values",
+                              fix="compare surveys with matched nodes")
+    if own_planes:
+        zb = _own_ls_deviation(x, y, zb)
+        za = _own_ls_deviation(x, y, za)
+    change = za - zb
+    hs, hu = _height_scale(units)
+    ps, pu = _pos_scale(units)
+    tri = Triangulation(x * ps, y * ps)
+    L = (length_mm if length_mm else float(np.ptp(x))) * ps
+    W = (width_mm if width_mm else float(np.ptp(y))) * ps
+    x0 = 0.0 if length_mm else float(x.min()) * ps
+    y0 = 0.0 if width_mm else float(y.min()) * ps
+    pad = 0.04 * max(L, W)
+    ratio = min((L + 2 * pad) / max(W + 2 * pad, 1e-12), _MAX_PLAN_RATIO)
+    if fig is None:  # a figure as tall as the views need: A4 wide
+        fig = new_figure((A4_PORTRAIT_IN[0], 1.0))
+        ncols = 1 if ratio > 2.0 else 2
+        aw = (A4_PORTRAIT_IN[0] * (rect[2] - rect[0]) - ncols * 0.95 - (ncols - 1) * 0.75) / ncols
+        rows_in = (4 // ncols) * (aw / ratio + 0.8)
+        fig.set_size_inches(A4_PORTRAIT_IN[0], min(rows_in / (rect[3] - rect[1]), A4_PORTRAIT_IN[1]))
+    axes = _plan_panels(fig, 4, 1 if ratio > 2.0 else 2, ratio, rect)
+    shared = _levels(float(min(zb.min(), za.min()) * hs), float(max(zb.max(), za.max()) * hs), 10)
+    panels = [
+        (zb * hs, shared, HEIGHT_CMAP, "before (about its own LS plane)", f"height ({hu})"),
+        (za * hs, shared, HEIGHT_CMAP, "after (about its own LS plane)", f"height ({hu})"),
+        (change * hs, _levels(float(change.min() * hs), float(change.max() * hs), 10), HEIGHT_CMAP,
+         "change = after - before", f"change ({hu}; < 0: lower)"),
+        (rem * hs, _levels(0.0, max(float(rem.max() * hs), 1e-9), 10), FIELD_CMAP,
+         "least removal consistent with the change", f"removed ({hu})"),
+    ]
+    for ax, (v, lev, cmap, title, label) in zip(axes, panels):
+        cf = ax.tricontourf(tri, v, levels=lev, cmap=cmap)
+        cs = ax.tricontour(tri, v, levels=lev, colors=_INK, linewidths=0.4, alpha=0.7)
+        if len(lev) > 2:
+            ax.clabel(cs, levels=cs.levels[::2], fmt=lambda t: f"{t:g}", fontsize=5.5)
+        _colorbar_beside(ax, cf, label)
+        ax.plot(x * ps, y * ps, "o", ms=2.5, mfc="white", mec=_INK, mew=0.5, ls="none", zorder=5)
+        if length_mm and width_mm:
+            ax.plot([0, L, L, 0, 0], [0, 0, W, W, 0], color=_INK, lw=0.8)
+        ax.set_xlim(x0 - pad, x0 + L + pad)
+        ax.set_ylim(y0 - pad, y0 + W + pad)
+        ax.tick_params(labelsize=6.5)
+        ax.set_xlabel(f"x ({pu})", fontsize=7)
+        ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"), fontsize=7)
+        ax.set_title(title, fontsize=8, loc="left")
+    if float(np.min(change)) < 0 and float(np.max(change)) > 0:
+        axes[2].tricontour(tri, change * hs, levels=[0.0], colors=_INK, linewidths=1.6, linestyles="--")
+    for ax, v, i, tag, text in (
+        (axes[2], change, int(np.argmin(change)), "lowest", "most lowered"),
+        (axes[3], rem, int(np.argmax(rem)), "deepest", "deepest"),
+    ):
+        fx = (x[i] * ps - x0) / max(L, 1e-12)
+        fy = (y[i] * ps - y0) / max(W, 1e-12)
+        ha = "left" if fx < 0.3 else "right" if fx > 0.7 else "center"
+        va = "bottom" if fy < 0.5 else "top"
+        ax.plot([x[i] * ps], [y[i] * ps], "v", ms=7, mfc="white", mec=_INK, mew=1.1, zorder=6)
+        ax.annotate(f"{text} {_fmt(v[i] * hs, hu)}", (x[i] * ps, y[i] * ps),
+                    xytext=(6 if ha == "left" else -6 if ha == "right" else 0, 8 if va == "bottom" else -8),
+                    textcoords="offset points", ha=ha, va=va, fontsize=7, fontweight="bold", color=_INK,
+                    bbox=dict(boxstyle="round,pad=0.2", fc="white", ec=_INK, lw=0.5, alpha=0.9), zorder=7,
+                    gid=tag)
+    return axes
 
 
 # ---------------------------------------------------------------------------- carriage

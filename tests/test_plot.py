@@ -206,3 +206,99 @@ def test_plan_views_of_a_long_narrow_surface_are_stretched_across_and_say_so():
     ax = plot.contour_map(plot.new_figure((6, 4)).add_subplot(), hm)
     assert ax.get_aspect() == 1.0
     assert ax.get_ylabel() == "y, across (mm)"
+
+
+def _drawn_text_boxes(fig):
+    """(text, window extent) of every visible, non-empty text the renderer draws in ``fig``.
+
+    Titles, axis labels, tick labels inside the view, named texts of the axes (annotations,
+    labels; contour labels, which carry no name and sit on their lines by design, are left out)
+    and the figure's own texts. 3-D axes are left out (their labels are placed in projection).
+    """
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    texts = list(fig.texts)
+    for ax in fig.axes:
+        if getattr(ax, "name", "") == "3d":
+            continue
+        texts += [ax.title, ax._left_title, ax._right_title, ax.xaxis.label, ax.yaxis.label]
+        texts += [t for t in ax.texts if t.get_gid() is not None]
+        for axis in (ax.xaxis, ax.yaxis):
+            lo, hi = sorted(axis.get_view_interval())
+            eps = 1e-9 * max(abs(lo), abs(hi), 1.0)
+            for tick in axis.get_major_ticks():
+                if lo - eps <= tick.get_loc() <= hi + eps:
+                    texts += [tick.label1, tick.label2]
+    out = []
+    for t in texts:
+        if t.get_visible() and t.get_text().strip():
+            out.append((t.get_text(), t.get_window_extent(r)))
+    return out
+
+
+def _overlaps(boxes, shrink_px: float = 0.5):
+    """Pairs of texts whose drawn boxes overlap (each shrunk by ``shrink_px`` so touching is allowed)."""
+    bad = []
+    for i, (ta, a) in enumerate(boxes):
+        for tb, b in boxes[i + 1:]:
+            if (min(a.x1, b.x1) - max(a.x0, b.x0) > 2 * shrink_px
+                    and min(a.y1, b.y1) - max(a.y0, b.y0) > 2 * shrink_px):
+                bad.append((ta, tb))
+    return bad
+
+
+def _lapped_pair(L, W):
+    """Before/after surveys of an L x W mm surface (11 x 7 grid): the after one lost a Gaussian dip 2 µm deep
+    centred on node (0.7 L, W/3) and was levelled differently (another plane). Invented shapes."""
+    x, y = np.meshgrid(np.linspace(0, L, 11), np.linspace(0, W, 7))
+    x, y = x.ravel(), y.ravel()
+    before = 2e-3 * x + 1e-6 * (x - L / 2) ** 2 + 0.3 * np.sin(y / 100)
+    dip = 2.0 * np.exp(-(((x - 0.7 * L) / (0.08 * L)) ** 2 + ((y - W / 3) / (0.12 * W)) ** 2))
+    after = before - dip + 1e-3 * y + 5.0
+    return x, y, before, after, dip
+
+
+@pytest.mark.parametrize("size_mm", [(1000.0, 630.0), (2000.0, 200.0)])
+def test_compare_change_map_draws_before_after_change_and_least_removal(size_mm):
+    from flatcheck.progress import compare_surveys
+
+    L, W = size_mm
+    x, y, before, after, dip = _lapped_pair(L, W)
+    pr = compare_surveys(HeightMap(x, y, before), HeightMap(x, y, after))
+    axes = plot.compare_change_map(None, x, y, before, after, pr.removed_um, length_mm=L, width_mm=W)
+    fig = axes[0].figure
+    assert [a.get_title(loc="left").split(" ")[0] for a in axes] == ["before", "after", "change", "least"]
+    # reference: each survey about its own least-squares plane by numpy lstsq, then after - before
+    A = np.column_stack([np.ones_like(x), x, y])
+    own = [z - A @ np.linalg.lstsq(A, z, rcond=None)[0] for z in (before, after)]
+    change = own[1] - own[0]
+    texts = {t.get_gid(): t.get_text() for a in axes for t in a.texts if t.get_gid()}
+    assert texts["lowest"] == f"most lowered {change.min():+.2f} µm"
+    # the dip is the only removal and most of the surface is untouched, so the least removal consistent
+    # with the change is the dip itself (flatcheck.progress notes): deepest 2 µm, at the dip's centre node
+    assert texts["deepest"] == f"deepest {dip.max():+.2f} µm"
+    marker = [ln for ln in axes[3].lines if ln.get_marker() == "v"][0]
+    assert (marker.get_xdata()[0], marker.get_ydata()[0]) == (x[np.argmax(dip)], y[np.argmax(dip)])
+    # every matched node is marked on every view; positions in mm
+    for a in axes:
+        assert any(ln.get_marker() == "o" and len(ln.get_xdata()) == x.size for ln in a.lines)
+        assert a.get_xlabel() == "x (mm)"
+    # each colour bar is as tall as its map (drawn extents) and labelled in µm; no two texts overlap
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    for a in axes:
+        cax = [c for c in a.child_axes][0]
+        box, cbox = a.get_window_extent(r), cax.get_window_extent(r)
+        assert cbox.height == pytest.approx(box.height, rel=0.02) and cbox.x0 >= box.x1
+        assert "µm" in cax.get_ylabel()
+    assert not _overlaps(_drawn_text_boxes(fig))
+    # the whole picture stays inside the figure
+    fb = fig.bbox
+    for _, b in _drawn_text_boxes(fig):
+        assert b.x0 >= fb.x0 - 1 and b.x1 <= fb.x1 + 1 and b.y0 >= fb.y0 - 1 and b.y1 <= fb.y1 + 1
+
+
+def test_compare_change_map_refuses_mismatched_nodes():
+    x, y, before, after, _ = _lapped_pair(500.0, 300.0)
+    with pytest.raises(InputValueError):
+        plot.compare_change_map(None, x, y, before, after[:-1], np.zeros_like(x))
