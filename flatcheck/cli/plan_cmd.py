@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import enum
+import sys
 from pathlib import Path
 
 import typer
@@ -59,6 +60,44 @@ def _check_output_path(path: Path) -> None:
 _DEFAULT_UNIT = {"autocollimator": "arcsec", "level": "um/m", "differential-level": "um/m", "indicator": "um"}
 
 
+def _layout_warnings(survey) -> list[str]:
+    """What ``flatcheck reduce`` will refuse in this layout once it is read, with the fix as options.
+
+    The layout is filled with exact zero readings and put through the reduction's own rank check
+    (:func:`flatcheck.reduction.network_rank`), so plan and reduce can never disagree.
+    """
+    if survey.instrument.reads_heights:
+        return []  # an indicator reads every height from one datum: nothing but the plane is hidden
+    import numpy as np
+
+    from ..errors import FlatcheckError
+    from ..reduction import network_rank
+    from ..simulate import simulate_survey
+
+    filled = simulate_survey(survey, lambda x, y: np.zeros_like(x))
+    try:
+        info = network_rank(filled)
+    except FlatcheckError as exc:
+        return [f"flatcheck reduce will refuse this layout once read: {exc.message}; {exc.fix}"]
+    out = []
+    lay = survey.meta.get("layout", {})
+    for shape in info.unobservable:
+        if "twist" in shape and survey.pattern == "grid":
+            nx, ny = lay.get("steps_x"), lay.get("steps_y")
+            diag = "add --diagonals" if nx == ny else f"add --diagonals to a square grid (this one is {nx} x {ny} steps)"
+            fix = f"{diag}, plan a Union Jack (--pattern union-jack), or survey with a level (--instrument level)"
+        elif "twist" in shape:
+            fix = "plan a Union Jack (--pattern union-jack), or survey with a level (--instrument level)"
+        else:
+            fix = "plan a Union Jack (--pattern union-jack)"
+        what = "rows and columns" if survey.pattern == "grid" else "this layout"
+        out.append(
+            f"{what} read with an {survey.instrument.kind} cannot see {shape}: a surface of that shape "
+            f"reads like a flat one, and flatcheck reduce will refuse the filled-in survey; {fix}"
+        )
+    return out
+
+
 @app.command("plan")
 def plan_cmd(
     pattern: Pattern = typer.Option(Pattern.union_jack, "--pattern", help="Survey pattern."),
@@ -105,8 +144,11 @@ def plan_cmd(
     except LayoutError as exc:
         # the layout names its parameters; on the command line they are options
         raise LayoutError(exc.message, where=_OPTION_OF.get(exc.where, exc.where), fix=exc.fix) from None
+    warnings = _layout_warnings(survey)
     if output is not None:
         write_survey(output, survey)
+    for w in warnings:  # one line each, like errors, whatever the terminal's width
+        sys.stderr.write(f"flatcheck: warning: {w}\n")
     summary = summarize_layout(survey)
     seq = reading_sequence(survey)
     lay = survey.meta["layout"]
@@ -131,6 +173,7 @@ def plan_cmd(
                     {"number": r.number, "line": r.line, "from": r.from_station, "to": r.to_station} for r in seq
                 ],
                 "output": str(output) if output is not None else None,
+                "warnings": warnings,
             }
         )
         return

@@ -123,3 +123,39 @@ def test_plan_failure_keeps_existing_file(cli, tmp_path):
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 0, "-o", p, "--force")
     _one_line_error(code, out, err)
     assert p.read_text() == "keep me"
+
+
+def test_autocollimator_grid_without_diagonals_is_warned_at_planning(cli, tmp_path):
+    # reduce refuses such a survey (twist z = k*x*y is invisible to rows and columns read with an
+    # instrument re-aimed per line); plan must say so before the survey is walked.
+    blank = tmp_path / "grid.toml"
+    args = ("plan", "--pattern", "grid", "--length-mm", 460, "--width-mm", 360, "--foot-spacing-mm", 100)
+    code, out, err = cli(*args, "-o", blank)
+    assert code == 0, err
+    warn = [ln for ln in err.splitlines() if ln.startswith("flatcheck: warning:")]
+    assert len(warn) == 1 and "twist" in warn[0] and "--diagonals" in warn[0] and "--instrument level" in warn[0]
+    code, out, err = cli(*args, "--json")
+    assert code == 0 and any("twist" in w and "--diagonals" in w for w in json.loads(out)["warnings"])
+    # reduce, on that layout filled in, refuses it for the reason plan gave
+    from flatcheck.io.survey_toml import write_survey
+    from flatcheck.simulate import simulate_survey
+
+    filled = tmp_path / "filled.toml"
+    write_survey(filled, simulate_survey(read_survey(blank), lambda x, y: 1e-5 * x * y))
+    code, out, err = cli("reduce", filled)
+    assert code == 2 and "twist" in err
+
+
+@pytest.mark.parametrize(
+    "extra",
+    [
+        ("--pattern", "grid", "--instrument", "level", "--width-mm", 360),
+        ("--pattern", "grid", "--diagonals", "--width-mm", 460),
+        ("--pattern", "grid", "--instrument", "indicator", "--width-mm", 360),
+        ("--pattern", "union-jack", "--width-mm", 360),
+    ],
+)
+def test_layouts_that_see_twist_are_not_warned(cli, extra):
+    code, out, err = cli("plan", "--length-mm", 460, "--foot-spacing-mm", 100, *extra, "--json")
+    assert code == 0, err
+    assert json.loads(out)["warnings"] == [] and "warning" not in err
