@@ -68,6 +68,9 @@ __all__ = [
     "pad_face_form",
     "straightness_mz_um",
     "evaluate_bearing",
+    "survey_spacing_mm",
+    "COARSE_SURVEY_FRACTION",
+    "PAD_FACE_SIZE_TOLERANCE",
 ]
 
 #: Default limit on the local form error under a pad, as a fraction of the nominal gap. No standard gives a
@@ -759,6 +762,9 @@ class BearingResult:
         Step between carriage positions, mm.
     notes : tuple of str
         Statements the report must carry (limit basis, marginal band, pad plane).
+    warnings : tuple of str
+        Cautions about this input: a surface longer across than along the travel, a survey too coarse to
+        see the form under a pad, a pad-face map of another size than the pad.
     """
 
     carriage: Carriage
@@ -777,6 +783,7 @@ class BearingResult:
     sampling_pitch_mm: float
     step_mm: float
     notes: tuple = field(default=())
+    warnings: tuple = field(default=())
 
 
 def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarray, float, float]:
@@ -1081,6 +1088,7 @@ def evaluate_bearing(
         + (" - pad face's highest point above its own least-squares plane." if face is not None else "."),
         "Carriage: least-squares plane through the pad-averaged heights (equal stiffness unless stated).",
     )
+    warnings = _input_warnings(surface, pads, xs, y0, pad_face)
     return BearingResult(
         carriage=carriage,
         limit_um=min(limits.values()),
@@ -1098,7 +1106,120 @@ def evaluate_bearing(
         sampling_pitch_mm=min(fp.pitch_mm for fp in fps),
         step_mm=step,
         notes=notes,
+        warnings=warnings,
     )
+
+
+#: A survey whose stations are further apart than this fraction of a pad's size (along or across) cannot
+#: show the form under the pad: the local flatness then comes mostly from interpolation (a convention of this
+#: tool: with fewer than about three stations per pad length the footprint holds at most two of them).
+COARSE_SURVEY_FRACTION = 0.5
+#: A pad-face map whose extent differs from the pad's size by more than this fraction is probably of
+#: another pad, or in other units (a convention of this tool).
+PAD_FACE_SIZE_TOLERANCE = 0.10
+
+
+def _size_mm(levels: np.ndarray, span: float) -> float:
+    """Size represented by evenly spaced grid levels: the span plus one spacing (half a cell each side)."""
+    return span * levels.size / (levels.size - 1) if levels.size > 1 else span
+
+
+def _largest_gap(levels: np.ndarray, lo: float, hi: float) -> float:
+    """Largest distance between consecutive sorted ``levels`` whose interval overlaps ``(lo, hi)``, mm."""
+    if levels.size < 2:
+        return float("inf")
+    a, b = levels[:-1], levels[1:]
+    overlap = (b > lo) & (a < hi)
+    return float((b - a)[overlap].max()) if overlap.any() else 0.0
+
+
+def survey_spacing_mm(surface: HeightMap, pad: PlacedPad, x_from_mm: float, x_to_mm: float, y_mm: float):
+    """Spacing of the surveyed stations under a pad's track, along the travel and across it.
+
+    Across: the largest gap between the stations' distinct y positions that overlaps the band the pad sweeps.
+    Along: the largest gap between the distinct x positions of the stations inside that band (or, when none
+    lies inside, on the nearest y positions either side) that overlaps the stretch the pad covers.
+
+    Parameters
+    ----------
+    surface : HeightMap
+        The measured surface.
+    pad : PlacedPad
+        The pad (its size and its offsets from the carriage reference point).
+    x_from_mm, x_to_mm : float
+        First and last position of the carriage reference point, mm.
+    y_mm : float
+        Carriage reference point across the face, mm.
+
+    Returns
+    -------
+    (along_mm, across_mm) : tuple of float
+    """
+    x = np.round(surface.x_mm, 6)
+    y = np.round(surface.y_mm, 6)
+    half_l, half_w = pad.pad.length_mm / 2.0, pad.pad.width_mm / 2.0
+    ylo, yhi = y_mm + pad.across_mm - half_w, y_mm + pad.across_mm + half_w
+    xlo, xhi = x_from_mm + pad.along_mm - half_l, x_to_mm + pad.along_mm + half_l
+    levels = np.unique(y)
+    across = _largest_gap(levels, ylo, yhi)
+    inside = (y >= ylo) & (y <= yhi)
+    if not inside.any():
+        below, above = levels[levels < ylo], levels[levels > yhi]
+        near = [v[i] for v, i in ((below, -1), (above, 0)) if v.size]
+        inside = np.isin(y, near)
+    along = _largest_gap(np.unique(x[inside]), xlo, xhi)
+    return along, across
+
+
+def _input_warnings(surface: HeightMap, pads, xs: np.ndarray, y0: float, pad_face: HeightMap | None) -> tuple:
+    """Cautions about the input that do not stop the evaluation (see ``BearingResult.warnings``)."""
+    out = []
+    xmin, xmax, ymin, ymax = surface.extent_mm
+    lx = surface.length_mm or (xmax - xmin)
+    ly = surface.width_mm or (ymax - ymin)
+    if ly > lx:
+        out.append(
+            f"the surface is longer across (y, {ly:g} mm) than along x ({lx:g} mm), but the carriage travels "
+            "along x with the pad length along x: check that x is the direction of travel"
+        )
+    worst = None
+    for p in pads:
+        along, across = survey_spacing_mm(surface, p, float(xs[0]), float(xs[-1]), y0)
+        ratio = max(along / p.pad.length_mm, across / p.pad.width_mm)
+        if ratio > COARSE_SURVEY_FRACTION and (worst is None or ratio > worst[0]):
+            worst = (ratio, p, along, across)
+    if worst is not None:
+        _, p, along, across = worst
+        who = "the pad" if len(pads) == 1 else f"pad {p.name!r}"
+        out.append(
+            f"the surveyed stations are up to {along:.3g} mm apart along the travel and {across:.3g} mm across "
+            f"under {who} ({p.pad.length_mm:g} x {p.pad.width_mm:g} mm), more than half its size: the local "
+            "flatness under a pad comes mostly from interpolation between stations, not from measured form; "
+            f"survey at most {COARSE_SURVEY_FRACTION * p.pad.length_mm:.3g} mm apart along and "
+            f"{COARSE_SURVEY_FRACTION * p.pad.width_mm:.3g} mm across to see it"
+        )
+    if pad_face is not None:
+        grid = pad_face.grid
+        fxmin, fxmax, fymin, fymax = pad_face.extent_mm
+        if pad_face.length_mm and pad_face.width_mm:
+            fx, fy = pad_face.length_mm, pad_face.width_mm
+        elif grid is not None:
+            fx, fy = _size_mm(grid[0], fxmax - fxmin), _size_mm(grid[1], fymax - fymin)
+        else:
+            fx, fy = fxmax - fxmin, fymax - fymin
+        odd = sorted({
+            (p.pad.length_mm, p.pad.width_mm) for p in pads
+            if abs(fx - p.pad.length_mm) > PAD_FACE_SIZE_TOLERANCE * p.pad.length_mm
+            or abs(fy - p.pad.width_mm) > PAD_FACE_SIZE_TOLERANCE * p.pad.width_mm
+        })
+        if odd:
+            sizes = " and ".join(f"{a:g} x {b:g} mm" for a, b in odd)
+            out.append(
+                f"the pad-face map covers {fx:.3g} x {fy:.3g} mm but the pad is {sizes} (more than "
+                f"{100 * PAD_FACE_SIZE_TOLERANCE:.0f} % apart): check that the map is of this pad's face, in mm, "
+                "with x along the travel"
+            )
+    return tuple(out)
 
 
 def _make_check(name, value, limit, unit, ratio, marginal_from, x_mm, ratios, basis) -> Check:

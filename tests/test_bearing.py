@@ -376,3 +376,51 @@ def test_added_plane_changes_only_attitude(a, b, c):
     np.testing.assert_allclose(
         r1.motion.roll_path_arcsec - r0.motion.roll_path_arcsec, c * ARCSEC_PER_UM_PER_MM, atol=1e-6
     )
+
+
+# ----------------------------------------------------------------------------- warnings about the input
+def test_surface_longer_across_than_along_x_is_warned():
+    # the single-pad carriage rides along x (pinned contract); a map 300 x 600 mm probably runs along y
+    along_y = evaluate_bearing(grid_surface(lambda X, Y: 0 * X, 300.0, 600.0, 10.0), Carriage.single(Pad.rect(60, 40, 8)))
+    assert [s.y_mm for s in along_y.stations][0] == pytest.approx(300.0)  # still x travel, centred across
+    assert any("longer across" in w and "600 mm" in w for w in along_y.warnings)
+    along_x = evaluate_bearing(grid_surface(lambda X, Y: 0 * X, 600.0, 300.0, 10.0), Carriage.single(Pad.rect(60, 40, 8)))
+    assert not any("longer across" in w for w in along_x.warnings)
+
+
+@pytest.mark.parametrize(
+    "pitch_x, pitch_y, coarse",
+    [(10.0, 10.0, False), (30.0, 10.0, False), (40.0, 10.0, True), (10.0, 25.0, True), (10.0, 20.0, False)],
+)
+def test_coarse_survey_under_the_pad_is_warned(pitch_x, pitch_y, coarse):
+    # a 60 x 40 mm pad: stations more than 30 mm apart along or 20 mm across leave the footprint to interpolation
+    x = np.arange(0.0, 600.0 + 1e-9, pitch_x)
+    y = np.arange(0.0, 300.0 + 1e-9, pitch_y)
+    X, Y = np.meshgrid(x, y)
+    surf = HeightMap(X.ravel(), Y.ravel(), np.sin(X.ravel() / 50.0))
+    res = evaluate_bearing(surf, Carriage.single(Pad.rect(60, 40, 8)))
+    assert any("interpolation between stations" in w for w in res.warnings) == coarse
+
+
+def test_survey_spacing_sees_the_lines_under_the_pad_only():
+    from flatcheck.bearing import survey_spacing_mm
+
+    # three survey lines at y = 40, 100, 160 with stations 100 mm apart; dense line at y = 10 away from the pad
+    xs = np.concatenate([np.arange(0, 1001, 100.0)] * 3 + [np.arange(0, 1001, 5.0)])
+    ys = np.concatenate([np.full(11, 40.0), np.full(11, 100.0), np.full(11, 160.0), np.full(201, 10.0)])
+    surf = HeightMap(xs, ys, np.zeros(xs.size))
+    along, across = survey_spacing_mm(surf, PlacedPad(Pad.rect(120, 80, 8)), 100.0, 900.0, 100.0)
+    assert (along, across) == (100.0, 60.0)
+
+
+def test_pad_face_map_of_another_size_is_warned():
+    surf = grid_surface(lambda X, Y: 0 * X, 600.0, 300.0, 10.0)
+    # a face surveyed on a 5 mm grid inset half a cell from the edges represents 80 x 80 mm
+    g = np.arange(2.5, 80.0, 5.0)
+    X, Y = np.meshgrid(g, g)
+    face = HeightMap(X.ravel(), Y.ravel(), 0.01 * X.ravel())
+    ok = evaluate_bearing(surf, Carriage.single(Pad.rect(80, 80, 8)), pad_face=face)
+    assert not any("pad-face map" in w for w in ok.warnings)
+    for size in ((100, 80), (80, 60)):  # the map is 20 % smaller / 33 % larger than the pad
+        res = evaluate_bearing(surf, Carriage.single(Pad.rect(*size, 8)), pad_face=face)
+        assert any("pad-face map covers 80 x 80 mm" in w for w in res.warnings)

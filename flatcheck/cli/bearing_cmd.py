@@ -126,6 +126,7 @@ def result_json(result: BearingResult, *, input_path: Path, label: str, units: s
         "sampling_pitch_mm": result.sampling_pitch_mm,
         "step_mm": result.step_mm,
         "notes": result.notes,
+        "warnings": list(result.warnings),
         "safety": SAFETY_LINES["air"],
     }
 
@@ -204,6 +205,8 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
             f"  [yellow]{len(xs)} position(s) not evaluated (a pad leaves the surveyed area): "
             f"x = {min(xs):.1f}–{max(xs):.1f} mm[/yellow]"
         )
+    for w in result.warnings:
+        con.print(f"[yellow]Warning:[/yellow] {w}")
     table = Table(title="Checks", title_justify="left")
     for col in ("check", "result", "limit", "of limit", "status", "where"):
         table.add_column(col)

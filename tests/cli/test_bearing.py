@@ -204,3 +204,18 @@ def test_microinch_summary_to_a_tenth(cli, sine_csv):
     assert code == 0, err
     # 1 µin = 0.0254 µm exactly (international inch, 1959)
     assert f"Local flatness under the pads: max {lf_um / 0.0254:.1f} µin" in out
+
+
+def test_warnings_in_json_and_summary(cli, tmp_path):
+    # a map longer in y than in x, surveyed at 50 mm: the 60 x 40 mm pad still rides along x (pinned contract)
+    csv = write_surface(tmp_path / "across.csv", lambda X, Y: 0.001 * X, length=300.0, width=600.0, pitch=50.0)
+    code, out, err = cli("bearing", csv, "--pad", "60x40", "--gap-um", "8", "--json")
+    assert code == 0, err
+    warnings = json.loads(out)["warnings"]
+    assert any("longer across" in w for w in warnings)
+    assert any("interpolation between stations" in w for w in warnings)
+    code, out, err = cli("bearing", csv, "--pad", "60x40", "--gap-um", "8")
+    assert code == 0 and out.count("Warning:") == 2
+    fine = write_surface(tmp_path / "fine.csv", lambda X, Y: 0.001 * X, length=600.0, width=300.0, pitch=10.0)
+    code, out, err = cli("bearing", fine, "--pad", "60x40", "--gap-um", "8", "--json")
+    assert json.loads(out)["warnings"] == []
