@@ -167,6 +167,11 @@ class Progress:
     sessions_to_target : int or None
         Sessions like this one still needed (remaining volume / volume this session, rounded up);
         0 when the target is met; None when nothing was removed or no target was given.
+    change_referred_um : ndarray, shape (n,)
+        The change referred to the plane of the least removal instead of the LS plane (µm): untouched
+        areas read about 0 (small positive values are survey noise), lapped areas negative; it equals
+        ``-removed_um`` wherever it is negative. The same change, only another plane: the one a user
+        reads "how much came off where" from.
     """
 
     x_mm: np.ndarray
@@ -185,10 +190,11 @@ class Progress:
     target_um: float | None
     remaining_volume_mm3: float | None
     sessions_to_target: int | None
+    change_referred_um: np.ndarray | None = None
 
 
-def _lowest_supporting_removal(x, y, u, w) -> np.ndarray:
-    """``u - p`` for the plane p <= u with the largest weighted sum (least removal >= 0)."""
+def _lowest_supporting_removal(x, y, u, w) -> tuple[np.ndarray, np.ndarray]:
+    """``u - p`` for the plane p <= u with the largest weighted sum (least removal >= 0), and ``p``."""
     from scipy.optimize import linprog
 
     xm, ym = x.mean(), y.mean()
@@ -197,9 +203,10 @@ def _lowest_supporting_removal(x, y, u, w) -> np.ndarray:
     res = linprog(-(w @ P), A_ub=P, b_ub=u, bounds=[(None, None)] * 3, method="highs")
     if res.status != 0:  # pragma: no cover - bounded as soon as three points are not collinear
         raise GeometryError(f"cannot refer the change to a plane: {res.message}")
-    r = np.maximum(0.0, u - P @ res.x)
+    p = P @ res.x
+    r = np.maximum(0.0, u - p)
     r[r < 1e-9] = 0.0
-    return r
+    return r, p
 
 
 def compare_surveys(
@@ -249,7 +256,10 @@ def compare_surveys(
         zb - (lb.a_um + lb.b_um_per_mm * x + lb.c_um_per_mm * y)
     )
     w = node_area_weights(x, y)
-    removed = _lowest_supporting_removal(x, y, -change, w)
+    removed, support = _lowest_supporting_removal(x, y, -change, w)
+    # the change referred to the plane of the least removal: untouched areas about 0, lapped areas negative
+    change_referred = change + support
+    change_referred[np.abs(change_referred) < 1e-9] = 0.0
     vol = float(w @ removed) / 1000.0
     f_before = minimum_zone(x, y, zb).flatness_um
     f_after = minimum_zone(x, y, za).flatness_um
@@ -287,13 +297,14 @@ def compare_surveys(
             sessions = 0
         elif vol > 0:
             sessions = int(math.ceil(remaining / vol - 1e-9))
-    for a in (change, removed):
+    for a in (change, change_referred, removed):
         a.setflags(write=False)
     return Progress(
         x_mm=x,
         y_mm=y,
         change_um=change,
         removed_um=removed,
+        change_referred_um=change_referred,
         removed_volume_mm3=vol,
         max_removed_um=float(removed.max()),
         flatness_before_um=float(f_before),

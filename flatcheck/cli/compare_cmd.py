@@ -43,8 +43,9 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
         "removed_volume_mm3": pr.removed_volume_mm3,
         "max_removed_um": pr.max_removed_um,
         "change": [
-            {"x_mm": float(x), "y_mm": float(y), "change_um": float(c), "removed_um": float(r)}
-            for x, y, c, r in zip(pr.x_mm, pr.y_mm, pr.change_um, pr.removed_um)
+            {"x_mm": float(x), "y_mm": float(y), "change_um": float(c), "removed_um": float(r),
+             "change_referred_um": float(cr)}
+            for x, y, c, r, cr in zip(pr.x_mm, pr.y_mm, pr.change_um, pr.removed_um, pr.change_referred_um)
         ],
         "dwell_min": pr.dwell_min,
         "lap": lap,
@@ -57,10 +58,62 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
         "sessions_to_target": pr.sessions_to_target,
         "notes": cautions(pr) + [
             "each survey is referred to its own least-squares plane; the removal is the least consistent with the "
-            "change (untouched areas read zero) and is a lower bound if the whole surface was lapped"
+            "change (untouched areas read zero) and is a lower bound if the whole surface was lapped",
+            "change_um is after - before about the least-squares plane of the difference; change_referred_um is "
+            "the same change about the plane of the least removal (untouched areas read about 0)",
         ],
         "safety": SAFETY_LINES["dust"],
     }
+
+
+#: Largest node grid printed in the summary (rows); wider grids are also limited by the terminal's width.
+_MAX_GRID_ROWS = 30
+
+
+def change_grid_text(pr: Progress, units: str, width: int) -> str | None:
+    """The change on a grid of nodes as plain text rows (north at the top), or None if it does not fit.
+
+    The values are after minus before referred to the plane of the least removal, so untouched areas read
+    about 0 and lapped areas are negative. None when the nodes are not a complete regular grid, or the grid
+    is wider than ``width`` characters or longer than ``_MAX_GRID_ROWS`` rows.
+    """
+    from ..heightmap import HeightMap
+
+    grid = HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
+    if grid is None:
+        return None
+    xs, ys, index = grid
+    if ys.size > _MAX_GRID_ROWS:
+        return None
+    vals = um_to(pr.change_referred_um, units)
+    fmt = "{:.3f}" if units == "um" else "{:.1f}"
+
+    def cell(v):
+        s = fmt.format(v)
+        return "0" if float(s) == 0 else s  # no "-0.000"
+
+    ylab = [f"{y:g}" for y in ys]
+    yw = max(4, max(len(v) for v in ylab))
+    cw = 1 + max(max(len(cell(v)) for v in vals), max(len(f"{x:g}") for x in xs))
+    if yw + 1 + xs.size * cw > width:
+        return None
+    hu = height_unit_label(units)
+    lines = [
+        f"Change map, after - before ({hu}; untouched areas read 0), x mm across:",
+        f"{'y mm':>{yw}} " + "".join(f"{x:>{cw}g}" for x in xs),
+    ]
+    for j in range(ys.size - 1, -1, -1):
+        lines.append(f"{ylab[j]:>{yw}} " + "".join(f"{cell(vals[i]):>{cw}}" for i in index[j]))
+    return "\n".join(lines)
+
+
+def _why_no_grid(pr: Progress, width: int) -> str:
+    from ..heightmap import HeightMap
+
+    grid = HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
+    if grid is None:
+        return "are not a regular grid"
+    return f"make a {grid[0].size} x {grid[1].size} grid, too large for this terminal ({width} columns)"
 
 
 def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str) -> None:
@@ -74,6 +127,19 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
     con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
     con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")
     con.print(f"Removed {pr.removed_volume_mm3:.4g} mm^3, deepest {h(pr.max_removed_um)}")
+    grid = change_grid_text(pr, units, con.width)
+    if grid is not None:
+        con.print(grid, markup=False)
+    else:
+        deepest = int(pr.removed_um.argmax())
+        where = (
+            f"; the most came off at ({pr.x_mm[deepest]:g}, {pr.y_mm[deepest]:g}) mm" if pr.max_removed_um > 0 else ""
+        )
+        con.print(
+            f"Change map: the {pr.x_mm.size} nodes {_why_no_grid(pr, con.width)}{where}; "
+            "the change at every node is in --json",
+            markup=False,
+        )
     for c in cautions(pr)[:1]:
         if c.startswith("the surface is less flat"):
             con.print(f"[bold]Warning:[/bold] {c}")

@@ -204,3 +204,48 @@ def test_swapped_files_warned(cli, pair):
     assert any("BEFORE AFTER" in n for n in doc["notes"])
     code, out, err = cli("compare", before, after, "--dwell-min", "5", "--json")
     assert not any("BEFORE AFTER" in n for n in json.loads(out)["notes"])
+
+
+# ---------------------------------------------------------------- the change map in the summary
+
+
+def _grid_pair(tmp_path, pitch):
+    """Before/after height maps on a grid; 0.6 µm taken off a cross of five nodes about (200, 200) mm, the
+    after survey on another plane. Returns the files and the known change (after - before, untouched = 0)."""
+    X, Y = np.meshgrid(np.arange(0, 600 + 1e-9, pitch), np.arange(0, 400 + 1e-9, pitch))
+    x, y = X.ravel(), Y.ravel()
+    zb = 1.5 * np.exp(-((x - 200) ** 2 + (y - 250) ** 2) / (2 * 90.0**2))
+    removed = 0.6 * (np.hypot(x - 200, y - 200) <= 120.0)
+    za = zb - removed + 4.0 + 0.003 * x - 0.002 * y
+    return write_csv(tmp_path / "gb.csv", x, y, zb), write_csv(tmp_path / "ga.csv", x, y, za), x, y, -removed
+
+
+def test_summary_prints_the_change_map_on_a_grid(cli, tmp_path):
+    before, after, x, y, change = _grid_pair(tmp_path, 100.0)
+    code, out, err = cli("compare", before, after)
+    assert code == 0, err
+    lines = out.splitlines()
+    k = next(i for i, line in enumerate(lines) if line.startswith("Change map"))
+    head = lines[k + 1].split()
+    assert head[:2] == ["y", "mm"] and [float(v) for v in head[2:]] == [0, 100, 200, 300, 400, 500, 600]
+    rows = [lines[k + 2 + j].split() for j in range(5)]
+    assert [float(r[0]) for r in rows] == [400, 300, 200, 100, 0]  # north at the top
+    got = {(float(c), float(r[0])): float(v) for r in rows for c, v in zip(head[2:], r[1:])}
+    # the known removal, constructed above: -0.6 on the five lapped nodes, 0 elsewhere
+    assert [got[(a, b)] for a, b in zip(x, y)] == pytest.approx(change, abs=1e-3)
+    # JSON: the same referred change at every node
+    doc = json.loads(cli("compare", before, after, "--json")[1])
+    ref = {(c["x_mm"], c["y_mm"]): c["change_referred_um"] for c in doc["change"]}
+    assert [ref[(a, b)] for a, b in zip(x, y)] == pytest.approx(change, abs=1e-6)
+
+
+def test_summary_without_a_printable_grid_says_where_the_map_is(cli, tmp_path, pair):
+    before, after, *_ = pair  # a 25 x 17 grid: wider than the 80 columns of a captured console
+    code, out, err = cli("compare", before, after)
+    assert code == 0, err
+    text = " ".join(out.split())
+    assert "Change map: the 425 nodes make a 25 x 17 grid, too large for this terminal" in text and "--json" in text
+    a = _survey_file(tmp_path / "a.toml", "P-1")
+    b = _survey_file(tmp_path / "b.toml", "P-1", bump_um=0.5)
+    text = " ".join(cli("compare", a, b)[1].split())
+    assert "are not a regular grid" in text and "--json" in text
