@@ -140,24 +140,43 @@ def load_surface(path: Path, *, method: str = "least-squares"):
     (HeightMap, Reduction or None)
         The surface and, for surveys, the full reduction result.
     """
-    from ..io.heightmap_csv import read_heightmap_csv
+    loaded = load_input(path, method=method)
+    return loaded.heightmap, loaded.reduction
 
-    path = Path(path)
-    if path.suffix.lower() == ".csv":
-        return read_heightmap_csv(path), None
-    from ..io.survey_toml import read_survey
+
+#: Library wording -> the command line's, in the fixes of errors raised by the core.
+_CLI_WORDS = {"method 'least-squares'": "--method least-squares", "method 'moody'": "--method moody"}
+
+
+def _reduce_named(path: Path, survey, method: str):
+    """Reduce ``survey``; an error from the core is re-raised naming the file (and the option of its fix).
+
+    The reduction (flatcheck.reduction, flatcheck.moody) knows the survey, not the file it came
+    from; docs/survey-format.md promises the file in every message, so it is added here.
+    """
+    from ..errors import FlatcheckError
+    from ..io.survey_toml import require_readings
     from ..reduction import reduce_survey
 
-    survey = read_survey(path)
-    red = reduce_survey(survey, method=method)
-    return red.heightmap, red
+    require_readings(survey)  # an unread line, with its TOML line number
+    try:
+        return reduce_survey(survey, method=method)
+    except FlatcheckError as exc:
+        where = exc.where or ""
+        name = str(path)
+        if name not in where:
+            where = f"{name}, {where}" if where else name
+        fix = exc.fix
+        for lib, cli in _CLI_WORDS.items():
+            fix = fix.replace(lib, cli) if fix else fix
+        raise type(exc)(exc.message, where=where, fix=fix) from None
 
 
 def load_input(path: Path, *, method: str = "least-squares"):
     """Load an input file as a :class:`flatcheck.evaluation.LoadedInput`.
 
     A ``.csv`` file is read as a height map; anything else as a TOML survey,
-    reduced with ``method``.
+    reduced with ``method``. Every error names the file.
     """
     from ..evaluation import LoadedInput
     from ..io.heightmap_csv import read_heightmap_csv
@@ -166,10 +185,9 @@ def load_input(path: Path, *, method: str = "least-squares"):
     if path.suffix.lower() == ".csv":
         return LoadedInput(str(path), read_heightmap_csv(path))
     from ..io.survey_toml import read_survey
-    from ..reduction import reduce_survey
 
     survey = read_survey(path)
-    red = reduce_survey(survey, method=method)
+    red = _reduce_named(path, survey, method)
     return LoadedInput(str(path), red.heightmap, survey, red)
 
 

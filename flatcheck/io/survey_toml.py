@@ -36,7 +36,16 @@ from ..units import MM_PER_INCH, angle_unit, length_unit
 from .atomic import write_text_atomic
 from .text import read_text
 
-__all__ = ["FORMAT_NAME", "FORMAT_VERSION", "SIGN_CONVENTIONS", "read_survey", "parse_survey", "format_survey", "write_survey"]
+__all__ = [
+    "FORMAT_NAME",
+    "FORMAT_VERSION",
+    "SIGN_CONVENTIONS",
+    "read_survey",
+    "parse_survey",
+    "require_readings",
+    "format_survey",
+    "write_survey",
+]
 
 FORMAT_NAME = "flatcheck-survey"
 FORMAT_VERSION = 1
@@ -470,7 +479,7 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
         if pn not in names:
             raise LayoutError(
                 f"line {pn!r} of the {pattern} layout is missing",
-                where=source,
+                where=ctx.where(lt, "pattern"),
                 fix=f'add a [[line]] table with name = "{pn}" (readings = [] if not read yet)',
             )
     by_name = {ln.name: ln for ln in plan.lines}
@@ -478,7 +487,9 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
     for i, name in enumerate(names):
         lines.append(_read_line(ctx, ("line", i), raw_lines[i], by_name[name], plan, instrument, global_flip))
     meta = dict(plan.meta)
-    meta["file"] = {"positive": positive}
+    # where each line's readings are (file, TOML line, table), for messages about a whole line
+    places = {name: ctx.where(("line", i), "readings") for i, name in enumerate(names)}
+    meta["file"] = {"positive": positive, "line_where": places}
     return dataclasses.replace(
         plan,
         lines=tuple(lines),
@@ -489,6 +500,28 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
         source=source,
         meta=meta,
     )
+
+
+def require_readings(survey: Survey) -> None:
+    """Refuse a survey with a line that has no readings (a blank from ``flatcheck plan`` half filled in).
+
+    Raises
+    ------
+    InputValueError
+        Naming the first such line, with the file and TOML line of its ``readings`` when the
+        survey was read from a file.
+    """
+    places = (survey.meta.get("file") or {}).get("line_where") or {}
+    for ln in survey.lines:
+        if ln.runs:
+            continue
+        n = len(ln.stations) if survey.instrument.reads_heights else ln.steps
+        where = places.get(ln.name) or (f"{survey.source}, line {ln.name!r}" if survey.source else f"line {ln.name!r}")
+        raise InputValueError(
+            f"line {ln.name!r} has no readings",
+            where=where,
+            fix=f"fill in its {n} readings (readings = [...]) in the order taken",
+        )
 
 
 def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Survey:

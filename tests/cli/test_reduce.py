@@ -118,27 +118,36 @@ def _edit(tmp_path, old, new, count=1, name="bad.toml"):
 
 
 BAD_SURVEYS = [
-    # (old text, new text, what the message must say)
+    # (old text, new text, what the message must say, the fix it must give)
     ("readings = [16.98, 16.38, 17.24, 17.17, 15.57, 15.26, 16.01, 16.03]",
-     "readings = [16.98, 16.38, 17.24, 17.17, 15.57, 15.26, 16.01]", r"SW-NE.*7.*8"),
-    ("readings = [16.98, 16.38", "readings = [\"a\", 16.38", r"SW-NE"),
-    ('unit = "arcsec"', 'unit = "furlongs"', r"unit.*furlongs"),
-    ("foot_spacing_mm = 100.0", "foot_spacing_mm = 0.0", r"foot_spacing"),
-    ("foot_spacing_mm = 100.0", "foot_spacing_mm = -100.0", r"foot_spacing"),
-    ('name = "SE-NW"', 'name = "SW-NE"', r"SW-NE"),
-    ("readings = [16.98, 16.38", "readings = [nan, 16.38", r"SW-NE|nan|finite"),
+     "readings = [16.98, 16.38, 17.24, 17.17, 15.57, 15.26, 16.01]", r"SW-NE.*7.*8", r"give exactly 8 readings"),
+    ("readings = [16.98, 16.38", "readings = [\"a\", 16.38", r"SW-NE", r"write plain numbers"),
+    ('unit = "arcsec"', 'unit = "furlongs"', r"unit.*furlongs", r"use one of: arcsec"),
+    ("foot_spacing_mm = 100.0", "foot_spacing_mm = 0.0", r"foot_spacing", r"give a positive"),
+    ("foot_spacing_mm = 100.0", "foot_spacing_mm = -100.0", r"foot_spacing", r"give a positive"),
+    ('name = "SE-NW"', 'name = "SW-NE"', r"SW-NE", r"merge the two tables|rename one"),
+    ("readings = [16.98, 16.38", "readings = [nan, 16.38", r"SW-NE|nan|finite", r"replace it with the value read"),
+    ("readings = [16.98, 16.38", "readings = [400000.0, 16.38", r"SW-NE.*20 mm/m", r"check the reading"),
 ]
 
 
-@pytest.mark.parametrize("old, new, pattern", BAD_SURVEYS)
-def test_bad_survey_files(cli, tmp_path, old, new, pattern):
+@pytest.mark.parametrize("old, new, pattern, fix", BAD_SURVEYS)
+def test_bad_survey_files(cli, tmp_path, old, new, pattern, fix):
     p = _edit(tmp_path, old, new)
     code, out, err = cli("reduce", p, "--json")
     assert code == 2, err
     assert out == ""
     assert err.startswith("flatcheck: error: ") and err.count("\n") == 1 and "Traceback" not in err
-    assert str(p) in err
+    assert str(p) in err and re.search(rf"{re.escape(str(p))}, line \d+ ", err), err  # file and TOML line
     assert re.search(pattern, err), err
+    assert re.search(fix, err), err
+
+
+def _one_line_naming(err, path, *needles):
+    assert err.startswith("flatcheck: error: ") and err.count("\n") == 1 and "Traceback" not in err
+    assert str(path) in err, err
+    for n in needles:
+        assert n in err, (n, err)
 
 
 def test_missing_line(cli, tmp_path):
@@ -147,7 +156,61 @@ def test_missing_line(cli, tmp_path):
     p = tmp_path / "missing.toml"
     p.write_text(text[:start])
     code, out, err = cli("reduce", p)
-    assert code == 2 and "S-N" in err and err.count("\n") == 1
+    assert code == 2
+    # the [layout] pattern line is where the missing line is asked for
+    no = next(i for i, ln in enumerate(text.splitlines(), 1) if ln.startswith("pattern ="))
+    _one_line_naming(err, p, "'S-N'", f"line {no} ", 'add a [[line]] table with name = "S-N"')
+
+
+def test_line_without_readings_names_its_toml_line(cli, tmp_path):
+    text = PLATE.read_text()
+    old = "readings = [10.3, 9.94, 9.63, 9.31]"
+    p = tmp_path / "unread.toml"
+    p.write_text(text.replace(old, "readings = []"))
+    code, out, err = cli("reduce", p)
+    no = next(i for i, ln in enumerate(text.splitlines(), 1) if ln == old)
+    assert code == 2
+    _one_line_naming(err, p, "'S-N'", "no readings", f"line {no} ", "fill in its 4 readings")
+
+
+def _filled(tmp_path, name, plan, fn=lambda x, y: 1e-5 * x * y):
+    from flatcheck.io.survey_toml import write_survey
+    from flatcheck.simulate import simulate_survey
+
+    p = tmp_path / name
+    write_survey(p, simulate_survey(plan, fn))
+    return p
+
+
+def test_twist_refusal_names_the_file_and_the_fix(cli, tmp_path):
+    from flatcheck.layout import plan_grid
+
+    p = _filled(tmp_path, "grid.toml", plan_grid(460, 360, 100))
+    code, out, err = cli("reduce", p)
+    assert code == 2
+    _one_line_naming(err, p, "twist", "add a diagonal line", "level")
+
+
+def test_moody_on_a_grid_names_the_file_and_the_option(cli, tmp_path):
+    from flatcheck.layout import plan_grid
+    from flatcheck.survey import Instrument
+
+    p = _filled(tmp_path, "grid.toml", plan_grid(460, 360, 100, instrument=Instrument("level", "um/m")))
+    code, out, err = cli("reduce", p, "--method", "moody")
+    assert code == 2
+    _one_line_naming(err, p, "Union Jack", "--method least-squares")
+
+
+def test_disconnected_stations_name_the_file(cli, tmp_path):
+    from flatcheck.layout import plan_lines
+    from flatcheck.survey import Instrument
+
+    plan = plan_lines([("a", (50, 50), (750, 50), 7), ("b", (50, 150), (750, 150), 7)], length_mm=800, width_mm=200,
+                      instrument=Instrument("level", "um/m"))
+    p = _filled(tmp_path, "lines.toml", plan, lambda x, y: 0 * x)
+    code, out, err = cli("reduce", p)
+    assert code == 2
+    _one_line_naming(err, p, "not connected", "add a line that joins them")
 
 
 @pytest.mark.parametrize(
