@@ -84,6 +84,8 @@ __all__ = [
     "STANDARD_AMBIENT_KPA",
     "FILM_ASSUMPTIONS",
     "MAX_MESH_CELLS",
+    "KG_S_TO_MG_S",
+    "curve_table_rows",
     "PorousFeed",
     "OrificeFeed",
     "ORIFICE_ASSUMPTIONS",
@@ -146,6 +148,9 @@ MESH_LIMIT_REASON = (
     f"a {MAX_MESH_CELLS} x {MAX_MESH_CELLS} mesh already takes seconds and about 1 GB of memory per pad position, "
     "and the film has converged to 0.1 % at 64 cells"
 )
+
+#: kg/s to mg/s (exact).
+KG_S_TO_MG_S = 1e6
 
 _MAX_ITER = 40
 _MM2_TO_M2 = 1e-6
@@ -1597,6 +1602,34 @@ def flat_guide_curve(mesh: PadMesh, feed: PorousFeed, gaps_um) -> FilmCurve:
     )
 
 
+#: Gaps shown in a short table of a flat-guide curve, as multiples of the nominal gap (gap/4 to 4 gap).
+CURVE_TABLE_GAP_RATIOS = (0.25, 0.5, 2**-0.5, 1.0, 2**0.5, 2.0, 4.0)
+
+
+def curve_table_rows(curve: FilmCurve, gap_um: float) -> tuple:
+    """Which samples of a flat-guide curve to show in a short table.
+
+    Parameters
+    ----------
+    curve : FilmCurve
+        The curve (gaps increasing).
+    gap_um : float
+        The nominal gap, µm.
+
+    Returns
+    -------
+    (rows, nominal, peak) : tuple
+        ``rows``: sorted indices into the curve's arrays, the samples nearest (on a log scale) to
+        ``CURVE_TABLE_GAP_RATIOS`` times ``gap_um`` plus the sample of greatest stiffness; ``nominal``: the
+        index nearest ``gap_um``; ``peak``: the index of greatest stiffness.
+    """
+    lg = np.log(np.asarray(curve.gap_um, dtype=float))
+    nearest = [int(np.argmin(np.abs(lg - math.log(r * gap_um)))) for r in CURVE_TABLE_GAP_RATIOS]
+    peak = int(np.argmax(curve.stiffness_n_per_um))
+    nominal = int(np.argmin(np.abs(lg - math.log(gap_um))))
+    return tuple(sorted(set(nearest) | {peak})), nominal, peak
+
+
 def film_equilibrium(
     mesh: PadMesh,
     feed: PorousFeed,
@@ -1828,6 +1861,8 @@ class BearingFilm:
     assumptions : tuple of str
     meshes : tuple of PadMesh
         The pad meshes used (one per pad size).
+    curve_gap_um : float or None
+        Nominal gap of the curve's pad, µm (the curve runs from a quarter of it to four times it).
     """
 
     feed: PorousFeed
@@ -1839,13 +1874,14 @@ class BearingFilm:
     mesh_cells: int
     assumptions: tuple = FILM_ASSUMPTIONS
     meshes: tuple = ()
+    curve_gap_um: float | None = None
 
     def __post_init__(self):
         if isinstance(self.feed, OrificeFeed) and self.assumptions is FILM_ASSUMPTIONS:
             object.__setattr__(self, "assumptions", ORIFICE_ASSUMPTIONS)
 
     def station(self, i: int) -> dict:
-        """Film at station ``i`` for the pad with the least film there (JSON-ready dict, µm, N, l/min)."""
+        """Film at station ``i`` for the pad with the least film there (JSON-ready dict, µm, N, l/min, mg/s)."""
         best = None
         for p in self.pads:
             t = p.travel
@@ -1862,6 +1898,7 @@ class BearingFilm:
             "load_n": float(t.load_n[i]),
             "stiffness_n_per_um": float(t.stiffness_n_per_um[i]),
             "flow_l_per_min": float(t.flow_l_per_min[i]),
+            "mass_flow_mg_per_s": float(t.mass_flow_kg_s[i]) * KG_S_TO_MG_S,
             "tilt_x_urad": float(t.tilt_x_urad[i]),
             "tilt_y_urad": float(t.tilt_y_urad[i]),
             **({"feed_pressure_ratio": float(t.feed_pressure_ratio[i])} if isinstance(self.feed, OrificeFeed) else {}),
@@ -1938,10 +1975,10 @@ def bearing_film(
         out.append(PadFilmTravel(p.name, load, eq.fly_height_um, eq.stiffness_n_per_um, travel))
         if curve is None:
             curve = flat_guide_curve(mesh, feed, default_curve_gaps_um(p.pad.gap_um))
-            curve_pad = p.name
+            curve_pad, curve_gap = p.name, p.pad.gap_um
     return BearingFilm(
         feed=feed, pivot=bool(pivot), x_mm=xs, pads=tuple(out), curve=curve, curve_pad=curve_pad, mesh_cells=int(n),
-        meshes=tuple(meshes.values()),
+        meshes=tuple(meshes.values()), curve_gap_um=curve_gap,
     )
 
 

@@ -426,7 +426,7 @@ def _add_film_json(data: dict, film) -> None:
     """Add the pinned ``film`` object and a ``film`` entry to each station object."""
     from .common import jsonable
 
-    from ..film import OrificeFeed, orifice_notes
+    from ..film import KG_S_TO_MG_S, OrificeFeed, orifice_notes
 
     c = film.curve
     f = film.feed
@@ -454,8 +454,8 @@ def _add_film_json(data: dict, film) -> None:
             "layer_mm": f.layer_mm,
         }
     curve = [
-        {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q}
-        for g, w, k, q in zip(c.gap_um, c.load_n, c.stiffness_n_per_um, c.flow_l_per_min)
+        {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q, "mass_flow_mg_per_s": m * KG_S_TO_MG_S}
+        for g, w, k, q, m in zip(c.gap_um, c.load_n, c.stiffness_n_per_um, c.flow_l_per_min, c.mass_flow_kg_s)
     ]
     if orifice:
         for row, r in zip(curve, c.feed_pressure_ratio):
@@ -482,11 +482,51 @@ def _add_film_json(data: dict, film) -> None:
     data["stations"] = stations
 
 
+def _sig3(v: float) -> str:
+    """Three significant figures with fixed decimals (48.0, 112, 0.348), for table columns."""
+    v = float(v)
+    if not math.isfinite(v) or v == 0.0:
+        return f"{v:g}"
+    return f"{v:.{max(0, 2 - math.floor(math.log10(abs(v))))}f}"
+
+
+def _curve_table(film, *, units: str, orifice: bool) -> Table:
+    """A short table of the flat-guide curve: gaps from gap/4 to 4 gap, the nominal and peak-stiffness rows marked."""
+    from ..film import KG_S_TO_MG_S, curve_table_rows
+
+    c = film.curve
+    gap = film.curve_gap_um if film.curve_gap_um is not None else float(np.sqrt(c.gap_um[0] * c.gap_um[-1]))
+    rows, nominal, peak = curve_table_rows(c, gap)
+    whose = "" if len(film.pads) == 1 else f" (pad {film.curve_pad!r})"
+    table = Table(title=f"Flat guide, uniform gap{whose}", title_justify="left")
+    cols = [f"gap ({height_unit_label(units)})", "load (N)", "stiffness (N/µm)", "flow (l/min)", "mass (mg/s)"]
+    if orifice:
+        cols.append("pr/ps")
+    for col in cols:
+        table.add_column(col, justify="right")
+    table.add_column("")
+    for i in rows:
+        mark = ", ".join(m for m, ok in (("nominal gap", i == nominal), ("peak stiffness", i == peak)) if ok)
+        cells = [
+            f"{um_to(float(c.gap_um[i]), units):.3f}" if units == "um" else f"{um_to(float(c.gap_um[i]), units):.1f}",
+            f"{c.load_n[i]:.1f}", f"{c.stiffness_n_per_um[i]:.2f}", _sig3(c.flow_l_per_min[i]),
+            _sig3(c.mass_flow_kg_s[i] * KG_S_TO_MG_S),
+        ]
+        if orifice:
+            cells.append(f"{c.feed_pressure_ratio[i]:.3f}")
+        table.add_row(*cells, f"[bold]{mark}[/bold]" if mark else "")
+    return table
+
+
 def _render_film(film, *, units: str) -> None:
     from ..film import OrificeFeed, orifice_notes
 
     con = stdout_console()
     hu = height_unit_label(units)
+
+    def h(v):  # as the bearing summary: µm to the nm, µin to 0.1 µin
+        return f"{um_to(v, units):.3f} {hu}" if units == "um" else f"{um_to(v, units):.1f} {hu}"
+
     c = film.curve
     f = film.feed
     orifice = isinstance(f, OrificeFeed)
@@ -504,19 +544,23 @@ def _render_film(film, *, units: str) -> None:
     for p in film.pads:
         t = p.travel
         ok = t.converged
-        lo = f"{um_to(float(t.min_film_um[ok].min()), units):.3f} {hu}" if ok.any() else "none (pad lands)"
+        lo = h(float(t.min_film_um[ok].min())) if ok.any() else "none (pad lands)"
         con.print(
-            f"  {p.name}: load {p.load_n:.1f} N, flat-guide fly height {um_to(p.design_fly_height_um, units):.3f} {hu}, "
+            f"  {p.name}: load {p.load_n:.1f} N, flat-guide fly height {h(p.design_fly_height_um)}, "
             f"stiffness {p.design_stiffness_n_per_um:.1f} N/µm; least film over the travel {lo}"
             + (f"; stiffness {t.stiffness_n_per_um[ok].min():.1f}–{t.stiffness_n_per_um[ok].max():.1f} N/µm" if ok.any() else "")
         )
+    con.print(_curve_table(film, units=units, orifice=orifice))
     con.print(
-        f"  flat guide ({film.curve_pad}): peak stiffness {c.peak_stiffness_n_per_um:.1f} N/µm at a gap of "
-        f"{um_to(c.peak_stiffness_gap_um, units):.3f} {hu}" + ("" if c.peak_inside else " (at the end of the range)")
+        f"  peak stiffness refined between the samples: {c.peak_stiffness_n_per_um:.1f} N/µm at a gap of "
+        f"{h(c.peak_stiffness_gap_um)}" + ("" if c.peak_inside else " (at the end of the range)")
     )
     if orifice:
         i = int(np.argmin(np.abs(c.gap_um - film.pads[0].design_fly_height_um)))
-        con.print(f"  feed pressure / supply (absolute) at the nominal gap: {c.feed_pressure_ratio[i]:.3f}")
+        con.print(
+            f"  pr/ps: feed pressure / supply (absolute, in the pocket or at the bore); {c.feed_pressure_ratio[i]:.3f} "
+            "at the flat-guide fly height"
+        )
         for note in orifice_notes(f, film.meshes):
             con.print(f"[yellow]Note:[/yellow] {note}")
         con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['air']}")

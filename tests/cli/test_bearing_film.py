@@ -50,7 +50,7 @@ def test_film_json_contract_on_flat_guide(cli, flat_csv):
     curve = film["curve"]
     assert len(curve) >= 10
     for row in curve:
-        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min"}
+        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "mass_flow_mg_per_s"}
     gaps = [r["gap_um"] for r in curve]
     assert gaps[0] < 0.5 * 5 and gaps[-1] > 2 * 5  # from well below to well above G
     assert all(np.diff([r["load_n"] for r in curve]) < 0)
@@ -141,7 +141,9 @@ def test_orifice_film_json_on_flat_guide(cli, flat_csv):
     film = doc["film"]
     assert film["kind"] == "orifice" and film["orifice_mm"] == 0.2 and film["cd"] == 0.8
     for row in film["curve"]:
-        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "feed_pressure_ratio"}
+        assert set(row) == {
+            "gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "mass_flow_mg_per_s", "feed_pressure_ratio"
+        }
     at = min(film["curve"], key=lambda r: abs(r["gap_um"] - 10.0))
     # Source: exact radial solution P = pr² + (pa² - pr²) ln(r/r0)/ln(R/r0) with the orifice formula of
     # REFERENCE.md §6, solved with scipy brentq/quad
@@ -198,3 +200,47 @@ def test_mesh_count_is_bounded_in_the_library():
 
     with pytest.raises(InputValueError, match="above 512"):
         circular_pad_mesh(50.0, MAX_MESH_CELLS + 1)
+
+
+def _mass_flow_circle_mg_s(h_um, R=0.025):
+    """Closed-form mass flow of the circular porous pad (k 1e-15 m², H 5 mm) over a uniform gap, mg/s.
+
+    Darcy inflow k (ps² - p²) / (2 mu R_air T H) over the face, with ps² - p² = (ps² - pa²) I0(lam r)/I0(lam R):
+    the integral of I0(lam r) 2 pi r dr over the disc is 2 pi R I1(lam R)/lam (scipy.special.i0, i1).
+    """
+    from scipy.special import i1
+
+    mu, r_air, t = 1.81e-5, 287.05, 293.15
+    lam = math.sqrt(12 * 1e-15 / (5e-3 * (h_um * 1e-6) ** 3))
+    area_int = 2 * math.pi * R * i1(lam * R) / (lam * i0(lam * R))
+    return 1e-15 * (PS**2 - PA**2) / (2 * mu * r_air * t * 5e-3) * area_int * 1e6
+
+
+def test_mass_flow_in_curve_and_stations(cli, flat_csv):
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *FILM, "--film-mesh", "48", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    rho_ambient = PA / (287.05 * 293.15)  # ideal gas at ambient, kg/m³
+    for row in doc["film"]["curve"]:
+        # mg/s = l/min / 60 * 1e-3 m³/l * rho * 1e6 mg/kg
+        assert row["mass_flow_mg_per_s"] == pytest.approx(row["flow_l_per_min"] / 60 * rho_ambient * 1e3, rel=1e-9)
+    at5 = min(doc["film"]["curve"], key=lambda r: abs(r["gap_um"] - 5.0))
+    assert at5["mass_flow_mg_per_s"] == pytest.approx(_mass_flow_circle_mg_s(5.0), rel=0.005)
+    for st in doc["stations"]:
+        assert st["film"]["mass_flow_mg_per_s"] == pytest.approx(_mass_flow_circle_mg_s(5.0), rel=0.005)
+
+
+def test_summary_prints_a_short_flat_guide_table(cli, flat_csv):
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *FILM, "--film-mesh", "32")
+    assert code == 0, err
+    lines = out.splitlines()
+    top = next(i for i, line in enumerate(lines) if line.startswith("Flat guide, uniform gap"))
+    rows = [line for line in lines[top:top + 24] if line.startswith("│") and line.split("│")[1].strip()]
+    assert 7 <= len(rows) <= 8
+    gaps = [float(r.split("│")[1]) for r in rows]
+    assert gaps[0] == pytest.approx(5.0 / 4) and gaps[-1] == pytest.approx(20.0) and gaps == sorted(gaps)
+    assert sum("nominal" in r for r in rows) == 1 and "5.000" in next(r for r in rows if "nominal" in r)
+    peak = next(r for r in rows if "peak" in r)
+    stiff = [float(r.split("│")[3]) for r in rows]
+    assert float(peak.split("│")[3]) == max(stiff)
+    assert "mass (mg/s)" in out
