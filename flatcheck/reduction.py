@@ -44,6 +44,25 @@ observation: the instrument's stated reading uncertainty when given (Baarda's
 data snooping), else the a-posteriori value ``sigma0`` (Pope's tau test).
 ``|w_k| > 3.29`` is flagged (two-sided 0.1 % point of the standard normal).
 
+One gross error shows in the residuals of every reading that checks it, so many
+readings may be flagged for one mis-keyed number. The flagged readings are
+therefore diagnosed by iterated data snooping (common practice, no single
+source): the reading of largest ``|w|`` is set aside (an extra unknown, its
+bias), the others are tested again, and so on. The update needs only the
+columns of the projector ``R = I - W^1/2 A N^- A^T W^1/2`` of the readings set
+aside: ``w_j`` becomes ``(w_j - rho_jk w_k) / sqrt(1 - rho_jk^2)`` for one
+reading ``k``, with ``rho_jk`` the correlation of the two residuals. Readings
+whose residuals are perfectly correlated (``|rho| = 1``: every reading of a
+line walked once between two tie stations, or lines that enter the checks
+only through their sum) always have equal ``|w|``: the layout cannot tell them
+apart, and they are named as a group, never one of them by chance.
+
+Reliability. A reading with a small redundancy number is barely checked: the
+smallest error the test finds with 80 % probability at the 0.1 % level is
+``delta0 * sigma / sqrt(r_kk)``, ``delta0 = 3.29 + 0.84 = 4.13`` (Baarda's
+minimal detectable bias). Lines whose readings have ``r_kk < 0.1`` are named
+as weakly checked (a limit common in geodetic network design, from memory).
+
 References
 ----------
 W. Baarda, "A testing procedure for use in geodetic networks", Netherlands
@@ -69,6 +88,7 @@ from .units import angle_unit, length_unit
 
 __all__ = [
     "OUTLIER_THRESHOLD",
+    "WEAK_REDUNDANCY",
     "METHODS",
     "LineClosure",
     "InstrumentZero",
@@ -85,6 +105,20 @@ __all__ = [
 OUTLIER_THRESHOLD = 3.29
 
 METHODS = ("least-squares", "moody")
+
+#: Non-centrality of Baarda's test: two-sided 0.1 % level (3.2905) plus the normal quantile
+#: of 80 % power (0.8416), 4.1321; its square 17.07 is Baarda's lambda_0 (1968).
+_DELTA0 = 3.2905 + 0.8416
+#: Redundancy number below which a reading is "weakly checked" (common limit in geodetic
+#: network design, from memory: r < 0.1 poorly controlled).
+WEAK_REDUNDANCY = 0.1
+# Readings whose residuals have |correlation| >= 1 - _TIE_RTOL cannot be told apart: their |w|
+# agree to about this relative amount whatever the readings (structural ties agree to rounding on
+# slope units; the tangent of angle units leaves ~1e-7 for a 50 arcsec error). Without the dense
+# operator the test falls back to |w| equal to this relative amount.
+_TIE_RTOL = 1e-6
+# At most this many suspect groups are set aside one after the other.
+_SNOOP_MAX_GROUPS = 5
 
 # Above these sizes the dense operator G and the exact redundancy numbers are
 # not formed (a dense inverse of the normal matrix, ~n_unknowns**3 flops).
@@ -180,6 +214,21 @@ class Outlier:
         Standardised residual (dimensionless).
     where : str
         Where the run is in its file.
+    group : int or None
+        Diagnosis by iterated data snooping (module notes): ``k >= 1`` for a
+        reading of the k-th suspect group (the most likely wrong readings, in
+        the order found); ``0`` for a reading flagged only through a suspect's
+        error (its ``w_after`` is within the limit); ``None`` when not diagnosed
+        (large networks) or, with ``w_after`` above the limit, still suspect
+        after the search stopped.
+    group_size : int
+        Number of readings in its suspect group (readings the layout cannot
+        tell apart: equal ``|w|``); 1 otherwise.
+    group_lines : tuple of str
+        The lines of its suspect group.
+    w_after : float
+        Standardised residual once the suspect groups are set aside (NaN for
+        the suspects themselves, or when not diagnosed).
     """
 
     line: str
@@ -191,14 +240,27 @@ class Outlier:
     residual_um: float
     w: float
     where: str = ""
+    group: int | None = None
+    group_size: int = 1
+    group_lines: tuple = ()
+    w_after: float = float("nan")
 
     def describe(self) -> str:
-        """One line naming the reading: line, run, step, stations and w."""
+        """One line naming the reading: line, run, step, stations, w and the diagnosis."""
         span = f"{self.station_from} -> {self.station_to}" if self.station_from else self.station_to
-        return (
+        text = (
             f"line {self.line!r}, run {self.run}, step {self.step} ({span}): reading {self.reading:g}, "
             f"residual {self.residual_um:+.3f} µm, w = {self.w:+.2f}"
         )
+        if self.group is not None and self.group >= 1 and self.group_size > 1:
+            lines = " and ".join(repr(n) for n in self.group_lines)
+            text += (
+                f"; one of {self.group_size} readings of line{'s' if len(self.group_lines) > 1 else ''} {lines} "
+                "that this layout cannot tell apart"
+            )
+        elif self.group == 0:
+            text += f"; flagged only through a suspect reading's error (w = {self.w_after:+.2f} once it is set aside)"
+        return text
 
 
 @dataclass(frozen=True, eq=False)
@@ -314,6 +376,10 @@ class Reduction:
         ``w`` of every observation (NaN where it cannot be tested).
     moody : object or None
         The :class:`flatcheck.moody.MoodyResult` for ``method="moody"``.
+    standardized_residual_after : ndarray, shape (n_obs,), or None
+        ``w`` of every observation once the suspect readings found by iterated
+        data snooping are set aside (NaN for the suspects and where it cannot be
+        tested); ``None`` when not diagnosed (Moody, large networks).
     """
 
     heightmap: HeightMap
@@ -332,6 +398,7 @@ class Reduction:
     redundancy_numbers: np.ndarray
     standardized_residual: np.ndarray
     moody: object = None
+    standardized_residual_after: np.ndarray | None = None
 
 
 # --------------------------------------------------------------------------- the model
@@ -829,13 +896,143 @@ def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -
     return tuple(out)
 
 
-def _outliers(model: _Model, r: np.ndarray, w_std: np.ndarray) -> tuple:
+def _steps_text(steps) -> str:
+    """``[1, 2, 3, 5]`` -> ``"steps 1-3, 5"`` (1-based step numbers)."""
+    steps = sorted(set(int(k) for k in steps))
+    parts, start, prev = [], steps[0], steps[0]
+    for k in steps[1:] + [None]:
+        if k is not None and k == prev + 1:
+            prev = k
+            continue
+        parts.append(f"{start}-{prev}" if prev > start else f"{start}")
+        if k is not None:
+            start = prev = k
+    return ("steps " if len(steps) > 1 else "step ") + ", ".join(parts)
+
+
+def _group_text(model: _Model, members: np.ndarray) -> tuple[str, tuple]:
+    """Words naming a group of readings by line, run and steps, and the lines' names."""
+    survey, obs = model.survey, model.obs
+    by_line: dict = {}
+    for k in members:
+        by_line.setdefault(int(obs.line[k]), {}).setdefault(int(obs.run[k]), []).append(int(obs.step[k]) + 1)
+    parts, names = [], []
+    for li in sorted(by_line):
+        name = survey.lines[li].name
+        names.append(name)
+        runs = by_line[li]
+        parts.append(", ".join(f"run {ri + 1}, {_steps_text(runs[ri])}" for ri in sorted(runs)))
+    if len(names) == 1:
+        return f"line {names[0]!r}, {parts[0]}", tuple(names)
+    items = [f"{n!r} ({p})" for n, p in zip(names, parts)]
+    return "lines " + ", ".join(items[:-1]) + " and " + items[-1], tuple(names)
+
+
+def _snoop(model: _Model, K, r: np.ndarray, red: np.ndarray, w_std: np.ndarray, sigma_um: np.ndarray,
+           apriori: bool, dof: int):
+    """Iterated data snooping (module notes).
+
+    Returns ``(groups, w_after)``: the suspect groups (index arrays, in the order found;
+    each holds the readings with the same ``|w|``, which the layout cannot tell apart)
+    and ``w`` of every reading once they are set aside (NaN for the suspects, for
+    untestable readings, and for every reading when ``K`` is None: only the largest
+    group is then named).
+    """
+    m = r.size
+    a = np.abs(w_std)
+    a[~np.isfinite(a)] = 0.0
+    if m == 0 or a.max() <= OUTLIER_THRESHOLD:
+        return [], np.where(np.isfinite(w_std), w_std, np.nan)
+    if K is None:  # no dense operator: name the top group only
+        k = int(np.argmax(a))
+        return [np.flatnonzero(np.abs(a - a[k]) <= _TIE_RTOL * a[k])], np.full(m, np.nan)
+    sw = np.sqrt(model.w)
+    vt = sw * r  # residuals in the symmetric form W^1/2 r
+    st = sigma_um * sw  # sigma in that form (constant when the weights follow sigma)
+    omega = float(vt @ vt)
+    w_cur = w_std.copy()
+    red_now = red.copy()
+    suspect = np.zeros(m, dtype=bool)
+    groups, reps, cols = [], [], []
+
+    def cols_now(k):
+        if not cols:
+            return 0.0
+        C = np.column_stack(cols)
+        return C @ np.linalg.solve(C[reps], C[k])
+    for _ in range(_SNOOP_MAX_GROUPS):
+        a = np.abs(w_cur)
+        a[~np.isfinite(a) | suspect] = 0.0
+        k = int(np.argmax(a))
+        if a[k] <= OUTLIER_THRESHOLD:
+            break
+        c = -np.asarray(model.A @ K[:, k]).ravel() * sw / sw[k]  # column k of R (symmetric form)
+        c[k] += 1.0
+        # readings whose residuals are perfectly correlated with k's, once the earlier suspects are
+        # set aside (column k of R - C M^-1 C^T): the layout cannot tell them from k
+        c_now = c - cols_now(k)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            rho = c_now / np.sqrt(np.clip(red_now, 1e-300, None) * max(red_now[k], 1e-300))
+        members = np.flatnonzero((np.abs(rho) >= 1.0 - _TIE_RTOL) & (red_now > 1e-8))
+        members = np.union1d(members, [k]).astype(np.int64)
+        groups.append(members)
+        suspect[members] = True
+        reps.append(k)
+        if not apriori and dof - len(reps) < 1:
+            w_cur = np.full(m, np.nan)  # nothing left to estimate sigma from
+            break
+        cols.append(c)
+        C = np.column_stack(cols)
+        M = C[reps]
+        try:
+            coef = np.linalg.solve(M, vt[reps])
+            CMi = np.linalg.solve(M, C.T).T
+        except np.linalg.LinAlgError:  # pragma: no cover - reps are independent by construction
+            break
+        v2 = vt - C @ coef
+        red2 = red - np.einsum("ij,ij->i", CMi, C)
+        red_now = np.clip(red2, 0.0, None)
+        if apriori:
+            s2 = st
+        else:
+            s0sq = (omega - float(vt[reps] @ coef)) / (dof - len(reps))
+            if not s0sq > 1e-24 * max(omega, 1e-300):
+                w_cur = np.full(m, np.nan)
+                break
+            s2 = np.sqrt(s0sq)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            w_cur = v2 / (s2 * np.sqrt(np.clip(red2, 0.0, None)))
+        w_cur[~(red2 > np.maximum(1e-8, 1e-6 * red))] = np.nan
+    w_after = w_cur.copy()
+    w_after[suspect] = np.nan
+    return groups, w_after
+
+
+def _outliers(model: _Model, r: np.ndarray, w_std: np.ndarray, groups=(), w_after=None, diagnosed=True) -> tuple:
+    """Flagged readings: the suspect groups first (in the order found, each in line, run and
+    step order), then the others by decreasing ``|w|``."""
     survey = model.survey
     obs = model.obs
+    m = r.size
+    if w_after is None:
+        w_after = np.full(m, np.nan)
     flag = np.flatnonzero(np.abs(np.nan_to_num(w_std)) > OUTLIER_THRESHOLD)
-    flag = flag[np.argsort(-np.abs(w_std[flag]))]
+    group_of = {}
+    info = []
+    order = []
+    for g, members in enumerate(groups, start=1):
+        members = np.asarray(members)
+        members = members[np.lexsort((obs.step[members], obs.run[members], obs.line[members]))]
+        _, names = _group_text(model, members)
+        info.append((members.size, names))
+        for k in members:
+            group_of[int(k)] = g
+            order.append(int(k))
+    rest = np.array([k for k in flag if int(k) not in group_of], dtype=np.int64)
+    rest = rest[np.argsort(-np.abs(w_std[rest]), kind="stable")]
+    order += [int(k) for k in rest]
     out = []
-    for k in flag:
+    for k in order:
         ln = survey.lines[int(obs.line[k])]
         run = ln.runs[int(obs.run[k])]
         st = int(obs.step[k])
@@ -843,6 +1040,10 @@ def _outliers(model: _Model, r: np.ndarray, w_std: np.ndarray) -> tuple:
             s_from, s_to = "", ln.stations[st]
         else:
             s_from, s_to = ln.stations[st], ln.stations[st + 1]
+        g = group_of.get(k)
+        if g is None and diagnosed and np.isfinite(w_after[k]) and abs(w_after[k]) <= OUTLIER_THRESHOLD:
+            g = 0
+        size, names = info[g - 1] if g else (1, ())
         out.append(
             Outlier(
                 line=ln.name,
@@ -854,9 +1055,111 @@ def _outliers(model: _Model, r: np.ndarray, w_std: np.ndarray) -> tuple:
                 residual_um=float(r[k]),
                 w=float(w_std[k]),
                 where=run.where or f"line {ln.name!r}, run {int(obs.run[k]) + 1}",
+                group=g,
+                group_size=int(size),
+                group_lines=tuple(names),
+                w_after=float(w_after[k]),
             )
         )
     return tuple(out)
+
+
+def _outlier_warnings(model: _Model, outliers: tuple, groups, w_std: np.ndarray, diagnosed: bool) -> list:
+    """What the flagged readings say: each suspect group named, and how many were flagged."""
+    if not outliers:
+        return []
+    m = w_std.size
+    out = []
+    a = np.abs(w_std)
+    for g, members in enumerate(groups, start=1):
+        text, names = _group_text(model, np.asarray(members))
+        w_top = float(np.nanmax(a[members]))
+        rank = f"largest |w| = {w_top:.2f}" if g == 1 else f"|w| = {w_top:.2f}, the largest once the suspects above are set aside"
+        if len(members) == 1:
+            o = next(o for o in outliers if o.group == g)
+            out.append(
+                f"suspect reading ({rank}): {o.describe()}; probably mis-keyed or misread: check "
+                "it against the record, or re-read that step"
+            )
+        else:
+            them = "the line" if len(names) == 1 else "these lines"
+            it = "it" if len(names) == 1 else "them"
+            out.append(
+                f"suspect readings ({rank}, shared by {len(members)} readings): one of the "
+                f"readings of {text} is probably wrong, and this layout cannot tell which; re-read {them}, or walk "
+                f"{it} forward and back so that each reading is checked against its repeat"
+            )
+    n_flag = len(outliers)
+    n_suspect = sum(1 for o in outliers if o.group is not None and o.group >= 1)
+    n_through = sum(1 for o in outliers if o.group == 0)
+    n_left = n_flag - n_suspect - n_through
+    head = f"{n_flag} of {m} readings exceed |w| > {OUTLIER_THRESHOLD} (standardised residual)"
+    if not diagnosed:
+        head += "; the network is too large to set suspects aside and test again, so some may be flagged only " \
+                "through another reading's error"
+    elif n_through and not n_left:
+        head += f"; {n_through} of them only through the suspect reading(s) named: with those set aside, none of these exceeds it"
+    elif n_through or n_left:
+        head += (
+            f"; with the suspect reading(s) set aside, {n_through} fall within the limit and {n_left} still exceed it"
+        )
+    out.append(head)
+    return out
+
+
+def _weak_lines(model: _Model, red: np.ndarray, sigma_reading: float) -> list:
+    """Lines whose readings are barely checked (redundancy number below WEAK_REDUNDANCY) or not at all."""
+    survey, obs = model.survey, model.obs
+    unit = survey.instrument.unit
+    weak, unchecked = {}, {}
+    for li, ln in enumerate(survey.lines):
+        r_line = red[obs.line == li]
+        if r_line.size == 0:
+            continue
+        n_zero = int(np.sum(r_line <= 1e-8))
+        low = r_line[(r_line > 1e-8) & (r_line < WEAK_REDUNDANCY)]
+        if n_zero:
+            share = "" if n_zero == r_line.size else f"{n_zero} of {r_line.size} readings"
+            unchecked.setdefault(share, []).append(ln.name)
+        if low.size:
+            share = "" if low.size == r_line.size else f"{low.size} of {r_line.size} readings, "
+            weak.setdefault((round(float(low.min()), 3), share), []).append((ln.name, float(low.min())))
+    if survey.instrument.reads_heights:
+        fix = "read {them} again (a second run), so that each height is checked against its repeat"
+    else:
+        fix = "walk {them} forward and back, or add a run, so that each reading is checked against its repeat"
+    out = []
+    if weak:
+        has_sigma = bool(np.isfinite(sigma_reading) and sigma_reading > 0)
+        parts = []
+        for (r_min, share) in sorted(weak):
+            names = " and ".join(repr(n) for n, _ in weak[(r_min, share)])
+            mdb = ""
+            if has_sigma:  # Baarda's minimal detectable error, 0.1 % level and 80 % power
+                r_low = min(r for _, r in weak[(r_min, share)])
+                mdb = f", {_DELTA0 * sigma_reading / np.sqrt(r_low):.2g} {unit}"
+            parts.append(f"{names} ({share}redundancy number {'down to ' if share else ''}{r_min:.3f}{mdb})")
+        many = sum(len(v) for v in weak.values()) > 1
+        why = (
+            " (a wrong reading there is found reliably only when it is off by more than the amount given)"
+            if has_sigma else " (a wrong reading there can pass unseen)"
+        )
+        out.append(
+            f"weakly checked line{'s' if many else ''}{why}: " + "; ".join(parts) + ". "
+            + fix.format(them="them" if many else "it").capitalize()
+        )
+    if unchecked:
+        parts = []
+        for share in sorted(unchecked):
+            names = ", ".join(repr(n) for n in unchecked[share])
+            parts.append(f"{names}" + (f" ({share})" if share else ""))
+        many = sum(len(v) for v in unchecked.values()) > 1
+        out.append(
+            f"readings not checked at all (redundancy number 0): line{'s' if many else ''} " + "; ".join(parts)
+            + ": a wrong reading there cannot be seen; " + fix.format(them="them" if many else "it")
+            + ", or add a line that crosses them"
+        )
+    return out
 
 
 def _sigma0(model: _Model, r: np.ndarray, dof: int) -> tuple[float, float]:
@@ -869,12 +1172,17 @@ def _sigma0(model: _Model, r: np.ndarray, dof: int) -> tuple[float, float]:
     return s0, s0 / (model.ref_base_mm * 1e3 * model.slope_factor)
 
 
-def _standardize(model: _Model, r: np.ndarray, red: np.ndarray, sigma0_um: float) -> np.ndarray:
+def _obs_sigma(model: _Model, sigma0_um: float) -> tuple[np.ndarray, bool]:
+    """Standard deviation of each observation (µm) used by the test, and whether it is stated a priori."""
     inst = model.survey.instrument
     if inst.reading_uncertainty is not None and inst.reading_uncertainty > 0:
-        sigma = inst.reading_uncertainty * np.abs(model.obs.um_per_unit)  # Baarda: a-priori sigma
-    else:
-        sigma = sigma0_um / np.sqrt(model.w)  # Pope: a-posteriori sigma
+        return inst.reading_uncertainty * np.abs(model.obs.um_per_unit), True  # Baarda: a-priori sigma
+    return sigma0_um / np.sqrt(model.w), False  # Pope: a-posteriori sigma
+
+
+def _standardize(model: _Model, r: np.ndarray, red: np.ndarray, sigma0_um: float) -> np.ndarray:
+    inst = model.survey.instrument
+    sigma, _ = _obs_sigma(model, sigma0_um)
     with np.errstate(invalid="ignore", divide="ignore"):
         w = r / (sigma * np.sqrt(red))
     w[~(red > 1e-8)] = np.nan
@@ -955,6 +1263,7 @@ def _least_squares(survey: Survey) -> Reduction:
         )
     # operator and redundancy numbers
     operator = None
+    K = None
     n_unk = n + p
     if m <= _OPERATOR_MAX_OBS and n_unk <= _OPERATOR_MAX_UNKNOWNS:
         K = solver.operator()
@@ -971,11 +1280,14 @@ def _least_squares(survey: Survey) -> Reduction:
     if dof <= 0:
         warnings.append("the readings have no redundancy, so they cannot be checked: add lines or repeat runs")
     w_std = _standardize(model, r, red, sigma0_um)
-    outliers = _outliers(model, r, w_std)
-    if outliers:
-        warnings.append(
-            f"{len(outliers)} reading(s) exceed |w| > {OUTLIER_THRESHOLD}; the largest: {outliers[0].describe()}"
-        )
+    sigma_um, apriori = _obs_sigma(model, sigma0_um)
+    groups, w_after = _snoop(model, K, r, red, w_std, sigma_um, apriori, dof)
+    outliers = _outliers(model, r, w_std, groups, w_after, diagnosed=K is not None)
+    warnings += _outlier_warnings(model, outliers, groups, w_std, diagnosed=K is not None)
+    if K is not None and dof > 0:
+        inst = model.survey.instrument
+        s_read = float(inst.reading_uncertainty) if apriori else sigma0_reading
+        warnings += _weak_lines(model, red, s_read)
     return Reduction(
         heightmap=_heightmap(survey, h, _label(survey)),
         method="least-squares",
@@ -992,6 +1304,7 @@ def _least_squares(survey: Survey) -> Reduction:
         rank=info,
         redundancy_numbers=red,
         standardized_residual=w_std,
+        standardized_residual_after=w_after if K is not None else None,
     )
 
 

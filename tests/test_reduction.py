@@ -502,3 +502,197 @@ def test_turned_level_measures_its_zero():
     A = np.column_stack([np.ones_like(truth), red.heightmap.x_mm, red.heightmap.y_mm])
     truth = truth - A @ np.linalg.lstsq(A, truth, rcond=None)[0]
     assert np.allclose(red.heightmap.height_um, truth, atol=1e-9)
+
+
+# ------------------------------------------------------------------ mis-keyed readings on a Union Jack
+UJ_AC = Instrument("autocollimator", "arcsec", reading_uncertainty=0.15)
+# the main sample's layout: sides and W-E read forward and back, the other lines once
+UJ_RUNS = {"SW-SE": ("forward", "reverse"), "NW-NE": ("forward", "reverse"), "W-E": ("forward", "reverse")}
+
+
+def _uj_survey(runs=UJ_RUNS, noise_sd=0.0, inst=UJ_AC):
+    p = plan_union_jack(1000, 630, 100, margin_mm=30, instrument=inst)
+    assert (p.meta["layout"]["steps_x"], p.meta["layout"]["steps_y"], p.meta["layout"]["steps_diagonal"]) == (8, 4, 8)
+    return simulate_survey(p, surface_um, runs=runs, instrument_zero="random", noise_sd=noise_sd, rng=21)
+
+
+def _miskey(s, line, step, add, run=0):
+    """The survey with ``add`` (reading units) added to reading ``step`` (1-based, as written) of a run."""
+    lines = list(s.lines)
+    li = next(i for i, ln in enumerate(lines) if ln.name == line)
+    runs = list(lines[li].runs)
+    r = list(runs[run].readings)
+    r[step - 1] += add
+    runs[run] = dataclasses.replace(runs[run], readings=tuple(r))
+    lines[li] = dataclasses.replace(lines[li], runs=tuple(runs))
+    return dataclasses.replace(s, lines=tuple(lines))
+
+
+def _residual_correlation(s):
+    """Correlation of the residuals of every pair of readings, from numpy's pseudo-inverse (reference).
+
+    R = I - W^1/2 A N^+ A^T W^1/2 is the projector of the weighted residuals; rho_jk = R_jk / sqrt(R_jj R_kk).
+    """
+    A, w, _ = dense_design(s)
+    sw = np.sqrt(w)
+    As = A * sw[:, None]
+    R = np.eye(A.shape[0]) - As @ np.linalg.pinv(As.T @ As) @ As.T
+    d = np.sqrt(np.clip(np.diag(R), 1e-30, None))
+    return R / d[:, None] / d[None, :], np.diag(R)
+
+
+def _indistinguishable(s, k):
+    """Readings the layout cannot tell from reading k: |rho| = 1 (numpy reference)."""
+    rho, _ = _residual_correlation(s)
+    return set(np.flatnonzero(np.abs(rho[k]) > 1 - 1e-9).tolist())
+
+
+def _obs_index(s, line, step, run=0):
+    obs = observations(s)
+    li = next(i for i, ln in enumerate(s.lines) if ln.name == line)
+    return int(np.flatnonzero((obs.line == li) & (obs.run == run) & (obs.step == step - 1))[0])
+
+
+def test_union_jack_miskeyed_diagonal_names_both_diagonals_not_one_by_luck():
+    # SW-NE step 3 keyed 71.24 for 17.24 (+54 arcsec). In a Union Jack read once along the diagonals, the
+    # two diagonals check the network only through the sum of their mid-point heights (their difference
+    # is the plate's twist), so the 16 readings of both have perfectly correlated residuals (numpy
+    # reference below): the message must name that group and say it cannot tell which.
+    s = _uj_survey()
+    bad = _miskey(s, "SW-NE", 3, 54.0)
+    red = reduce_survey(bad)
+    k = _obs_index(bad, "SW-NE", 3)
+    group = _indistinguishable(bad, k)
+    obs = observations(bad)
+    assert {s.lines[int(obs.line[j])].name for j in group} == {"SW-NE", "SE-NW"} and len(group) == 16
+    suspects = [o for o in red.outliers if o.group == 1]
+    assert len(suspects) == 16 and {o.line for o in suspects} == {"SW-NE", "SE-NW"}
+    assert red.outliers[: len(suspects)] == tuple(suspects)
+    # equal |w| to ~1e-7: the tangent of the angle unit is not quite linear over a 54 arcsec error
+    assert np.ptp([abs(o.w) for o in suspects]) < 1e-6 * abs(suspects[0].w)
+    # every other flagged reading is flagged only through that error
+    assert len(red.outliers) > 40
+    assert all(o.group == 0 and abs(o.w_after) <= OUTLIER_THRESHOLD for o in red.outliers[16:])
+    first = red.warnings[0]
+    assert "'SW-NE' (run 1, steps 1-8) and 'SE-NW' (run 1, steps 1-8)" in first
+    assert "cannot tell which" in first and "forward and back" in first
+    assert f"{len(red.outliers)} of {obs.value_um.size} readings exceed" in red.warnings[1]
+    assert "one of 16 readings of lines 'SW-NE' and 'SE-NW' that this layout cannot tell apart" in suspects[0].describe()
+
+
+def test_union_jack_miskeyed_centre_line_names_the_line():
+    # S-N 9.63 keyed 6.93 (-2.7 arcsec, 18 sigma): S-N is read once between S, C and N, so its four
+    # readings always have the same |w| (they differ only by sign): the line is named, not a step.
+    s = _uj_survey()
+    bad = _miskey(s, "S-N", 3, -2.7)
+    red = reduce_survey(bad)
+    k = _obs_index(bad, "S-N", 3)
+    obs = observations(bad)
+    assert {s.lines[int(obs.line[j])].name for j in _indistinguishable(bad, k)} == {"S-N"}
+    suspects = [o for o in red.outliers if o.group == 1]
+    assert [(o.line, o.step) for o in suspects] == [("S-N", 1), ("S-N", 2), ("S-N", 3), ("S-N", 4)]
+    first = red.warnings[0]
+    assert "one of the readings of line 'S-N', run 1, steps 1-4" in first and "cannot tell which" in first
+    assert "re-read the line, or walk it forward and back" in first
+
+
+def test_union_jack_miskeyed_side_found_or_said_to_be_weakly_checked():
+    s = _uj_survey()
+    # +2.7 arcsec on SW-NW (18 sigma of 0.15 arcsec): the side's redundancy number is about 0.03, so the
+    # test cannot see it. Baarda's minimal detectable error delta0 * sigma / sqrt(r), delta0 = 4.13
+    # (0.1 % level, 80 % power), is above 2.7 arcsec: the weak line must be named with that figure.
+    small = reduce_survey(_miskey(s, "SW-NW", 3, 2.7))
+    k = _obs_index(s, "SW-NW", 3)
+    _, r_ref = _residual_correlation(s)
+    assert small.redundancy_numbers[k] == pytest.approx(r_ref[k], abs=1e-9) and r_ref[k] < 0.1
+    mdb = 4.1321 * 0.15 / np.sqrt(r_ref[k])
+    assert mdb > 2.7
+    weak = [w for w in small.warnings if w.startswith("weakly checked")]
+    assert len(weak) == 1 and "'SW-NW'" in weak[0] and "'SE-NE'" in weak[0]
+    assert f"{mdb:.2g} arcsec" in weak[0] and "forward and back" in weak[0]
+    assert "'S-N'" not in weak[0] and "'W-E'" not in weak[0]  # 0.115 and 0.53: checked
+    # +10 arcsec is found: SW-NW and SE-NE enter the checks only through their sum, so both are named
+    big = reduce_survey(_miskey(s, "SW-NW", 3, 10.0))
+    suspects = [o for o in big.outliers if o.group == 1]
+    assert {o.line for o in suspects} == {"SW-NW", "SE-NE"} and len(suspects) == 8
+    assert {(o.line, o.step) for o in suspects} >= {("SW-NW", 3)}
+    assert "'SW-NW' (run 1, steps 1-4) and 'SE-NE' (run 1, steps 1-4)" in big.warnings[0]
+
+
+def test_union_jack_miskeyed_reading_on_a_line_walked_twice_is_named_exactly():
+    # W-E is read forward and back: each reading is checked against its repeat, so a swapped pair of
+    # digits is pinned to one reading (Baarda's w test, largest |w|), with noise on every reading.
+    s = _uj_survey(noise_sd=0.15)
+    bad = _miskey(s, "W-E", 6, 3.0, run=1)  # run 2 was walked E -> W: its 6th reading is step 3
+    red = reduce_survey(bad)
+    top = red.outliers[0]
+    assert (top.line, top.run, top.step, top.group, top.group_size) == ("W-E", 2, 3, 1, 1)
+    assert red.warnings[0].startswith("suspect reading (largest |w| = ")
+    assert "line 'W-E', run 2, step 3" in red.warnings[0]
+
+
+def test_set_aside_update_matches_a_readjustment_with_the_bias_as_unknown():
+    # Two mis-keyed readings on a level grid: iterated data snooping finds both. The w of the other
+    # readings once they are set aside equals the w test of an adjustment with one bias unknown per
+    # suspect (numpy pseudo-inverse of the augmented dense design; a-posteriori sigma re-estimated
+    # with m - rank - 2 degrees of freedom, as in Pope's tau test).
+    p = plan_grid(800, 700, 100, margin_mm=50, instrument=Instrument("level", "um/m"))
+    s = simulate_survey(p, surface_um, noise_sd=0.2, rng=11)
+    bad = _miskey(_miskey(s, "row-3", 4, 9.0), "col-C", 2, -7.0)
+    red = reduce_survey(bad)
+    ks = [_obs_index(bad, "row-3", 4), _obs_index(bad, "col-C", 2)]
+    assert [(o.line, o.step, o.group) for o in red.outliers[:2]] == [("row-3", 4, 1), ("col-C", 2, 2)]
+    A, w, l = dense_design(bad)
+    E = np.zeros((A.shape[0], 2))
+    E[ks, [0, 1]] = 1.0
+    Aa = np.hstack([A, E])
+    sw = np.sqrt(w)
+    As = Aa * sw[:, None]
+    R = np.eye(A.shape[0]) - As @ np.linalg.pinv(As.T @ As) @ As.T
+    v = R @ (l * sw)
+    dof = A.shape[0] - np.linalg.matrix_rank(Aa)
+    s0 = np.sqrt(v @ v / dof)
+    rdiag = np.diag(R)
+    ok = rdiag > 1e-8
+    w_ref = np.full(l.size, np.nan)
+    w_ref[ok] = v[ok] / (s0 * np.sqrt(rdiag[ok]))
+    after = red.standardized_residual_after
+    keep = np.isfinite(w_ref)
+    keep[ks] = False
+    assert np.isnan(after[ks]).all() and keep.sum() > 80
+    np.testing.assert_allclose(after[keep], w_ref[keep], rtol=1e-6, atol=1e-9)
+    said = [w for w in red.warnings if w.startswith("suspect reading")]
+    assert "row-3" in said[0] and "col-C" in said[1]
+    assert "the largest once the suspects above are set aside" in said[1]
+
+
+def test_set_aside_update_with_stated_sigma_matches_numpy():
+    # The smeared case: one gross error on a diagonal with the instrument's stated sigma (Baarda). Once
+    # the suspect is set aside (a bias unknown for it), w of every reading equals the w test of that
+    # augmented adjustment (numpy pseudo-inverse reference), and none exceeds the limit.
+    s = _uj_survey(noise_sd=0.15)
+    bad = _miskey(s, "SW-NE", 3, 54.0)
+    red = reduce_survey(bad)
+    k = _obs_index(bad, "SW-NE", 3)
+    A, w, l = dense_design(bad)
+    # the linearised observations of the adjustment (angle zero moved inside the tangent) are what
+    # the residuals refer to: take them from the reduction's own residuals and design
+    obs = observations(bad)
+    sigma = 0.15 * np.abs(obs.um_per_unit) * np.sqrt(w)  # stated sigma in the weighted form
+    sw = np.sqrt(w)
+    # a bias on reading k: any reading of the suspect group spans the same (their columns of R are parallel)
+    E = np.zeros((A.shape[0], 1))
+    E[k, 0] = 1.0
+    As = np.hstack([A, E]) * sw[:, None]
+    R = np.eye(A.shape[0]) - As @ np.linalg.pinv(As.T @ As) @ As.T
+    v = R @ (red.residual_um * sw)  # R projects the first adjustment's residuals as it would the data
+    rdiag = np.diag(R)
+    ok = rdiag > 1e-6
+    w_ref = np.full(l.size, np.nan)
+    w_ref[ok] = v[ok] / (sigma[ok] * np.sqrt(rdiag[ok]))
+    after = red.standardized_residual_after
+    both = np.isfinite(after)
+    assert both.sum() > 40 and not np.isfinite(after[k])
+    assert np.array_equal(both, ok)  # the 16 diagonal readings are set aside together
+    np.testing.assert_allclose(after[both], w_ref[both], rtol=1e-6, atol=1e-9)
+    assert np.all(np.abs(after[both]) <= OUTLIER_THRESHOLD)
