@@ -83,6 +83,7 @@ __all__ = [
     "ROOM_TEMPERATURE_K",
     "STANDARD_AMBIENT_KPA",
     "FILM_ASSUMPTIONS",
+    "CARRIAGE_FILM_ASSUMPTION",
     "MAX_MESH_CELLS",
     "KG_S_TO_MG_S",
     "curve_table_rows",
@@ -250,6 +251,12 @@ class PorousFeed(_AirSupply):
 
 #: Ratio of specific heats of air (diatomic ideal gas, 7/5), used by the orifice nozzle formula.
 AIR_HEAT_CAPACITY_RATIO = 1.4
+
+#: Stated with every carriage film result (the pads are solved one by one).
+CARRIAGE_FILM_ASSUMPTION = (
+    "each pad is solved on its own at a fixed load (the given load per pad, or what it carries at its nominal gap "
+    "over a flat guide): no load is shared between the pads through the rigid carriage"
+)
 
 #: The orifice model's assumptions, stated in every orifice-fed result (the CLI prints them).
 ORIFICE_ASSUMPTIONS = (
@@ -1888,7 +1895,13 @@ class BearingFilm:
             mf = t.min_film_um[i] if t.converged[i] else -np.inf
             if best is None or mf < best[0]:
                 best = (mf, p)
-        p = best[1]
+        return self._pad_at(best[1], i)
+
+    def station_pads(self, i: int) -> list:
+        """Film at station ``i`` for every active pad, in the carriage's order (dicts as :meth:`station`)."""
+        return [self._pad_at(p, i) for p in self.pads]
+
+    def _pad_at(self, p, i: int) -> dict:
         t = p.travel
         return {
             "pad": p.name,
@@ -1976,9 +1989,10 @@ def bearing_film(
         if curve is None:
             curve = flat_guide_curve(mesh, feed, default_curve_gaps_um(p.pad.gap_um))
             curve_pad, curve_gap = p.name, p.pad.gap_um
+    base = ORIFICE_ASSUMPTIONS if isinstance(feed, OrificeFeed) else FILM_ASSUMPTIONS
     return BearingFilm(
         feed=feed, pivot=bool(pivot), x_mm=xs, pads=tuple(out), curve=curve, curve_pad=curve_pad, mesh_cells=int(n),
-        meshes=tuple(meshes.values()), curve_gap_um=curve_gap,
+        assumptions=base + (CARRIAGE_FILM_ASSUMPTION,), meshes=tuple(meshes.values()), curve_gap_um=curve_gap,
     )
 
 

@@ -478,7 +478,8 @@ def _add_film_json(data: dict, film) -> None:
     }
     stations = jsonable(data["stations"])
     for i, st in enumerate(stations):
-        st["film"] = film.station(i)
+        st["film"] = film.station(i)  # the pad with the least film (pinned)
+        st["film_pads"] = film.station_pads(i)  # every active pad, in the carriage's order
     data["stations"] = stations
 
 

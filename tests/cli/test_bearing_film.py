@@ -244,3 +244,31 @@ def test_summary_prints_a_short_flat_guide_table(cli, flat_csv):
     stiff = [float(r.split("│")[3]) for r in rows]
     assert float(peak.split("│")[3]) == max(stiff)
     assert "mass (mg/s)" in out
+
+
+def test_every_pad_of_a_carriage_gets_its_film_per_station(cli, wavy_csv, tmp_path):
+    # two identical pads 60 mm apart in tandem: the rear pad at carriage position x sees the surface the front
+    # pad saw at x - 60, so its film there must equal the front pad's (translation of the same surface)
+    toml = tmp_path / "tandem.toml"
+    toml.write_text(
+        '[bearing]\npad = "40x20"\ngap_um = 8\n[carriage]\ntravel_start_mm = 60\ntravel_end_mm = 140\nstep_mm = 4\n'
+        '[[carriage.pad]]\nname = "front"\nalong_mm = 30\n[[carriage.pad]]\nname = "rear"\nalong_mm = -30\n',
+        encoding="utf-8",
+    )
+    code, out, err = cli("bearing", wavy_csv, "--bearing", toml, *FILM, "--film-mesh", "16", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    stations = {round(s["x_mm"], 6): s for s in doc["stations"]}
+    for x, st in stations.items():
+        pads = st["film_pads"]
+        assert [p["pad"] for p in pads] == ["front", "rear"]
+        least = min(pads, key=lambda p: p["min_film_um"])
+        assert st["film"] == least  # the pinned entry keeps its meaning: the pad with the least film
+        if round(x + 60, 6) in stations:
+            later = stations[round(x + 60, 6)]["film_pads"][1]
+            assert later["min_film_um"] == pytest.approx(pads[0]["min_film_um"], abs=1e-4)  # Newton tolerance
+            assert later["fly_height_um"] == pytest.approx(pads[0]["fly_height_um"], abs=1e-4)
+    assert len({round(s["film_pads"][0]["min_film_um"], 4) for s in doc["stations"]}) > 3  # the waves are seen
+    assert any("no load is shared" in a for a in doc["film"]["assumptions"])
+    code, out, err = cli("bearing", wavy_csv, "--bearing", toml, *FILM, "--film-mesh", "16")
+    assert "no load is shared between the pads" in " ".join(out.split())
