@@ -81,10 +81,33 @@ def reduce_cmd(
     render_reduction(ev, doc, units.value, map_out)
 
 
+def _finite(v) -> bool:
+    """True for a real, finite number (not None, NaN, infinite or text)."""
+    try:
+        return v is not None and not isinstance(v, bool) and bool(np.isfinite(float(v)))
+    except (TypeError, ValueError):
+        return False
+
+
 def _fmt(v, units):
-    if v is None or (isinstance(v, float) and not np.isfinite(v)):
+    """A height (µm) in the display unit: 3 decimals of µm or 1 of µin; '-' when there is none."""
+    if not _finite(v):
         return "-"
-    return f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
+    text = f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
+    # a tiny negative number rounds to "-0.000": no sign on a zero
+    return text[1:] if text.startswith("-") and float(text) == 0 else text
+
+
+def _scatter_text(res: dict, units: str, reading_unit: str) -> str:
+    """One reading's standard deviation, or why there is none (no redundancy: sigma0 is NaN or missing)."""
+    s0 = res.get("sigma0_um")
+    if not _finite(s0) or not res.get("redundancy"):
+        return "no redundancy: no scatter estimate"
+    text = f"{_fmt(s0, units)} {height_unit_label(units)}"
+    s0r = res.get("sigma0_reading")
+    if _finite(s0r):
+        text += f" ({s0r:.3g} {reading_unit})"
+    return text
 
 
 def render_reduction(ev, doc, units, map_out) -> None:
@@ -135,11 +158,11 @@ def render_reduction(ev, doc, units, map_out) -> None:
     res = doc.get("residuals")
     if res:
         con.print()
-        s0 = res["sigma0_um"]
-        con.print(
-            f"  redundancy {res['redundancy']}; one reading's standard deviation from the residuals: "
-            + ("-" if s0 is None else f"{_fmt(s0, units)} {hu} ({res['sigma0_reading']:.3g} {doc['instrument']['unit']})")
-        )
+        scatter = _scatter_text(res, units, (doc.get("instrument") or {}).get("unit", ""))
+        if scatter.startswith("no redundancy"):
+            con.print(f"  redundancy {res.get('redundancy', 0)}; {scatter}")
+        else:
+            con.print(f"  redundancy {res['redundancy']}; one reading's standard deviation from the residuals: {scatter}")
         lines = doc.get("lines") or []
         if lines:
             t = Table(title=f"Lines ({hu})", title_justify="left")

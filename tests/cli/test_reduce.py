@@ -329,3 +329,40 @@ def test_refuse_overwriting_inputs_helper(tmp_path):
         refuse_overwriting_inputs({"--map-out": b, "-o": tmp_path / "." / "b.csv"}, [a])  # two outputs, one file
     with pytest.raises(OutputError, match="--map-out"):
         refuse_overwriting_inputs({"--map-out": a}, [a])
+
+
+def test_no_redundancy_says_so_instead_of_nan(cli, tmp_path):
+    # an indicator grid read once: as many readings as unknowns, so no scatter can be estimated
+    # (the summary printed "- µm (nan um)")
+    from flatcheck.layout import plan_grid
+    from flatcheck.survey import Instrument
+
+    p = _filled(tmp_path, "ind.toml", plan_grid(90, 90, 40, margin_mm=5, instrument=Instrument("indicator", "um")),
+                lambda x, y: 1e-3 * x * y)
+    code, out, err = cli("reduce", p)
+    assert code == 0, err
+    assert "no redundancy: no scatter estimate" in out
+    assert "nan" not in out.lower()
+
+
+@pytest.mark.parametrize("sigma", [float("nan"), None, "missing"])
+def test_scatter_text_without_a_value(sigma):
+    from flatcheck.cli.reduce_cmd import _scatter_text
+
+    res = {"redundancy": 0} if sigma == "missing" else {"redundancy": 0, "sigma0_um": sigma, "sigma0_reading": sigma}
+    assert _scatter_text(res, "um", "um") == "no redundancy: no scatter estimate"
+    assert _scatter_text({"redundancy": 3, "sigma0_um": 0.5, "sigma0_reading": 1.0}, "um", "arcsec") == "0.500 µm (1 arcsec)"
+
+
+def test_a_zero_never_prints_with_a_minus_sign(cli, tmp_path, monkeypatch):
+    # noise-free readings close to rounding error (about -1e-15 µm), which printed as "-0.000"
+    from flatcheck.cli.reduce_cmd import _fmt
+    from flatcheck.layout import plan_union_jack
+
+    assert _fmt(-1e-9, "um") == "0.000" and _fmt(-1e-9, "in") == "0.0" and _fmt(-0.0006, "um") == "-0.001"
+    monkeypatch.setenv("COLUMNS", "100")
+    p = _filled(tmp_path, "uj.toml", plan_union_jack(1000, 630, 100), lambda x, y: 2e-6 * (x - 500) ** 2 + 1e-3 * y)
+    for units in ("um", "in"):
+        code, out, err = cli("reduce", p, "--units", units)
+        assert code == 0, err
+        assert not re.search(r"(?<![\d.])-0\.0+(?!\d*[1-9])\b", out), out
