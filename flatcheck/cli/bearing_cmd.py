@@ -43,7 +43,7 @@ def build_carriage(
     bearing: Path | None,
     pad: str | None,
     gap_um: float | None,
-    kind: str,
+    kind: str | None,
     y_mm: float | None,
     travel_start_mm: float | None,
     travel_end_mm: float | None,
@@ -51,19 +51,21 @@ def build_carriage(
 ):
     """Carriage, gap fraction, marginal fraction and budget from a bearing file and/or options.
 
-    Options override the file: ``--pad``/``--gap-um`` replace every pad's size/gap.
+    Options override the file: ``--pad``/``--gap-um``/``--kind`` replace every pad's size/gap/kind
+    (``kind=None``: the file's kinds, or porous without a file).
     """
     if bearing is not None:
         desc = read_bearing_toml(bearing)
         carriage, fraction, marginal, budget = desc.carriage, desc.gap_fraction, desc.marginal_from, desc.budget
-        if pad is not None or gap_um is not None:
+        if pad is not None or gap_um is not None or kind is not None:
             placed = []
             for p in carriage.pads:
                 shape, length, width = (p.pad.shape, p.pad.length_mm, p.pad.width_mm)
                 if pad is not None:
                     shape, length, width = parse_pad_size(pad, where="--pad")
                 g = p.pad.gap_um if gap_um is None else gap_um
-                placed.append(dataclasses.replace(p, pad=_pad(shape, length, width, g, p.pad.kind)))
+                k = p.pad.kind if kind is None else kind
+                placed.append(dataclasses.replace(p, pad=_pad(shape, length, width, g, k)))
             carriage = dataclasses.replace(carriage, pads=tuple(placed))
     else:
         if pad is None or gap_um is None:
@@ -71,7 +73,7 @@ def build_carriage(
                 "no pad described", where="--pad/--gap-um", fix="give --pad LxW (or dD) and --gap-um, or --bearing FILE.toml"
             )
         shape, length, width = parse_pad_size(pad, where="--pad")
-        carriage = Carriage.single(_pad(shape, length, width, gap_um, kind))
+        carriage = Carriage.single(_pad(shape, length, width, gap_um, kind or "porous"))
         fraction, marginal, budget = None, None, MotionBudget()
     changes = {
         k: v
@@ -240,7 +242,9 @@ def bearing_cmd(
     input: Path = typer.Argument(..., help="Survey TOML or height-map CSV of the guide surface."),
     pad: str = typer.Option(None, "--pad", help="Pad size: LxW in mm (L along the travel), or dD for a circular pad."),
     gap_um: float = typer.Option(None, "--gap-um", help="Nominal air gap in µm."),
-    kind: PadKind = typer.Option(PadKind.porous, "--kind", help="How the pad is fed with air."),
+    kind: PadKind = typer.Option(
+        None, "--kind", help="How the pads are fed with air (default porous; overrides the bearing file's kind)."
+    ),
     bearing: Path = typer.Option(None, "--bearing", help="Bearing description (TOML): pads, carriage, travel, budget."),
     gap_fraction: float = typer.Option(
         None, "--gap-fraction", help=f"Local form limit as a fraction of the gap (default {DEFAULT_GAP_FRACTION:g}, common practice)."
@@ -300,7 +304,7 @@ def bearing_cmd(
         bearing=bearing,
         pad=pad,
         gap_um=gap_um,
-        kind=kind.value,
+        kind=None if kind is None else kind.value,
         y_mm=y_mm,
         travel_start_mm=travel_start_mm,
         travel_end_mm=travel_end_mm,
@@ -332,7 +336,8 @@ def bearing_cmd(
     orifice_opts = {"--orifice-mm": orifice_mm, "--cd": cd, "--orifices": orifices, "--pocket-mm": pocket_mm,
                     "--pocket-depth-um": pocket_depth_um}
     if any(v is not None for v in (supply_kpa, permeability_m2, layer_mm, *orifice_opts.values())):
-        feed = _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts)
+        feed = _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts,
+                     kind_given=kind is not None, from_file=bearing is not None)
         film, result = _film(surface, carriage, result, feed, load_n, not film_fixed, film_mesh, interp.value)
     label = surface.label or input.name
     if plot_out is not None:
@@ -354,7 +359,8 @@ def bearing_cmd(
             stdout_console().print(f"picture written to {plot_out}")
 
 
-def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts):
+def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts, *, kind_given=False,
+          from_file=False):
     """The film feed (porous layer or orifices) from the options; wrong-kind or missing options refused."""
     from ..film import OrificeFeed, PorousFeed, orifice_ring
 
@@ -369,14 +375,17 @@ def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_
     porous_opts = {"--permeability-m2": permeability_m2, "--layer-mm": layer_mm}
     given_orifice = [k for k, v in orifice_opts.items() if v is not None]
     given_porous = [k for k, v in porous_opts.items() if v is not None]
+    said = f" (--kind {kind})" if kind_given else (" (the bearing file's kind)" if from_file else " (the default --kind)")
     if kind == "porous" and given_orifice:
         raise InputValueError(
-            f"{', '.join(given_orifice)} {'describes' if len(given_orifice) == 1 else 'describe'} orifice pads, but the pads are porous", where="film options",
-            fix="add --kind orifice (or kind = \"orifice\" in the bearing file), or drop the orifice options",
+            f"{', '.join(given_orifice)} {'describes' if len(given_orifice) == 1 else 'describe'} orifice pads, "
+            f"but the pads are porous{said}", where="film options",
+            fix=("use --kind orifice" if kind_given else "add --kind orifice") + ", or drop the orifice options",
         )
     if kind == "orifice" and given_porous:
         raise InputValueError(
-            f"{', '.join(given_porous)} {'describes' if len(given_porous) == 1 else 'describe'} porous pads, but the pads are orifice-fed", where="film options",
+            f"{', '.join(given_porous)} {'describes' if len(given_porous) == 1 else 'describe'} porous pads, "
+            f"but the pads are orifice-fed{said}", where="film options",
             fix="use --kind porous for a porous pad, or drop the porous options",
         )
     if kind == "porous":

@@ -272,3 +272,20 @@ def test_every_pad_of_a_carriage_gets_its_film_per_station(cli, wavy_csv, tmp_pa
     assert any("no load is shared" in a for a in doc["film"]["assumptions"])
     code, out, err = cli("bearing", wavy_csv, "--bearing", toml, *FILM, "--film-mesh", "16")
     assert "no load is shared between the pads" in " ".join(out.split())
+
+
+@pytest.mark.parametrize("file_kind, option_kind", [("porous", "orifice"), ("orifice", "porous")])
+def test_kind_option_overrides_the_bearing_file(cli, flat_csv, tmp_path, file_kind, option_kind):
+    # --kind was silently ignored with --bearing, and the error then said "add --kind orifice" to a user who had
+    toml = tmp_path / "b.toml"
+    toml.write_text(f'[bearing]\npad = "d50"\ngap_um = 10\nkind = "{file_kind}"\n', encoding="utf-8")
+    feed = ORIFICE[4:] if option_kind == "orifice" else FILM[2:]
+    code, out, err = cli("bearing", flat_csv, "--bearing", toml, "--kind", option_kind, "--supply-kpa", "500", *feed,
+                         "--film-mesh", "16", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["film"]["kind"] == option_kind
+    assert all(p["pad"]["kind"] == option_kind for p in doc["carriage"]["pads"])
+    # without --kind the file's kind stands, and the message says where the kind came from
+    code, out, err = cli("bearing", flat_csv, "--bearing", toml, "--supply-kpa", "500", *feed, "--film-mesh", "16")
+    assert code == 2 and "bearing file's kind" in err and f"--kind {option_kind}" in err
