@@ -11,7 +11,7 @@ from rich.table import Table
 
 from ..evaluation import evaluate_surface
 from ..io.heightmap_csv import write_heightmap_csv
-from ..units import height_unit_label, um_to
+from ..units import MM_PER_INCH, height_unit_label, um_to
 from ._app import app
 from .common import (
     emit_json,
@@ -68,8 +68,15 @@ def reduce_cmd(
             comment=f"flatcheck reduce {input.name} ({ev.method}); heights in µm about the least-squares plane",
         )
     doc = ev.to_dict(nodes=json_out)
+    # JSON values stay in µm and mm whatever --units says (scripts rely on the *_um / *_mm keys);
+    # "units" names the unit of the *_um values, "display_units" what the summary shows.
+    doc["units"] = "um"
+    doc["display_units"] = units.value
     if units.value == "in":
-        doc["units"] = "in"
+        doc["units_note"] = (
+            "--units in changes the summary only: every *_um value is in µm and every *_mm value in mm; "
+            "flatness_uin repeats the flatness in µin"
+        )
         doc["flatness_uin"] = {
             k: (None if v is None else um_to(v, "in"))
             for k, v in doc["flatness"].items()
@@ -96,6 +103,23 @@ def _fmt(v, units):
     text = f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
     # a tiny negative number rounds to "-0.000": no sign on a zero
     return text[1:] if text.startswith("-") and float(text) == 0 else text
+
+
+def _pos(v_mm: float, units: str, *, unit: bool = True) -> str:
+    """A position (mm) in the display unit: whole mm, or inches to 0.01 in (1 in = 25.4 mm exactly)."""
+    if units == "in":
+        return f"{v_mm / MM_PER_INCH:.2f}" + (" in" if unit else "")
+    return f"{v_mm:.0f}" + (" mm" if unit else "")
+
+
+def _window_text(lf: dict, units: str) -> str:
+    """The local-flatness window in the display unit (the option takes mm)."""
+    if units != "in":
+        return lf["window"]
+    a, b = lf["length_mm"] / MM_PER_INCH, lf["width_mm"] / MM_PER_INCH
+    if lf.get("shape") == "circle":
+        return f"d{a:.2f} in ({lf['window']})"
+    return f"{a:.2f} x {b:.2f} in ({lf['window']})"
 
 
 def _scatter_text(res: dict, units: str, reading_unit: str) -> str:
@@ -152,8 +176,8 @@ def render_reduction(ev, doc, units, map_out) -> None:
     lf = doc.get("local_flatness")
     if lf:
         con.print(
-            f"  local flatness over {lf['window']}: {_fmt(lf['max_um'], units)} {hu} at x = {lf['x_mm']:.0f} mm, "
-            f"y = {lf['y_mm']:.0f} mm"
+            f"  local flatness over {_window_text(lf, units)}: {_fmt(lf['max_um'], units)} {hu} at "
+            f"x = {_pos(lf['x_mm'], units)}, y = {_pos(lf['y_mm'], units)}"
         )
     res = doc.get("residuals")
     if res:
@@ -195,10 +219,16 @@ def _render_map(con, ev, units) -> None:
             return
         Z = hm.grid_heights_um()
         cells = [[_fmt(z, units) for z in Z[j]] for j in range(ys.size - 1, -1, -1)]
-        ylab = [f"{y:g}" for y in ys[::-1]]
+        lu = "in" if units == "in" else "mm"
+        if units == "in":
+            ylab = [_pos(y, units, unit=False) for y in ys[::-1]]
+            xlab = [_pos(x, units, unit=False) for x in xs]
+        else:
+            ylab = [f"{y:g}" for y in ys[::-1]]
+            xlab = [f"{x:g}" for x in xs]
         # one character of padding each side of a cell and a rule between cells
-        cw = max(max(len(c) for row in cells for c in row), max(len(f"{x:g}") for x in xs))
-        yw = max(len("y mm"), max(len(v) for v in ylab))
+        cw = max(max(len(c) for row in cells for c in row), max(len(v) for v in xlab))
+        yw = max(len(f"y {lu}"), max(len(v) for v in ylab))
         need = yw + 3 + xs.size * (cw + 3) + 1
         if need > con.width:
             con.print(
@@ -207,12 +237,12 @@ def _render_map(con, ev, units) -> None:
             )
             return
         t = Table(
-            title=f"Height map, {hu} about the least-squares plane (rows y mm, columns x mm)",
+            title=f"Height map, {hu} about the least-squares plane (rows y {lu}, columns x {lu})",
             title_justify="left",
         )
-        t.add_column("y mm", justify="right", no_wrap=True)
-        for x in xs:
-            t.add_column(f"{x:g}", justify="right", no_wrap=True)
+        t.add_column(f"y {lu}", justify="right", no_wrap=True)
+        for x in xlab:
+            t.add_column(x, justify="right", no_wrap=True)
         for lab, row in zip(ylab, cells):
             t.add_row(lab, *row)
         con.print(t)
@@ -220,11 +250,12 @@ def _render_map(con, ev, units) -> None:
         t = Table(title=f"Station heights ({hu}, about the least-squares plane)", title_justify="left")
         for _ in range(2):
             t.add_column("station", no_wrap=True)
-            t.add_column("x mm", justify="right")
-            t.add_column("y mm", justify="right")
+            t.add_column("x in" if units == "in" else "x mm", justify="right")
+            t.add_column("y in" if units == "in" else "y mm", justify="right")
             t.add_column(hu, justify="right")
         cells = [
-            (n, f"{x:.0f}", f"{y:.0f}", _fmt(z, units)) for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
+            (n, _pos(x, units, unit=False), _pos(y, units, unit=False), _fmt(z, units))
+            for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
         ]
         half = (len(cells) + 1) // 2
         for i in range(half):

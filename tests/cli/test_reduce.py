@@ -366,3 +366,32 @@ def test_a_zero_never_prints_with_a_minus_sign(cli, tmp_path, monkeypatch):
         code, out, err = cli("reduce", p, "--units", units)
         assert code == 0, err
         assert not re.search(r"(?<![\d.])-0\.0+(?!\d*[1-9])\b", out), out
+
+
+def test_units_in_keeps_json_values_in_um_and_says_so(cli):
+    # the JSON said "units": "in" while its values were µm
+    code, js_um, _ = cli("reduce", PLATE, "--json")
+    code, js_in, err = cli("reduce", PLATE, "--json", "--units", "in")
+    assert code == 0, err
+    a, b = json.loads(js_um), json.loads(js_in)
+    assert b["units"] == "um" and b["display_units"] == "in" and a["display_units"] == "um"
+    assert "µm" in b["units_note"] and "mm" in b["units_note"]
+    assert b["nodes"] == a["nodes"] and b["flatness"] == a["flatness"] and b["local_flatness"] == a["local_flatness"]
+
+
+def test_units_in_shows_positions_in_inches(cli, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "100")
+    code, js, _ = cli("reduce", PLATE, "--json")
+    doc = json.loads(js)
+    code, out, err = cli("reduce", PLATE, "--units", "in")
+    assert code == 0, err
+    lf = doc["local_flatness"]
+    # 1 in = 25.4 mm exactly (international inch, 1959)
+    assert f"x = {lf['x_mm'] / 25.4:.2f} in, y = {lf['y_mm'] / 25.4:.2f} in" in out
+    assert f"{lf['length_mm'] / 25.4:.2f} x {lf['width_mm'] / 25.4:.2f} in" in out
+    assert "x in" in out and "x mm" not in out
+    ne = next(n for n in doc["nodes"] if n["name"] == "NE")
+    assert re.search(rf"│ NE\s+│\s+{ne['x_mm'] / 25.4:.2f} │\s+{ne['y_mm'] / 25.4:.2f} │", out), out
+    code, out, err = cli("reduce", GRID, "--units", "in")
+    xs = sorted({n["x_mm"] for n in json.loads(cli("reduce", GRID, "--json")[1])["nodes"]})
+    assert "rows y in, columns x in" in out and all(f"{x / 25.4:.2f}" in out for x in xs)
