@@ -85,6 +85,7 @@ __all__ = [
     "FILM_ASSUMPTIONS",
     "CARRIAGE_FILM_ASSUMPTION",
     "MAX_MESH_CELLS",
+    "CAPACITY_FRACTION",
     "KG_S_TO_MG_S",
     "curve_table_rows",
     "PorousFeed",
@@ -1472,16 +1473,49 @@ def _check_load(mesh, feed, load_n):
     return _check_load_area(mesh.pad_area_mm2, feed, load_n)
 
 
+#: Largest load solved, as a fraction of the closed-film load (gauge supply pressure times pad area). Near
+#: that load the film hardly throttles the air, the stiffness falls towards zero and the fly height becomes
+#: ill-conditioned; 98 % is a convention of this tool.
+CAPACITY_FRACTION = 0.98
+
+
+def _capacity_n(area_mm2, feed):
+    """Closed-film load (gauge supply pressure times area, N) and the largest load solved (N)."""
+    cap = (feed.supply_pa - feed.ambient_pa) * area_mm2 * _MM2_TO_M2
+    return cap, CAPACITY_FRACTION * cap
+
+
 def _check_load_area(area_mm2, feed, load_n):
     load = _positive(load_n, "pad load (N)", "give the load carried by the pad in newtons")
-    cap = (feed.supply_pa - feed.ambient_pa) * area_mm2 * _MM2_TO_M2
-    if load >= 0.98 * cap:
+    cap, limit = _capacity_n(area_mm2, feed)
+    if load >= limit:
         raise InputValueError(
-            f"a load of {load:g} N is beyond this pad's capacity (at most {cap:.4g} N as the film closes, "
-            "supply pressure times area)",
+            f"a load of {load:.4g} N is beyond this pad's capacity: at most {limit:.4g} N "
+            f"({100 * CAPACITY_FRACTION:.0f} % of supply pressure times area, {cap:.4g} N, where the film closes)",
             fix="raise the supply pressure, use a larger pad or share the load over more pads",
         )
     return load
+
+
+def _check_design_load(mesh, feed, pad, design_load_n, name):
+    """Refuse a pad whose film at its nominal gap carries nearly the closed-film load (no load was given)."""
+    cap, limit = _capacity_n(mesh.pad_area_mm2, feed)
+    if design_load_n < limit:
+        return
+    if isinstance(feed, OrificeFeed):
+        why = "the orifices restrict the air too little for this gap and supply"
+        change = "use smaller or fewer orifices (--orifice-mm, --orifices), a larger gap (--gap-um)"
+    else:
+        why = "the porous layer is too permeable (or too thin) for this gap and supply"
+        change = "use a less permeable or thicker layer (--permeability-m2, --layer-mm), a larger gap (--gap-um)"
+    raise InputValueError(
+        f"at its nominal gap of {pad.gap_um:g} µm, pad {name!r} would carry {design_load_n:.4g} N, "
+        f"{100 * design_load_n / cap:.1f} % of supply pressure times area ({cap:.4g} N): {why}, so the film "
+        f"hardly throttles the air and the pad would have almost no stiffness (loads above {limit:.4g} N, "
+        f"{100 * CAPACITY_FRACTION:.0f} %, are not solved)",
+        where="film options",
+        fix=f"{change}, or give the load per pad below {limit:.4g} N (--load-n)",
+    )
 
 
 # --------------------------------------------------------------------------- public API
@@ -1978,6 +2012,8 @@ def bearing_film(
             meshes[key] = _pad_mesh_for(p.pad, n, feed)
         mesh = meshes[key]
         design = solve_film(mesh, feed, fly_height_um=p.pad.gap_um)
+        if load_n is None:
+            _check_design_load(mesh, feed, p.pad, design.load_n, p.name)
         load = design.load_n if load_n is None else float(load_n)
         eq = film_equilibrium(mesh, feed, load, pivot=pivot)
         devs = [
@@ -2037,13 +2073,16 @@ def orifice_notes(feed, meshes=()) -> tuple:
 def check_carriage_load(carriage, feed: PorousFeed, load_n: float | None) -> None:
     """Raise :class:`InputValueError` when ``load_n`` (N per pad) is beyond any active pad's capacity.
 
-    The capacity bound is the closed-film load ``(ps - pa) * area``; ``None`` (the design load) always passes.
+    The bound is ``CAPACITY_FRACTION`` of the closed-film load ``(ps - pa) * area``; ``None`` (the design load)
+    passes here and is checked by :func:`bearing_film`.
     """
     if load_n is None:
         return
     for p in carriage.active_pads:
-        area = math.pi * p.pad.length_mm**2 / 4.0 if p.pad.shape == "circle" else p.pad.length_mm * p.pad.width_mm
-        _check_load_area(area, feed, load_n)
+        try:
+            _check_load_area(p.pad.area_mm2, feed, load_n)
+        except InputValueError as exc:
+            raise InputValueError(exc.message, where=f"--load-n (pad {p.name!r})", fix=exc.fix) from None
 
 
 def _film_status(ratio: float, marginal_from: float) -> str:

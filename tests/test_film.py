@@ -280,3 +280,16 @@ def test_errors_are_flatcheck_errors(disc64):
         pad_deviation(disc64, np.zeros(7))
     with pytest.raises(InputValueError):
         circular_pad_mesh(50.0, 2)
+
+
+def test_capacity_message_quotes_the_threshold_it_applies(disc64):
+    from flatcheck.film import CAPACITY_FRACTION
+
+    # closed-film load: gauge supply pressure times the pad area (elementary), on the mesh's own area
+    cap = (PS - PA) * disc64.pad_area_mm2 * 1e-6
+    limit = CAPACITY_FRACTION * cap
+    with pytest.raises(InputValueError) as exc:
+        film_equilibrium(disc64, FEED, 0.5 * (limit + cap))  # below the closed-film load, above the threshold
+    assert f"at most {limit:.4g} N" in exc.value.message
+    assert f"{cap:.4g} N" in exc.value.message
+    film_equilibrium(disc64, FEED, 0.9 * cap)  # below the threshold: solved

@@ -6,6 +6,7 @@ the I0 solution re-evaluated here with scipy.special.i0 and scipy.integrate.quad
 
 import json
 import math
+import re
 
 import numpy as np
 import pytest
@@ -289,3 +290,16 @@ def test_kind_option_overrides_the_bearing_file(cli, flat_csv, tmp_path, file_ki
     # without --kind the file's kind stands, and the message says where the kind came from
     code, out, err = cli("bearing", flat_csv, "--bearing", toml, "--supply-kpa", "500", *feed, "--film-mesh", "16")
     assert code == 2 and "bearing file's kind" in err and f"--kind {option_kind}" in err
+
+
+def test_too_permeable_layer_says_what_to_change(cli, flat_csv):
+    # k = 1e-9 m² over a 5 µm gap: the film barely throttles the air and the design load is 99 % of the closed
+    # film's; the old message quoted 100 % as the limit while refusing at 98 %, and did not say what to change
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", "--supply-kpa", "500",
+                         "--permeability-m2", "1e-9", "--layer-mm", "5", "--film-mesh", "16")
+    assert code == 2 and out == "" and err.count("\n") == 1 and "Traceback" not in err
+    assert "too permeable" in err and "--load-n" in err and "--permeability-m2" in err
+    limit = 0.98 * 500e3 * math.pi * 0.025**2  # 98 % of gauge pressure times the disc's area, N
+    quoted = [float(m) for m in re.findall(r"(?:above|below) ([0-9.]+) N", err)]
+    assert len(quoted) == 2 and quoted[0] == quoted[1]  # the threshold stated is the one offered in the fix
+    assert quoted[0] == pytest.approx(limit, rel=1e-3)  # the mesh's disc area is the exact area to 1e-3
