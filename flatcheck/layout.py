@@ -34,6 +34,7 @@ import numpy as np
 
 from .errors import LayoutError
 from .survey import Instrument, Station, Survey, SurveyLine, Surface
+from .units import MM_PER_INCH
 
 __all__ = [
     "DEFAULT_MARGIN_MM",
@@ -194,23 +195,49 @@ def _line_stations(reg: _Stations, name: str, start, end, steps: int, first: str
     return tuple(names), math.hypot(x1 - x0, y1 - y0) / steps
 
 
-def _positive(value, what: str, flag: str) -> float:
+#: Units in which the planners word their errors: the sizes are always given to them in mm, but a
+#: user who typed inches (``length_in``, ``--length-in``) reads the message in inches.
+_SIZE_UNITS = ("mm", "in")
+
+
+def _len(v_mm: float, units: str = "mm") -> str:
+    """A length given in mm, as text in ``units`` ("100 mm", "3.93701 in"; 1 in = 25.4 mm exactly)."""
+    if units == "in":
+        return f"{v_mm / MM_PER_INCH:.6g} in"
+    return f"{v_mm:g} mm"
+
+
+def _key(name_mm: str, units: str = "mm") -> str:
+    """A ``*_mm`` parameter name in ``units`` (``margin_mm`` -> ``margin_in``)."""
+    return name_mm[:-3] + "_in" if units == "in" and name_mm.endswith("_mm") else name_mm
+
+
+def _check_units(units: str) -> str:
+    if units not in _SIZE_UNITS:
+        raise LayoutError(f"length units {units!r} are not mm or in", fix="use units='mm' or units='in'")
+    return units
+
+
+def _positive(value, what: str, flag: str, units: str = "mm") -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise LayoutError(f"{what} is {value!r}, not a number", where=flag, fix=f"give {what} as a number") from None
+        raise LayoutError(f"{what} is {value!r}, not a number", where=_key(flag, units), fix=f"give {what} as a number") from None
     if not math.isfinite(v) or v <= 0:
-        raise LayoutError(f"{what} must be a positive number, got {value!r}", where=flag, fix=f"give a positive {what}")
+        shown = _len(v, units) if math.isfinite(v) else repr(value)
+        raise LayoutError(f"{what} must be a positive number, got {shown}", where=_key(flag, units), fix=f"give a positive {what}")
     return v
 
 
-def _margin(value, flag: str = "margin_mm") -> float:
+def _margin(value, flag: str = "margin_mm", units: str = "mm") -> float:
+    unit = "inches" if units == "in" else "mm"
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise LayoutError(f"margin is {value!r}, not a number", where=flag, fix="give the margin in mm") from None
+        raise LayoutError(f"margin is {value!r}, not a number", where=_key(flag, units), fix=f"give the margin in {unit}") from None
     if not math.isfinite(v) or v < 0:
-        raise LayoutError(f"margin must be zero or positive, got {value!r}", where=flag, fix="give a margin >= 0 mm")
+        shown = _len(v, units) if math.isfinite(v) else repr(value)
+        raise LayoutError(f"margin must be zero or positive, got {shown}", where=_key(flag, units), fix="give a margin of 0 or more")
     return v
 
 
@@ -221,26 +248,28 @@ def _margin(value, flag: str = "margin_mm") -> float:
 MAX_READINGS_PER_PASS = 250_000
 
 
-def _check_room(L: float, W: float, m: float) -> None:
+def _check_room(L: float, W: float, m: float, units: str = "mm") -> None:
     """Refuse a margin that leaves no surface to survey."""
     short = min(L, W)
     if 2 * m >= short:
         which = "length" if L <= W else "width"
+        typical = "1-1.5 in" if units == "in" else "25-38 mm"
         raise LayoutError(
-            f"a margin of {m:g} mm on each side leaves nothing of the {short:g} mm {which} to survey",
-            where="margin_mm",
-            fix=f"use a margin under {short / 2:g} mm (typically 25-38 mm)",
+            f"a margin of {_len(m, units)} on each side leaves nothing of the {_len(short, units)} {which} to survey",
+            where=_key("margin_mm", units),
+            fix=f"use a margin under {_len(short / 2, units)} (typically {typical})",
         )
 
 
-def _check_readings(n_readings: int, B: float) -> None:
+def _check_readings(n_readings: int, B: float, units: str = "mm") -> None:
     """Refuse a layout with more readings than anyone reads by hand (see MAX_READINGS_PER_PASS)."""
     if n_readings > MAX_READINGS_PER_PASS:
+        typical = "inches (instrument bases are usually 2-12 in)" if units == "in" else "mm (instrument bases are usually 50-300 mm)"
         raise LayoutError(
-            f"a foot spacing of {B:g} mm gives {n_readings} readings per pass, more than the "
+            f"a foot spacing of {_len(B, units)} gives {n_readings} readings per pass, more than the "
             f"{MAX_READINGS_PER_PASS} flatcheck plans",
-            where="foot_spacing_mm",
-            fix="check the foot spacing is in mm (instrument bases are usually 50-300 mm)",
+            where=_key("foot_spacing_mm", units),
+            fix=f"check the foot spacing is in {typical}",
         )
 
 
@@ -292,6 +321,7 @@ def plan_union_jack(
     instrument: Instrument = Instrument("autocollimator", "arcsec"),
     surface: Surface | None = None,
     steps: tuple | None = None,
+    units: str = "mm",
 ) -> Survey:
     """Plan a Union Jack survey (8 lines: 2 diagonals, 4 sides, 2 centre lines).
 
@@ -317,6 +347,9 @@ def plan_union_jack(
     steps : (int, int, int), optional
         ``(n_x, n_y, n_d)`` to rebuild a given layout instead of choosing the
         steps (used when reading a survey file); must fit within the margin.
+    units : {"mm", "in"}
+        The unit the user gave the sizes in: errors state lengths and name
+        parameters (``margin_in``...) in it. The sizes above are mm regardless.
 
     Returns
     -------
@@ -338,11 +371,12 @@ def plan_union_jack(
     >>> s.meta["layout"]["steps_x"], s.meta["layout"]["steps_y"], s.meta["layout"]["steps_diagonal"]
     (8, 4, 8)
     """
-    L = _positive(length_mm, "length", "length_mm")
-    W = _positive(width_mm, "width", "width_mm")
-    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm")
-    m = _margin(margin_mm)
-    _check_room(L, W, m)
+    u = _check_units(units)
+    L = _positive(length_mm, "length", "length_mm", u)
+    W = _positive(width_mm, "width", "width_mm", u)
+    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm", u)
+    m = _margin(margin_mm, units=u)
+    _check_room(L, W, m, u)
     ax, ay = L - 2 * m, W - 2 * m
     if steps is None:
         nx = _steps_fitting(ax, B, even=True)
@@ -351,9 +385,9 @@ def plan_union_jack(
             short = "length" if nx < 2 else "width"
             avail = ax if nx < 2 else ay
             raise LayoutError(
-                f"the {short} less twice the {m:g} mm margin leaves {avail:g} mm, less than 2 steps of {B:g} mm",
-                where="foot_spacing_mm",
-                fix=f"use a foot spacing of at most {max(avail, 0) / 2:g} mm or a smaller margin",
+                f"the {short} less twice the {_len(m, u)} margin leaves {_len(avail, u)}, less than 2 steps of {_len(B, u)}",
+                where=_key("foot_spacing_mm", u),
+                fix=f"use a foot spacing of at most {_len(max(avail, 0) / 2, u)} or a smaller margin",
             )
         nd = None
     else:
@@ -363,7 +397,7 @@ def plan_union_jack(
         for n, avail, what in ((nx, ax, "steps_x"), (ny, ay, "steps_y")):
             if n * B > avail + 1e-9:
                 raise LayoutError(
-                    f"{n} steps of {B:g} mm ({n * B:g} mm) do not fit in {avail:g} mm (size less twice the margin)",
+                    f"{n} steps of {_len(B, u)} ({_len(n * B, u)}) do not fit in {_len(avail, u)} (size less twice the margin)",
                     where=what,
                     fix="use fewer steps, a shorter foot spacing or a smaller margin",
                 )
@@ -376,7 +410,7 @@ def plan_union_jack(
         q = diag / B
         nd = max(2, 2 * int(round(q / 2.0)))
     bd = diag / nd
-    _check_readings(3 * nx + 3 * ny + 2 * nd, B)
+    _check_readings(3 * nx + 3 * ny + 2 * nd, B, u)
     named = {
         "SW": (x0, y0), "SE": (x1, y0), "NE": (x1, y1), "NW": (x0, y1),
         "S": (xm, y0), "E": (x1, ym), "N": (xm, y1), "W": (x0, ym), "C": (xm, ym),
@@ -421,6 +455,7 @@ def plan_grid(
     surface: Surface | None = None,
     diagonals: bool = False,
     steps: tuple | None = None,
+    units: str = "mm",
 ) -> Survey:
     """Plan a grid survey: rows along x and columns along y at pitch ``B``.
 
@@ -450,6 +485,8 @@ def plan_grid(
         Add the corner-to-corner diagonals (square grids only).
     steps : (int, int), optional
         ``(n_x, n_y)`` to rebuild a given grid instead of choosing the steps.
+    units : {"mm", "in"}
+        The unit the user gave the sizes in, for errors (see :func:`plan_union_jack`).
 
     Returns
     -------
@@ -463,11 +500,12 @@ def plan_grid(
         Bad sizes, fewer than 2 steps each way, or diagonals on a grid that is
         not square.
     """
-    L = _positive(length_mm, "length", "length_mm")
-    W = _positive(width_mm, "width", "width_mm")
-    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm")
-    m = _margin(margin_mm)
-    _check_room(L, W, m)
+    u = _check_units(units)
+    L = _positive(length_mm, "length", "length_mm", u)
+    W = _positive(width_mm, "width", "width_mm", u)
+    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm", u)
+    m = _margin(margin_mm, units=u)
+    _check_room(L, W, m, u)
     ax, ay = L - 2 * m, W - 2 * m
     if steps is None:
         nx = _steps_fitting(ax, B, even=False)
@@ -475,9 +513,9 @@ def plan_grid(
         if nx < 2 or ny < 2:
             avail = ax if nx < 2 else ay
             raise LayoutError(
-                f"the surface less twice the {m:g} mm margin leaves {avail:g} mm, less than 2 steps of {B:g} mm",
-                where="foot_spacing_mm",
-                fix=f"use a pitch of at most {max(avail, 0) / 2:g} mm or a smaller margin",
+                f"the surface less twice the {_len(m, u)} margin leaves {_len(avail, u)}, less than 2 steps of {_len(B, u)}",
+                where=_key("foot_spacing_mm", u),
+                fix=f"use a pitch of at most {_len(max(avail, 0) / 2, u)} or a smaller margin",
             )
     else:
         nx = _given_steps(steps[0], "steps_x", even=False)
@@ -485,7 +523,7 @@ def plan_grid(
         for n, avail, what in ((nx, ax, "steps_x"), (ny, ay, "steps_y")):
             if n < 2 or n * B > avail + 1e-9:
                 raise LayoutError(
-                    f"{n} steps of {B:g} mm do not fit in {avail:g} mm (size less twice the margin), or are fewer than 2",
+                    f"{n} steps of {_len(B, u)} do not fit in {_len(avail, u)} (size less twice the margin), or are fewer than 2",
                     where=what,
                     fix="use 2 or more steps that fit, a shorter pitch or a smaller margin",
                 )
@@ -497,9 +535,9 @@ def plan_grid(
             fix=f"use steps {min(nx, ny)} x {min(nx, ny)}, plan a Union Jack, or use a level (gravity sees twist)",
         )
     if instrument.reads_heights:
-        _check_readings((nx + 1) * (ny + 1), B)
+        _check_readings((nx + 1) * (ny + 1), B, u)
     else:
-        _check_readings((ny + 1) * nx + (nx + 1) * ny + (2 * nx if diagonals else 0), B)
+        _check_readings((ny + 1) * nx + (nx + 1) * ny + (2 * nx if diagonals else 0), B, u)
     x0 = (L - nx * B) / 2.0
     y0 = (W - ny * B) / 2.0
     xs = [x0 + i * B for i in range(nx + 1)]
@@ -549,6 +587,7 @@ def plan_lines(
     width_mm: float,
     instrument: Instrument = Instrument("autocollimator", "arcsec"),
     surface: Surface | None = None,
+    units: str = "mm",
 ) -> Survey:
     """Plan a survey of free straight lines.
 
@@ -565,6 +604,8 @@ def plan_lines(
         The instrument.
     surface : Surface, optional
         Description of the surface.
+    units : {"mm", "in"}
+        The unit the user gave the positions in, for errors (positions above are mm regardless).
 
     Returns
     -------
@@ -577,8 +618,9 @@ def plan_lines(
         No lines, duplicate names, fewer than 1 step, zero-length lines or
         stations off the surface.
     """
-    L = _positive(length_mm, "length", "length_mm")
-    W = _positive(width_mm, "width", "width_mm")
+    u = _check_units(units)
+    L = _positive(length_mm, "length", "length_mm", u)
+    W = _positive(width_mm, "width", "width_mm", u)
     lines = list(lines)
     if not lines:
         raise LayoutError("no lines were given", fix="give at least one line (name, start, end, steps)")
@@ -603,10 +645,12 @@ def plan_lines(
             raise LayoutError(f"steps is {steps!r}", where=f"line {name!r}", fix="give a whole number of steps >= 1")
         for (x, y), which in ((start, "start"), (end, "end")):
             if not (math.isfinite(x) and math.isfinite(y)) or x < -_TOL_MM or y < -_TOL_MM or x > L + _TOL_MM or y > W + _TOL_MM:
+                f = MM_PER_INCH if u == "in" else 1.0
+                unit = "inches" if u == "in" else "mm"
                 raise LayoutError(
-                    f"the {which} ({x:g}, {y:g}) mm is off the {L:g} x {W:g} mm surface",
+                    f"the {which} ({x / f:.6g}, {y / f:.6g}) {u} is off the {L / f:.6g} x {W / f:.6g} {u} surface",
                     where=f"line {name!r}",
-                    fix="give positions in mm from the south-west corner, inside the surface",
+                    fix=f"give positions in {unit} from the south-west corner, inside the surface",
                 )
         if math.hypot(end[0] - start[0], end[1] - start[1]) <= _TOL_MM:
             raise LayoutError("the line starts and ends at the same point", where=f"line {name!r}", fix="check start and end")

@@ -9,11 +9,11 @@ from pathlib import Path
 import typer
 from rich.table import Table
 
-from ..errors import LayoutError, OutputError
+from ..errors import InputValueError, LayoutError, OutputError
 from ..io.survey_toml import write_survey
 from ..layout import DEFAULT_MARGIN_MM, plan_grid, plan_union_jack, reading_sequence, summarize_layout
 from ..survey import Instrument, Surface
-from ..units import angle_unit, length_unit
+from ..units import MM_PER_INCH, angle_unit, length_unit
 from ._app import app
 from .common import emit_json, stdout_console
 
@@ -41,8 +41,31 @@ _OPTION_OF = {
     "width_mm": "--width-mm",
     "foot_spacing_mm": "--foot-spacing-mm",
     "margin_mm": "--margin-mm",
+    "length_in": "--length-in",
+    "width_in": "--width-in",
+    "foot_spacing_in": "--foot-spacing-in",
+    "margin_in": "--margin-in",
     "diagonals": "--diagonals",
 }
+
+#: Default margin when the sizes are given in inches: 1.25 in (31.75 mm), within the 1.0-1.5 in that
+#: common practice keeps the lines in from the edges (layout.DEFAULT_MARGIN_MM is 30 mm).
+DEFAULT_MARGIN_IN = 1.25
+
+
+def _size_mm(name: str, v_mm, v_in, *, required: bool = True):
+    """One size given as ``--<name>-mm`` or ``--<name>-in``: (value in mm or None, unit it was given in)."""
+    if v_mm is not None and v_in is not None:
+        raise InputValueError(
+            f"both --{name}-mm and --{name}-in are given", where=f"--{name}-in", fix="give the size once, in mm or in inches"
+        )
+    if v_in is not None:
+        return float(v_in) * MM_PER_INCH, "in"  # 1 in = 25.4 mm exactly
+    if v_mm is None and required:
+        raise InputValueError(
+            f"the {name.replace('-', ' ')} is missing", where=f"--{name}-mm", fix=f"give --{name}-mm (or --{name}-in in inches)"
+        )
+    return (None if v_mm is None else float(v_mm)), "mm"
 
 
 def _check_output_path(path: Path) -> None:
@@ -101,10 +124,16 @@ def _layout_warnings(survey) -> list[str]:
 @app.command("plan")
 def plan_cmd(
     pattern: Pattern = typer.Option(Pattern.union_jack, "--pattern", help="Survey pattern."),
-    length_mm: float = typer.Option(..., "--length-mm", help="Length of the surface along x (west-east), mm."),
-    width_mm: float = typer.Option(..., "--width-mm", help="Width of the surface along y (south-north), mm."),
-    foot_spacing_mm: float = typer.Option(..., "--foot-spacing-mm", help="Foot spacing (base) of the instrument, mm."),
-    margin_mm: float = typer.Option(DEFAULT_MARGIN_MM, "--margin-mm", help="Inset of the lines from the edges, mm."),
+    length_mm: float = typer.Option(None, "--length-mm", help="Length of the surface along x (west-east), mm."),
+    width_mm: float = typer.Option(None, "--width-mm", help="Width of the surface along y (south-north), mm."),
+    foot_spacing_mm: float = typer.Option(None, "--foot-spacing-mm", help="Foot spacing (base) of the instrument, mm."),
+    margin_mm: float = typer.Option(
+        None, "--margin-mm", help=f"Inset of the lines from the edges, mm (default {DEFAULT_MARGIN_MM:g})."
+    ),
+    length_in: float = typer.Option(None, "--length-in", help="Length in inches (instead of --length-mm)."),
+    width_in: float = typer.Option(None, "--width-in", help="Width in inches (instead of --width-mm)."),
+    foot_spacing_in: float = typer.Option(None, "--foot-spacing-in", help="Foot spacing in inches."),
+    margin_in: float = typer.Option(None, "--margin-in", help=f"Inset in inches (default {DEFAULT_MARGIN_IN:g} in)."),
     instrument: Kind = typer.Option(Kind.autocollimator, "--instrument", help="Instrument kind."),
     unit: str = typer.Option(None, "--unit", help="Reading unit (default: arcsec, um/m for levels, um for indicators)."),
     reports: Reports = typer.Option(Reports.mirror_tilt, "--reports", help="Autocollimators: what the scale shows."),
@@ -116,7 +145,21 @@ def plan_cmd(
     force: bool = typer.Option(False, "--force", help="Overwrite an existing output file."),
     json_out: bool = typer.Option(False, "--json", help="Print the layout as one JSON object."),
 ) -> None:
-    """Lay out a Union Jack or grid survey, show the reading order and write the blank survey file."""
+    """Lay out a Union Jack or grid survey, show the reading order and write the blank survey file.
+
+    Sizes are given in mm (--length-mm...) or in inches (--length-in...); with any size in inches the
+    blank file writes every length in inches (length_in, foot_spacing_in...) and the summary shows inches.
+    """
+    L, u_l = _size_mm("length", length_mm, length_in)
+    W, u_w = _size_mm("width", width_mm, width_in)
+    B, u_b = _size_mm("foot-spacing", foot_spacing_mm, foot_spacing_in)
+    m, u_m = _size_mm("margin", margin_mm, margin_in, required=False)
+    inches = "in" in (u_l, u_w, u_b, u_m)
+    if m is None:
+        m = DEFAULT_MARGIN_IN * MM_PER_INCH if inches else DEFAULT_MARGIN_MM
+    # layout errors name the option of the size they are about, in the unit it was given in
+    given_margin = margin_mm is not None or margin_in is not None
+    units_of = {"length": u_l, "width": u_w, "foot_spacing": u_b, "margin": u_m if given_margin else ("in" if inches else "mm")}
     kind = instrument.value
     unit = unit or _DEFAULT_UNIT[kind]
     unit = (length_unit(unit, where="--unit") if kind == "indicator" else angle_unit(unit, where="--unit")).name
@@ -125,7 +168,8 @@ def plan_cmd(
 
         raise InputValueError("--reports beam-deviation applies to autocollimators only", where="--reports", fix="omit it")
     inst = Instrument(kind, unit, reports=reports.value)
-    surface = Surface(description, length_mm, width_mm, ident=ident, material=material)
+    lu = "in" if inches else "mm"
+    surface = Surface(description, L, W, ident=ident, material=material)
     if output is not None:  # before any work: a bad output path is reported first
         if output.exists() and not force and not output.is_dir():
             raise OutputError(f"{output} exists", where="--output", fix="choose another name or add --force to overwrite it")
@@ -136,17 +180,18 @@ def plan_cmd(
                 from ..errors import InputValueError
 
                 raise InputValueError("--diagonals applies to grids only", where="--diagonals", fix="omit it (a Union Jack has them)")
-            survey = plan_union_jack(length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface)
+            survey = plan_union_jack(L, W, B, margin_mm=m, instrument=inst, surface=surface, units=lu)
         else:
-            survey = plan_grid(
-                length_mm, width_mm, foot_spacing_mm, margin_mm=margin_mm, instrument=inst, surface=surface, diagonals=diagonals
-            )
+            survey = plan_grid(L, W, B, margin_mm=m, instrument=inst, surface=surface, diagonals=diagonals, units=lu)
     except LayoutError as exc:
-        # the layout names its parameters; on the command line they are options
-        raise LayoutError(exc.message, where=_OPTION_OF.get(exc.where, exc.where), fix=exc.fix) from None
+        # the layout names its parameters; on the command line they are options, in the unit typed
+        where = exc.where
+        if isinstance(where, str) and where[:-3] in units_of and where[-3:] in ("_mm", "_in"):
+            where = f"{where[:-3]}_{units_of[where[:-3]]}"
+        raise LayoutError(exc.message, where=_OPTION_OF.get(where, where), fix=exc.fix) from None
     warnings = _layout_warnings(survey)
     if output is not None:
-        write_survey(output, survey)
+        write_survey(output, survey, inches=inches)
     for w in warnings:  # one line each, like errors, whatever the terminal's width
         sys.stderr.write(f"flatcheck: warning: {w}\n")
     summary = summarize_layout(survey)
@@ -173,32 +218,46 @@ def plan_cmd(
                     {"number": r.number, "line": r.line, "from": r.from_station, "to": r.to_station} for r in seq
                 ],
                 "output": str(output) if output is not None else None,
+                "file_lengths": "in" if inches else "mm",  # the unit of the blank file's _mm/_in keys
                 "warnings": warnings,
             }
         )
         return
     con = stdout_console()
     s = survey.surface
-    con.print(f"[bold]{survey.pattern} survey[/bold] of {s.description} {s.length_mm:g} x {s.width_mm:g} mm, "
+    if inches:  # every length shown in inches, as typed (1 in = 25.4 mm exactly)
+        def size(v_mm, digits=4):
+            return f"{v_mm / MM_PER_INCH:.{digits}g}"
+
+        def fixed(v_mm):
+            return f"{v_mm / MM_PER_INCH:.3f}"
+    else:
+        def size(v_mm, digits=None):
+            return f"{v_mm:g}"
+
+        def fixed(v_mm):
+            return f"{v_mm:.2f}"
+    con.print(f"[bold]{survey.pattern} survey[/bold] of {s.description} {size(s.length_mm, 6)} x {size(s.width_mm, 6)} {lu}, "
               f"{inst.kind} reading {inst.unit}")
     con.print(_diagram(survey), markup=False, highlight=False)
+    ext = summary.extent_mm
     con.print(
-        f"lines inset {lay['margin_mm']:g} mm or more; surveyed area x {summary.extent_mm[0]:.1f}-{summary.extent_mm[1]:.1f} mm, "
-        f"y {summary.extent_mm[2]:.1f}-{summary.extent_mm[3]:.1f} mm"
+        f"lines inset {size(lay['margin_mm'])} {lu} or more; surveyed area x {fixed(ext[0])}-{fixed(ext[1])} {lu}, "
+        f"y {fixed(ext[2])}-{fixed(ext[3])} {lu}"
     )
     if survey.pattern == "union-jack":
         con.print(
-            f"foot spacing: sides and centre lines {lay['foot_spacing_mm']:g} mm; "
-            f"diagonals [bold]{lay['diagonal_foot_spacing_mm']:.2f} mm[/bold] (a second base)"
+            f"foot spacing: sides and centre lines {size(lay['foot_spacing_mm'], 6)} {lu}; "
+            f"diagonals [bold]{fixed(lay['diagonal_foot_spacing_mm'])} {lu}[/bold] (a second base)"
         )
     elif not inst.reads_heights:
-        con.print("foot spacing: " + ", ".join(f"{b:.2f} mm" for b in summary.foot_spacings_mm))
+        con.print("foot spacing: " + ", ".join(f"{fixed(b)} {lu}" for b in summary.foot_spacings_mm))
     table = Table(title="Lines, each walked first -> last station", title_justify="left")
-    for col in ("line", "from", "to", "steps", "base mm", "readings"):
-        table.add_column(col, justify="right" if col in ("steps", "base mm", "readings") else "left")
+    for col in ("line", "from", "to", "steps", f"base {lu}", "readings"):
+        table.add_column(col, justify="right" if col in ("steps", f"base {lu}", "readings") else "left")
     for ln in survey.lines:
         n_read = len(ln.stations) if inst.reads_heights else ln.steps
-        base = "-" if inst.reads_heights else f"{ln.foot_spacing_mm:.2f}"
+        base = "-" if inst.reads_heights else fixed(ln.foot_spacing_mm)
         table.add_row(ln.name, ln.stations[0], ln.stations[-1], str(ln.steps), base, str(n_read))
     con.print(table)
     con.print(

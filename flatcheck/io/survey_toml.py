@@ -489,7 +489,11 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
     meta = dict(plan.meta)
     # where each line's readings are (file, TOML line, table), for messages about a whole line
     places = {name: ctx.where(("line", i), "readings") for i, name in enumerate(names)}
-    meta["file"] = {"positive": positive, "line_where": places}
+    inch_keys = ("length_in", "width_in", "margin_in", "foot_spacing_in")
+    inches = any(k in sd for k in inch_keys[:2]) or any(k in ld for k in inch_keys[2:]) or any(
+        isinstance(it, dict) and "start_in" in it for it in raw_lines
+    )
+    meta["file"] = {"positive": positive, "line_where": places, "inches": inches}
     return dataclasses.replace(
         plan,
         lines=tuple(lines),
@@ -524,10 +528,21 @@ def require_readings(survey: Survey) -> None:
         )
 
 
+def _twin(key: str) -> str:
+    """``margin_mm`` <-> ``margin_in``."""
+    if key.endswith("_mm"):
+        return key[:-3] + "_in"
+    if key.endswith("_in"):
+        return key[:-3] + "_mm"
+    return key
+
+
 def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Survey:
     lt = ("layout",)
     L, W = surface.length_mm, surface.width_mm
     if pattern == "lines":
+        # errors about positions speak the unit the lines' ends are written in
+        units = "in" if any(isinstance(it, dict) and ("start_in" in it or "end_in" in it) for it in raw_lines) else "mm"
         for key in ("margin_mm", "margin_in", "foot_spacing_mm", "foot_spacing_in", "steps_x", "steps_y", "steps_diagonal", "diagonals"):
             if key in ld:
                 raise InputFormatError(
@@ -545,8 +560,9 @@ def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Surv
                 key = k_in if k_in in item else k_mm
                 if key not in item:
                     raise InputFormatError(
-                        f"line {names[i]!r} has no {k_mm}", where=ctx.where(tab),
-                        fix=f"free lines need {k_mm} = [x, y] (mm from the south-west corner), the other end and steps",
+                        f"line {names[i]!r} has no {k_mm} (or {k_in})", where=ctx.where(tab),
+                        fix=f"free lines need {k_mm} = [x, y] in mm (or {k_in} in inches) from the south-west corner, "
+                        "the other end and steps",
                     )
                 v = item[key]
                 if (
@@ -564,7 +580,7 @@ def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Surv
                 )
             spec.append((names[i], ends[0], ends[1], steps))
         try:
-            return plan_lines(spec, length_mm=L, width_mm=W, instrument=instrument, surface=surface)
+            return plan_lines(spec, length_mm=L, width_mm=W, instrument=instrument, surface=surface, units=units)
         except LayoutError as exc:
             idx = next((i for i, n in enumerate(names) if exc.where and repr(n) in exc.where), None)
             where = ctx.where(("line", idx)) if idx is not None else ctx.where(lt)
@@ -572,6 +588,8 @@ def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Surv
     base = _get_length_mm(ctx, lt, ld, "foot_spacing", required=True)
     margin = _get_length_mm(ctx, lt, ld, "margin", positive=False, nonneg=True)
     kw = {} if margin is None else {"margin_mm": margin}
+    # layout errors speak the unit the foot spacing is written in
+    kw["units"] = "in" if "foot_spacing_in" in ld else "mm"
     sx, sy = _get_int(ctx, lt, ld, "steps_x"), _get_int(ctx, lt, ld, "steps_y")
     try:
         if pattern == "union-jack":
@@ -591,9 +609,11 @@ def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Surv
                 geo = plan.meta["layout"]["diagonal_foot_spacing_mm"]
                 key = "diagonal_foot_spacing_in" if "diagonal_foot_spacing_in" in ld else "diagonal_foot_spacing_mm"
                 if abs(bd - geo) > _BASE_TOLERANCE * geo:
+                    nd = plan.meta["layout"]["steps_diagonal"]
+                    f, u = (MM_PER_INCH, "in") if key.endswith("_in") else (1.0, "mm")
                     raise LayoutError(
-                        f"diagonal foot spacing {bd:g} mm does not fit the layout: {plan.meta['layout']['steps_diagonal']} "
-                        f"steps along the {geo * plan.meta['layout']['steps_diagonal']:.1f} mm diagonal are {geo:.3f} mm each",
+                        f"diagonal foot spacing {bd / f:.6g} {u} does not fit the layout: {nd} steps along the "
+                        f"{geo * nd / f:.4g} {u} diagonal are {geo / f:.4f} {u} each",
                         where=ctx.where(lt, key),
                         fix="correct the spacing, or set steps_diagonal to match it",
                     )
@@ -614,6 +634,8 @@ def _build_plan(ctx, pattern, ld, raw_lines, names, surface, instrument) -> Surv
                          steps=(sx, sy) if sx is not None else None, **kw)
     except LayoutError as exc:
         field = exc.where if exc.where in _LAYOUT_KEYS else None
+        if field is not None and field not in ld and _twin(field) in ld:
+            field = _twin(field)  # the error's unit guess differs from this key's: point at the key written
         raise LayoutError(exc.message, where=ctx.where(lt, field), fix=exc.fix) from None
 
 
@@ -664,8 +686,9 @@ def _read_line(ctx, tab, item, line, plan, instrument, global_flip):
         geo = line.foot_spacing_mm
         key = "foot_spacing_in" if "foot_spacing_in" in item else "foot_spacing_mm"
         if abs(base - geo) > _BASE_TOLERANCE * geo:
+            f, u = (MM_PER_INCH, "in") if key.endswith("_in") else (1.0, "mm")
             raise LayoutError(
-                f"line {line.name!r}: foot spacing {base:g} mm is far from its station spacing {geo:.3f} mm",
+                f"line {line.name!r}: foot spacing {base / f:.6g} {u} is far from its station spacing {geo / f:.4f} {u}",
                 where=ctx.where(tab, key),
                 fix="a line's own foot spacing is for a calibrated base; change the layout to change the step",
             )
@@ -744,13 +767,38 @@ def _layout_of(survey: Survey) -> dict:
     }
 
 
-def format_survey(survey: Survey) -> str:
+def _inch(v_mm: float) -> float:
+    """A length in mm as inches, rounded to 9 decimals when that is within rounding error.
+
+    A size typed in inches (40 in -> 1016 mm) is written back as typed (40.0), so that
+    reading the file gives the very same mm; other lengths keep every digit.
+    """
+    t = float(v_mm) / MM_PER_INCH
+    r = round(t, 9)
+    return r if abs(r - t) <= 1e-12 * max(1.0, abs(t)) else t
+
+
+def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
     """The survey as TOML text in the flatcheck survey format (see ``docs/survey-format.md``).
 
     Readings are written in the sign convention "rises-toward-line-end" (or
     "height-up"), with each run's ``order`` and ``flip_sign``; numbers are
     written exactly, so reading the text back gives the same survey.
+
+    Parameters
+    ----------
+    survey : Survey
+    inches : bool, optional
+        Write every length with the ``_in`` keys (inches, 1 in = 25.4 mm exactly) instead of
+        ``_mm``. By default, as the survey was read (``meta["file"]["inches"]``), else mm.
     """
+    if inches is None:
+        inches = bool((survey.meta.get("file") or {}).get("inches"))
+    lu = "in" if inches else "mm"
+
+    def ln_(v_mm: float) -> str:
+        return _f(_inch(v_mm) if inches else v_mm)
+
     inst, surf = survey.instrument, survey.surface
     lay = _layout_of(survey)
     pattern = lay["pattern"]
@@ -771,8 +819,8 @@ def format_survey(survey: Survey) -> str:
     w("[surface]")
     w(f"description = {_s(surf.description)}")
     w(f"ident = {_s(surf.ident)}")
-    w(f"length_mm = {_f(surf.length_mm)}")
-    w(f"width_mm = {_f(surf.width_mm)}")
+    w(f"length_{lu} = {ln_(surf.length_mm)}")
+    w(f"width_{lu} = {ln_(surf.width_mm)}")
     w(f"material = {_s(surf.material)}")
     w("")
     w("[instrument]")
@@ -785,24 +833,25 @@ def format_survey(survey: Survey) -> str:
     for key, label in (
         ("reading_uncertainty", f"standard uncertainty of one reading, {inst.unit}"),
         ("scale_uncertainty_rel", "relative standard uncertainty of the scale"),
-        ("foot_spacing_uncertainty_mm", "standard uncertainty of the foot spacing, mm"),
+        ("foot_spacing_uncertainty_mm", f"standard uncertainty of the foot spacing, {lu}"),
     ):
         v = getattr(inst, key)
+        name = key[:-3] + "_in" if (inches and key.endswith("_mm")) else key
         if v is None:
-            w(f"# {key} = ...   # {label}")
+            w(f"# {name} = ...   # {label}")
         else:
-            w(f"{key} = {_f(v)}")
+            w(f"{name} = {ln_(v) if name != key else _f(v)}")
     w("")
     w("[layout]")
     w(f"pattern = {_s(pattern)}")
     if pattern != "lines":
-        w(f"margin_mm = {_f(lay['margin_mm'])}")
-        w(f"foot_spacing_mm = {_f(lay['foot_spacing_mm'])}")
+        w(f"margin_{lu} = {ln_(lay['margin_mm'])}")
+        w(f"foot_spacing_{lu} = {ln_(lay['foot_spacing_mm'])}")
         w(f"steps_x = {int(lay['steps_x'])}")
         w(f"steps_y = {int(lay['steps_y'])}")
     if pattern == "union-jack":
         w(f"steps_diagonal = {int(lay['steps_diagonal'])}")
-        w(f"diagonal_foot_spacing_mm = {_f(lay['diagonal_foot_spacing_mm'])}   # second base, for the diagonals")
+        w(f"diagonal_foot_spacing_{lu} = {ln_(lay['diagonal_foot_spacing_mm'])}   # second base, for the diagonals")
     if pattern == "grid":
         w(f"diagonals = {'true' if lay.get('diagonals') else 'false'}")
     w("")
@@ -827,14 +876,15 @@ def format_survey(survey: Survey) -> str:
         if heights:
             w(f"# {ln.stations[0]} -> {ln.stations[-1]}: {n_read} stations, {n_read} heights per run")
         else:
-            w(f"# {ln.stations[0]} -> {ln.stations[-1]}: {ln.steps} steps of {ln.foot_spacing_mm:.3f} mm, {n_read} readings per run")
+            step = f"{ln.foot_spacing_mm / MM_PER_INCH:.4f} in" if inches else f"{ln.foot_spacing_mm:.3f} mm"
+            w(f"# {ln.stations[0]} -> {ln.stations[-1]}: {ln.steps} steps of {step}, {n_read} readings per run")
         if pattern == "lines":
             _, a, b, steps = free.get(ln.name, (ln.name, None, None, ln.steps))
             if a is None:
                 pos = {s.name: (s.x_mm, s.y_mm) for s in survey.stations}
                 a, b = pos[ln.stations[0]], pos[ln.stations[-1]]
-            w(f"start_mm = [{_f(a[0])}, {_f(a[1])}]")
-            w(f"end_mm = [{_f(b[0])}, {_f(b[1])}]")
+            w(f"start_{lu} = [{ln_(a[0])}, {ln_(a[1])}]")
+            w(f"end_{lu} = [{ln_(b[0])}, {ln_(b[1])}]")
             w(f"steps = {int(steps)}")
             geo = math.hypot(b[0] - a[0], b[1] - a[1]) / steps
         else:
@@ -846,7 +896,7 @@ def format_survey(survey: Survey) -> str:
             else:
                 geo = lay["foot_spacing_mm"]
         if not heights and geo is not None and float(ln.foot_spacing_mm) != float(geo):
-            w(f"foot_spacing_mm = {_f(ln.foot_spacing_mm)}   # this line's own (calibrated) base")
+            w(f"foot_spacing_{lu} = {ln_(ln.foot_spacing_mm)}   # this line's own (calibrated) base")
         if not ln.runs:
             w("readings = []   # fill in, in the order taken")
             w('order = "forward"')
@@ -864,12 +914,12 @@ def format_survey(survey: Survey) -> str:
     return "\n".join(out) + "\n"
 
 
-def write_survey(path, survey: Survey) -> None:
-    """Write ``survey`` to ``path`` atomically (see :func:`format_survey`).
+def write_survey(path, survey: Survey, *, inches: bool | None = None) -> None:
+    """Write ``survey`` to ``path`` atomically (see :func:`format_survey`; ``inches`` as there).
 
     Raises
     ------
     OutputError
         The folder does not exist or cannot be written.
     """
-    write_text_atomic(path, format_survey(survey))
+    write_text_atomic(path, format_survey(survey, inches=inches))

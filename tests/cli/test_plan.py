@@ -2,7 +2,9 @@
 
 import json
 import math
+import re
 
+import numpy as np
 import pytest
 
 from flatcheck.io.survey_toml import read_survey
@@ -159,3 +161,40 @@ def test_layouts_that_see_twist_are_not_warned(cli, extra):
     code, out, err = cli("plan", "--length-mm", 460, "--foot-spacing-mm", 100, *extra, "--json")
     assert code == 0, err
     assert json.loads(out)["warnings"] == [] and "warning" not in err
+
+
+def test_plan_in_inches_writes_an_inch_blank_file(cli, tmp_path):
+    blank = tmp_path / "inch.toml"
+    code, out, err = cli("plan", "--length-in", 48, "--width-in", 36, "--foot-spacing-in", 4, "-o", blank)
+    assert code == 0, err
+    text = blank.read_text()
+    for key in ("length_in = 48.0", "width_in = 36.0", "margin_in = 1.25", "foot_spacing_in = 4.0", "diagonal_foot_spacing_in"):
+        assert key in text, key
+    assert not re.search(r"^(length|width|margin|foot_spacing|diagonal_foot_spacing)_mm", text, re.M)
+    assert "48 x 36 in" in out and "base in" in out and " mm" not in out
+    # the same layout as the mm plan of the same sizes (1 in = 25.4 mm exactly, 1959)
+    s_in = read_survey(blank)
+    mm = tmp_path / "mm.toml"
+    code, _, err = cli("plan", "--length-mm", 48 * 25.4, "--width-mm", 36 * 25.4, "--foot-spacing-mm", 4 * 25.4,
+                       "--margin-mm", 1.25 * 25.4, "-o", mm)
+    s_mm = read_survey(mm)
+    assert [s.name for s in s_in.stations] == [s.name for s in s_mm.stations]
+    assert np.allclose(s_in.x_mm, s_mm.x_mm, atol=1e-9) and np.allclose(s_in.y_mm, s_mm.y_mm, atol=1e-9)
+    assert s_in.surface.length_mm == 48 * 25.4 and s_in.line("SW-SE").foot_spacing_mm == 4 * 25.4
+
+
+@pytest.mark.parametrize(
+    "args, option, needle",
+    [
+        (("--length-in", 48, "--width-in", 36, "--foot-spacing-in", 0), "--foot-spacing-in", "0 in"),
+        (("--length-in", 48, "--width-in", 36, "--foot-spacing-in", 4, "--margin-in", 20), "--margin-in", "18 in"),
+        (("--length-in", 48, "--width-in", 36, "--foot-spacing-in", 0.001), "--foot-spacing-in", "in inches"),
+        (("--length-in", 48, "--width-in", 36), "--foot-spacing-mm", "--foot-spacing-in"),
+        (("--length-in", 48, "--length-mm", 1000, "--width-in", 36, "--foot-spacing-in", 4), "--length-in", "once"),
+    ],
+)
+def test_plan_inch_errors_speak_inches(cli, args, option, needle):
+    code, out, err = cli("plan", *args)
+    _one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {option}:") and needle in err
+    assert not re.search(r"\d mm|is in mm", err), err  # no size stated in mm, no "check it is in mm"

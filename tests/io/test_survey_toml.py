@@ -355,3 +355,43 @@ def test_implausible_indicator_heights_are_refused(tmp_path, first, second, what
         return
     e = _err(tmp_path, t2, InputValueError)
     assert what in e.message and "'row-1'" in e.message and "readings" in e.where
+
+
+def test_inch_free_lines_off_the_surface_speak_inches(tmp_path):
+    # the error said "give positions in mm" to a file written in inches
+    plan = plan_lines([("a", (25.4, 25.4), (508.0, 25.4), 4), ("b", (25.4, 25.4), (25.4, 127.0), 2)],
+                      length_mm=609.6, width_mm=152.4, instrument=Instrument("level", "um/m"))
+    text = format_survey(plan, inches=True)
+    assert "start_in = [1.0, 1.0]" in text and "end_in = [20.0, 1.0]" in text and "start_mm" not in text
+    bad = text.replace("end_in = [20.0, 1.0]", "end_in = [30.0, 1.0]")
+    e = _err(tmp_path, bad, LayoutError)
+    assert "(30, 1) in is off the 24 x 6 in surface" in e.message
+    assert "inches" in e.fix and "mm" not in e.fix
+
+
+def test_inch_layout_errors_speak_inches(tmp_path):
+    plan = plan_union_jack(40 * 25.4, 30 * 25.4, 4 * 25.4, margin_mm=25.4)
+    text = format_survey(plan, inches=True)
+    assert "foot_spacing_in = 4.0" in text and "margin_in = 1.0" in text
+    e = _err(tmp_path, text.replace("steps_x = 8", "steps_x = 10"), LayoutError)
+    assert "4 in" in e.message and " mm" not in e.message
+    assert f"line {_line_of(text, 'steps_x')}" in e.where
+    e = _err(tmp_path, text.replace("margin_in = 1.0", "margin_in = 16.0"), LayoutError)
+    assert "16 in" in e.message and "margin_in" in e.where and " mm" not in e.message + e.fix
+
+
+@pytest.mark.parametrize("key", sorted(PLANS))
+def test_inch_files_round_trip(tmp_path, key):
+    plan = PLANS[key]()
+    sim = simulate_survey(plan, _surface)
+    p = tmp_path / "inch.toml"
+    write_survey(p, sim, inches=True)
+    text = p.read_text()
+    assert not re.search(r"^(length|width|margin|foot_spacing|diagonal_foot_spacing|start|end)_mm", text, re.M)
+    back = read_survey(p)
+    assert [s.name for s in back.stations] == [s.name for s in sim.stations]
+    np.testing.assert_allclose(back.x_mm, sim.x_mm, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(observations(back).value_um, observations(sim).value_um, rtol=1e-12, atol=1e-12)
+    # written again, it stays in inches, unchanged
+    write_survey(tmp_path / "again.toml", back)
+    assert (tmp_path / "again.toml").read_text() == text
