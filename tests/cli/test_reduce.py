@@ -395,3 +395,19 @@ def test_units_in_shows_positions_in_inches(cli, monkeypatch):
     code, out, err = cli("reduce", GRID, "--units", "in")
     xs = sorted({n["x_mm"] for n in json.loads(cli("reduce", GRID, "--json")[1])["nodes"]})
     assert "rows y in, columns x in" in out and all(f"{x / 25.4:.2f}" in out for x in xs)
+
+
+def test_auto_window_that_does_not_fit_says_why_and_what_fits(cli):
+    # the guideway (1900 x 120 mm surveyed) silently had local_flatness null with --window auto
+    code, out, err = cli("reduce", SAMPLES / "guideway-KY-G1.toml", "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["local_flatness"] is None
+    note = next(n for n in doc["notes"] if "local flatness" in n)
+    assert "larger than the surveyed area" in note and "along y" in note and "--window 250x120" in note
+    # the suggested window does fit: local flatness is then given
+    code, out, err = cli("reduce", SAMPLES / "guideway-KY-G1.toml", "--json", "--window", "250x120")
+    assert json.loads(out)["local_flatness"]["max_um"] > 0
+    # a surface the default fits gets no such note
+    code, out, _ = cli("reduce", PLATE, "--json")
+    assert not any("local flatness" in n for n in json.loads(out)["notes"])
