@@ -108,6 +108,12 @@ def _auto_window_note(ev, window: str) -> str | None:
     if not short:
         return None
     fit_x, fit_y = min(L, floor(span_x + 1e-9)), min(W, floor(span_y + 1e-9))
+    if len(short) == 2:
+        return (
+            f"no local flatness: the whole surveyed area ({span_x:.0f} x {span_y:.0f} mm) is smaller than the default "
+            f"{DEFAULT_WINDOW.text} window, so the flatness above is also the local flatness over any such area; "
+            "give a smaller --window for a local figure"
+        )
     text = (
         f"no local flatness: the default {DEFAULT_WINDOW.text} window is larger than the surveyed area "
         f"({span_x:.0f} x {span_y:.0f} mm) along {' and '.join(short)}"

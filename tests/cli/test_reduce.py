@@ -408,6 +408,10 @@ def test_auto_window_that_does_not_fit_says_why_and_what_fits(cli):
     # the suggested window does fit: local flatness is then given
     code, out, err = cli("reduce", SAMPLES / "guideway-KY-G1.toml", "--json", "--window", "250x120")
     assert json.loads(out)["local_flatness"]["max_um"] > 0
+    # a surface smaller than the window both ways: its flatness is the local flatness
+    code, out, _ = cli("reduce", PAD, "--json")
+    note = next(n for n in json.loads(out)["notes"] if "local flatness" in n)
+    assert "smaller than the default 250 x 250 mm window" in note and "--window" in note
     # a surface the default fits gets no such note
     code, out, _ = cli("reduce", PLATE, "--json")
     assert not any("local flatness" in n for n in json.loads(out)["notes"])
