@@ -816,6 +816,7 @@ def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarra
     if not pads:
         raise GeometryError(
             f"no pad rides on the face {carriage.face!r}",
+            where="face",
             fix="set the pads' face to the face that was measured",
         )
     xmin, xmax, ymin, ymax = surface.extent_mm
@@ -831,13 +832,25 @@ def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarra
             fix="use a smaller pad or carriage, or measure a longer surface",
         )
     if end < start:
+        if carriage.travel_end_mm is None:
+            what = (f"the travel starts at {start:g} mm, beyond its last position that keeps every pad over the "
+                    f"surveyed area ({end:g} mm)")
+        elif carriage.travel_start_mm is None:
+            what = (f"the travel ends at {end:g} mm, before its first position that keeps every pad over the "
+                    f"surveyed area ({start:g} mm)")
+        else:
+            what = f"the travel ends ({end:g} mm) before it starts ({start:g} mm)"
         raise InputValueError(
-            f"the travel ends ({end:g} mm) before it starts ({start:g} mm)", fix="swap or correct the travel limits"
+            what,
+            where="travel_start_mm/travel_end_mm",
+            fix="swap or correct the travel limits" if None not in (carriage.travel_start_mm, carriage.travel_end_mm)
+            else f"keep the travel within {xmin - lo:g} to {xmax - hi:g} mm (every pad over the surveyed area)",
         )
     max_step = MAX_STEP_FRACTION * min(p.pad.length_mm for p in pads)
     if carriage.step_mm is not None and carriage.step_mm > max_step * (1 + 1e-9):
         raise InputValueError(
             f"a travel step of {carriage.step_mm:g} mm is larger than a tenth of the pad length ({max_step:g} mm)",
+            where="step_mm",
             fix=f"use a step of at most {max_step:g} mm",
         )
     step = max_step if carriage.step_mm is None else carriage.step_mm

@@ -424,3 +424,21 @@ def test_pad_face_map_of_another_size_is_warned():
     for size in ((100, 80), (80, 60)):  # the map is 20 % smaller / 33 % larger than the pad
         res = evaluate_bearing(surf, Carriage.single(Pad.rect(*size, 8)), pad_face=face)
         assert any("pad-face map covers 80 x 80 mm" in w for w in res.warnings)
+
+
+def test_carriage_errors_name_the_carriage_field():
+    # the command maps these fields to the option or file field the value came from
+    surf = grid_surface(lambda X, Y: 0.0 * X, length=500, width=200)
+    cases = (
+        (Carriage.single(Pad.rect(100, 50, 8), step_mm=12), "step_mm"),
+        (Carriage.single(Pad.rect(100, 50, 8), travel_start_mm=300, travel_end_mm=100), "travel_start_mm/travel_end_mm"),
+        (Carriage((PlacedPad(Pad.rect(100, 50, 8), face="side"),), face="top"), "face"),
+    )
+    for carriage, field in cases:
+        with pytest.raises((InputValueError, GeometryError)) as exc:
+            station_positions(surf, carriage)
+        assert exc.value.where == field
+    # a start beyond the default end says so, and what travel fits
+    with pytest.raises(InputValueError, match="beyond its last position") as exc:
+        station_positions(surf, Carriage.single(Pad.rect(100, 50, 8), travel_start_mm=900))
+    assert "50 to 450 mm" in exc.value.fix

@@ -21,7 +21,7 @@ from ..bearing import (
     evaluate_bearing,
     station_positions,
 )
-from ..errors import InputValueError
+from ..errors import FlatcheckError, InputValueError
 from ..io.bearing_toml import parse_pad_size, read_bearing_toml
 from ..units import height_unit_label, um_to
 from ._app import app
@@ -154,6 +154,27 @@ def _check_options(positive: dict, *, travel=(None, None)) -> None:
             where="--travel-start-mm/--travel-end-mm",
             fix="swap or correct the travel limits",
         )
+
+
+def _origin(field: str | None, carriage, bearing: Path | None, step_mm, travel_start_mm, travel_end_mm):
+    """Where a carriage field named by the core (``where="step_mm"``...) came from: an option or the file."""
+    in_file = f"{bearing}, [carriage]" if bearing is not None else None
+
+    def one(name, option, value):
+        if value is not None:
+            return option
+        return f"{in_file}, field {name!r}" if in_file and getattr(carriage, name) is not None else None
+
+    if field == "step_mm":
+        return one("step_mm", "--step-mm", step_mm) or field
+    if field == "travel_start_mm/travel_end_mm":
+        parts = [one("travel_start_mm", "--travel-start-mm", travel_start_mm),
+                 one("travel_end_mm", "--travel-end-mm", travel_end_mm)]
+        parts = [p for p in parts if p]
+        return " and ".join(parts) if parts else "travel"
+    if field == "face" and in_file:
+        return f"{in_file}, field 'face'"
+    return field
 
 
 def _check_mesh(cells: int) -> None:
@@ -319,7 +340,13 @@ def bearing_cmd(
     marginal = marginal_from if marginal_from is not None else (marginal if marginal is not None else DEFAULT_MARGINAL_FROM)
     surface, _ = load_surface(input)
     face = read_heightmap_csv(pad_face) if pad_face is not None else None
-    n = len(station_positions(surface, carriage)[0])
+    try:
+        n = len(station_positions(surface, carriage)[0])
+    except FlatcheckError as exc:
+        raise type(exc)(
+            exc.message, where=_origin(exc.where, carriage, bearing, step_mm, travel_start_mm, travel_end_mm),
+            fix=exc.fix,
+        ) from None
     with progress_bar("bearing positions", n, enabled=n * len(carriage.active_pads) > 200) as advance:
         result = evaluate_bearing(
             surface,

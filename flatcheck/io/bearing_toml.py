@@ -115,7 +115,9 @@ def parse_pad_size(text: str, *, where: str | None = None) -> tuple[str, float, 
             shape, length, width = "rect", float(m.group("l")), float(m.group("w"))
     except ValueError:
         raise InputValueError(f"cannot read the pad size {text!r}", where=where, fix=fix) from None
-    if not (length > 0 and width > 0) or not all(v < float("inf") for v in (length, width)):
+    if not all(math.isfinite(v) for v in (length, width)):
+        raise InputValueError(f"the pad size {text!r} is not a finite number of mm", where=where, fix=fix)
+    if not (length > 0 and width > 0):
         raise InputValueError(f"the pad size {text!r} must be positive", where=where, fix=fix)
     return shape, length, width
 
@@ -270,12 +272,25 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
                         stiffness=_number(t, "stiffness", wp, 1.0, positive=True),
                     )
                 )
+        start, end = _number(c, "travel_start_mm", wc), _number(c, "travel_end_mm", wc)
+        if start is not None and end is not None and end < start:
+            raise InputValueError(
+                f"the travel ends ({end:g} mm) before it starts ({start:g} mm)",
+                where=f"{wc}, fields 'travel_start_mm' and 'travel_end_mm'", fix="swap or correct the travel limits",
+            )
+        if not any(p.face == face for p in placed):
+            faces = sorted({p.face for p in placed})
+            raise InputValueError(
+                f"no pad rides on the face {face!r} (the pads are on {', '.join(repr(f) for f in faces)})",
+                where=f"{wc}, field 'face'",
+                fix="set face to the face that was measured, and each pad's face to the face it rides on",
+            )
         carriage = Carriage(
             tuple(placed),
             face=face,
             y_mm=_number(c, "y_mm", wc),
-            travel_start_mm=_number(c, "travel_start_mm", wc),
-            travel_end_mm=_number(c, "travel_end_mm", wc),
+            travel_start_mm=start,
+            travel_end_mm=end,
             step_mm=_number(c, "step_mm", wc, positive=True),
             label=label,
         )

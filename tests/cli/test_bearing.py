@@ -219,3 +219,42 @@ def test_warnings_in_json_and_summary(cli, tmp_path):
     fine = write_surface(tmp_path / "fine.csv", lambda X, Y: 0.001 * X, length=600.0, width=300.0, pitch=10.0)
     code, out, err = cli("bearing", fine, "--pad", "60x40", "--gap-um", "8", "--json")
     assert json.loads(out)["warnings"] == []
+
+
+def _bearing_file(tmp_path, carriage):
+    p = tmp_path / "slide.toml"
+    p.write_text('[bearing]\npad = "100x60"\ngap_um = 8\n[carriage]\n' + carriage, encoding="utf-8")
+    return p
+
+
+@pytest.mark.parametrize(
+    "carriage, options, where",
+    [
+        ("step_mm = 50\n", [], "slide.toml, [carriage], field 'step_mm'"),
+        ("", ["--step-mm", "50"], "--step-mm"),
+        ("step_mm = 5\n", ["--step-mm", "50"], "--step-mm"),
+        ("travel_start_mm = 400\ntravel_end_mm = 100\n", [],
+         "slide.toml, [carriage], fields 'travel_start_mm' and 'travel_end_mm'"),
+        ("travel_start_mm = 5000\n", [], "slide.toml, [carriage], field 'travel_start_mm'"),
+        ("travel_start_mm = 400\n", ["--travel-end-mm", "100"], "slide.toml, [carriage], field 'travel_start_mm' and --travel-end-mm"),
+        ('face = "top"\n[[carriage.pad]]\nface = "side"\n', [], "slide.toml, [carriage], field 'face'"),
+    ],
+)
+def test_carriage_errors_name_the_file_field_or_option(cli, sine_csv, tmp_path, carriage, options, where):
+    # these errors used to come without any "where" (a step too large, a reversed travel, no pad on the face)
+    toml = _bearing_file(tmp_path, carriage)
+    code, out, err = cli("bearing", sine_csv, "--bearing", toml, *options)
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {where.replace('slide.toml', str(toml))}:")
+
+
+def test_step_option_without_file_is_named(cli, sine_csv):
+    code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--step-mm", "50")
+    one_line_error(code, out, err)
+    assert err.startswith("flatcheck: error: --step-mm: a travel step of 50 mm")
+
+
+def test_pad_size_too_large_to_be_a_number(cli, sine_csv):
+    code, out, err = cli("bearing", sine_csv, "--pad", "1e400x80", "--gap-um", "8")
+    one_line_error(code, out, err)
+    assert "--pad" in err and "not a finite number" in err

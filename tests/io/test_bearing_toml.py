@@ -192,3 +192,17 @@ def test_a_table_where_text_belongs_is_not_told_to_quote():
     with pytest.raises(InputValueError, match="pad must be text, got a table") as exc:
         parse_bearing_toml('[bearing]\npad = {l = 120}\ngap_um = 8\n', source="b.toml")
     assert exc.value.fix != "quote the value"
+
+
+def test_reversed_travel_and_no_pad_on_the_face_are_found_in_the_file():
+    with pytest.raises(InputValueError, match="ends") as exc:
+        parse_bearing_toml(_BASE + "[carriage]\ntravel_start_mm = 800\ntravel_end_mm = 100\n", source="b.toml")
+    assert exc.value.where == "b.toml, [carriage], fields 'travel_start_mm' and 'travel_end_mm'"
+    with pytest.raises(InputValueError, match="no pad rides on the face 'top'") as exc:
+        parse_bearing_toml(_BASE + '[[carriage.pad]]\nface = "side"\n', source="b.toml")
+    assert exc.value.where == "b.toml, [carriage], field 'face'"
+
+
+def test_infinite_pad_size_says_so():
+    with pytest.raises(InputValueError, match="not a finite number"):
+        parse_pad_size("1e400x80", where="--pad")
