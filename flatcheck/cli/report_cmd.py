@@ -93,21 +93,46 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
     return content, files
 
 
+def check_lap_option_values(*, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
+                            stroke_mm) -> None:
+    """Refuse bad lap numbers as ``flatcheck lap`` does, naming the option, before any work."""
+    from .lap_cmd import _parse_size, check_option
+
+    check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
+    check_option(rate_um_per_min, "--rate-um-per-min", what="a removal rate in µm/min")
+    check_option(rate_um_per_pass, "--rate-um-per-pass", what="a removal in µm per pass")
+    check_option(strokes_per_pass, "--strokes-per-pass", minimum=1, strict=False, what="a whole number of strokes")
+    check_option(stroke_mm, "--stroke-mm", strict=False, what="a stroke length in mm")
+    if lap_size_mm is not None:
+        _parse_size(lap_size_mm)
+
+
 def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_size_mm, rate_um_per_min,
                          rate_um_per_pass, strokes_per_pass, stroke_mm) -> dict:
-    """Target, lap and notes of the lapping page, parsed as ``flatcheck lap`` parses them (empty: no page)."""
+    """Target, lap and notes of the lapping page, parsed and checked as ``flatcheck lap`` does (empty: no page).
+
+    Raises
+    ------
+    InputValueError
+        Naming the option: lap options without a target, a bad number, or a lap more than twice the
+        size of the surveyed area (it would cover everything wherever it stood).
+    """
     lap_given = any(v is not None for v in (lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass,
                                             strokes_per_pass)) or stroke_mm
+    check_lap_option_values(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm,
+                            rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
+                            strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
     if target_um is None and target_grade is None:
         if lap_given:
             raise InputValueError("lap options without a target", where="--target-um/--target-grade",
                                   fix="add --target-um T or --target-grade STANDARD:GRADE for the lapping page")
         return {}
-    from .lap_cmd import build_lap, resolve_target
+    from .lap_cmd import build_lap, check_lap_fits, resolve_target
 
     target, source = resolve_target(hm, target_um, target_grade)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
                            stroke_mm or 0.0)
+    check_lap_fits(hm, lap, "--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm")
     return dict(target_um=target, target_source=source, lap=lap, lap_notes=tuple(notes),
                 lap_rate_assumed=rate_um_per_min is None and rate_um_per_pass is None)
 
@@ -148,6 +173,9 @@ def report_cmd(
     check_outputs(output, png, standard)
     if trials < 100:
         raise InputValueError(f"--trials {trials} is too few", where="--trials", fix="give at least 100, e.g. --trials 20000")
+    check_lap_option_values(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm,
+                            rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
+                            strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
     carriage, fraction, marginal, budget = carriage_from_options(bearing, pad, gap_um)
     loaded = load_input(input, method=method.value)
     lapping = lapping_from_options(

@@ -144,3 +144,24 @@ def test_lap_options_without_a_target_are_a_one_line_error(cli, plate_csv, tmp_p
     code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf", "--rate-um-per-min", "0.5")
     _one_line_error(code, err)
     assert not (tmp_path / "r.pdf").exists()
+
+
+@pytest.mark.parametrize(
+    "args, option",
+    [
+        (("--lap-diameter-mm", "1e9"), "--lap-diameter-mm"),  # was a 22.7 TiB MemoryError (exit 3)
+        (("--lap-diameter-mm", "10000"), "--lap-diameter-mm"),  # a 10 m lap on a 1 m plate was accepted silently
+        (("--lap-size-mm", "1e6x1e6"), "--lap-size-mm"),
+        (("--lap-diameter-mm", "-5"), "--lap-diameter-mm"),
+        (("--lap-diameter-mm", "nan"), "--lap-diameter-mm"),
+        (("--rate-um-per-min", "0"), "--rate-um-per-min"),
+        (("--rate-um-per-pass", "inf"), "--rate-um-per-pass"),
+        (("--rate-um-per-pass", "1", "--strokes-per-pass", "0"), "--strokes-per-pass"),
+        (("--stroke-mm", "-1"), "--stroke-mm"),
+    ],
+)
+def test_lap_options_are_checked_as_lap_checks_them(cli, tmp_path, args, option):
+    code, out, err = cli("report", SAMPLE, "-o", tmp_path / "r.pdf", "--target-um", "1", "--no-uncertainty", *args)
+    _one_line_error(code, err)
+    assert err.startswith(f"flatcheck: error: {option}:")
+    assert not (tmp_path / "r.pdf").exists()
