@@ -130,10 +130,9 @@ def progress_bar(description: str, total: int, *, enabled: bool = True):
 
 
 def load_surface(path: Path, *, method: str = "least-squares"):
-    """Load an input file as a height map.
+    """Load an input file as a height map (a height-map CSV, or a TOML survey reduced with ``method``).
 
-    A ``.csv`` file is read as a height map; anything else is read as a TOML
-    survey and reduced with ``method``.
+    The kind of file is found as :func:`load_input` finds it.
 
     Returns
     -------
@@ -175,14 +174,15 @@ def _reduce_named(path: Path, survey, method: str):
 def load_input(path: Path, *, method: str = "least-squares"):
     """Load an input file as a :class:`flatcheck.evaluation.LoadedInput`.
 
-    A ``.csv`` file is read as a height map; anything else as a TOML survey,
-    reduced with ``method``. Every error names the file.
+    A file whose first line (after comments) is the header ``x_mm,y_mm,height_um``, or
+    whose name ends in ``.csv``, is read as a height map, whatever its name (pad.dat);
+    anything else as a TOML survey, reduced with ``method``. Every error names the file.
     """
     from ..evaluation import LoadedInput
-    from ..io.heightmap_csv import read_heightmap_csv
+    from ..io.heightmap_csv import is_heightmap_csv, read_heightmap_csv
 
     path = Path(path)
-    if path.suffix.lower() == ".csv":
+    if path.suffix.lower() == ".csv" or is_heightmap_csv(path):
         return LoadedInput(str(path), read_heightmap_csv(path))
     from ..io.survey_toml import read_survey
 

@@ -24,9 +24,36 @@ from ..heightmap import HeightMap
 from .atomic import write_text_atomic
 from .text import read_text
 
-__all__ = ["HEADER", "read_heightmap_csv", "write_heightmap_csv", "format_heightmap_csv"]
+__all__ = ["HEADER", "is_heightmap_csv", "read_heightmap_csv", "write_heightmap_csv", "format_heightmap_csv"]
 
 HEADER = ("x_mm", "y_mm", "height_um")
+
+
+#: How much of a file :func:`is_heightmap_csv` reads to find the header (comment lines may come first).
+_SNIFF_BYTES = 1 << 16
+
+
+def is_heightmap_csv(path) -> bool:
+    """True when the file's first line that is neither blank nor a ``#`` comment is the header
+    ``x_mm,y_mm,height_um`` (spaces and letter case aside), whatever the file is called.
+
+    Only the beginning of the file is read. A missing, unreadable or binary file gives False
+    (the reader the caller falls back to says what is wrong with it).
+    """
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(_SNIFF_BYTES)
+    except OSError:
+        return False
+    if b"\x00" in head:
+        return False
+    text = head.decode("utf-8-sig", errors="replace")
+    for raw in text.splitlines():
+        s = raw.strip()
+        if not s or s.startswith("#"):
+            continue
+        return tuple(f.strip().lower() for f in s.split(",")) == HEADER
+    return False
 
 
 def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:

@@ -34,6 +34,7 @@ from ..layout import UNION_JACK_LINES, plan_grid, plan_lines, plan_union_jack
 from ..survey import INSTRUMENT_KINDS, PATTERNS, Instrument, Run, Surface, Survey, check_plausible_readings
 from ..units import MM_PER_INCH, angle_unit, length_unit
 from .atomic import write_text_atomic
+from .heightmap_csv import HEADER as _CSV_HEADER
 from .text import read_text
 
 __all__ = [
@@ -351,11 +352,14 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
         where = f"{source}, line {m.group(1)}, column {m.group(2)}" if m else source
         what = re.sub(r"\s*\(at line \d+, column \d+\)", "", msg) or "syntax error"
-        raise InputFormatError(
-            f"not valid TOML: {what}",
-            where=where,
-            fix='check quotes, brackets and commas (keys are written name = value; text needs "quotes")',
-        ) from None
+        fix = 'check quotes, brackets and commas (keys are written name = value; text needs "quotes")'
+        first = next((ln.strip() for ln in text.splitlines() if ln.strip() and not ln.strip().startswith("#")), "")
+        if "," in first and "=" not in first and not first.startswith("["):
+            fix = (
+                f"it looks like a table of values: a height map needs the header {','.join(_CSV_HEADER)} as its "
+                "first line (other units converted first); a survey is TOML (docs/survey-format.md)"
+            )
+        raise InputFormatError(f"not valid TOML: {what}", where=where, fix=fix) from None
     if not data:
         raise InputFormatError("the file holds no TOML keys", where=source, fix="start from a file written by 'flatcheck plan'")
     # ---- marker

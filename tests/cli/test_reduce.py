@@ -415,3 +415,24 @@ def test_auto_window_that_does_not_fit_says_why_and_what_fits(cli):
     # a surface the default fits gets no such note
     code, out, _ = cli("reduce", PLATE, "--json")
     assert not any("local flatness" in n for n in json.loads(out)["notes"])
+
+
+def test_input_kind_is_found_from_the_content_not_the_name(cli, tmp_path):
+    # pad.dat (a height map) was read as TOML and refused as "not valid TOML"
+    dat = tmp_path / "pad.dat"
+    dat.write_bytes(PAD.read_bytes())
+    code, out, err = cli("reduce", dat, "--json")
+    assert code == 0, err
+    a = json.loads(out)
+    b = json.loads(cli("reduce", PAD, "--json")[1])
+    assert a["kind"] == "height-map" and a["nodes"] == b["nodes"] and a["flatness"] == b["flatness"]
+    # a survey under another name is still a survey
+    s = tmp_path / "p3.survey"
+    s.write_bytes(PLATE.read_bytes())
+    code, out, err = cli("reduce", s, "--json")
+    assert code == 0 and json.loads(out)["kind"] == "survey"
+    # a table with another header is told what header a height map needs
+    bad = tmp_path / "bad.dat"
+    bad.write_text("x,y,z\n0,0,1\n")
+    code, out, err = cli("reduce", bad)
+    assert code == 2 and str(bad) in err and "x_mm,y_mm,height_um" in err

@@ -84,3 +84,25 @@ def test_wrong_separator_hinted(tmp_path, sep, word):
     with pytest.raises(InputFormatError) as exc:
         read_heightmap_csv(p)
     assert word in exc.value.fix and exc.value.where.endswith("line 1")
+
+
+@pytest.mark.parametrize(
+    "text, expected",
+    [
+        ("x_mm,y_mm,height_um\n0,0,1\n", True),
+        ("\ufeff# pad face\n\n  X_mm, Y_mm , height_UM \n0,0,1\n", True),
+        ('# survey\nformat = "flatcheck-survey"\n', False),
+        ("x,y,z\n0,0,1\n", False),
+        ("# only comments\n", False),
+    ],
+)
+def test_is_heightmap_csv_reads_the_header_not_the_name(tmp_path, text, expected):
+    from flatcheck.io.heightmap_csv import is_heightmap_csv
+
+    p = tmp_path / "pad.dat"
+    p.write_text(text, encoding="utf-8")
+    assert is_heightmap_csv(p) is expected
+    assert is_heightmap_csv(tmp_path / "missing.dat") is False
+    b = tmp_path / "bin.dat"
+    b.write_bytes(b"x_mm,y_mm,height_um\x00")
+    assert is_heightmap_csv(b) is False
