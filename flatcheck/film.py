@@ -2143,18 +2143,22 @@ def with_film_checks(result, film: BearingFilm, *, stiffness_change_limit: float
             if dk > dk_worst:
                 dk_worst, dk_x = dk, (float(xk[np.argmin(k)]), float(xk[np.argmax(k)]))
     checks = []
+    # "where" is left empty for a fit check, as for the other bearing checks
     if np.isfinite(loss_worst):
         r = loss_worst / loss_limit
+        status = _film_status(r, mf)
         checks.append(Check(
-            "film: loss of least film vs flat guide", loss_worst, loss_limit, "um", r, _film_status(r, mf),
-            ((loss_x, loss_x),),
+            "film: loss of least film vs flat guide", loss_worst, loss_limit, "um", r, status,
+            () if status == "fit" else ((loss_x, loss_x),),
             f"{kind}-pad film model (Reynolds equation); limit gap fraction x gap, common practice",
         ))
     if np.isfinite(dk_worst):
         r = dk_worst / stiffness_change_limit
+        status = _film_status(r, mf)
         checks.append(Check(
             "film: stiffness change over the travel", 100.0 * dk_worst, 100.0 * stiffness_change_limit, "%", r,
-            _film_status(r, mf), ((dk_x[0], dk_x[0]), (dk_x[1], dk_x[1])),  # positions of least and most stiffness
+            status,
+            () if status == "fit" else ((dk_x[0], dk_x[0]), (dk_x[1], dk_x[1])),  # least and most stiffness
             f"{kind}-pad film model; limit 10 % of the flat-guide stiffness, a convention of this tool",
         ))
     all_checks = tuple(result.checks) + tuple(checks)

@@ -303,3 +303,18 @@ def test_too_permeable_layer_says_what_to_change(cli, flat_csv):
     quoted = [float(m) for m in re.findall(r"(?:above|below) ([0-9.]+) N", err)]
     assert len(quoted) == 2 and quoted[0] == quoted[1]  # the threshold stated is the one offered in the fix
     assert quoted[0] == pytest.approx(limit, rel=1e-3)  # the mesh's disc area is the exact area to 1e-3
+
+
+def test_where_is_empty_for_fit_checks_only(cli, flat_csv, wavy_csv):
+    # the film checks filled "where" even when fit; the other checks leave it empty then
+    code, out, err = cli("bearing", flat_csv, "--pad", "d50", "--gap-um", "5", *FILM, "--film-mesh", "16", "--json")
+    assert code == 0, err
+    checks = json.loads(out)["checks"]
+    assert any(c["name"].startswith("film") for c in checks)
+    for c in checks:
+        assert c["status"] == "fit" and c["where"] == []
+    code, out, err = cli("bearing", wavy_csv, "--pad", "40x20", "--gap-um", "5", *FILM, "--film-mesh", "16", "--json")
+    checks = json.loads(out)["checks"]
+    assert any(c["status"] != "fit" for c in checks if c["name"].startswith("film"))
+    for c in checks:
+        assert (c["where"] == []) == (c["status"] == "fit")
