@@ -198,3 +198,47 @@ def test_plan_inch_errors_speak_inches(cli, args, option, needle):
     _one_line_error(code, out, err)
     assert err.startswith(f"flatcheck: error: {option}:") and needle in err
     assert not re.search(r"\d mm|is in mm", err), err  # no size stated in mm, no "check it is in mm"
+
+
+def _surface_um(x, y):
+    """A known surface (µm): bowl + twist + a local bump, x and y in mm."""
+    return 2e-6 * (x - 500) ** 2 + 3e-6 * (x - 500) * (y - 300) + 0.7 * np.exp(-((x - 300) ** 2 + (y - 200) ** 2) / 80**2)
+
+
+@pytest.mark.parametrize(
+    "sizes",
+    [
+        ("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100),
+        ("--length-in", 40, "--width-in", 24, "--foot-spacing-in", 4),
+    ],
+)
+def test_plan_fill_reduce_gives_the_surface_back(cli, tmp_path, sizes):
+    # The whole path a user walks: plan writes the blank file, its `readings = []` are filled in with
+    # exact readings of a known surface (flatcheck.simulate), reduce gives the surface back.
+    # Reference: the analytic surface itself, referred to its least-squares plane (numpy), since an
+    # autocollimator survey cannot see the plane.
+    blank = tmp_path / "blank.toml"
+    code, out, err = cli("plan", *sizes, "-o", blank)
+    assert code == 0, err
+    from flatcheck.simulate import simulate_survey
+
+    sim = simulate_survey(read_survey(blank), _surface_um)
+    text = blank.read_text()
+    for ln in sim.lines:  # fill in the blank file line by line, as a user would
+        m = re.search(rf'name = "{re.escape(ln.name)}"\n(?:.*\n)*?readings = \[\]', text)
+        values = ", ".join(repr(float(r)) for r in ln.runs[0].readings)
+        text = text[: m.start()] + m.group(0).replace("readings = []", f"readings = [{values}]") + text[m.end():]
+    assert "readings = []" not in text
+    filled = tmp_path / "filled.toml"
+    filled.write_text(text)
+    code, out, err = cli("reduce", filled, "--json")
+    assert code == 0, err
+    nodes = json.loads(out)["nodes"]
+    x = np.array([n["x_mm"] for n in nodes])
+    y = np.array([n["y_mm"] for n in nodes])
+    z = np.array([n["height_um"] for n in nodes])
+    truth = _surface_um(x, y)
+    A = np.column_stack([np.ones_like(x), x, y])
+    truth = truth - A @ np.linalg.lstsq(A, truth, rcond=None)[0]
+    assert len(nodes) == len(sim.stations) and np.ptp(truth) > 0.5  # a shape well above the tolerance
+    assert np.max(np.abs(z - truth)) < 1e-6
