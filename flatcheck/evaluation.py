@@ -105,22 +105,30 @@ class SurveyUncertainty:
         Results for the minimum-zone and least-squares flatness.
     basis : str
         What was propagated (reading uncertainty and where it came from, scale, foot spacing).
+    notes : tuple of str
+        Cautions about the result (e.g. a reading scatter estimated with few degrees of freedom).
+    u_dof : int or None
+        Degrees of freedom of the reading uncertainty when it was estimated from the survey's
+        own residuals (its uncertainty then propagated); None when it was stated.
     """
 
     minimum_zone: object
     least_squares: object
     basis: str
+    notes: tuple = ()
+    u_dof: int | None = None
 
     @property
     def note(self) -> str:
-        """One sentence that says how the uncertainty was obtained."""
+        """How the uncertainty was obtained, with its cautions."""
         mz = self.minimum_zone
         lo, hi = mz.interval_um
-        return (
+        text = (
             f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {self.basis}. "
             f"U is twice the standard deviation of the simulated minimum-zone flatness (k = 2 equivalent); "
             f"95 % interval {lo:.3f} to {hi:.3f} µm, simulated mean {mz.mean_um:.3f} µm."
         )
+        return " ".join([text] + [n[:1].upper() + n[1:] + "." for n in self.notes])
 
 
 def survey_uncertainty(
@@ -135,10 +143,14 @@ def survey_uncertainty(
 
     For a survey, the readings' standard uncertainty is the instrument's stated
     ``reading_uncertainty`` when the file gives one, else the survey's own scatter
-    (sigma0 of the least-squares adjustment, scaled with the foot spacing). The
-    instrument's scale and foot-spacing uncertainties, when stated, are added as
-    common relative errors. The reduction is linear in the readings, so each trial
-    is one product with the reduction operator.
+    (sigma0 of the least-squares adjustment, scaled with the foot spacing). Such an
+    estimate is itself uncertain: with ``nu`` = the redundancy, each trial draws the
+    scatter as ``sigma0 * sqrt(nu / chi2_nu)`` (see :mod:`flatcheck.uncertainty`), so
+    the interval keeps its 95 % coverage with few degrees of freedom; fewer than 3
+    are refused, fewer than 10 noted. The instrument's scale and foot-spacing
+    uncertainties, when stated, are added as common relative errors. The reduction
+    is linear in the readings, so each trial is one product with the reduction
+    operator.
 
     For a height map, ``u_height_um`` (standard uncertainty of each height, µm,
     independent) is required.
@@ -158,8 +170,8 @@ def survey_uncertainty(
     Raises
     ------
     InputValueError
-        When there is nothing to propagate (no stated uncertainty and no redundancy) or
-        the survey is too large for the dense operator.
+        When there is nothing to propagate (no stated uncertainty and fewer than 3 degrees
+        of freedom to estimate one) or the survey is too large for the dense operator.
     """
     from .uncertainty import monte_carlo_flatness
 
@@ -167,6 +179,8 @@ def survey_uncertainty(
         raise InputValueError(f"the seed must be a whole number 0 or above, got {seed!r}", where="--seed",
                               fix="give --seed 0 or a larger whole number (or leave it out)")
     hm = loaded.heightmap
+    notes = []
+    u_dof = None
     if loaded.survey is None:
         if u_height_um is None:
             raise InputValueError(
@@ -178,7 +192,6 @@ def survey_uncertainty(
         basis = f"standard uncertainty {u_height_um:g} µm of each height, as given"
         values = hm.height_um
         x, y = hm.x_mm, hm.y_mm
-        split = 1
     else:
         from .survey import observations
 
@@ -195,22 +208,35 @@ def survey_uncertainty(
         if inst.reading_uncertainty is not None:
             u = float(inst.reading_uncertainty) * np.abs(obs.um_per_unit)
             basis = f"reading standard uncertainty {inst.reading_uncertainty:g} {inst.unit} as stated for the instrument"
-        elif np.isfinite(red.sigma0_um) and red.redundancy > 0:
+        else:
+            nu = int(red.redundancy)
+            if nu < 3 or not np.isfinite(red.sigma0_um):
+                have = "no redundancy" if nu <= 0 else f"only {nu} degree{'s' if nu > 1 else ''} of freedom"
+                raise InputValueError(
+                    f"no reading uncertainty is stated, and the survey's residuals give {have} to estimate one "
+                    "(with fewer than 3 the flatness has no finite standard uncertainty)",
+                    where=loaded.path,
+                    fix="state the instrument's reading uncertainty in the survey ([instrument] reading_uncertainty, "
+                    "in the reading unit; see docs/survey-format.md), or walk lines forward and back so that the "
+                    "readings check each other",
+                )
             if red.ref_base_mm:
                 u = red.sigma0_um * obs.base_mm / red.ref_base_mm
             else:
                 u = np.full(obs.value_um.size, red.sigma0_um)
+            u_dof = nu
             basis = (
                 f"reading scatter from the survey's own residuals (sigma0 {red.sigma0_um:.3f} µm, "
-                f"{red.redundancy} degrees of freedom)"
+                f"{nu} degrees of freedom; drawn per trial as sigma0 x sqrt({nu} / chi-squared({nu})) so that "
+                "its own uncertainty is included)"
             )
-        else:
-            raise InputValueError(
-                "no reading uncertainty is stated and the survey has no redundancy to estimate one",
-                where=loaded.path,
-                fix="add reading_uncertainty to the [instrument] table, or repeat some lines",
-            )
-        kw = dict(G=op.G, u_value_um=u)
+            if nu < 10:
+                notes.append(
+                    f"the reading scatter is estimated from only {nu} degrees of freedom, so it is itself uncertain "
+                    "and widens the interval; stating the instrument's reading uncertainty ([instrument] "
+                    "reading_uncertainty) or walking lines forward and back gives a firmer figure"
+                )
+        kw = dict(G=op.G, u_value_um=u, u_dof=u_dof)
         if inst.scale_uncertainty_rel:
             kw["scale_u_rel"] = float(inst.scale_uncertainty_rel)
             basis += f", scale {inst.scale_uncertainty_rel:g} relative"
@@ -227,7 +253,7 @@ def survey_uncertainty(
     half = None if progress is None else (lambda k: progress(k / 2))
     mz = monte_carlo_flatness(x, y, values, trials=trials, seed=seed, progress=half, reference="minimum_zone", **kw)
     ls = monte_carlo_flatness(x, y, values, trials=trials, seed=mz.seed, progress=half, reference="least_squares", **kw)
-    return SurveyUncertainty(mz, ls, basis)
+    return SurveyUncertainty(mz, ls, basis, tuple(notes), u_dof)
 
 
 # ----------------------------------------------------------------------------- evaluation
@@ -321,7 +347,11 @@ class SurfaceEvaluation:
                 shortest_interval_um=list(mz.shortest_interval_um),
                 monte_carlo_mean_um=mz.mean_um,
                 least_squares_expanded_uncertainty_um=ls.expanded_um,
-                monte_carlo={"trials": mz.trials, "seed": mz.seed, "basis": self.uncertainty.basis},
+                monte_carlo={
+                    "trials": mz.trials, "seed": mz.seed, "basis": self.uncertainty.basis,
+                    # degrees of freedom of a reading scatter estimated from the residuals (None: stated)
+                    "reading_dof": self.uncertainty.u_dof,
+                },
             )
         surface = {"description": hm.label, "length_mm": hm.length_mm, "width_mm": hm.width_mm}
         doc = {
@@ -427,6 +457,7 @@ def evaluate_surface(
     unc = None
     if monte_carlo is not None:
         unc = survey_uncertainty(loaded, **monte_carlo)
+        notes.extend(unc.notes)
     return SurfaceEvaluation(loaded, flat, tuple(lines), local, win, unc, tuple(notes))
 
 

@@ -21,8 +21,21 @@ flatcheck propagates distributions instead (JCGM 101:2008):
 
 Perturbation model, for observation ``k`` in group ``g(k)``::
 
-    v_k* = v_k * (1 + d_scale) * (1 + d_g(k)) + e_k,
-    d_scale ~ N(0, scale_u_rel^2),  d_g ~ N(0, group_u_rel[g]^2),  e_k ~ N(0, u_k^2).
+    v_k* = v_k * (1 + d_scale) * (1 + d_g(k)) + c * e_k,
+    d_scale ~ N(0, scale_u_rel^2),  d_g ~ N(0, group_u_rel[g]^2),  e_k ~ N(0, u_k^2),
+
+with ``c = 1`` when the ``u_k`` are known, and, when they are an estimate with
+``nu`` degrees of freedom (a survey's own scatter sigma0 from its residuals),
+one ``c = sqrt(nu / chi2_nu)`` drawn per trial, shared by all observations:
+``sigma = s * c`` is then drawn from the distribution of sigma given the
+estimate ``s`` under the usual non-informative prior (``nu s^2 / sigma^2`` is
+chi-squared with ``nu`` degrees of freedom). For a single quantity this is
+exactly the scaled and shifted t-distribution that JCGM 101:2008 assigns to the
+mean of repeated indications (clause 6.4.9, from memory; a normal draw divided by
+``sqrt(chi2_nu / nu)`` is how a t variate is formed); here it extends to every
+height and so to the flatness, so the interval covers the truth about 95 % of
+the time even with few degrees of freedom. Its variance is ``nu / (nu - 2)``
+times that of ``e_k``, finite only for ``nu > 2``: fewer than 3 are refused.
 
 References
 ----------
@@ -163,6 +176,7 @@ def monte_carlo_flatness(
     reference: str = "minimum_zone",
     batch: int = 10_000,
     keep_samples: bool = False,
+    u_dof: float | None = None,
 ) -> FlatnessUncertainty:
     """Uncertainty of flatness by Monte Carlo propagation (JCGM 101:2008).
 
@@ -201,6 +215,11 @@ def monte_carlo_flatness(
         Trials evaluated together (memory ~ batch x n_stations x 8 bytes x a few).
     keep_samples : bool
         Return the M flatness values in ``samples_um``.
+    u_dof : float, optional
+        Degrees of freedom ``nu`` of ``u_value_um`` when it is an estimate (e.g. the
+        sigma0 of a least-squares adjustment, ``nu`` = its redundancy): each trial's
+        reading noise is scaled by one draw of ``sqrt(nu / chi2_nu)`` (module notes).
+        ``None`` (or infinity): ``u_value_um`` is known. At least 3.
 
     Returns
     -------
@@ -253,6 +272,16 @@ def monte_carlo_flatness(
                 f"G has shape {Gm.shape}, expected ({x.size}, {n_obs})", fix="G maps observations to station heights"
             )
     u = _as_per_obs(u_value_um, n_obs, "u_value_um")
+    if u_dof is not None:
+        u_dof = float(u_dof)
+        if not (u_dof >= 3):  # also NaN
+            raise InputValueError(
+                f"u_dof is {u_dof:g}: an uncertainty estimated with fewer than 3 degrees of freedom has no finite "
+                "standard deviation (t-distribution)",
+                fix="state the uncertainty from the instrument's calibration, or gather more degrees of freedom",
+            )
+        if not np.isfinite(u_dof):
+            u_dof = None
     if not (np.isfinite(scale_u_rel) and scale_u_rel >= 0):
         raise InputValueError("scale_u_rel must be finite and not negative", fix="give a relative standard uncertainty")
     ginv, gu = None, None
@@ -297,7 +326,10 @@ def monte_carlo_flatness(
             obs *= 1.0 + scale_u_rel * rng.standard_normal((m, 1))
         if ginv is not None:
             obs *= (1.0 + gu * rng.standard_normal((m, gu.size)))[:, ginv]
-        obs += u * rng.standard_normal((m, n_obs))
+        noise = u * rng.standard_normal((m, n_obs))
+        if u_dof is not None:  # the estimated sigma's own uncertainty: one scale per trial
+            noise *= np.sqrt(u_dof / rng.chisquare(u_dof, m))[:, None]
+        obs += noise
         H = obs if Gm is None else obs @ Gm.T
         if reference == "minimum_zone":
             t, fb = minimum_zone_batch(x, y, H, start=start)

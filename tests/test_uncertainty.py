@@ -161,3 +161,47 @@ def test_bad_inputs():
         monte_carlo_flatness(x, y, z, u_value_um=0.1, trials=200)
     with pytest.raises(InputValueError, match="group_u_rel"):
         monte_carlo_flatness(x, y, np.zeros(81), u_value_um=0.1, group=np.zeros(81), trials=200)
+
+
+def test_estimated_sigma_widens_by_the_t_factor():
+    # Linear regime: flatness = c . z, so with the reading sigma drawn per trial as s*sqrt(nu/chi2_nu) the
+    # flatness is s|c| times a Student t variate with nu degrees of freedom (a normal divided by
+    # sqrt(chi2_nu/nu); scipy.stats.t as reference): sd ratio sqrt(nu/(nu-2)) (= sqrt(2) for nu = 4),
+    # 97.5 % point t_0.975(nu) (2.776 for nu = 4) instead of 1.96.
+    from scipy.stats import t as student_t
+
+    x, y, z = _dome()
+    u, nu = 0.0005, 4
+    known = monte_carlo_flatness(x, y, z, u_value_um=u, trials=40000, seed=8)
+    est = monte_carlo_flatness(x, y, z, u_value_um=u, u_dof=nu, trials=40000, seed=8)
+    assert est.estimate_um == known.estimate_um
+    half_known = known.interval_um[1] - known.estimate_um
+    half_est = est.interval_um[1] - est.estimate_um
+    assert half_est / half_known == pytest.approx(student_t.ppf(0.975, nu) / Z95, rel=0.04)
+    # the sd of a heavy-tailed t(4) sample converges slowly (infinite kurtosis): a loose check
+    assert est.std_um / known.std_um == pytest.approx(np.sqrt(nu / (nu - 2)), rel=0.15)
+    with pytest.raises(InputValueError, match="fewer than 3 degrees of freedom"):
+        monte_carlo_flatness(x, y, z, u_value_um=u, u_dof=2, trials=200)
+
+
+def test_coverage_with_a_scatter_estimated_from_few_degrees_of_freedom():
+    # Repeat surveys whose reading sigma is not known but estimated with nu = 3 degrees of freedom
+    # (s^2 = sigma^2 chi2_nu / nu, independent of the readings, as sigma0 of a least-squares adjustment
+    # is of its estimates). Taking s as exact, the 95 % interval covers only P(|t_3| < 1.96) = 0.856
+    # of the time (scipy.stats.t); drawing sigma per trial as s*sqrt(nu/chi2_nu) restores 95 %.
+    # 300 repeats: binomial sd 1.3 % at 0.95, so accept 0.92 .. 0.98 (0.856 is 7 sd below).
+    x, y, truth = _dome()
+    t_true = lp_zone(x, y, truth)
+    rng = np.random.default_rng(4321)
+    sigma, nu, n_rep = 0.0005, 3, 300
+    hits = {True: 0, False: 0}
+    for k in range(n_rep):
+        measured = truth + rng.normal(0, sigma, 81)
+        s = sigma * np.sqrt(rng.chisquare(nu) / nu)
+        for with_dof in (True, False):
+            r = monte_carlo_flatness(
+                x, y, measured, u_value_um=s, u_dof=nu if with_dof else None, trials=1000, seed=k,
+            )
+            hits[with_dof] += r.interval_um[0] <= t_true <= r.interval_um[1]
+    assert 0.92 <= hits[True] / n_rep <= 0.98
+    assert hits[False] / n_rep < 0.90  # the flaw this guards against
