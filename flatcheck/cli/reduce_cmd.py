@@ -78,13 +78,16 @@ def reduce_cmd(
     if units.value == "in":
         doc["units_note"] = (
             "--units in changes the summary only: every *_um value is in µm and every *_mm value in mm; "
-            "flatness_uin repeats the flatness in µin"
+            "flatness_uin repeats the flatness figures in µin, as *_uin keys (and, for older scripts, "
+            "under their *_um names)"
         )
-        doc["flatness_uin"] = {
+        uin = {
             k: (None if v is None else um_to(v, "in"))
             for k, v in doc["flatness"].items()
             if k.endswith("_um") and (v is None or isinstance(v, float))
         }
+        # the first keys kept their *_um names though their values are µin; the *_uin twins say what they hold
+        doc["flatness_uin"] = {**uin, **{k[:-3] + "_uin": v for k, v in uin.items()}}
     if json_out:
         emit_json(doc)
         return

@@ -377,6 +377,10 @@ def test_units_in_keeps_json_values_in_um_and_says_so(cli):
     assert b["units"] == "um" and b["display_units"] == "in" and a["display_units"] == "um"
     assert "µm" in b["units_note"] and "mm" in b["units_note"]
     assert b["nodes"] == a["nodes"] and b["flatness"] == a["flatness"] and b["local_flatness"] == a["local_flatness"]
+    # µin figures under names that say µin (1 µin = 0.0254 µm exactly); the old *_um names are kept
+    fu = b["flatness_uin"]
+    assert fu["minimum_zone_uin"] == fu["minimum_zone_um"] == pytest.approx(a["flatness"]["minimum_zone_um"] / 0.0254)
+    assert fu["peak_uin"] == pytest.approx(a["flatness"]["peak_um"] / 0.0254)
 
 
 def test_units_in_shows_positions_in_inches(cli, monkeypatch):
