@@ -1204,12 +1204,15 @@ def _input_warnings(surface: HeightMap, pads, xs: np.ndarray, y0: float, pad_fac
     if worst is not None:
         _, p, along, across = worst
         who = "the pad" if len(pads) == 1 else f"pad {p.name!r}"
+        size = (f"Ø{p.pad.length_mm:g} mm" if p.pad.shape == "circle"
+                else f"{p.pad.length_mm:g} x {p.pad.width_mm:g} mm")
+        along_max, across_max = COARSE_SURVEY_FRACTION * p.pad.length_mm, COARSE_SURVEY_FRACTION * p.pad.width_mm
         out.append(
             f"the surveyed stations are up to {along:.3g} mm apart along the travel and {across:.3g} mm across "
-            f"under {who} ({p.pad.length_mm:g} x {p.pad.width_mm:g} mm), more than half its size: the local "
-            "flatness under a pad comes mostly from interpolation between stations, not from measured form; "
-            f"survey at most {COARSE_SURVEY_FRACTION * p.pad.length_mm:.3g} mm apart along and "
-            f"{COARSE_SURVEY_FRACTION * p.pad.width_mm:.3g} mm across to see it"
+            f"under {who} ({size}), more than half its size: the local flatness under a pad comes mostly from "
+            "interpolation between stations, not from measured form; to see that form, survey at most "
+            + (f"{along_max:.3g} mm apart both ways" if along_max == across_max
+               else f"{along_max:.3g} mm apart along and {across_max:.3g} mm across")
         )
     if pad_face is not None:
         grid = pad_face.grid
@@ -1221,12 +1224,12 @@ def _input_warnings(surface: HeightMap, pads, xs: np.ndarray, y0: float, pad_fac
         else:
             fx, fy = fxmax - fxmin, fymax - fymin
         odd = sorted({
-            (p.pad.length_mm, p.pad.width_mm) for p in pads
+            (p.pad.shape, p.pad.length_mm, p.pad.width_mm) for p in pads
             if abs(fx - p.pad.length_mm) > PAD_FACE_SIZE_TOLERANCE * p.pad.length_mm
             or abs(fy - p.pad.width_mm) > PAD_FACE_SIZE_TOLERANCE * p.pad.width_mm
         })
         if odd:
-            sizes = " and ".join(f"{a:g} x {b:g} mm" for a, b in odd)
+            sizes = " and ".join(f"Ø{a:g} mm" if shape == "circle" else f"{a:g} x {b:g} mm" for shape, a, b in odd)
             out.append(
                 f"the pad-face map covers {fx:.3g} x {fy:.3g} mm but the pad is {sizes} (more than "
                 f"{100 * PAD_FACE_SIZE_TOLERANCE:.0f} % apart): check that the map is of this pad's face, in mm, "
