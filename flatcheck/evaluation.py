@@ -388,6 +388,7 @@ class SurfaceEvaluation:
                     }
                     for o in red.outliers
                 ],
+                "readings": self._readings() if nodes else [],
             }
             doc["instrument_zeros"] = [
                 {"lines": list(z.lines), "value": z.value, "unit": z.unit, "rise_um": z.rise_um, "turned": z.turned}
@@ -395,6 +396,41 @@ class SurfaceEvaluation:
             ]
             doc["warnings"] = list(red.warnings)
         return doc
+
+    def _readings(self) -> list:
+        """Every reading with its residual (µm), standardised residual w and redundancy number.
+
+        Order of :func:`flatcheck.survey.observations` (line by line, run by run, step by step from the
+        line's first station). ``reading`` is the value as written in the run (its order and sign); ``w``
+        is None where the reading cannot be tested (redundancy number 0, or no scatter to test against).
+        """
+        from .survey import observations
+
+        sv, red = self.loaded.survey, self.loaded.reduction
+        obs = observations(sv)
+        reads_heights = sv.instrument.reads_heights
+        w = red.standardized_residual
+        out = []
+        for k in range(obs.value_um.size):
+            ln = sv.lines[int(obs.line[k])]
+            run = ln.runs[int(obs.run[k])]
+            st = int(obs.step[k])
+            written = len(run.readings) - 1 - st if run.order == "reverse" else st
+            wk = float(w[k])
+            out.append(
+                {
+                    "line": ln.name,
+                    "run": int(obs.run[k]) + 1,
+                    "step": st + 1,
+                    "from": "" if reads_heights else ln.stations[st],
+                    "to": ln.stations[st] if reads_heights else ln.stations[st + 1],
+                    "reading": float(run.readings[written]),
+                    "residual_um": float(red.residual_um[k]) + 0.0,
+                    "w": wk if np.isfinite(wk) else None,
+                    "redundancy": float(red.redundancy_numbers[k]),
+                }
+            )
+        return out
 
     def _nodes(self) -> list:
         hm = self.heightmap

@@ -7,17 +7,22 @@ flatcheck.simulate; the survey's own observations (flatcheck.survey.observations
 
 import dataclasses
 import json
+import tomllib
+from pathlib import Path
 
 import numpy as np
 import pytest
 
 from flatcheck.errors import InputValueError
 from flatcheck.evaluation import LoadedInput, evaluate_surface, survey_uncertainty
+from flatcheck.io.survey_toml import read_survey
 from flatcheck.flatness import minimum_zone
 from flatcheck.layout import plan_grid, plan_union_jack
 from flatcheck.reduction import reduce_survey
 from flatcheck.simulate import simulate_survey
-from flatcheck.survey import Instrument
+from flatcheck.survey import Instrument, observations
+
+SAMPLE = Path(__file__).resolve().parents[1] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
 
 AC = Instrument("autocollimator", "arcsec")
 
@@ -114,3 +119,53 @@ def test_coverage_of_repeat_surveys_with_four_degrees_of_freedom():
     # (scipy.stats.t); measured here 0.873 that way and 0.950 with the per-trial draw (300 repeats).
     # 400 repeats: binomial sd 1.1 % at 0.95; accept 0.925 .. 0.975. About 2 minutes.
     assert 0.925 <= _coverage(400, 1000, 0.003, seed=99) <= 0.975
+
+
+# ----------------------------------------------------------------------------- JSON: residuals per reading
+def test_residuals_per_reading_in_the_json():
+    sv = read_survey(SAMPLE)
+    ld = loaded(sv)
+    red = ld.reduction
+    doc = json.loads(json.dumps(evaluate_surface(ld, window="none").to_dict(), allow_nan=False))
+    res = doc["residuals"]
+    # keys of the earlier contract kept
+    assert {"observations", "redundancy", "sigma0_um", "sigma0_reading", "outliers"} <= set(res)
+    rows = res["readings"]
+    assert len(rows) == res["observations"] == 76
+    # the readings as written in the file, read back with tomllib (independent of flatcheck's reader)
+    raw = tomllib.loads(SAMPLE.read_text())
+    written = {}
+    for ln in raw["line"]:
+        runs = ln.get("run") or [ln]
+        written[ln["name"]] = [(r["readings"], r.get("order", "forward")) for r in runs]
+    for row in rows:
+        values, order = written[row["line"]][row["run"] - 1]
+        i = len(values) - row["step"] if order == "reverse" else row["step"] - 1
+        assert row["reading"] == values[i]
+        assert set(row) == {"line", "run", "step", "from", "to", "reading", "residual_um", "w", "redundancy"}
+    np.testing.assert_allclose([r["residual_um"] for r in rows], red.residual_um, atol=0)
+    np.testing.assert_allclose([r["w"] for r in rows], red.standardized_residual, atol=0)
+    # the redundancy numbers add up to the redundancy (trace of the residual projector = m - rank)
+    assert sum(r["redundancy"] for r in rows) == pytest.approx(res["redundancy"], abs=1e-9)
+    # stations of a reverse run's step, in the line's forward direction
+    row = next(r for r in rows if r["line"] == "SW-SE" and r["run"] == 2 and r["step"] == 1)
+    assert (row["from"], row["to"], row["reading"]) == ("SW", "SW-SE.1", 0.66)
+
+
+def test_readings_of_turned_runs_are_given_as_written_and_untestable_w_is_null():
+    p = plan_union_jack(1000, 600, 100, margin_mm=50, instrument=AC)
+    s = simulate_survey(p, dome_um, runs=("forward", "reverse-flipped"), noise_sd=0.1, rng=2)
+    ld = loaded(s)
+    rows = evaluate_surface(ld, window="none").to_dict()["residuals"]["readings"]
+    obs = observations(s)
+    for row, fwd in zip(rows, obs.reading):
+        ln = next(ln for ln in s.lines if ln.name == row["line"])
+        run = ln.runs[row["run"] - 1]
+        # obs.reading is in forward order and sign; the file has the turned run reversed and negated
+        assert row["reading"] == (-fwd if run.flip_sign else fwd)
+        assert row["reading"] in run.readings
+    # an indicator grid has no redundancy: nothing can be tested
+    ind = simulate_survey(plan_grid(600, 400, 100, margin_mm=50, instrument=Instrument("indicator", "um")), dome_um,
+                          noise_sd=0.1, rng=2)
+    rows = evaluate_surface(loaded(ind), window="none").to_dict()["residuals"]["readings"]
+    assert rows and all(r["w"] is None and r["from"] == "" for r in rows)
