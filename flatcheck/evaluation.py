@@ -379,8 +379,10 @@ class SurfaceEvaluation:
             doc["residuals"] = {
                 "observations": int(red.rank.n_observations),
                 "redundancy": int(red.redundancy),
-                "sigma0_um": float(red.sigma0_um),
-                "sigma0_reading": float(red.sigma0_reading),
+                # None when the readings give no scatter estimate, with the reason beside it
+                "sigma0_um": float(red.sigma0_um) if np.isfinite(red.sigma0_um) else None,
+                "sigma0_reading": float(red.sigma0_reading) if np.isfinite(red.sigma0_reading) else None,
+                "sigma0_reason": None if np.isfinite(red.sigma0_um) else "no redundancy: no scatter estimate",
                 "outliers": [
                     {
                         "line": o.line, "run": o.run, "step": o.step, "from": o.station_from, "to": o.station_to,

@@ -45,6 +45,7 @@ from .reduction import (
     Reduction,
     _build_model,
     _check_connected,
+    _clean_zero,
     _heightmap,
     _label,
     _linearised_values,
@@ -267,7 +268,8 @@ def moody_reduce(survey: Survey) -> MoodyResult:
     cl = G_cl @ l
     names = [ln for ln in (lines["centre_ns"], lines["centre_we"])]
     meaning = "centre line value at the centre minus the diagonals' value there (classic closure error)"
-    closures = tuple(LineClosure(nm, float(c), meaning) for nm, c in zip(names, cl))
+    scale = float(np.max(np.abs(l))) if l.size else 0.0
+    closures = tuple(LineClosure(nm, _clean_zero(c, scale), meaning) for nm, c in zip(names, cl))
     return MoodyResult(
         raw_height_um=raw,
         height_um=_plane_removed(Qp, raw),

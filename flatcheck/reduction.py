@@ -842,6 +842,15 @@ def _zero_records(model: _Model, zeros: np.ndarray) -> tuple:
     return tuple(out)
 
 
+def _clean_zero(value: float, scale: float) -> float:
+    """``value`` with rounding noise (below 1e-12 of ``scale``) and negative zero shown as 0.0.
+
+    A closure of exact readings is rounding noise (~1e-15 µm) that would print as "-0.000".
+    """
+    value = float(value)
+    return 0.0 if abs(value) <= 1e-12 * abs(float(scale)) else value + 0.0
+
+
 def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -> tuple:
     """Closure of each line at the stations it shares with other lines.
 
@@ -863,12 +872,13 @@ def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -
     for ln in survey.lines:
         for name in set(ln.stations):
             lines_at[name] = lines_at.get(name, 0) + 1
+    scale = float(np.max(np.abs(l))) if l.size else 0.0
     out = []
     for li, ln in enumerate(survey.lines):
         sel = obs.line == li
         runs = np.unique(obs.run[sel])
         if reads:
-            closure = float(np.mean(r[sel]))
+            closure = _clean_zero(np.mean(r[sel]), scale)
             meaning = "mean residual of the line's indicator readings (observed minus adjusted height)"
             out.append(LineClosure(ln.name, closure, meaning, None))
             continue
@@ -884,14 +894,14 @@ def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -
         if not ties:
             ties = [steps]
         k_worst = max(ties, key=lambda k: abs(mean_cum[k]))
-        closure = float(mean_cum[k_worst])
+        closure = _clean_zero(mean_cum[k_worst], scale)
         meaning = (
             "largest difference, at a station shared with another line, between the line's own integrated "
             "profile (zero removed, mean of its runs) and the adjusted heights; it comes from reading errors, "
             "not from flatness"
         )
         ends = np.array([corrected[sel & (obs.run == k)].sum() for k in runs])
-        spread = float(ends.max() - ends.min()) if runs.size > 1 else None
+        spread = _clean_zero(ends.max() - ends.min(), scale) if runs.size > 1 else None
         out.append(LineClosure(ln.name, closure, meaning, spread, ln.stations[k_worst]))
     return tuple(out)
 

@@ -7,6 +7,7 @@ flatcheck.simulate; the survey's own observations (flatcheck.survey.observations
 
 import dataclasses
 import json
+import math
 import tomllib
 from pathlib import Path
 
@@ -169,3 +170,22 @@ def test_readings_of_turned_runs_are_given_as_written_and_untestable_w_is_null()
                           noise_sd=0.1, rng=2)
     rows = evaluate_surface(loaded(ind), window="none").to_dict()["residuals"]["readings"]
     assert rows and all(r["w"] is None and r["from"] == "" for r in rows)
+
+
+# ----------------------------------------------------------------------------- JSON: no NaN, no -0.0
+def test_no_redundancy_gives_no_scatter_with_the_reason():
+    ind = simulate_survey(plan_grid(600, 400, 100, margin_mm=50, instrument=Instrument("indicator", "um")), dome_um,
+                          noise_sd=0.1, rng=2)
+    doc = evaluate_surface(loaded(ind), window="none").to_dict()
+    res = doc["residuals"]
+    assert res["redundancy"] == 0
+    assert res["sigma0_um"] is None and res["sigma0_reading"] is None
+    assert res["sigma0_reason"] == "no redundancy: no scatter estimate"
+    json.dumps(doc, allow_nan=False)  # raises on NaN
+    # closures of a line with no redundancy are rounding noise: exactly 0.0, never -0.0
+    for ln in doc["lines"]:
+        assert ln["closure_um"] == 0.0 and math.copysign(1.0, ln["closure_um"]) == 1.0
+    # with redundancy the reason is None and the scatter a number
+    lv = simulate_survey(small_dof_plan(), dome_um, runs=SMALL_DOF_RUNS, noise_sd=0.05, rng=5)
+    res = evaluate_surface(loaded(lv), window="none").to_dict()["residuals"]
+    assert res["sigma0_reason"] is None and res["sigma0_um"] > 0

@@ -166,3 +166,13 @@ def test_least_squares_scatter_smaller_than_moody():
     # the Monte Carlo agrees with the analytic covariance (400 trials: a few %)
     assert ls_ac == pytest.approx(an_ls_ac, rel=0.08) and mo_ac == pytest.approx(an_mo_ac, rel=0.08)
     assert ls_lv == pytest.approx(an_ls_lv, rel=0.08) and mo_lv == pytest.approx(an_mo_lv, rel=0.08)
+
+
+def test_closures_of_exact_readings_are_exactly_zero():
+    # exact readings close exactly; rounding noise (~1e-16 µm) must not show as -0.000
+    import math
+
+    p = plan_union_jack(1000, 600, 100, margin_mm=50, instrument=AC)
+    s = simulate_survey(p, surface_um, instrument_zero="random", rng=4)
+    for c in moody_reduce(s).closures + reduce_survey(s, method="moody").closures:
+        assert c.closure_um == 0.0 and math.copysign(1.0, c.closure_um) == 1.0

@@ -696,3 +696,14 @@ def test_set_aside_update_with_stated_sigma_matches_numpy():
     assert np.array_equal(both, ok)  # the 16 diagonal readings are set aside together
     np.testing.assert_allclose(after[both], w_ref[both], rtol=1e-6, atol=1e-9)
     assert np.all(np.abs(after[both]) <= OUTLIER_THRESHOLD)
+
+
+@pytest.mark.parametrize("layout,kind", [("union-jack", "autocollimator"), ("grid", "indicator"), ("lines", "level")])
+def test_closures_of_exact_readings_are_exactly_zero(layout, kind):
+    # exact readings close exactly; the rounding noise (~1e-15 µm) must not show as -0.000
+    runs = ("forward", "reverse") if kind != "indicator" else ("forward",)
+    s = simulate_survey(plan(layout, kind), surface_um, runs=runs, instrument_zero="random", rng=7)
+    for c in reduce_survey(s).closures:
+        assert c.closure_um == 0.0 and math.copysign(1.0, c.closure_um) == 1.0
+        if c.run_spread_um is not None:
+            assert c.run_spread_um == 0.0 and math.copysign(1.0, c.run_spread_um) == 1.0
