@@ -109,8 +109,12 @@ CASES = [
     ("grid", "indicator"),
     ("lines", "autocollimator"),
     ("lines", "level"),
+    ("lines", "differential-level"),
     ("lines", "indicator"),
 ]
+
+# reading noise per instrument, in its reading unit (illustrative sizes)
+NOISE_SD = {"autocollimator": 0.3, "level": 0.3, "differential-level": 0.3, "indicator": 0.1}
 
 
 @pytest.mark.parametrize("layout,kind", CASES)
@@ -128,6 +132,40 @@ def test_round_trip_exact(layout, kind):
     assert red.outliers == ()
     for c in red.closures:
         assert abs(c.closure_um) < 1e-9
+
+
+@pytest.mark.parametrize("layout,kind", CASES)
+def test_round_trip_with_noise_within_the_predicted_covariance(layout, kind):
+    # Gauss-Markov: with independent reading noise of sd sigma_k (µm), the adjusted heights scatter about
+    # the truth (less its LS plane) with covariance C = G diag(sigma_k^2) G^T, G the reduction's own
+    # operator. So e^T C^+ e is chi-squared with rank(C) degrees of freedom for each noisy survey; summed
+    # over 8 seeded surveys it must lie within the two-sided 0.1 % quantiles (scipy.stats.chi2), which
+    # fails both for too much scatter and for a covariance that overstates it.
+    from scipy.stats import chi2
+
+    p = plan(layout, kind)
+    runs = ("forward", "reverse") if kind != "indicator" else ("forward",)
+    sd = NOISE_SD[kind]
+    exact = simulate_survey(p, surface_um, instrument_zero="random", runs=runs, rng=7)
+    red0 = reduce_survey(exact)
+    sigma_um = sd * np.abs(observations(exact).um_per_unit)
+    C = red0.operator.G @ (sigma_um[:, None] ** 2 * red0.operator.G.T)
+    evals, evecs = np.linalg.eigh(C)
+    keep = evals > 1e-9 * evals.max()
+    truth = expected_heights(exact)
+    rng = np.random.default_rng(2024)
+    stat, dof, worst = 0.0, 0, 0.0
+    for _ in range(8):
+        s = simulate_survey(p, surface_um, instrument_zero="random", runs=runs, noise_sd=sd, rng=rng)
+        e = reduce_survey(s).heightmap.height_um - truth
+        z = (evecs[:, keep].T @ e) / np.sqrt(evals[keep])
+        stat += float(z @ z)
+        dof += int(keep.sum())
+        worst = max(worst, float(np.max(np.abs(e) / np.sqrt(np.diag(C)))))
+        assert np.linalg.norm(e - evecs[:, keep] @ (evecs[:, keep].T @ e)) < 1e-6 * max(np.linalg.norm(e), 1e-12)
+    print(f"\n[noisy round trip {layout} {kind}] e^T C^+ e / dof = {stat / dof:.3f} (dof {dof})")
+    assert chi2.ppf(0.0005, dof) < stat < chi2.ppf(0.9995, dof), (stat, dof)
+    assert worst < 5.0  # no single station beyond 5 predicted sd
 
 
 def test_round_trip_beam_deviation_and_flipped_runs():
