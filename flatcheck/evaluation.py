@@ -233,8 +233,8 @@ def survey_uncertainty(
             if nu < 10:
                 notes.append(
                     f"the reading scatter is estimated from only {nu} degrees of freedom, so it is itself uncertain "
-                    "and widens the interval; stating the instrument's reading uncertainty ([instrument] "
-                    "reading_uncertainty) or walking lines forward and back gives a firmer figure"
+                    "and widens the interval; stating the instrument's reading uncertainty (reading_uncertainty "
+                    "in the survey's instrument table) or walking lines forward and back gives a firmer figure"
                 )
         kw = dict(G=op.G, u_value_um=u, u_dof=u_dof)
         if inst.scale_uncertainty_rel:
