@@ -25,7 +25,16 @@ from ..errors import FlatcheckError, InputValueError
 from ..io.bearing_toml import parse_pad_size, read_bearing_toml
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, emit_json, load_surface, progress_bar, stdout_console, Units, units_option
+from .common import (
+    SAFETY_LINES,
+    emit_json,
+    load_surface,
+    progress_bar,
+    refuse_overwriting_inputs,
+    stdout_console,
+    Units,
+    units_option,
+)
 
 
 class PadKind(str, Enum):
@@ -321,6 +330,7 @@ def bearing_cmd(
         travel=(travel_start_mm, travel_end_mm),
     )
     _check_mesh(film_mesh)
+    refuse_overwriting_inputs({"--plot": plot_out}, [input, bearing, pad_face])
     carriage, fraction, marginal, budget = build_carriage(
         bearing=bearing,
         pad=pad,

@@ -258,3 +258,11 @@ def test_pad_size_too_large_to_be_a_number(cli, sine_csv):
     code, out, err = cli("bearing", sine_csv, "--pad", "1e400x80", "--gap-um", "8")
     one_line_error(code, out, err)
     assert "--pad" in err and "not a finite number" in err
+
+
+def test_plot_may_not_overwrite_an_input(cli, sine_csv):
+    before = sine_csv.read_bytes()
+    code, out, err = cli("bearing", sine_csv, "--pad", "60x40", "--gap-um", "8", "--plot", sine_csv)
+    one_line_error(code, out, err)
+    assert "--plot" in err and "input" in err
+    assert sine_csv.read_bytes() == before
