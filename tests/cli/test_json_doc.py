@@ -1,0 +1,65 @@
+"""docs/json-output.md names every key the commands print with --json (grade, bearing)."""
+
+import json
+import re
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[2]
+SAMPLES = ROOT / "sample_readings"
+
+
+def _section(command):
+    text = (ROOT / "docs" / "json-output.md").read_text(encoding="utf-8")
+    start = text.index(f"## `flatcheck {command}")
+    end = text.find("\n## ", start + 1)
+    return text[start : end if end > 0 else None]
+
+
+def _keys(obj, out=None):
+    out = set() if out is None else out
+    if isinstance(obj, dict):
+        for k, v in obj.items():
+            out.add(k)
+            _keys(v, out)
+    elif isinstance(obj, list):
+        for v in obj:
+            _keys(v, out)
+    return out
+
+
+RUNS = {
+    "grade": [
+        (SAMPLES / "plate-KY-P3-2024-03-11.toml", "-s", "din-876", "--trials", "300", "--seed", "1", "--units", "in"),
+        (SAMPLES / "plate-KY-P7-grid.toml", "-s", "asme", "--no-uncertainty", "--repeat-radius-mm", "100",
+         "--repeat-tolerance-um", "1", "--units", "in"),
+    ],
+    "bearing": [
+        (SAMPLES / "guideway-KY-G1.toml", "--bearing", SAMPLES / "bearing_tandem_slide.toml", "--supply-kpa", "500",
+         "--permeability-m2", "1e-15", "--layer-mm", "5", "--film-mesh", "12", "--travel-start-mm", "400",
+         "--travel-end-mm", "500"),
+        (SAMPLES / "guideway-KY-G1.toml", "--pad", "d60", "--gap-um", "10", "--kind", "orifice", "--supply-kpa", "500",
+         "--orifice-mm", "0.25", "--orifices", "4", "--film-mesh", "13", "--travel-start-mm", "400",
+         "--travel-end-mm", "450", "--pad-face", SAMPLES / "pad-KY-B4-heights.csv"),
+    ],
+}
+PINNED = {
+    "grade": ("standard", "length_used_mm", "flatness_um", "expanded_uncertainty_um", "grades", "grade",
+              "tolerance_um", "verdict"),
+    "bearing": ("limit_um", "local_flatness_max_um", "verdict", "motion", "stations"),
+}
+
+
+@pytest.mark.parametrize("command", sorted(RUNS))
+def test_every_json_key_is_documented(cli, command):
+    section = _section(command)
+    keys = set()
+    for args in RUNS[command]:
+        code, out, err = cli(command, *args, "--json")
+        assert code == 0, err
+        keys |= _keys(json.loads(out))
+    missing = sorted(k for k in keys if f"`{k}`" not in section)
+    assert not missing, f"keys of {command} --json missing from docs/json-output.md: {missing}"
+    for k in PINNED[command]:
+        assert re.search(rf"`{k}`[^\n]*\*\*pinned\*\*", section), k
