@@ -362,7 +362,9 @@ class Reduction:
     instrument_zeros : tuple of InstrumentZero
         Adjusted zeros (least squares) or the zeros implied by the Moody map.
     outliers : tuple of Outlier
-        Flagged readings, largest ``|w|`` first (least squares only).
+        Flagged readings (least squares only): the suspect groups of iterated data
+        snooping first, in the order found (the first holds the largest ``|w|``),
+        then the readings flagged only through them, by decreasing ``|w|``.
     warnings : tuple of str
         Things the user should know (no redundancy, zero/tilt trade...).
     operator : LinearReduction or None
