@@ -43,6 +43,7 @@ __all__ = [
     "Pass",
     "CellChart",
     "LapPlan",
+    "Shortfall",
     "node_area_weights",
     "least_removal",
     "preston_rate_um_per_min",
@@ -797,6 +798,124 @@ class CellChart:
         return [f"{self.columns[a]}{self.rows[b]}" for a, b in zip(np.atleast_1d(i), np.atleast_1d(j))]
 
 
+def _fmt_height(v_um: float, units: str) -> str:
+    """A height for a sentence: µm to the nm, µin to 0.1 µin (about 2.5 nm)."""
+    from .units import height_unit_label, um_to
+
+    return f"{um_to(v_um, units):.3f} {height_unit_label(units)}" if units == "um" else (
+        f"{um_to(v_um, units):.1f} {height_unit_label(units)}"
+    )
+
+
+@dataclass(frozen=True)
+class Shortfall:
+    """Why a plan misses its target, split into its causes, with what to change.
+
+    The plan's predicted flatness is reached in four steps, each of which can lose flatness: the lap's
+    footprint (the best unrounded dwell, no smoothing), the smoothing of the dwell map, rounding the dwell to
+    ``levels`` time steps, and tidying passes shorter than the minimum. Each loss is the flatness after the
+    step minus the flatness before it (µm; the footprint's loss is measured from the target).
+
+    Attributes
+    ----------
+    target_um : float
+        Target flatness (µm).
+    best_um : float
+        Flatness after the best unrounded, unsmoothed dwell (µm): the best this lap can do in one plan.
+    smoothed_um : float
+        Flatness after the smoothed, unrounded dwell (µm).
+    rounded_um : float
+        Flatness after the dwell rounded to ``levels`` steps, before short passes were tidied (µm).
+    plan_um : float
+        Flatness after the plan as printed (µm).
+    levels : int
+        Time steps the dwell was rounded to.
+    min_pass_time : float
+        Shortest pass allowed (the lap's time unit).
+    time_unit : str
+        ``"min"`` or ``"pass"``.
+    levels_suggested : int or None
+        More time steps that bring the rounded dwell close to the unrounded one, when rounding is a cause.
+    levels_suggested_um : float or None
+        Flatness of the same dwell rounded to ``levels_suggested`` steps, before tidying (µm): an estimate of
+        what a plan with that many steps reaches.
+    levels_tried : tuple of (int, float)
+        Every number of steps tried on the way, with that flatness (µm).
+    """
+
+    target_um: float
+    best_um: float
+    smoothed_um: float
+    rounded_um: float
+    plan_um: float
+    levels: int
+    min_pass_time: float
+    time_unit: str
+    levels_suggested: int | None = None
+    levels_suggested_um: float | None = None
+    levels_tried: tuple = ()
+
+    @property
+    def losses_um(self) -> dict:
+        """Flatness lost at each step (µm, >= 0; a step that happened to gain counts 0), by cause."""
+        return {
+            "footprint": max(0.0, self.best_um - self.target_um),
+            "smoothing": max(0.0, self.smoothed_um - self.best_um),
+            "rounding": max(0.0, self.rounded_um - self.smoothed_um),
+            "short passes": max(0.0, self.plan_um - self.rounded_um),
+        }
+
+    @property
+    def causes(self) -> tuple:
+        """The causes that matter, largest first: each loses at least a fifth of the total shortfall."""
+        loss = self.losses_um
+        total = sum(loss.values())
+        if total <= 0:
+            return ()
+        named = [k for k, v in sorted(loss.items(), key=lambda kv: -kv[1]) if v >= 0.2 * total]
+        return tuple(named)
+
+    def text(self, units: str = "um") -> str:
+        """The shortfall and its remedies in one or two sentences (heights in ``units``: "um" or "in")."""
+
+        def h(v):
+            return _fmt_height(v, units)
+
+        loss = self.losses_um
+        unit = "min" if self.time_unit == "min" else "passes"
+        parts = []
+        for cause in self.causes:
+            v = h(loss[cause])
+            if cause == "footprint":
+                parts.append(
+                    f"the lap's footprint costs {v} (even the unrounded dwell leaves {h(self.best_um)}: the lap is "
+                    "wider than the shapes to remove; survey again after the plan and plan again, or use a "
+                    "smaller lap)"
+                )
+            elif cause == "rounding":
+                more = ""
+                if self.levels_suggested is not None:
+                    tried = [t for t in self.levels_tried if t[0] <= self.levels_suggested]
+                    more = "; more steps cost less (" + ", ".join(f"{n} steps: about {h(f)}" for n, f in tried) + (
+                        f"; flatcheck lap --levels {self.levels_suggested}, at the price of more passes)"
+                    )
+                parts.append(f"rounding the dwell to {self.levels} time steps costs {v}{more}")
+            elif cause == "short passes":
+                parts.append(
+                    f"tidying passes shorter than {self.min_pass_time:.2g} {unit} costs {v} (keep them with "
+                    "flatcheck lap --min-pass-fraction 0)"
+                )
+            else:
+                parts.append(f"smoothing the dwell map costs {v} (flatcheck lap --smoothness 0 turns it off)")
+        head = (
+            f"The plan misses the target {h(self.target_um)} by {h(self.plan_um - self.target_um)} "
+            f"(predicted {h(self.plan_um)})"
+        )
+        if not parts:
+            return head + "."
+        return head + ": " + "; ".join(parts) + "."
+
+
 @dataclass(frozen=True, eq=False)
 class LapPlan:
     """A lapping plan and the surface predicted after it.
@@ -841,6 +960,13 @@ class LapPlan:
     pass_regions : tuple of ndarray of bool, shape (ny, nx)
         Dwell-grid nodes each pass works, aligned with ``passes``; the pass's time is spread evenly over
         them, so ``plan_dwell == sum(region * p.time / region.sum())``.
+    levels : int
+        Time steps the dwell was rounded to.
+    best_flatness_um : float
+        Flatness after the best unrounded dwell without smoothing (µm): the best this lap can do in one
+        plan on this dwell grid.
+    shortfall : Shortfall or None
+        Why the plan misses the target and what to change; None when it reaches the target.
     """
 
     lap: LapModel
@@ -863,6 +989,9 @@ class LapPlan:
     unmerged_flatness_um: float = float("nan")
     merges: tuple = ()
     pass_regions: tuple = ()
+    levels: int = 4
+    best_flatness_um: float = float("nan")
+    shortfall: Shortfall | None = None
 
 
 def _dwell_grid(hm: HeightMap, step_mm: float | None, max_nodes: int, lap: LapModel):
@@ -1014,14 +1143,14 @@ def plan_lapping(
             out += layer.region * layer.per_node
         return out
 
-    def _cut(dwell_map):
-        """Layers of the rounded dwell map and their predicted flatness."""
+    def _cut(dwell_map, n_levels=levels):
+        """Layers of the dwell map rounded to ``n_levels`` steps and their predicted flatness."""
         tmax = float(dwell_map.max())
         if tmax <= 0:
             return [], _flatness_after(np.zeros_like(target))
-        dl = tmax / levels
+        dl = tmax / n_levels
         steps = np.round(dwell_map / dl).astype(int)
-        ls = [_Layer(level, reg, dl) for level, reg in _layer_regions(xs, ys, steps, levels, lap)]
+        ls = [_Layer(level, reg, dl) for level, reg in _layer_regions(xs, ys, steps, n_levels, lap)]
         return ls, _flatness_after(_plan_of(ls))
 
     # candidate dwell maps: the given smoothness, or every admissible one on the ladder (discrepancy rule)
@@ -1064,6 +1193,19 @@ def plan_lapping(
     predicted = hm.height_um - _at_nodes(achieved)
     pred_flat = minimum_zone(hm.x_mm, hm.y_mm, predicted).flatness_um
 
+    best_flat = min(c[2] for c in candidates)
+    shortfall = None
+    if pred_flat > removal.target_um * (1 + 1e-7) + 1e-9:
+        if smoothness is not None and smoothness > 0:
+            d0 = deconvolve_dwell(target, kern, smoothing=smoothing, mask=mask)
+            best_flat = min(best_flat, _flatness_after(d0))
+        shortfall = Shortfall(
+            target_um=removal.target_um, best_um=float(best_flat), smoothed_um=float(dwell_flat),
+            rounded_um=float(unmerged_flat), plan_um=float(pred_flat), levels=levels, min_pass_time=float(t_min),
+            time_unit=lap.time_unit,
+        )
+        if "rounding" in shortfall.causes:
+            shortfall = _suggest_levels(shortfall, lambda n: _cut(dwell, n)[1], slack)
     chart = _chart(hm, lap, xs, ys, plan_dwell, cell_mm)
     depth = [float((conv @ (layer.region * layer.per_node).ravel()).max()) for layer in layers]
     order = sorted(range(len(layers)), key=lambda i: (-layers[i].level, -depth[i]))
@@ -1092,7 +1234,37 @@ def plan_lapping(
         unmerged_flatness_um=unmerged_flat,
         merges=tuple(merges),
         pass_regions=regions,
+        levels=levels,
+        best_flatness_um=float(best_flat),
+        shortfall=shortfall,
     )
+
+
+#: Most time steps suggested for rounding the dwell (a plan of more layers is not worked by hand).
+_MAX_SUGGESTED_LEVELS = 32
+
+
+def _suggest_levels(shortfall: Shortfall, rounded_flatness, slack_um: float) -> Shortfall:
+    """Try 2, 4, 8.. times the levels (at most ``_MAX_SUGGESTED_LEVELS``) until the rounding stays within
+    ``slack_um`` of the unrounded dwell; ``rounded_flatness(n)`` is the flatness after rounding to n steps.
+    The suggestion is the first that does, else the best tried; none if more steps do not help."""
+    import dataclasses
+
+    goal = max(shortfall.target_um, shortfall.smoothed_um) + slack_um
+    tried = []
+    n = shortfall.levels * 2
+    while n <= _MAX_SUGGESTED_LEVELS:
+        f = float(rounded_flatness(n))
+        tried.append((n, f))
+        if f <= goal:
+            break
+        n *= 2
+    if not tried:
+        return shortfall
+    n, f = tried[-1] if tried[-1][1] <= goal else min(tried, key=lambda t: t[1])
+    if f >= shortfall.rounded_um:
+        return shortfall  # more steps do not help here
+    return dataclasses.replace(shortfall, levels_suggested=n, levels_suggested_um=f, levels_tried=tuple(tried))
 
 
 def _chart(hm, lap, xs, ys, plan_dwell, cell_mm) -> CellChart:

@@ -455,3 +455,43 @@ def test_gradient_penalty_matches_scipy_nnls(rng):
         return np.sum((A2 @ v - r2.ravel()) ** 2) + np.sum((mu * (D2 @ v)) ** 2)
 
     assert obj(t2.ravel()) == pytest.approx(obj(t2_ref), rel=1e-7)
+
+
+# ----------------------------------------------------------------------------- why a plan misses its target
+def _dome(sigma_mm):
+    x, y = _grid(17, 17, 80.0, 80.0)
+    z = 0.6 * np.exp(-((x - 40) ** 2 + (y - 40) ** 2) / (2 * sigma_mm**2))
+    return HeightMap(x, y, z, length_mm=80.0, width_mm=80.0)
+
+
+def test_shortfall_from_rounding_is_told_apart_and_more_levels_are_suggested():
+    hm = _dome(20.0)
+    lap = LapModel("round", diameter_mm=20.0, rate_um=0.5)
+    lr = least_removal(hm, 0.1)
+    plan = plan_lapping(hm, lr, lap, levels=3)
+    sf = plan.shortfall
+    assert sf is not None and plan.predicted_flatness_um > 0.1
+    # the steps of the split are the plan's own figures
+    assert sf.plan_um == plan.predicted_flatness_um and sf.rounded_um == plan.unmerged_flatness_um
+    assert sf.smoothed_um == plan.dwell_flatness_um and sf.best_um == plan.best_flatness_um <= sf.smoothed_um
+    assert sf.causes == ("rounding",)
+    text = sf.text()
+    assert "rounding the dwell to 3 time steps" in text and f"--levels {sf.levels_suggested}" in text
+    assert "smaller lap" not in text
+    # the estimate for more steps is what a plan with that many steps (same dwell, nothing tidied) gets
+    more = plan_lapping(hm, lr, lap, levels=sf.levels_suggested, smoothness=plan.smoothness, min_pass_fraction=0.0)
+    assert sf.levels_suggested_um == pytest.approx(more.unmerged_flatness_um, rel=1e-12)
+    assert more.unmerged_flatness_um < sf.rounded_um
+
+
+def test_shortfall_from_the_footprint_says_the_lap_is_too_wide():
+    hm = _dome(6.0)  # a narrow bump (sigma 6 mm)
+    lr = least_removal(hm, 0.1)
+    wide = plan_lapping(hm, lr, LapModel("round", diameter_mm=40.0))
+    assert wide.shortfall.causes == ("footprint",) and "smaller lap" in wide.shortfall.text()
+    assert wide.shortfall.losses_um["footprint"] == pytest.approx(wide.best_flatness_um - 0.1)
+    # a narrower lap does better on the same bump, and a target already met leaves no shortfall
+    narrow = plan_lapping(hm, lr, LapModel("round", diameter_mm=10.0))
+    assert narrow.best_flatness_um < wide.best_flatness_um
+    met = plan_lapping(hm, least_removal(hm, 0.7), LapModel("round", diameter_mm=40.0))  # flatness now 0.6 µm
+    assert met.passes == () and met.shortfall is None

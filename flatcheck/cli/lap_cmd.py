@@ -206,6 +206,15 @@ def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str
         "passes_before_tidying": plan.passes_unmerged,
         "predicted_flatness_before_tidying_um": plan.unmerged_flatness_um,
         "short_passes": list(plan.merges),
+        "predicted_flatness_best_um": plan.best_flatness_um,
+        "shortfall": None if plan.shortfall is None else {
+            "causes": list(plan.shortfall.causes),
+            "losses_um": plan.shortfall.losses_um,
+            "levels": plan.shortfall.levels,
+            "levels_suggested": plan.shortfall.levels_suggested,
+            "levels_suggested_flatness_um": plan.shortfall.levels_suggested_um,
+            "text": plan.shortfall.text(units),
+        },
         "chart": {
             "columns": plan.chart.columns,
             "rows": plan.chart.rows,
@@ -241,6 +250,8 @@ def tidy_line(plan: LapPlan) -> str:
     if not plan.passes:
         return ""
     kept = sum("kept" in m for m in plan.merges)
+    if plan.min_pass_time <= 0:
+        return f"Dwell smoothness {plan.smoothness:g}; {len(plan.passes)} passes (no shortest pass: every one kept)"
     line = (
         f"Dwell smoothness {plan.smoothness:g}; {len(plan.passes)} passes "
         f"({plan.passes_unmerged} before passes shorter than {_fmt_time(plan.min_pass_time, plan.lap.time_unit)} "
@@ -300,6 +311,7 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
         f"Predicted flatness after the plan: {h(plan.predicted_flatness_um)} "
         f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}",
         tidy_line(plan),
+        *([plan.shortfall.text(units)] if plan.shortfall is not None else []),
         "",
         "Passes, highest first (work the lap evenly over the zone for the time given):",
         f"{'#':>3}  {'zone':<10} {'centre x, y (mm)':<18} {'extent x, y (mm)':<26} {'depth':>12}  time",
@@ -343,6 +355,8 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     )
     if plan.passes:
         con.print(tidy_line(plan), markup=False)
+    if plan.shortfall is not None:
+        con.print(plan.shortfall.text(units), markup=False)
     table = Table(title="Passes, highest first", title_justify="left")
     for col in ("#", "zone", "centre (mm)", "extent x, y (mm)", f"depth ({hu})", "time"):
         table.add_column(col)
@@ -426,11 +440,6 @@ def lap_cmd(
         plan = plan_lapping(hm, lr, lap, step_mm=step_mm, cell_mm=cell_mm, levels=levels, smoothing=smoothing,
                             smoothness=smoothness, min_pass_fraction=min_pass_fraction)
         advance(1)
-    if plan.predicted_flatness_um > target * 1.0000001 + 1e-9 and plan.passes:
-        notes.append(
-            "this lap cannot reach the target in one plan (its footprint is wider than the shapes to remove); "
-            "survey again after the plan and re-plan, or use a smaller lap"
-        )
     label = hm.label or input.stem
     if removal_csv is not None:
         rows = ["x_mm,y_mm,remove_um"] + [f"{x:.6g},{y:.6g},{r:.4f}" for x, y, r in zip(lr.x_mm, lr.y_mm, lr.remove_um)]

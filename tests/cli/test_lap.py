@@ -273,3 +273,27 @@ def test_wide_cell_chart_is_cut_into_blocks_that_fit_a_page(cli, tmp_path):
     lines = text.splitlines()
     letters = [c for i, ln in enumerate(lines) if ln.startswith("  columns ") for c in lines[i + 1].split()]
     assert letters == sorted(set(letters)) and letters[0] == "A" and len(letters) == 25
+
+
+SAMPLES = __import__("pathlib").Path(__file__).resolve().parents[2] / "sample_readings"
+
+
+def test_rounding_loss_is_not_blamed_on_the_lap(cli, tmp_path):
+    # The audit's case: plate P7, target 0.3 µm, 60 mm lap. The unrounded dwell reaches about 0.305 µm but the
+    # plan rounded to 4 steps only 0.51 µm: the advice must name the rounding and --levels, not a smaller lap.
+    args = ("lap", SAMPLES / "plate-KY-P7-grid.toml", "--target-um", "0.3", "--lap-diameter-mm", "60")
+    code, out, err = cli(*args, "--json")
+    assert code == 0, err
+    doc = json.loads(out)
+    sf = doc["shortfall"]
+    assert sf["causes"][0] == "rounding" and "footprint" not in sf["causes"]
+    assert doc["predicted_flatness_unrounded_dwell_um"] < 0.32 < 0.45 < doc["predicted_flatness_um"]
+    assert f"--levels {sf['levels_suggested']}" in sf["text"] and "smaller lap" not in sf["text"]
+    plan = tmp_path / "plan.txt"
+    code, out, err = cli(*args, "--plan-out", plan)
+    text = " ".join(out.split())
+    assert "rounding the dwell to 4 time steps costs" in text and "smaller lap" not in text
+    assert "--levels" in " ".join(plan.read_text(encoding="utf-8").split())
+    # the suggestion holds: more steps give a better plan
+    code, out, err = cli(*args, "--levels", str(sf["levels_suggested"]), "--json")
+    assert json.loads(out)["predicted_flatness_um"] < doc["predicted_flatness_um"] - 0.1
