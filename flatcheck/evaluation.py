@@ -387,6 +387,10 @@ class SurfaceEvaluation:
                     {
                         "line": o.line, "run": o.run, "step": o.step, "from": o.station_from, "to": o.station_to,
                         "reading": o.reading, "residual_um": o.residual_um, "w": o.w, "text": o.describe(),
+                        # diagnosis: suspect group (1, 2...), 0 = flagged only through a suspect, None = not
+                        # diagnosed; readings in the group; w once the suspects are set aside
+                        "group": o.group, "group_size": o.group_size,
+                        "w_after": o.w_after if np.isfinite(o.w_after) else None,
                     }
                     for o in red.outliers
                 ],

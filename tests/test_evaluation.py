@@ -189,3 +189,24 @@ def test_no_redundancy_gives_no_scatter_with_the_reason():
     lv = simulate_survey(small_dof_plan(), dome_um, runs=SMALL_DOF_RUNS, noise_sd=0.05, rng=5)
     res = evaluate_surface(loaded(lv), window="none").to_dict()["residuals"]
     assert res["sigma0_reason"] is None and res["sigma0_um"] > 0
+
+
+def test_outliers_in_the_json_carry_their_diagnosis():
+    # S-N read once on the sample's layout: its four readings cannot be told apart (tests/test_reduction.py
+    # checks that against numpy); a mis-keyed S-N reading gives one suspect group of 4, and the readings
+    # flagged only through it carry group 0 and their w once it is set aside
+    sv = read_survey(SAMPLE)
+    lines = list(sv.lines)
+    li = next(i for i, ln in enumerate(lines) if ln.name == "S-N")
+    r = list(lines[li].runs[0].readings)
+    assert r[2] == 9.63
+    r[2] = 6.93  # digits swapped
+    lines[li] = dataclasses.replace(lines[li], runs=(dataclasses.replace(lines[li].runs[0], readings=tuple(r)),))
+    bad = dataclasses.replace(sv, lines=tuple(lines))
+    out = evaluate_surface(loaded(bad), window="none").to_dict()["residuals"]["outliers"]
+    json.dumps(out, allow_nan=False)
+    first = [o for o in out if o["group"] == 1]
+    assert [(o["line"], o["step"], o["group_size"]) for o in first] == [("S-N", k, 4) for k in (1, 2, 3, 4)]
+    assert all(o["w_after"] is None for o in first)
+    rest = [o for o in out if o["group"] != 1]
+    assert all(o["group"] == 0 and abs(o["w_after"]) <= 3.29 for o in rest)
