@@ -167,6 +167,12 @@ class Progress:
     sessions_to_target : int or None
         Sessions like this one still needed (remaining volume / volume this session, rounded up);
         0 when the target is met; None when nothing was removed or no target was given.
+    sessions_fraction : float or None
+        The same ratio unrounded (dimensionless): 0.001 means a thousandth of this session's removal is
+        left, a short touch-up rather than "1 more session". None as for ``sessions_to_target``.
+    minutes_to_target : float or None
+        Remaining volume / this session's volume rate (min): lapping time at this session's rate; None
+        without a lapping time.
     change_referred_um : ndarray, shape (n,)
         The change referred to the plane of the least removal instead of the LS plane (µm): untouched
         areas read about 0 (small positive values are survey noise), lapped areas negative; it equals
@@ -191,6 +197,8 @@ class Progress:
     remaining_volume_mm3: float | None
     sessions_to_target: int | None
     change_referred_um: np.ndarray | None = None
+    sessions_fraction: float | None = None
+    minutes_to_target: float | None = None
 
 
 def _lowest_supporting_removal(x, y, u, w) -> tuple[np.ndarray, np.ndarray]:
@@ -287,16 +295,19 @@ def compare_surveys(
         if rate is None and lap is not None:
             rate = vol * 1000.0 / (lap.area_mm2 * dwell_min)  # mm^3 -> µm*mm^2, over mm^2*min
 
-    remaining = sessions = None
+    remaining = sessions = fraction = minutes = None
     if target_um is not None:
         if not (np.isfinite(target_um) and target_um >= 0):
             raise InputValueError(f"target flatness {target_um} µm must be >= 0")
         hm_after = HeightMap(x, y, za)
         remaining = least_removal(hm_after, target_um, weight_mm2=w).removed_volume_mm3
         if remaining <= 0:
-            sessions = 0
+            sessions, fraction, minutes = 0, 0.0, (0.0 if vrate is not None else None)
         elif vol > 0:
-            sessions = int(math.ceil(remaining / vol - 1e-9))
+            fraction = remaining / vol
+            sessions = int(math.ceil(fraction - 1e-9))
+            if vrate is not None:
+                minutes = remaining / vrate
     for a in (change, change_referred, removed):
         a.setflags(write=False)
     return Progress(
@@ -317,6 +328,8 @@ def compare_surveys(
         target_um=None if target_um is None else float(target_um),
         remaining_volume_mm3=remaining,
         sessions_to_target=sessions,
+        sessions_fraction=fraction,
+        minutes_to_target=minutes,
     )
 
 

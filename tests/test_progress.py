@@ -123,3 +123,22 @@ def test_bad_options(rng):
         compare_surveys(before, before, log=DwellLog([0.0], [0.0], [1.0]))  # log without a lap
     with pytest.raises(InputValueError):
         DwellLog([0.0], [0.0], [-1.0])
+
+
+def test_sessions_left_are_stated_unrounded_with_minutes():
+    # Hand calculation on the 3 x 3 grid above: the session lowers the centre 1 -> 0.8 µm in 10 min. A target of
+    # 0.79 µm needs 0.01 µm more at the centre: 0.01 / 0.2 = 1/20 of the session (not "1 more session"), and at
+    # the session's volume rate 10 min x 1/20 = 0.5 min (volume ratio = depth ratio: the same single node).
+    x, y = np.meshgrid([0.0, 100.0, 200.0], [0.0, 100.0, 200.0])
+    x, y = x.ravel(), y.ravel()
+    zb = np.zeros(9)
+    zb[4] = 1.0
+    za = zb.copy()
+    za[4] = 0.8
+    pr = compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.79, dwell_min=10.0)
+    assert pr.sessions_fraction == pytest.approx(0.05, rel=1e-6)
+    assert pr.minutes_to_target == pytest.approx(0.5, rel=1e-6)
+    assert pr.sessions_to_target == 1  # the rounded-up figure is kept for scripts
+    met = compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.9, dwell_min=10.0)
+    assert met.sessions_fraction == 0.0 and met.minutes_to_target == 0.0
+    assert compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.79).minutes_to_target is None

@@ -56,6 +56,8 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
         "target_source": target_source,
         "remaining_volume_mm3": pr.remaining_volume_mm3,
         "sessions_to_target": pr.sessions_to_target,
+        "sessions_to_target_fraction": pr.sessions_fraction,
+        "minutes_to_target": pr.minutes_to_target,
         "notes": cautions(pr) + [
             "each survey is referred to its own least-squares plane; the removal is the least consistent with the "
             "change (untouched areas read zero) and is a lower bound if the whole surface was lapped",
@@ -116,6 +118,28 @@ def _why_no_grid(pr: Progress, width: int) -> str:
     return f"make a {grid[0].size} x {grid[1].size} grid, too large for this terminal ({width} columns)"
 
 
+def _fmt_minutes(t: float) -> str:
+    if t < 1:
+        return f"{t * 60:.0f} s" if t * 60 >= 1 else "under a second"
+    return f"{t:.2g} min" if t < 10 else f"{t:.0f} min"
+
+
+def sessions_text(pr: Progress) -> str:
+    """What is left to the target, in plain words: the share of this session's removal, and the lapping
+    time at this session's rate when it is known (not rounded up to whole sessions)."""
+    left = f"{pr.remaining_volume_mm3:.4g} mm^3 still to remove"
+    f = pr.sessions_fraction
+    when = f" (about {_fmt_minutes(pr.minutes_to_target)} at this session's rate)" if pr.minutes_to_target else ""
+    if f < 0.1:
+        return (
+            f"{left}, {100 * f:.2g} % of what this session removed{when}: the target is within reach by a short "
+            "touch-up of the high spots (plan it with flatcheck lap on the after survey)"
+        )
+    if f < 1:
+        return f"{left}, about {f:.1f} of a session like this one{when}"
+    return f"{left}, about {f:.1f} more sessions like this one{when}"
+
+
 def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str) -> None:
     """Human summary on stdout."""
     con = stdout_console()
@@ -170,10 +194,7 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
         elif pr.sessions_to_target is None:
             con.print(f"Target {h(pr.target_um)}: still {pr.remaining_volume_mm3:.4g} mm^3 to remove; nothing was removed this session, so no estimate.")
         else:
-            con.print(
-                f"Target {h(pr.target_um)} ({target_source}): {pr.remaining_volume_mm3:.4g} mm^3 still to remove, "
-                f"about [bold]{pr.sessions_to_target}[/bold] more session(s) like this one"
-            )
+            con.print(f"Target {h(pr.target_um)} ({target_source}): {sessions_text(pr)}", markup=False)
     con.print(
         "Note: each survey is referred to its own least-squares plane; removal is the least consistent with the "
         "change (a lower bound if the whole surface was lapped).",

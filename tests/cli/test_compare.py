@@ -249,3 +249,20 @@ def test_summary_without_a_printable_grid_says_where_the_map_is(cli, tmp_path, p
     b = _survey_file(tmp_path / "b.toml", "P-1", bump_um=0.5)
     text = " ".join(cli("compare", a, b)[1].split())
     assert "are not a regular grid" in text and "--json" in text
+
+
+def test_a_small_remainder_is_a_touch_up_not_a_whole_session(cli, tmp_path):
+    # The audit's case in small: after the session the surface is just above the target. The summary states the
+    # share of this session's removal and the minutes at its rate, not "about 1 more session(s)".
+    before, after, x, y, change = _grid_pair(tmp_path, 100.0)
+    doc = json.loads(cli("compare", before, after, "--dwell-min", "10", "--json")[1])
+    target = doc["flatness_after_um"] * 0.995
+    code, out, err = cli("compare", before, after, "--dwell-min", "10", "--target-um", f"{target:.6f}", "--json")
+    doc = json.loads(out)
+    f = doc["sessions_to_target_fraction"]
+    assert 0 < f < 0.1 and f == pytest.approx(doc["remaining_volume_mm3"] / doc["removed_volume_mm3"])
+    assert doc["minutes_to_target"] == pytest.approx(10.0 * f)
+    code, out, err = cli("compare", before, after, "--dwell-min", "10", "--target-um", f"{target:.6f}")
+    text = " ".join(out.split())
+    assert "more session" not in text and "touch-up" in text and "% of what this session removed" in text
+    assert "at this session's rate" in text
