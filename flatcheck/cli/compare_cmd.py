@@ -48,7 +48,15 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
             for x, y, c, r, cr in zip(pr.x_mm, pr.y_mm, pr.change_um, pr.removed_um, pr.change_referred_um)
         ],
         "dwell_min": pr.dwell_min,
-        "lap": lap,
+        # the lap's size only: compare builds it without a rate, so a rate here would be a placeholder; the
+        # calibrated rate is rate_um_per_min
+        "lap": None if lap is None else {
+            "shape": lap.shape,
+            "diameter_mm": lap.diameter_mm if lap.shape == "round" else None,
+            "length_mm": lap.length_mm if lap.shape == "rect" else None,
+            "width_mm": lap.width_mm if lap.shape == "rect" else None,
+            "area_mm2": lap.area_mm2,
+        },
         "volume_rate_mm3_per_min": pr.volume_rate_mm3_per_min,
         "rate_um_per_min": pr.rate_um_per_min,
         "rate_fit_rms_um": pr.rate_fit_rms_um,

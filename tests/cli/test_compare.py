@@ -266,3 +266,17 @@ def test_a_small_remainder_is_a_touch_up_not_a_whole_session(cli, tmp_path):
     text = " ".join(out.split())
     assert "more session" not in text and "touch-up" in text and "% of what this session removed" in text
     assert "at this session's rate" in text
+
+
+def test_json_lap_has_no_placeholder_rate(cli, pair):
+    # compare builds the lap from its size alone; its model's default rate (1 µm/min) must not appear beside
+    # the calibrated rate as if it were one
+    before, after, *_ = pair
+    doc = json.loads(cli("compare", before, after, "--dwell-min", "5", "--lap-diameter-mm", "100", "--json")[1])
+    assert "rate_um" not in doc["lap"] and "time_unit" not in doc["lap"]
+    assert doc["lap"]["shape"] == "round" and doc["lap"]["diameter_mm"] == 100.0
+    assert doc["lap"]["area_mm2"] == pytest.approx(np.pi * 50.0**2)  # area of a 100 mm disc
+    assert doc["rate_um_per_min"] == pytest.approx(doc["removed_volume_mm3"] * 1000 / (np.pi * 50.0**2 * 5))
+    doc = json.loads(cli("compare", before, after, "--lap-size-mm", "80x40", "--json")[1])
+    assert doc["lap"] == {"shape": "rect", "diameter_mm": None, "length_mm": 80.0, "width_mm": 40.0, "area_mm2": 3200.0}
+    assert json.loads(cli("compare", before, after, "--json")[1])["lap"] is None
