@@ -12,7 +12,7 @@ from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_no
 from ..units import height_unit_label, um_to
 from ._app import app
 from .common import SAFETY_LINES, emit_json, load_input, stdout_console, Units, units_option
-from .lap_cmd import _parse_size, check_option, resolve_target
+from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _parse_size, check_option, resolve_target
 
 
 def cautions(pr: Progress) -> list:
@@ -243,6 +243,8 @@ def compare_cmd(
     lap_size_mm: str = typer.Option(None, "--lap-size-mm", help="Rectangular lap LENGTHxWIDTH (mm)."),
     target_um: float = typer.Option(None, "--target-um", help="Target flatness in µm (for the sessions estimate)."),
     target_grade: str = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
+    target_gap_um: float = typer.Option(None, "--target-gap-um", help=TARGET_GAP_HELP),
+    gap_fraction: float = typer.Option(None, "--gap-fraction", help=GAP_FRACTION_HELP),
     match_tol_mm: float = typer.Option(DEFAULT_MATCH_TOL_MM, "--match-tol-mm", help="Node matching tolerance (mm)."),
     units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
@@ -280,8 +282,8 @@ def compare_cmd(
         if lap is None:
             raise InputValueError("a lapping log needs the lap's size", where="--log", fix="add --lap-diameter-mm or --lap-size-mm")
     target = source = None
-    if target_um is not None or target_grade is not None:
-        target, source = resolve_target(hb, target_um, target_grade)
+    if any(v is not None for v in (target_um, target_grade, target_gap_um, gap_fraction)):
+        target, source = resolve_target(hb, target_um, target_grade, target_gap_um, gap_fraction)
     pr = compare_surveys(hb, ha, tol_mm=match_tol_mm, dwell_min=dwell_min, lap=lap, log=dlog, target_um=target)
     if json_out:
         emit_json(progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value))

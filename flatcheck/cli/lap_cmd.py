@@ -20,6 +20,11 @@ from .common import SAFETY_LINES, emit_json, load_surface, progress_bar, stdout_
 _ASSUMED_RATE_UM_PER_MIN = 1.0
 
 
+#: Help of the air-bearing target options, shared by the commands that take a target (lap, compare).
+TARGET_GAP_HELP = "Target: the air-bearing limit for this gap in µm (a fraction of it, see --gap-fraction)."
+GAP_FRACTION_HELP = "With --target-gap-um: the fraction of the gap (default 0.25, common practice)."
+
+
 def resolve_target(
     hm,
     target_um: float | None,
@@ -36,6 +41,13 @@ def resolve_target(
     applies to the form under each pad's footprint.
     """
     given = [v is not None for v in (target_um, target_grade, target_gap_um)]
+    if gap_fraction is not None and target_gap_um is None:
+        other = "--target-um" if target_um is not None else "--target-grade" if target_grade is not None else None
+        raise InputValueError(
+            "the fraction of the gap is only used with --target-gap-um" + (f", not with {other}" if other else ""),
+            where="--gap-fraction",
+            fix="leave --gap-fraction out, or give the target as --target-gap-um GAP",
+        )
     if sum(given) != 1:
         raise InputValueError(
             "give exactly one target",
@@ -382,12 +394,8 @@ def lap_cmd(
     input: Path = typer.Argument(..., help="Survey TOML or height-map CSV."),
     target_um: float = typer.Option(None, "--target-um", help="Target flatness in µm."),
     target_grade: str = typer.Option(None, "--target-grade", help="Target as STANDARD:GRADE, e.g. din-876:0."),
-    target_gap_um: float = typer.Option(
-        None, "--target-gap-um", help="Target: the air-bearing limit for this gap in µm (a fraction of it, see --gap-fraction)."
-    ),
-    gap_fraction: float = typer.Option(
-        None, "--gap-fraction", help="With --target-gap-um: the fraction of the gap (default 0.25, common practice)."
-    ),
+    target_gap_um: float = typer.Option(None, "--target-gap-um", help=TARGET_GAP_HELP),
+    gap_fraction: float = typer.Option(None, "--gap-fraction", help=GAP_FRACTION_HELP),
     lap_diameter_mm: float = typer.Option(None, "--lap-diameter-mm", help="Round lap diameter (mm)."),
     lap_size_mm: str = typer.Option(None, "--lap-size-mm", help="Rectangular lap LENGTHxWIDTH (mm), length along x."),
     rate_um_per_min: float = typer.Option(None, "--rate-um-per-min", help="Your calibrated removal rate under the lap."),

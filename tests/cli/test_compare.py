@@ -280,3 +280,19 @@ def test_json_lap_has_no_placeholder_rate(cli, pair):
     doc = json.loads(cli("compare", before, after, "--lap-size-mm", "80x40", "--json")[1])
     assert doc["lap"] == {"shape": "rect", "diameter_mm": None, "length_mm": 80.0, "width_mm": 40.0, "area_mm2": 3200.0}
     assert json.loads(cli("compare", before, after, "--json")[1])["lap"] is None
+
+
+def test_target_from_the_air_bearing_gap(cli, pair):
+    # as in lap: the bearing limit is a fraction of the gap (common practice, no single source; default 1/4), so
+    # an 8 µm gap gives the same estimate as --target-um 2, and 0.1 x 10 µm the same as --target-um 1
+    before, after, *_ = pair
+    base = ("compare", before, after, "--dwell-min", "5", "--json")
+    for gap, num in ((("--target-gap-um", "8"), "2"), (("--target-gap-um", "10", "--gap-fraction", "0.1"), "1")):
+        a = json.loads(cli(*base, *gap)[1])
+        b = json.loads(cli(*base, "--target-um", num)[1])
+        assert a["target_um"] == pytest.approx(float(num))
+        assert a["remaining_volume_mm3"] == pytest.approx(b["remaining_volume_mm3"], rel=1e-12)
+        assert "air-bearing limit" in a["target_source"]
+    code, out, err = cli("compare", before, after, "--target-um", "1", "--gap-fraction", "0.3")
+    one_line_error(code, out, err)
+    assert err.startswith("flatcheck: error: --gap-fraction:")

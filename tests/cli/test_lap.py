@@ -297,3 +297,13 @@ def test_rounding_loss_is_not_blamed_on_the_lap(cli, tmp_path):
     # the suggestion holds: more steps give a better plan
     code, out, err = cli(*args, "--levels", str(sf["levels_suggested"]), "--json")
     assert json.loads(out)["predicted_flatness_um"] < doc["predicted_flatness_um"] - 0.1
+
+
+@pytest.mark.parametrize("target", [("--target-um", "1.5"), ("--target-grade", "din-876:0"), ()])
+def test_gap_fraction_without_a_gap_target_is_refused(cli, target):
+    # --gap-fraction was silently ignored beside --target-um
+    code, out, err = cli("lap", SAMPLES / "plate-KY-P3-2024-03-11.toml", *target, "--gap-fraction", "0.3")
+    one_line_error(code, out, err)
+    assert err.startswith("flatcheck: error: --gap-fraction:") and "--target-gap-um" in err
+    if target:
+        assert f"not with {target[0]}" in err
