@@ -52,6 +52,9 @@ __all__ = [
     "deconvolve_dwell",
     "plan_lapping",
     "cell_column_name",
+    "chart_edges",
+    "default_cell_mm",
+    "MAX_CHART_CELLS",
 ]
 
 #: Depth below which a node counts as untouched, µm (1 pm: far below any measurement).
@@ -1267,25 +1270,55 @@ def _suggest_levels(shortfall: Shortfall, rounded_flatness, slack_um: float) -> 
     return dataclasses.replace(shortfall, levels_suggested=n, levels_suggested_um=f, levels_tried=tuple(tried))
 
 
-def _chart(hm, lap, xs, ys, plan_dwell, cell_mm) -> CellChart:
+#: Most cells a printed chart holds (26 lettered columns x 99 numbered rows' worth).
+MAX_CHART_CELLS = 26 * 99
+
+
+def default_cell_mm(lap: LapModel) -> float:
+    """The chart's default cell side (mm): the lap's diameter, or its longer side."""
+    return lap.diameter_mm if lap.shape == "round" else max(lap.length_mm, lap.width_mm)
+
+
+def chart_edges(hm: HeightMap, lap: LapModel, cell_mm: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Cell edges of the chart along x and y (mm), without the check on their number.
+
+    The chart covers the whole surface when its size is known (origin at the south-west corner), else the
+    extent of the measured points.
+
+    Parameters
+    ----------
+    hm : HeightMap
+    lap : LapModel
+    cell_mm : float, optional
+        Cell side (mm); default :func:`default_cell_mm`.
+
+    Returns
+    -------
+    x_edges_mm, y_edges_mm : ndarray
+        Increasing edges, shapes (ncol + 1,) and (nrow + 1,).
+    """
     if cell_mm is None:
-        cell_mm = lap.diameter_mm if lap.shape == "round" else max(lap.length_mm, lap.width_mm)
+        cell_mm = default_cell_mm(lap)
     if not (np.isfinite(cell_mm) and cell_mm > 0):
         raise InputValueError(f"chart cell size {cell_mm} mm must be > 0")
-    # the chart covers the whole surface when its size is known (origin at the south-west corner)
-    x0, x1 = (0.0, hm.length_mm) if hm.length_mm else (float(xs[0]), float(xs[-1]))
-    y0, y1 = (0.0, hm.width_mm) if hm.width_mm else (float(ys[0]), float(ys[-1]))
-    x0, x1 = min(x0, xs[0]), max(x1, xs[-1])
-    y0, y1 = min(y0, ys[0]), max(y1, ys[-1])
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    x0, x1 = (0.0, hm.length_mm) if hm.length_mm else (xmin, xmax)
+    y0, y1 = (0.0, hm.width_mm) if hm.width_mm else (ymin, ymax)
+    x0, x1 = min(x0, xmin), max(x1, xmax)
+    y0, y1 = min(y0, ymin), max(y1, ymax)
     ncol = max(1, int(math.ceil((x1 - x0) / cell_mm - 1e-9)))
     nrow = max(1, int(math.ceil((y1 - y0) / cell_mm - 1e-9)))
-    if ncol * nrow > 26 * 99:
+    return np.linspace(x0, x1, ncol + 1), np.linspace(y0, y1, nrow + 1)
+
+
+def _chart(hm, lap, xs, ys, plan_dwell, cell_mm) -> CellChart:
+    xe, ye = chart_edges(hm, lap, cell_mm)
+    ncol, nrow = xe.size - 1, ye.size - 1
+    if ncol * nrow > MAX_CHART_CELLS:
         raise InputValueError(
-            f"{ncol} x {nrow} chart cells of {cell_mm:g} mm are too many to print",
+            f"{ncol} x {nrow} chart cells of {xe[1] - xe[0]:.3g} mm are too many to print",
             fix="give a larger cell size",
         )
-    xe = np.linspace(x0, x1, ncol + 1)
-    ye = np.linspace(y0, y1, nrow + 1)
     X, Y = np.meshgrid(xs, ys)
     ci = np.clip(np.searchsorted(xe, X.ravel(), side="right") - 1, 0, ncol - 1)
     cj = np.clip(np.searchsorted(ye, Y.ravel(), side="right") - 1, 0, nrow - 1)

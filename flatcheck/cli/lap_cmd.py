@@ -148,15 +148,98 @@ def check_lap_fits(hm, lap: LapModel, option: str) -> None:
         )
 
 
-def build_lap(hm, diameter_mm, size_mm, rate_per_min, rate_per_pass, strokes_per_pass, stroke_mm) -> tuple[LapModel, list]:
-    """The lap model from the options, with notes on what was assumed."""
-    notes = []
-    if diameter_mm is not None and size_mm is not None:
+def check_lap_options(
+    *,
+    lap_diameter_mm=None,
+    lap_size_mm=None,
+    rate_um_per_min=None,
+    rate_um_per_pass=None,
+    strokes_per_pass=None,
+    stroke_mm=None,
+    step_mm=None,
+    cell_mm=None,
+    levels=None,
+    smoothing=None,
+    smoothness=None,
+    min_pass_fraction=None,
+) -> None:
+    """Refuse bad lap and plan options before any file is read, naming the option (``flatcheck lap``'s names).
+
+    Every argument is the option's value, or None when the command has no such option or it was not given.
+    Any command that plans lapping (lap, report) calls this first, so a slip reads the same everywhere.
+
+    Raises
+    ------
+    InputValueError
+        ``where`` is the option, e.g. ``--lap-diameter-mm: -5 is not allowed; give a diameter in mm > 0``.
+    """
+    if lap_diameter_mm is not None and lap_size_mm is not None:
         raise InputValueError("give a round or a rectangular lap, not both", where="--lap-diameter-mm/--lap-size-mm")
-    if rate_per_min is not None and rate_per_pass is not None:
+    if rate_um_per_min is not None and rate_um_per_pass is not None:
         raise InputValueError("give one removal rate", where="--rate-um-per-min/--rate-um-per-pass")
-    if strokes_per_pass is not None and rate_per_pass is None:
+    if strokes_per_pass is not None and rate_um_per_pass is None:
         raise InputValueError("strokes per pass go with a rate per pass", where="--strokes-per-pass", fix="add --rate-um-per-pass")
+    check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
+    if lap_size_mm is not None:
+        _parse_size(lap_size_mm)
+    check_option(rate_um_per_min, "--rate-um-per-min", what="a removal rate in µm/min")
+    check_option(rate_um_per_pass, "--rate-um-per-pass", what="a removal in µm per pass")
+    check_option(strokes_per_pass, "--strokes-per-pass", minimum=1, strict=False, what="a whole number of strokes")
+    check_option(stroke_mm, "--stroke-mm", strict=False, what="a stroke length in mm")
+    check_option(step_mm, "--step-mm", what="a grid pitch in mm")
+    check_option(cell_mm, "--cell-mm", what="a cell size in mm")
+    check_option(levels, "--levels", minimum=1, strict=False, what="a whole number of levels")
+    check_option(smoothing, "--smoothing", strict=False, what="a regularisation weight")
+    check_option(smoothness, "--smoothness", strict=False, what="a gradient penalty")
+    check_option(min_pass_fraction, "--min-pass-fraction", strict=False, what="a fraction (at most 1)")
+    if min_pass_fraction is not None and min_pass_fraction > 1:
+        raise InputValueError(f"{min_pass_fraction:g} is not allowed", where="--min-pass-fraction", fix="give a fraction from 0 to 1")
+
+
+def check_lap_on_surface(hm, lap: LapModel, *, lap_option: str, cell_mm: float | None = None,
+                         cell_option: str | None = "--cell-mm") -> None:
+    """Refuse a lap or chart cell that does not suit this surface, naming the option to change.
+
+    The lap must not cover the whole surface from every position (:func:`check_lap_fits`), and the chart's
+    cells (``cell_mm``, default the lap's size) must be few enough to print. ``cell_option`` is None for a
+    command without a cell option: the error then names ``lap_option``.
+    """
+    from ..lapping import MAX_CHART_CELLS, chart_edges, default_cell_mm
+
+    check_lap_fits(hm, lap, lap_option)
+    xe, ye = chart_edges(hm, lap, cell_mm)
+    ncol, nrow = xe.size - 1, ye.size - 1
+    if ncol * nrow <= MAX_CHART_CELLS:
+        return
+    size = cell_mm if cell_mm is not None else default_cell_mm(lap)
+    need = size
+    while True:  # the smallest cell (to 1 %) that fits
+        need *= 1.01
+        a, b = chart_edges(hm, lap, need)
+        if (a.size - 1) * (b.size - 1) <= MAX_CHART_CELLS:
+            break
+    what = f"{ncol} x {nrow} chart cells of {size:g} mm" + ("" if cell_mm is not None else " (the lap's size)")
+    if cell_option is not None:
+        raise InputValueError(
+            f"{what} are too many to print (at most {MAX_CHART_CELLS})",
+            where=cell_option,
+            fix=f"give {cell_option} {math.ceil(need):g} or more" + ("" if cell_mm is not None else ", or check the lap size"),
+        )
+    raise InputValueError(
+        f"{what} are too many to print (at most {MAX_CHART_CELLS})",
+        where=lap_option,
+        fix=f"check the lap size: the chart needs cells of at least {math.ceil(need):g} mm",
+    )
+
+
+def build_lap(hm, diameter_mm, size_mm, rate_per_min, rate_per_pass, strokes_per_pass, stroke_mm) -> tuple[LapModel, list]:
+    """The lap model from the options, with notes on what was assumed.
+
+    The values are checked first (:func:`check_lap_options`), so a bad one is reported by its option's name.
+    """
+    check_lap_options(lap_diameter_mm=diameter_mm, lap_size_mm=size_mm, rate_um_per_min=rate_per_min,
+                      rate_um_per_pass=rate_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
+    notes = []
     if rate_per_pass is not None:
         rate, unit = rate_per_pass, "pass"
     elif rate_per_min is not None:
@@ -421,27 +504,18 @@ def lap_cmd(
     from ..io.atomic import write_text_atomic
 
     # options first, so a typing slip is reported before the survey is reduced
-    check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
-    check_option(rate_um_per_min, "--rate-um-per-min", what="a removal rate in µm/min")
-    check_option(rate_um_per_pass, "--rate-um-per-pass", what="a removal in µm per pass")
-    check_option(strokes_per_pass, "--strokes-per-pass", minimum=1, strict=False, what="a whole number of strokes")
-    check_option(stroke_mm, "--stroke-mm", strict=False, what="a stroke length in mm")
-    check_option(step_mm, "--step-mm", what="a grid pitch in mm")
-    check_option(cell_mm, "--cell-mm", what="a cell size in mm")
-    check_option(levels, "--levels", minimum=1, strict=False, what="a whole number of levels")
-    check_option(smoothing, "--smoothing", strict=False, what="a regularisation weight")
-    check_option(smoothness, "--smoothness", strict=False, what="a gradient penalty")
-    check_option(min_pass_fraction, "--min-pass-fraction", strict=False, what="a fraction (at most 1)")
-    if min_pass_fraction > 1:
-        raise InputValueError(f"{min_pass_fraction:g} is not allowed", where="--min-pass-fraction", fix="give a fraction from 0 to 1")
-    if lap_size_mm is not None:
-        _parse_size(lap_size_mm)
+    check_lap_options(
+        lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min,
+        rate_um_per_pass=rate_um_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm, step_mm=step_mm,
+        cell_mm=cell_mm, levels=levels, smoothing=smoothing, smoothness=smoothness, min_pass_fraction=min_pass_fraction,
+    )
     check_output(removal_csv, "--removal-csv")
     check_output(plan_out, "--plan-out")
     hm, _ = load_surface(input)
     target, source = resolve_target(hm, target_um, target_grade, target_gap_um, gap_fraction)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass, stroke_mm)
-    check_lap_fits(hm, lap, "--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm")
+    check_lap_on_surface(hm, lap, lap_option="--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm",
+                         cell_mm=cell_mm)
     with progress_bar("planning", 2, enabled=sys.stderr.isatty() and not json_out) as advance:
         lr = least_removal(hm, target)
         advance(1)

@@ -1,6 +1,7 @@
 """Tests of ``flatcheck lap``: the pinned JSON contract, options, output files and one-line errors."""
 
 import json
+import math
 
 import numpy as np
 import pytest
@@ -307,3 +308,48 @@ def test_gap_fraction_without_a_gap_target_is_refused(cli, target):
     assert err.startswith("flatcheck: error: --gap-fraction:") and "--target-gap-um" in err
     if target:
         assert f"not with {target[0]}" in err
+
+
+@pytest.mark.parametrize(
+    "args, option",
+    [
+        (("--lap-diameter-mm", "1"), "--cell-mm"),  # 1000 x 630 cells of the lap's 1 mm size
+        (("--cell-mm", "2"), "--cell-mm"),
+    ],
+)
+def test_too_many_chart_cells_names_cell_mm_and_the_size_that_fits(cli, args, option):
+    code, out, err = cli("lap", SAMPLES / "plate-KY-P3-2024-03-11.toml", "--target-um", "1.5", *args)
+    one_line_error(code, out, err)
+    assert err.startswith(f"flatcheck: error: {option}:")
+    need = float(err.split("give --cell-mm ")[1].split()[0])
+    # the size offered fits: ceil(1000 / c) x ceil(630 / c) <= 26 x 99 cells (the plate is 1000 x 630 mm)
+    assert math.ceil(1000 / need) * math.ceil(630 / need) <= 26 * 99
+    code, out, err = cli("lap", SAMPLES / "plate-KY-P3-2024-03-11.toml", "--target-um", "1.5", "--lap-diameter-mm",
+                         "100", "--cell-mm", f"{need:g}", "--json")
+    assert code == 0, err
+
+
+def test_lap_option_checks_for_other_commands_name_the_option():
+    # build_lap and check_lap_options are what the report calls: their errors name lap's options
+    from flatcheck.cli.common import load_surface
+    from flatcheck.cli.lap_cmd import build_lap, check_lap_on_surface, check_lap_options
+    from flatcheck.errors import InputValueError
+    from flatcheck.lapping import LapModel
+
+    hm, _ = load_surface(SAMPLES / "plate-KY-P3-2024-03-11.toml")
+    for args, option in (((-5.0, None, None, None, None, 0.0), "--lap-diameter-mm"),
+                         ((100.0, None, None, None, None, -3.0), "--stroke-mm"),
+                         ((None, "0x5", None, None, None, 0.0), "--lap-size-mm")):
+        with pytest.raises(InputValueError) as exc:
+            build_lap(hm, *args)
+        assert exc.value.where == option
+    for kw, option in ((dict(levels=0), "--levels"), (dict(min_pass_fraction=2.0), "--min-pass-fraction"),
+                       (dict(step_mm=float("nan")), "--step-mm"), (dict(cell_mm=-1.0), "--cell-mm")):
+        with pytest.raises(InputValueError) as exc:
+            check_lap_options(**kw)
+        assert exc.value.where == option
+    check_lap_options()  # nothing given: nothing to refuse
+    # a command without --cell-mm (the report) is told to check the lap size
+    with pytest.raises(InputValueError) as exc:
+        check_lap_on_surface(hm, LapModel("round", diameter_mm=1.0), lap_option="--lap-diameter-mm", cell_option=None)
+    assert exc.value.where == "--lap-diameter-mm" and "too many" in exc.value.message
