@@ -7,6 +7,7 @@ from pathlib import Path
 
 import numpy as np
 import typer
+from rich.markup import escape
 from rich.table import Table
 
 from ..evaluation import evaluate_surface
@@ -239,10 +240,24 @@ def render_reduction(ev, doc, units, map_out) -> None:
             meaning = {ln["meaning"] for ln in lines if ln.get("meaning")}
             for m in meaning:
                 con.print(f"  [dim]closure: {m}[/dim]")
+        # One line per suspect group (its text names the group); readings flagged only through a
+        # suspect's error (group 0) are counted in the warnings, not listed.
+        shown_groups = set()
         for o in res["outliers"]:
-            con.print(f"  [bold red]suspect reading[/bold red]: {o['text']}")
+            group = o.get("group")
+            if group == 0 or (group is not None and group in shown_groups):
+                continue
+            shown_groups.add(group)
+            if o.get("group_size", 1) > 1:  # the layout cannot tell which: name the group, not one member
+                names = dict.fromkeys(m["line"] for m in res["outliers"] if m.get("group") == group)
+                lines = ("lines " if len(names) > 1 else "line ") + " and ".join(repr(n) for n in names)
+                text = (f"one of {o['group_size']} readings of {lines} (|w| = {abs(o['w']):.2f}); "
+                        "this layout cannot tell which (see the note below)")
+            else:
+                text = o["text"]
+            con.print(f"  [bold red]suspect reading[/bold red]: {escape(text)}")
     for w in list(doc.get("notes") or []) + list(doc.get("warnings") or []):
-        con.print(f"  [yellow]note:[/yellow] {w}")
+        con.print(f"  [yellow]note:[/yellow] {escape(w)}")
     _render_map(con, ev, units)
     if map_out is not None:
         con.print(f"  height map written to {map_out}")

@@ -482,3 +482,35 @@ def test_every_reduce_json_key_is_documented(cli, tmp_path):
         assert re.search(rf"`{k}`[^\n]*\*\*pinned\*\*", section), k
     # the doc says what the code does: peak, valley and RMS are about the least-squares plane
     assert "`peak_um + valley_um = least_squares_um`" in section
+
+
+def test_summary_names_a_suspect_group_once(cli, tmp_path, monkeypatch):
+    # A mis-keyed diagonal reading (17.24 keyed as 71.24) on the single-run Union Jack: the layout cannot tell
+    # which diagonal reading is wrong, so the summary names the group once instead of listing 73 readings.
+    monkeypatch.setenv("COLUMNS", "200")
+    text = PLATE.read_text(encoding="utf-8")
+    assert text.count("17.24") == 1
+    bad = tmp_path / "mis.toml"
+    bad.write_text(text.replace("17.24", "71.24"), encoding="utf-8")
+    code, out, err = cli("reduce", bad)
+    assert code == 0, err
+    suspects = [ln for ln in out.splitlines() if "suspect reading:" in ln]
+    assert len(suspects) == 1
+    assert "'SW-NE'" in suspects[0] and "'SE-NW'" in suspects[0] and "cannot tell" in suspects[0]
+
+
+def test_summary_prints_brackets_in_notes_literally(cli, tmp_path, monkeypatch):
+    # rich markup must not swallow user text: a free line named "[south]" is named in the warnings
+    # (weakly checked lines) exactly as written. The survey is the free-lines example of
+    # docs/survey-format.md with one line renamed.
+    monkeypatch.setenv("COLUMNS", "200")
+    doc = (Path(__file__).resolve().parents[2] / "docs" / "survey-format.md").read_text(encoding="utf-8")
+    start = doc.index("```toml", doc.index("Free lines along a guideway")) + len("```toml")
+    example = doc[start : doc.index("```", start)]
+    assert 'name = "south"' in example
+    survey = tmp_path / "free.toml"
+    survey.write_text(example.replace('name = "south"', 'name = "[south]"'), encoding="utf-8")
+    code, out, err = cli("reduce", survey)
+    assert code == 0, err
+    notes = " ".join(ln for ln in out.splitlines() if "note:" in ln)
+    assert "'[south]'" in notes
