@@ -655,8 +655,14 @@ def _rank_analysis(model: _Model, *, dense: bool | None = None):
     Z = _null_in_span(model, P3)
     d0 = Z.shape[1]
     unobservable = []
+    Q3, _ = np.linalg.qr(P3)
     for name, col in _shape_columns(survey).items():
-        Zs = _null_in_span(model, np.column_stack([P3, col]))
+        # A shape that is itself a plane on these stations (a bow along y sampled at only two y
+        # levels) is not a separate shape: the plane is never observed anyway.
+        rest = col - Q3 @ (Q3.T @ col)
+        if np.linalg.norm(rest) <= 1e-9 * max(np.linalg.norm(col), 1e-300):
+            continue
+        Zs = _null_in_span(model, np.column_stack([P3, rest]))
         if Zs.shape[1] > d0:
             unobservable.append(name)
     n_unk = model.n + model.p
@@ -724,6 +730,11 @@ def network_rank(survey: Survey) -> NetworkRank:
     return info
 
 
+def _article(word: str) -> str:
+    """'an' before a vowel sound, 'a' otherwise (instrument names: autocollimator, indicator, level...)."""
+    return "an" if word[:1].lower() in "aeio" else "a"
+
+
 def _raise_unobservable(model: _Model, info: NetworkRank, extra_null) -> None:
     survey = model.survey
     shapes = [s for s in info.unobservable if s in _SHAPE_FIX]
@@ -732,7 +743,7 @@ def _raise_unobservable(model: _Model, info: NetworkRank, extra_null) -> None:
         what = " and ".join(shapes)
         fix = "; ".join(dict.fromkeys(_SHAPE_FIX[s] for s in shapes))
         raise UnobservableError(
-            f"this layout read with an {inst} cannot observe {what}: a surface of that shape gives the same "
+            f"this layout read with {_article(inst)} {inst} cannot observe {what}: a surface of that shape gives the same "
             f"readings as a flat one",
             fix=fix,
         )

@@ -514,3 +514,46 @@ def test_summary_prints_brackets_in_notes_literally(cli, tmp_path, monkeypatch):
     assert code == 0, err
     notes = " ".join(ln for ln in out.splitlines() if "note:" in ln)
     assert "'[south]'" in notes
+
+
+TWO_RAILS = """
+format = "flatcheck-survey"
+version = 1
+positive = "rises-toward-line-end"
+[surface]
+description = "two rails"
+length_mm = 820.0
+width_mm = 130.0
+[instrument]
+kind = "level"
+unit = "mm/m"
+[layout]
+pattern = "lines"
+[[line]]
+name = "south"
+start_mm = [50.8, 25.4]
+end_mm = [762.0, 25.4]
+steps = 7
+readings = [0.0142, 0.0084, 0.0086, 0.0108, 0.0175, 0.0179, 0.0132]
+[[line]]
+name = "north"
+start_mm = [50.8, 101.6]
+end_mm = [762.0, 101.6]
+steps = 7
+readings = [0.0129, 0.0079, 0.0076, 0.0112, 0.017, 0.0181, 0.0121]
+"""
+
+
+def test_two_rails_at_two_y_levels_reduce(cli, tmp_path):
+    # A bow along y sampled at only two y levels is a plane (analytic: v^2 takes one value), so it is not an
+    # unobservable shape; with a level's shared zero and one cross step the network is complete.
+    survey = tmp_path / "two.toml"
+    cross = '[[line]]\nname = "west"\nstart_mm = [50.8, 25.4]\nend_mm = [50.8, 101.6]\nsteps = 1\nreadings = [0.0119]\n'
+    survey.write_text(TWO_RAILS + cross, encoding="utf-8")
+    code, out, err = cli("reduce", survey, "--json")
+    assert code == 0, err
+    assert len(json.loads(out)["nodes"]) == 16
+    # without the cross step the rails are not tied together: refused, in plain English ("a level")
+    survey.write_text(TWO_RAILS, encoding="utf-8")
+    code, out, err = cli("reduce", survey)
+    assert code == 2 and "an level" not in err and err.count("\n") == 1
