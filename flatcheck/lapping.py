@@ -1078,7 +1078,8 @@ def plan_lapping(
     step_mm : float, optional
         Dwell grid pitch (mm); default the input grid, or about ``max_nodes`` nodes over the extent.
     cell_mm : float, optional
-        Side of the chart's cells (mm); default the lap's diameter (or longer side).
+        Side of the chart's cells (mm), measured from the south-west corner; default the lap's diameter (or
+        longer side). See :func:`chart_edges` for the remainder at the edges.
     levels : int
         Number of equal time steps the dwell is rounded to (>= 1).
     smoothing : float
@@ -1283,7 +1284,9 @@ def chart_edges(hm: HeightMap, lap: LapModel, cell_mm: float | None = None) -> t
     """Cell edges of the chart along x and y (mm), without the check on their number.
 
     The chart covers the whole surface when its size is known (origin at the south-west corner), else the
-    extent of the measured points.
+    extent of the measured points. Cells are exactly ``cell_mm`` square, measured from that corner, so they
+    can be marked on the surface with a rule; what is left at the east and north edges is one more, narrower
+    cell when it is more than half a cell wide, else it joins the last cell (at most 1.5 cells wide).
 
     Parameters
     ----------
@@ -1306,9 +1309,20 @@ def chart_edges(hm: HeightMap, lap: LapModel, cell_mm: float | None = None) -> t
     y0, y1 = (0.0, hm.width_mm) if hm.width_mm else (ymin, ymax)
     x0, x1 = min(x0, xmin), max(x1, xmax)
     y0, y1 = min(y0, ymin), max(y1, ymax)
-    ncol = max(1, int(math.ceil((x1 - x0) / cell_mm - 1e-9)))
-    nrow = max(1, int(math.ceil((y1 - y0) / cell_mm - 1e-9)))
-    return np.linspace(x0, x1, ncol + 1), np.linspace(y0, y1, nrow + 1)
+    return _edges(x0, x1, cell_mm), _edges(y0, y1, cell_mm)
+
+
+def _edges(a: float, b: float, cell: float) -> np.ndarray:
+    """Edges every ``cell`` from ``a``; a remainder up to half a cell joins the last cell."""
+    full = int(math.floor((b - a) / cell + 1e-9))
+    rest = (b - a) - full * cell
+    if full == 0:
+        return np.array([a, b])
+    inner = a + cell * np.arange(full + 1)
+    if rest > 0.5 * cell + 1e-9 * cell:
+        return np.append(inner, b)
+    inner[-1] = b  # nothing left, or a sliver that joins the last cell
+    return inner
 
 
 def _chart(hm, lap, xs, ys, plan_dwell, cell_mm) -> CellChart:

@@ -495,3 +495,22 @@ def test_shortfall_from_the_footprint_says_the_lap_is_too_wide():
     assert narrow.best_flatness_um < wide.best_flatness_um
     met = plan_lapping(hm, least_removal(hm, 0.7), LapModel("round", diameter_mm=40.0))  # flatness now 0.6 µm
     assert met.passes == () and met.shortfall is None
+
+
+# ----------------------------------------------------------------------------- chart cells of the stated size
+@pytest.mark.parametrize(
+    "cell, xe, ye",
+    [
+        # 1000 x 630 mm plate; cells measured from the south-west corner, a remainder up to half a cell joins
+        # the last one (hand-worked edges)
+        (150.0, [0, 150, 300, 450, 600, 750, 900, 1000], [0, 150, 300, 450, 630]),  # 100 > 75: own column
+        (250.0, [0, 250, 500, 750, 1000], [0, 250, 500, 630]),  # 130 > 125: own row
+        (140.0, [0, 140, 280, 420, 560, 700, 840, 1000], [0, 140, 280, 420, 630]),  # 20 and 70 (= half) join
+    ],
+)
+def test_chart_cells_are_the_stated_size_from_the_corner(rng, cell, xe, ye):
+    hm = _bumpy(rng, 21, 14, noise=0.02)
+    lap = LapModel("round", diameter_mm=cell, rate_um=0.25)
+    plan = plan_lapping(hm, least_removal(hm, 0.8), lap)  # cell size: the lap's by default
+    assert plan.chart.x_edges_mm.tolist() == pytest.approx(xe) and plan.chart.y_edges_mm.tolist() == pytest.approx(ye)
+    assert plan.chart.time.sum() == pytest.approx(plan.total_time)

@@ -486,7 +486,7 @@ def lap_cmd(
     strokes_per_pass: int = typer.Option(None, "--strokes-per-pass", help="Strokes in one pass (with a rate per pass)."),
     stroke_mm: float = typer.Option(0.0, "--stroke-mm", help="Length of the lap's working strokes about each spot (mm)."),
     step_mm: float = typer.Option(None, "--step-mm", help="Dwell grid pitch (mm); default the survey grid."),
-    cell_mm: float = typer.Option(None, "--cell-mm", help="Chart cell size (mm); default the lap size."),
+    cell_mm: float = typer.Option(None, "--cell-mm", help="Chart cell size (mm), from the south-west corner; default the lap size (a remainder of half a cell or less joins the last cell)."),
     levels: int = typer.Option(4, "--levels", help="Time steps the dwell map is rounded to (more = more passes)."),
     smoothing: float = typer.Option(0.01, "--smoothing", help="Regularisation of the dwell deconvolution."),
     smoothness: float = typer.Option(
