@@ -914,7 +914,12 @@ def _line_closures(model: _Model, l: np.ndarray, u: np.ndarray, r: np.ndarray) -
             "not from flatness"
         )
         ends = np.array([corrected[sel & (obs.run == k)].sum() for k in runs])
-        spread = _clean_zero(ends.max() - ends.min(), scale) if runs.size > 1 else None
+        # Runs with zeros of their own (a run walked with the instrument turned round) have their
+        # end-to-end rise fitted by that zero, so their spread is zero by construction: not stated.
+        zero_sets = {
+            tuple(np.unique(model.A[np.flatnonzero(sel & (obs.run == k)), model.n :].tocoo().col)) for k in runs
+        }
+        spread = _clean_zero(ends.max() - ends.min(), scale) if runs.size > 1 and len(zero_sets) == 1 else None
         out.append(LineClosure(ln.name, closure, meaning, spread, ln.stations[k_worst]))
     return tuple(out)
 

@@ -557,3 +557,20 @@ def test_two_rails_at_two_y_levels_reduce(cli, tmp_path):
     survey.write_text(TWO_RAILS, encoding="utf-8")
     code, out, err = cli("reduce", survey)
     assert code == 2 and "an level" not in err and err.count("\n") == 1
+
+
+def test_run_spread_is_not_stated_for_a_turned_run_with_its_own_zero(cli, tmp_path):
+    # A run walked with the autocollimator turned round gets a zero of its own, which absorbs its end-to-end
+    # rise: a spread would be zero by construction, so none is stated. A plain back run keeps its spread.
+    doc = (Path(__file__).resolve().parents[2] / "docs" / "survey-format.md").read_text(encoding="utf-8")
+    start = doc.index("```toml") + len("```toml")
+    example = tmp_path / "full.toml"
+    example.write_text(doc[start : doc.index("```", start)], encoding="utf-8")
+    spreads = {}
+    for path in (example, PLATE):
+        code, out, err = cli("reduce", path, "--json")
+        assert code == 0, err
+        spreads[path] = {ln["name"]: ln["run_spread_um"] for ln in json.loads(out)["lines"]}
+    assert "flip_sign = true" in example.read_text(encoding="utf-8")
+    assert spreads[example]["W-E"] is None
+    assert spreads[PLATE]["W-E"] is not None and spreads[PLATE]["W-E"] > 0.01
