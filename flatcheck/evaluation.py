@@ -10,6 +10,7 @@ document of ``flatcheck reduce --json``.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -461,6 +462,41 @@ class SurfaceEvaluation:
         }
 
 
+def _auto_window_note(hm: HeightMap) -> str | None:
+    """Why the automatic 250 x 250 mm window gave no local flatness, and a window that fits.
+
+    Parameters
+    ----------
+    hm : HeightMap
+        The evaluated surface (positions in mm).
+
+    Returns
+    -------
+    str or None
+        The note, or None when the window fits both ways.
+    """
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    span_x, span_y = xmax - xmin, ymax - ymin
+    L, W = DEFAULT_WINDOW.length_mm, DEFAULT_WINDOW.width_mm
+    short = [d for d, span, size in (("x", span_x, L), ("y", span_y, W)) if span < size - 1e-9]
+    if not short:
+        return None
+    fit_x, fit_y = min(L, math.floor(span_x + 1e-9)), min(W, math.floor(span_y + 1e-9))
+    if len(short) == 2:
+        return (
+            f"no local flatness: the whole surveyed area ({span_x:.0f} x {span_y:.0f} mm) is smaller than the default "
+            f"{DEFAULT_WINDOW.text} window, so the flatness above is also the local flatness over any such area; "
+            "give a smaller --window for a local figure"
+        )
+    text = (
+        f"no local flatness: the default {DEFAULT_WINDOW.text} window is larger than the surveyed area "
+        f"({span_x:.0f} x {span_y:.0f} mm) along {' and '.join(short)}"
+    )
+    if fit_x >= 1 and fit_y >= 1:
+        text += f"; give a window that fits, e.g. --window {fit_x:g}x{fit_y:g}"
+    return text
+
+
 def evaluate_surface(
     loaded: LoadedInput,
     *,
@@ -492,6 +528,9 @@ def evaluate_surface(
         if fits:
             local = _local(hm, win)
         elif auto:
+            note = _auto_window_note(hm)
+            if note:
+                notes.append(note)
             win = None
         else:
             notes.append(f"the window {win.text} does not fit inside the surveyed area; no local flatness")

@@ -210,3 +210,13 @@ def test_outliers_in_the_json_carry_their_diagnosis():
     assert all(o["w_after"] is None for o in first)
     rest = [o for o in out if o["group"] != 1]
     assert all(o["group"] == 0 and abs(o["w_after"]) <= 3.29 for o in rest)
+
+
+def test_auto_window_that_does_not_fit_is_explained_in_the_evaluation():
+    # Every command that evaluates a surface (reduce, report, demo) gets the reason with the result.
+    from flatcheck.cli.common import load_input
+
+    guide = Path(__file__).resolve().parents[1] / "sample_readings" / "guideway-KY-G1.toml"
+    ev = evaluate_surface(load_input(guide), window="auto")
+    assert ev.local is None
+    assert any("--window 250x120" in n for n in ev.notes)

@@ -69,9 +69,6 @@ def reduce_cmd(
             comment=f"flatcheck reduce {input.name} ({ev.method}); heights in µm about the least-squares plane",
         )
     doc = ev.to_dict(nodes=json_out)
-    note = _auto_window_note(ev, window)
-    if note:
-        doc["notes"] = list(doc.get("notes") or []) + [note]
     # JSON values stay in µm and mm whatever --units says (scripts rely on the *_um / *_mm keys);
     # "units" names the unit of the *_um values, "display_units" what the summary shows.
     doc["units"] = "um"
@@ -93,38 +90,6 @@ def reduce_cmd(
         emit_json(doc)
         return
     render_reduction(ev, doc, units.value, map_out)
-
-
-def _auto_window_note(ev, window: str) -> str | None:
-    """Why ``--window auto`` gave no local flatness (the 250 x 250 mm window does not fit), and a window that does."""
-    if ev.local is not None or str(window).strip().lower() != "auto":
-        return None
-    if any("window" in n for n in (ev.notes or ())):
-        return None  # said already
-    from math import floor
-
-    from ..evaluation import DEFAULT_WINDOW
-
-    xmin, xmax, ymin, ymax = ev.heightmap.extent_mm
-    span_x, span_y = xmax - xmin, ymax - ymin
-    L, W = DEFAULT_WINDOW.length_mm, DEFAULT_WINDOW.width_mm
-    short = [d for d, span, size in (("x", span_x, L), ("y", span_y, W)) if span < size - 1e-9]
-    if not short:
-        return None
-    fit_x, fit_y = min(L, floor(span_x + 1e-9)), min(W, floor(span_y + 1e-9))
-    if len(short) == 2:
-        return (
-            f"no local flatness: the whole surveyed area ({span_x:.0f} x {span_y:.0f} mm) is smaller than the default "
-            f"{DEFAULT_WINDOW.text} window, so the flatness above is also the local flatness over any such area; "
-            "give a smaller --window for a local figure"
-        )
-    text = (
-        f"no local flatness: the default {DEFAULT_WINDOW.text} window is larger than the surveyed area "
-        f"({span_x:.0f} x {span_y:.0f} mm) along {' and '.join(short)}"
-    )
-    if fit_x >= 1 and fit_y >= 1:
-        text += f"; give a window that fits, e.g. --window {fit_x:g}x{fit_y:g}"
-    return text
 
 
 def _finite(v) -> bool:
