@@ -56,6 +56,7 @@ __all__ = [
     "chart_edges",
     "default_cell_mm",
     "MAX_CHART_CELLS",
+    "HAND_MIN_PASS_MIN",
 ]
 
 #: Depth below which a node counts as untouched, µm (1 pm: far below any measurement).
@@ -1021,6 +1022,11 @@ class LapPlan:
         plan on this dwell grid.
     shortfall : Shortfall or None
         Why the plan misses the target and what to change; None when it reaches the target.
+    too_short_by_hand : tuple of int
+        Orders of the passes too short to work by hand (under :data:`HAND_MIN_PASS_MIN` minutes, or under
+        one stroke), kept because dropping or merging them would lose flatness.
+    flatness_skipping_short_um : float or None
+        Minimum-zone flatness predicted if all of those passes are skipped (µm); None when there are none.
     """
 
     lap: LapModel
@@ -1046,6 +1052,8 @@ class LapPlan:
     levels: int = 4
     best_flatness_um: float = float("nan")
     shortfall: Shortfall | None = None
+    too_short_by_hand: tuple = ()
+    flatness_skipping_short_um: float | None = None
 
 
 def _dwell_grid(hm: HeightMap, step_mm: float | None, max_nodes: int, lap: LapModel):
@@ -1278,6 +1286,14 @@ def plan_lapping(
     order = sorted(range(len(layers)), key=lambda i: (-layers[i].level, -depth[i]))
     passes = tuple(_make_pass(k + 1, layers[i], depth[i], xs, ys, lap, chart) for k, i in enumerate(order))
     regions = tuple(layers[i].region for i in order)
+    # passes too short to work by hand, and what skipping them all would cost
+    by_hand = tuple(p.order for p in passes if _too_short_by_hand(p, lap))
+    skip_flat = None
+    if by_hand:
+        rest = plan_dwell.copy()
+        for o in by_hand:
+            rest -= regions[o - 1] * (passes[o - 1].time / int(regions[o - 1].sum()))
+        skip_flat = _flatness_after(np.maximum(rest, 0.0))
     for a in (xs, ys, wanted, dwell, plan_dwell, achieved, predicted, *regions):
         a.setflags(write=False)
     return LapPlan(
@@ -1304,7 +1320,22 @@ def plan_lapping(
         levels=levels,
         best_flatness_um=float(best_flat),
         shortfall=shortfall,
+        too_short_by_hand=by_hand,
+        flatness_skipping_short_um=skip_flat,
     )
+
+
+#: Shortest pass that can be worked evenly over its zone by hand, in minutes: 10 s. A lap is moved in
+#: strokes of a second or two; a pass of a few seconds is a stroke or two and cannot spread its time evenly
+#: (a choice of this module; common practice, no single source).
+HAND_MIN_PASS_MIN = 10.0 / 60.0
+
+
+def _too_short_by_hand(p: Pass, lap: LapModel) -> bool:
+    """A pass under 10 s (time in minutes), or under one stroke (time in passes of known strokes)."""
+    if p.time_unit == "min":
+        return p.time < HAND_MIN_PASS_MIN * (1 - 1e-9)
+    return p.strokes is not None and p.strokes < 1
 
 
 #: Most time steps suggested for rounding the dwell (a plan of more layers is not worked by hand).

@@ -565,3 +565,30 @@ def test_finer_dwell_grid_is_not_worse_unrounded():
     for step in (20.0, 10.0):
         fine = plan_lapping(hm, lr, lap, step_mm=step, smoothness=0.0)
         assert fine.dwell_flatness_um <= own.dwell_flatness_um + 0.01
+
+
+# ----------------------------------------------------------------------------- passes too short to do by hand
+def test_passes_under_ten_seconds_are_flagged_with_the_cost_of_skipping_them():
+    # The audit's case: pad sample, target 0.2 µm, 20 mm lap: passes of 0.037-0.074 min (2-4 s) were kept
+    # without a word. 10 s is this module's limit (common practice, no single source).
+    from pathlib import Path
+
+    from flatcheck.cli.common import load_surface
+    from flatcheck.lapping import HAND_MIN_PASS_MIN
+
+    hm, _ = load_surface(Path(__file__).resolve().parents[1] / "sample_readings" / "pad-KY-B4-heights.csv")
+    plan = plan_lapping(hm, least_removal(hm, 0.2), LapModel("round", diameter_mm=20.0))
+    assert HAND_MIN_PASS_MIN == pytest.approx(10.0 / 60.0)
+    short = [p.order for p in plan.passes if p.time * 60.0 < 10.0]
+    assert short and plan.too_short_by_hand == tuple(short)
+
+    class Without:  # the plan without the short passes, for the independent recomputation
+        xs_mm, ys_mm = plan.xs_mm, plan.ys_mm
+        passes = [p for p in plan.passes if p.order not in short]
+        pass_regions = [r for p, r in zip(plan.passes, plan.pass_regions) if p.order not in short]
+
+    flat, _ = _independent_flatness_after(hm, Without, 1.0, 20.0)
+    assert plan.flatness_skipping_short_um == pytest.approx(flat, abs=0.01)
+    # a plan whose passes are all long enough flags none (the same plan at a tenth of the rate: ten times longer)
+    slow = plan_lapping(hm, least_removal(hm, 0.2), LapModel("round", diameter_mm=20.0, rate_um=0.1))
+    assert slow.too_short_by_hand == () and slow.flatness_skipping_short_um is None

@@ -302,6 +302,8 @@ def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str
         "predicted_flatness_before_tidying_um": plan.unmerged_flatness_um,
         "short_passes": list(plan.merges),
         "predicted_flatness_best_um": plan.best_flatness_um,
+        "passes_too_short_by_hand": list(plan.too_short_by_hand),
+        "predicted_flatness_skipping_them_um": plan.flatness_skipping_short_um,
         "shortfall": None if plan.shortfall is None else {
             "causes": list(plan.shortfall.causes),
             "losses_um": plan.shortfall.losses_um,
@@ -328,6 +330,34 @@ def _fmt_time(t: float, unit: str) -> str:
     if unit == "min":
         return f"{t:.1f} min" if t >= 10 else f"{t:.2g} min"
     return f"{t:.1f} passes" if t >= 10 else f"{t:.2g} passes"
+
+
+def _fmt_pass_time(plan: LapPlan, p) -> str:
+    """A pass's time for the table: strokes when known, seconds and a "!" mark when too short by hand."""
+    t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
+    if p.order in plan.too_short_by_hand:
+        t += f" ({p.time * 60:.0f} s) !" if p.time_unit == "min" else " !"
+    return t
+
+
+def short_by_hand_line(plan: LapPlan, units: str) -> str:
+    """The footnote of the passes marked "!" (empty when there are none)."""
+    n = len(plan.too_short_by_hand)
+    if not n:
+        return ""
+    what = "under 10 s" if plan.lap.time_unit == "min" else "under one stroke"
+    orders = ", ".join(str(o) for o in plan.too_short_by_hand)
+    return (
+        f"! pass{'es' if n > 1 else ''} {orders}: {what}, too short to work evenly by hand; add the time to the "
+        f"pass before or skip it (skipping {'all ' + str(n) if n > 1 else 'it'}: predicted "
+        f"{_h(plan.flatness_skipping_short_um, units)} instead of {_h(plan.predicted_flatness_um, units)})"
+    )
+
+
+def _h(v_um: float, units: str) -> str:
+    """A height with its unit: µm to the nm, µin to 0.1 µin (about 2.5 nm)."""
+    hu = height_unit_label(units)
+    return f"{um_to(v_um, units):.3f} {hu}" if units == "um" else f"{um_to(v_um, units):.1f} {hu}"
 
 
 def _fmt_extent(extent_mm) -> str:
@@ -413,13 +443,15 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
     ]
     for p in plan.passes:
         ext = _fmt_extent(p.extent_mm)
-        t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
+        t = _fmt_pass_time(plan, p)
         out.append(
             f"{p.order:>3}  {p.zone:<10} {f'{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}':<18} {ext:<26} {h(p.depth_um):>12}  {t}"
         )
     if not plan.passes:
         out.append("  none: the surface is already within the target")
     else:
+        if plan.too_short_by_hand:
+            out.append(short_by_hand_line(plan, units))
         out += ["", chart_text(plan)]
     out.append("")
     out += [f"Note: {n}" for n in notes]
@@ -456,7 +488,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     for col in ("#", "zone", "centre (mm)", "extent x, y (mm)", f"depth ({hu})", "time"):
         table.add_column(col)
     for p in plan.passes:
-        t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
+        t = _fmt_pass_time(plan, p)
         table.add_row(
             str(p.order), p.zone, f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
             _fmt_extent(p.extent_mm),
@@ -464,6 +496,8 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         )
     if plan.passes:
         con.print(table)
+        if plan.too_short_by_hand:
+            con.print(short_by_hand_line(plan, units), markup=False)
         con.print(chart_text(plan, max_width=max(40, con.width)), markup=False)
     else:
         con.print("No passes: the surface is already within the target.")

@@ -353,3 +353,20 @@ def test_lap_option_checks_for_other_commands_name_the_option():
     with pytest.raises(InputValueError) as exc:
         check_lap_on_surface(hm, LapModel("round", diameter_mm=1.0), lap_option="--lap-diameter-mm", cell_option=None)
     assert exc.value.where == "--lap-diameter-mm" and "too many" in exc.value.message
+
+
+def test_passes_too_short_by_hand_are_marked(cli, tmp_path):
+    # pad sample, target 0.2 µm, 20 mm lap: passes of 2-4 s must be marked in the table and the plan file
+    plan = tmp_path / "plan.txt"
+    args = ("lap", SAMPLES / "pad-KY-B4-heights.csv", "--target-um", "0.2", "--lap-diameter-mm", "20")
+    code, out, err = cli(*args, "--plan-out", plan)
+    assert code == 0, err
+    doc = json.loads(cli(*args, "--json")[1])
+    short = doc["passes_too_short_by_hand"]
+    assert short == [p["order"] for p in doc["passes"] if p["time"] * 60 < 10]
+    assert doc["predicted_flatness_skipping_them_um"] > 0
+    for text in (out, plan.read_text(encoding="utf-8")):
+        flat = " ".join(text.split())
+        assert "under 10 s, too short to work evenly by hand" in flat and "skipping all" in flat
+        marked = [line for line in text.splitlines() if line.rstrip().rstrip("│").rstrip().endswith("!")]
+        assert len(marked) == len(short)
