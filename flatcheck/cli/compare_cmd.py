@@ -12,7 +12,7 @@ from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_no
 from ..units import height_unit_label, um_to
 from ._app import app
 from .common import SAFETY_LINES, emit_json, load_input, stdout_console, Units, units_option
-from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _parse_size, check_option, resolve_target
+from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _h, _parse_size, check_option, resolve_target
 
 
 def cautions(pr: Progress) -> list:
@@ -151,10 +151,9 @@ def sessions_text(pr: Progress) -> str:
 def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str) -> None:
     """Human summary on stdout."""
     con = stdout_console()
-    hu = height_unit_label(units)
 
     def h(v):
-        return f"{um_to(v, units):.3f} {hu}"
+        return _h(v, units)
 
     con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
     con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")

@@ -423,10 +423,9 @@ def chart_text(plan: LapPlan, max_width: int = 96) -> str:
 def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> str:
     """The whole plan as plain text: summary, passes, chart, caution."""
     lr = plan.removal
-    hu = height_unit_label(units)
 
     def h(v):
-        return f"{um_to(v, units):.3f} {hu}"
+        return _h(v, units)
 
     out = [
         f"Lapping plan for {label}",
@@ -468,7 +467,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     hu = height_unit_label(units)
 
     def h(v):
-        return f"{um_to(v, units):.3f} {hu}"
+        return _h(v, units)
 
     con.print(f"[bold]Lapping plan[/bold] for {label}")
     con.print(f"Target flatness {h(lr.target_um)} ({target_source}); minimum zone now {h(lr.flatness_before_um)}")
@@ -492,7 +491,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         table.add_row(
             str(p.order), p.zone, f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
             _fmt_extent(p.extent_mm),
-            f"{um_to(p.depth_um, units):.3f}", t,
+            _h(p.depth_um, units).split()[0], t,
         )
     if plan.passes:
         con.print(table)

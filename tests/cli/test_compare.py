@@ -296,3 +296,12 @@ def test_target_from_the_air_bearing_gap(cli, pair):
     code, out, err = cli("compare", before, after, "--target-um", "1", "--gap-fraction", "0.3")
     one_line_error(code, out, err)
     assert err.startswith("flatcheck: error: --gap-fraction:")
+
+
+def test_microinch_output_has_sensible_decimals(cli, pair):
+    import re
+
+    before, after, *_ = pair
+    code, out, err = cli("compare", before, after, "--dwell-min", "5", "--target-um", "0.5", "--units", "in")
+    assert code == 0, err
+    assert re.findall(r"\d\.\d\d+ µin", out) == [] and "Target 19.7 µin" in out  # 0.5 / 0.0254 = 19.69 µin

@@ -370,3 +370,19 @@ def test_passes_too_short_by_hand_are_marked(cli, tmp_path):
         assert "under 10 s, too short to work evenly by hand" in flat and "skipping all" in flat
         marked = [line for line in text.splitlines() if line.rstrip().rstrip("│").rstrip().endswith("!")]
         assert len(marked) == len(short)
+
+
+def test_microinch_output_has_sensible_decimals(cli, tmp_path):
+    # 1 µin = 0.0254 µm (exact), so 0.1 µin (2.5 nm) already carries more than the µm figure's nm: three
+    # decimals of µin ("39.370 µin") were noise
+    import re
+
+    plan = tmp_path / "plan.txt"
+    args = ("lap", SAMPLES / "pad-KY-B4-heights.csv", "--target-um", "0.2", "--lap-diameter-mm", "20", "--units", "in")
+    code, out, err = cli(*args, "--plan-out", plan)
+    assert code == 0, err
+    for text in (out, plan.read_text(encoding="utf-8")):
+        assert re.findall(r"\d\.\d\d+ µin", text) == []
+        assert "Target flatness 7.9 µin" in text  # 0.2 µm / 0.0254 = 7.87 µin
+    depths = [line.split("│")[5].strip() for line in out.splitlines() if line.startswith("│")]
+    assert depths and all(re.fullmatch(r"\d+\.\d", d) for d in depths)
