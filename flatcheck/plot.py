@@ -48,18 +48,25 @@ __all__ = [
     "line_profiles",
     "survey_layout",
     "field_map",
+    "plan_panels",
+    "plan_box",
+    "plan_ratio",
+    "cell_chart",
+    "bearing_motion",
     "local_flatness_map",
     "local_flatness_profile",
     "mark_window",
     "removal_map",
     "dwell_map",
-    "compare_change_map",
     "carriage_path",
     "residual_histogram",
     "text_block",
     "table",
     "page_frame",
     "flow_table",
+    "flow_table_height_in",
+    "text_block_height_in",
+    "compare_change_map",
 ]
 
 HEIGHT_CMAP = "cividis"  #: heights: perceptually uniform, legible in grey and for red-green colour blindness
@@ -118,19 +125,43 @@ def new_figure(size_in=A4_PORTRAIT_IN, *, dpi: float = 100) -> Figure:
     return fig
 
 
-def save_png(fig: Figure, path, *, dpi: float = 150) -> Path:
+def save_png(fig: Figure, path, *, dpi: float = 150, axes=None, pad_in: float = 0.08) -> Path:
     """Write ``fig`` as a PNG file atomically; returns the path.
+
+    Parameters
+    ----------
+    fig : Figure
+    path : str or Path
+    dpi : float
+    axes : sequence of Axes, optional
+        Write only the picture these axes make (with their titles, labels, colour bars and
+        annotations), cut out of the figure: e.g. one map of a report page without the page's
+        header, footer or tables.
+    pad_in : float
+        Margin round that picture, inches.
 
     Raises
     ------
     OutputError
         If the file cannot be written.
     """
+    from matplotlib.transforms import Bbox
+
     from .io.atomic import atomic_path
 
     path = Path(path)
+    bbox = None
+    if axes:
+        fig.canvas.draw()
+        r = fig.canvas.get_renderer()
+        boxes = []
+        for a in axes:
+            boxes.append(a.get_tightbbox(r))
+            boxes += [c.get_tightbbox(r) for c in getattr(a, "child_axes", ())]
+        box = Bbox.union([b for b in boxes if b is not None and b.width > 0])
+        bbox = box.transformed(fig.dpi_scale_trans.inverted()).padded(pad_in)
     with atomic_path(path, suffix=".png") as tmp:
-        fig.savefig(tmp, format="png", dpi=dpi)
+        fig.savefig(tmp, format="png", dpi=dpi, bbox_inches=bbox)
     return path
 
 
@@ -253,8 +284,8 @@ def contour_map(
     if len(lev) > 2:
         ax.clabel(cs, levels=cs.levels[::2], fmt=lambda v: f"{v:g}", fontsize=6, inline=True, inline_spacing=2)
     if colorbar:
-        cb = ax.figure.colorbar(cf, ax=ax, shrink=0.9, pad=0.02)
-        cb.set_label(f"height ({hu})" if reference is None else f"deviation from reference plane ({hu})")
+        _colorbar_beside(ax, cf, f"height ({hu})" if reference is None else f"deviation from reference plane ({hu})",
+                         fontsize=8)
     if show_stations:
         ax.plot(hm.x_mm * ps, hm.y_mm * ps, "o", ms=3, mfc="white", mec=_INK, mew=0.6, ls="none", zorder=4)
         if station_names is None:
@@ -293,9 +324,10 @@ def contour_map(
     if hm.length_mm and hm.width_mm:
         L, W = hm.length_mm * ps, hm.width_mm * ps
         ax.plot([0, L, L, 0, 0], [0, 0, W, W, 0], color=_INK, lw=1.0)
-        pad = 0.03 * max(L, W)
-        ax.set_xlim(-pad, L + pad)
-        ax.set_ylim(-pad, W + pad)
+    # a margin round the surface, so the markers of high and low points at an edge are drawn whole
+    (xa, xb), (ya, yb) = _plan_limits(plan_box(hm))
+    ax.set_xlim(xa * ps, xb * ps)
+    ax.set_ylim(ya * ps, yb * ps)
     ax.set_xlabel(f"x, along the length ({pu})")
     ax.set_ylabel(_plan_aspect(ax, f"y, across ({pu})"))
     if title:
@@ -334,14 +366,20 @@ def surface_view(ax3d, hm, *, reference=None, units: str = "um", title: str | No
     ax3d.scatter(hm.x_mm * ps, hm.y_mm * ps, shown.height_um * hs, s=4, c=_INK, depthshade=False)
     lx = np.ptp(X) or 1.0
     ly = np.ptp(Y) or 1.0
-    ax3d.set_box_aspect((lx, ly, 0.35 * max(lx, ly)))
-    ax3d.set_xlabel(f"x ({pu})", labelpad=2)
-    ax3d.set_ylabel(f"y ({pu})", labelpad=2)
-    ax3d.set_zlabel(f"height ({hu})", labelpad=4)
-    ax3d.tick_params(labelsize=6, pad=0)
+    # a long surface drawn to scale is a line whose y ticks pile up: widen it as the plan views are
+    wide = max(lx, ly) / _MAX_PLAN_RATIO
+    bx, by = max(lx, wide), max(ly, wide)
+    ax3d.set_box_aspect((bx, by, 0.35 * max(bx, by)))
+    for axis in (ax3d.xaxis, ax3d.yaxis, ax3d.zaxis):
+        axis.set_major_locator(MaxNLocator(nbins=5 if axis is not ax3d.yaxis or by >= 0.5 * bx else 3))
+    stretched = by > ly * 1.01
+    ax3d.set_xlabel(f"x ({pu})", labelpad=10, fontsize=8)
+    ax3d.set_ylabel(f"y ({pu})", labelpad=10, fontsize=8)
+    ax3d.set_zlabel(f"height ({hu})", labelpad=6, fontsize=8)
+    ax3d.tick_params(labelsize=6, pad=1)
     ax3d.view_init(elev=28, azim=-58)
     if title:
-        ax3d.set_title(title, fontsize=10, loc="left")
+        ax3d.set_title(title + ("; drawn wider across than to scale" if stretched else ""), fontsize=10, loc="left")
     return ax3d
 
 
@@ -481,7 +519,8 @@ def survey_layout(
     Returns
     -------
     Axes
-        ``ax``.
+        ``ax``. Each line's name (and note) is written horizontally where its drawn box overlaps no
+        other label and covers no station (``gid`` "line-label"); place ``ax`` on the figure first.
     """
     hs, hu = _height_scale(units)
     ps, pu = _pos_scale(units)
@@ -492,25 +531,26 @@ def survey_layout(
         pad = 0.04 * max(L, W)
         ax.set_xlim(-pad, L + pad)
         ax.set_ylim(-pad, W + pad)
+    elif len(xy):  # no outline: the stations' extent with a margin, fixed before the labels are placed
+        lo, hi = xy.min(axis=0), xy.max(axis=0)
+        pad = 0.08 * max(float(np.max(hi - lo)), 1e-9)
+        ax.set_xlim(lo[0] - pad, hi[0] + pad)
+        ax.set_ylim(lo[1] - pad, hi[1] + pad)
     dash = ["-", "--", "-.", ":"]
-    span = float(np.ptp(xy, axis=0).max()) if len(xy) else 1.0
-    placed = []  # label positions already used
+    polylines = []
     for k, (name, idx) in enumerate(lines):
         idx = np.asarray(idx, int)
         p = xy[idx]
+        polylines.append(p)
         ax.plot(p[:, 0], p[:, 1], dash[k % len(dash)], color=_INK, lw=1.0, zorder=2)
         ax.annotate("", xy=p[-1], xytext=p[-2], arrowprops=dict(arrowstyle="-|>", color=_INK, lw=1.0), zorder=3)
-        mid = _label_spot(p, placed, 0.12 * span)
-        placed.append(mid)
-        note = name if not line_notes or name not in line_notes else f"{name}\n{line_notes[name]}"
-        d = p[-1] - p[0]
-        ang = float(np.degrees(np.arctan2(d[1], d[0])))
-        if ang > 90:
-            ang -= 180
-        if ang < -90:
-            ang += 180
-        ax.text(mid[0], mid[1], note, fontsize=6, rotation=ang, rotation_mode="anchor", ha="center", va="bottom",
-                color=_INK, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.8), zorder=4)
+    ax.set_xlabel(f"x ({pu})")
+    ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"))
+    texts = []
+    for name, _ in lines:
+        note = None if not line_notes or name not in line_notes else line_notes[name]
+        texts.append((name, note))
+    _place_line_labels(ax, polylines, texts, xy, fontsize=6)
     ax.plot(xy[:, 0], xy[:, 1], "o", ms=2.5, mfc="white", mec=_INK, mew=0.6, ls="none", zorder=5)
     for k, (label, x, y, c_um) in enumerate(closures):
         # several closures at one station (the two centre lines of a Union Jack): fan the labels out
@@ -527,8 +567,6 @@ def survey_layout(
             bbox=dict(boxstyle="round,pad=0.25", fc="white", ec=_ACCENT, lw=0.6),
             zorder=8,
         )
-    ax.set_xlabel(f"x ({pu})")
-    ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"))
     if title:
         ax.set_title(title, fontsize=10, loc="left")
     return ax
@@ -560,29 +598,145 @@ def _plan_aspect(ax, ylabel: str) -> str:
     return f"{ylabel}\ndrawn {stretch:.2g}x the x scale"
 
 
-def _label_spot(p, placed, clearance):
-    """Where along the polyline ``p`` (shape (n, 2)) to write its label.
+def _segments_hit_box(P, box) -> int:
+    """How many of the segments of polyline ``P`` (display coordinates, shape (k, 2)) cross ``box``."""
+    x0, y0, x1, y1 = box
+    hits = 0
+    for (ax_, ay), (bx, by) in zip(P[:-1], P[1:]):
+        # Liang-Barsky clipping of the segment against the box
+        t0, t1 = 0.0, 1.0
+        dx, dy = bx - ax_, by - ay
+        ok = True
+        for p_, q_ in ((-dx, ax_ - x0), (dx, x1 - ax_), (-dy, ay - y0), (dy, y1 - ay)):
+            if p_ == 0:
+                if q_ < 0:
+                    ok = False
+                    break
+                continue
+            t = q_ / p_
+            if p_ < 0:
+                t0 = max(t0, t)
+            else:
+                t1 = min(t1, t)
+            if t0 > t1:
+                ok = False
+                break
+        hits += ok
+    return hits
 
-    The midpoint unless another label is within ``clearance`` of it (the lines of a
-    Union Jack all cross at the centre): then the first of a few points further along
-    the line that keeps clear of the labels already placed.
+
+def _align_for(d) -> tuple[str, str]:
+    """Text alignment that puts a label on the side of its anchor that ``d`` (display direction) points to."""
+    ha = "left" if d[0] > 0.35 else "right" if d[0] < -0.35 else "center"
+    va = "bottom" if d[1] > 0.35 else "top" if d[1] < -0.35 else "center"
+    return ha, va
+
+
+def _place_line_labels(ax, polylines, texts, stations, *, fontsize: float = 6, gap_px: float = 5.0):
+    """Write each line's label where its drawn box overlaps no other label and covers no station.
+
+    Candidate spots are tried on the rendered figure (matplotlib's text extents): beyond either end of
+    the line along its direction, beside its ends and beside points along it, each with the label on one
+    line or two. A spot is refused if its box leaves the axes or touches a label already placed; among the
+    others the one covering the fewest stations, then crossing the fewest other lines, is taken (the
+    first such in the order above). Labels are horizontal so they read without turning the page.
+
+    Parameters
+    ----------
+    ax : Axes
+        A plan view whose limits and aspect are already set.
+    polylines : list of ndarray, shape (k, 2)
+        Each line's station positions in data units, in walking order.
+    texts : list of (str, str or None)
+        Each line's name and an optional note (e.g. its closure).
+    stations : ndarray, shape (n, 2)
+        Every station (data units), which labels must not cover.
+
+    Returns
+    -------
+    list of Text
+        The labels (``gid`` "line-label"), in the order of ``polylines``.
     """
-    seg = np.hypot(*np.diff(p, axis=0).T)
-    s = np.r_[0.0, np.cumsum(seg)]
-    best, best_gap = None, -1.0
-    for t in (0.5, 0.3, 0.7, 0.2, 0.8, 0.4, 0.6):
-        q = np.array([np.interp(t * s[-1], s, p[:, 0]), np.interp(t * s[-1], s, p[:, 1])])
-        gap = min((float(np.hypot(*(q - o))) for o in placed), default=np.inf)
-        if gap >= clearance:
-            return q
-        if gap > best_gap:
-            best, best_gap = q, gap
-    return best
+    fig = ax.figure
+    ax.apply_aspect()
+    r = fig.canvas.get_renderer()
+    T = ax.transData
+    axbox = ax.get_window_extent(r)
+    px = fig.dpi / 72.0  # pixels per point
+    st = T.transform(np.asarray(stations, float)) if len(stations) else np.zeros((0, 2))
+    disp = [T.transform(p) for p in polylines]
+    placed_boxes = []
+    out = [None] * len(disp)
+    # short lines first: they have the fewest free spots, long lines have many along their length
+    order_of = sorted(range(len(disp)), key=lambda j: float(np.sum(np.hypot(*np.diff(disp[j], axis=0).T))))
+    for k in order_of:
+        (name, note), P = texts[k], disp[k]
+        variants = [name] if not note else [f"{name}: {note}", f"{name}\n{note}"]
+        t = ax.text(0, 0, variants[0], fontsize=fontsize, color=_INK, zorder=6, gid="line-label",
+                    transform=None, linespacing=1.1,
+                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85))
+        cands = []  # (anchor in display units, direction the label lies in, alignment or None)
+        for end, nxt in ((P[0], P[1]), (P[-1], P[-2])):
+            d = end - nxt
+            d = d / max(np.hypot(*d), 1e-9)
+            anchor = end + d * gap_px * px * (2.2 if end is P[-1] else 1.0)
+            cands.append((anchor, d, None))
+            ha, va = _align_for(d)
+            # beyond an end, the label may also slide along the edge it faces (clear of a neighbour or the frame)
+            if abs(d[1]) > abs(d[0]):
+                cands += [(anchor, d, ("left", va)), (anchor, d, ("right", va))]
+            else:
+                cands += [(anchor, d, (ha, "bottom")), (anchor, d, (ha, "top"))]
+        seg = np.hypot(*np.diff(P, axis=0).T)
+        s = np.r_[0.0, np.cumsum(seg)]
+        for frac in (0.5, 0.3, 0.7, 0.15, 0.85, 0.0, 1.0):
+            q = np.array([np.interp(frac * s[-1], s, P[:, 0]), np.interp(frac * s[-1], s, P[:, 1])])
+            d = P[-1] - P[0]
+            n = np.array([-d[1], d[0]]) / max(np.hypot(*d), 1e-9)
+            for sign in (1, -1):
+                cands.append((q + sign * n * gap_px * px, sign * n, None))
+        best = None
+        for order, (anchor, d, align) in enumerate(cands):
+            ha, va = align or _align_for(d)
+            # above or below an end a narrow (two-line) label keeps clear of its neighbours; beside, a flat one
+            ordered = variants[::-1] if abs(d[1]) > abs(d[0]) else variants
+            for v, text in enumerate(ordered):
+                t.set_text(text)
+                t.set_position(tuple(anchor))
+                t.set_ha(ha)
+                t.set_va(va)
+                bb = t.get_window_extent(r).padded(1.5 * px)
+                box = (bb.x0, bb.y0, bb.x1, bb.y1)
+                if bb.x0 < axbox.x0 or bb.x1 > axbox.x1 or bb.y0 < axbox.y0 or bb.y1 > axbox.y1:
+                    continue
+                if any(bb.overlaps(o) for o in placed_boxes):
+                    continue
+                covered = int(np.sum((st[:, 0] > bb.x0 - 3 * px) & (st[:, 0] < bb.x1 + 3 * px)
+                                     & (st[:, 1] > bb.y0 - 3 * px) & (st[:, 1] < bb.y1 + 3 * px)))
+                crossed = sum(_segments_hit_box(Q, box) for j, Q in enumerate(disp) if j != k)
+                own = _segments_hit_box(P, box)
+                cost = (covered, crossed + 0.5 * own, order + 0.5 * v)
+                if best is None or cost < best[0]:
+                    best = (cost, text, tuple(anchor), ha, va, bb)
+        if best is None:  # nowhere free: beside the middle of the line, as before
+            mid = P[len(P) // 2]
+            best = (None, variants[-1], tuple(mid), "center", "bottom", None)
+        _, text, anchor, ha, va, bb = best
+        t.set_text(text)
+        t.set_ha(ha)
+        t.set_va(va)
+        # keep the label in data coordinates so it follows the axes if the figure is saved at another size
+        t.set_transform(ax.transData)
+        t.set_position(tuple(T.inverted().transform(anchor)))
+        if bb is not None:
+            placed_boxes.append(bb)
+        out[k] = t
+    return out
 
 
 # ---------------------------------------------------------------------------- derived fields
 def field_map(ax, x_mm, y_mm, values, *, label: str, cmap: str = FIELD_CMAP, units: str = "um",
-              limit=None, title: str | None = None, scale: float = 1.0):
+              limit=None, title: str | None = None, scale: float = 1.0, box_mm=None):
     """Filled map of a derived field on a regular grid, with labelled contours.
 
     Parameters
@@ -601,6 +755,9 @@ def field_map(ax, x_mm, y_mm, values, *, label: str, cmap: str = FIELD_CMAP, uni
         hatched where exceeded.
     scale : float
         Factor applied to ``values`` and ``limit`` before drawing (unit change).
+    box_mm : (xmin, xmax, ymin, ymax), optional
+        The whole surface (mm, e.g. :func:`plan_box`): the view shows it, outlined, even where the
+        field has no values (window centres cover only the middle of a surface).
 
     Returns
     -------
@@ -624,8 +781,14 @@ def field_map(ax, x_mm, y_mm, values, *, label: str, cmap: str = FIELD_CMAP, uni
             ax.clabel(cs, levels=cs.levels[::2], fmt=lambda v: f"{v:g}", fontsize=6)
     else:
         cf = ax.pcolormesh(x, y, V, cmap=cmap)
-    cb = ax.figure.colorbar(cf, ax=ax, shrink=0.9, pad=0.02)
-    cb.set_label(label)
+    cb = _colorbar_beside(ax, cf, label, fontsize=8)
+    box = box_mm if box_mm is not None else (x.min() / ps, x.max() / ps, y.min() / ps, y.max() / ps)
+    if box_mm is not None:
+        bx0, bx1, by0, by1 = (v * ps for v in box_mm)
+        ax.plot([bx0, bx1, bx1, bx0, bx0], [by0, by0, by1, by1, by0], color=_INK, lw=0.8)
+    (xa, xb), (ya, yb) = _plan_limits(box)
+    ax.set_xlim(xa * ps, xb * ps)
+    ax.set_ylim(ya * ps, yb * ps)
     if limit is not None and x.size >= 2 and y.size >= 2:
         lim = float(limit) * scale
         if float(V.max()) > lim:
@@ -640,19 +803,20 @@ def field_map(ax, x_mm, y_mm, values, *, label: str, cmap: str = FIELD_CMAP, uni
 
 
 def local_flatness_map(ax, x_mm, y_mm, local_um, *, window_mm: float, limit_um=None, units: str = "um",
-                       title: str | None = None):
+                       title: str | None = None, box_mm=None):
     """Map of local flatness (flatness within a moving window centred at each node).
 
     ``local_um`` has shape (ny, nx) in µm at the window centres ``x_mm`` (nx,)
     and ``y_mm`` (ny,); ``window_mm`` is the window's side in mm; ``limit_um``
-    an optional local tolerance (µm) drawn and hatched where exceeded.
+    an optional local tolerance (µm) drawn and hatched where exceeded; ``box_mm`` the whole surface
+    (mm), shown and outlined around the window centres.
     """
     hs, hu = _height_scale(units)
     ps, pu = _pos_scale(units)
     if title is None:
         title = f"local flatness in a {window_mm * ps:g} {pu} window"
     return field_map(ax, x_mm, y_mm, local_um, label=f"local flatness ({hu})", cmap=FIELD_CMAP, units=units,
-                     limit=limit_um, title=title, scale=hs)
+                     limit=limit_um, title=title, scale=hs, box_mm=box_mm)
 
 
 def local_flatness_profile(ax, s_mm, local_um, *, along: str = "x", units: str = "um", title: str | None = None):
@@ -727,21 +891,120 @@ def mark_window(ax, x_mm, y_mm, *, shape: str, length_mm: float, width_mm: float
     return ax
 
 
-def removal_map(ax, x_mm, y_mm, removal_um, *, units: str = "um", title: str | None = "planned removal"):
-    """Map of the material to remove by lapping, µm on a (ny, nx) grid."""
+def removal_map(ax, x_mm, y_mm, removal_um, *, units: str = "um", title: str | None = "planned removal",
+                box_mm=None):
+    """Map of the material to remove by lapping, µm on a (ny, nx) grid (``box_mm``: the whole surface, mm)."""
     hs, hu = _height_scale(units)
     return field_map(ax, x_mm, y_mm, removal_um, label=f"removal ({hu})", cmap=HEIGHT_CMAP, units=units,
-                     title=title, scale=hs)
+                     title=title, scale=hs, box_mm=box_mm)
 
 
-def dwell_map(ax, x_mm, y_mm, dwell, *, dwell_unit: str = "s", units: str = "um", title: str | None = "dwell"):
-    """Map of the lap's dwell (time or passes per area) on a (ny, nx) grid, in ``dwell_unit``."""
-    return field_map(ax, x_mm, y_mm, dwell, label=f"dwell ({dwell_unit})", cmap=FIELD_CMAP, units=units,
-                     title=title)
+def dwell_map(ax, x_mm, y_mm, dwell, *, dwell_unit: str = "s", units: str = "um", title: str | None = "dwell",
+              chart=None, box_mm=None):
+    """Map of the lap's dwell (time or passes per area) on a (ny, nx) grid, in ``dwell_unit``.
+
+    With ``chart`` (a :class:`flatcheck.lapping.CellChart`) the edges of the chart's cells are drawn
+    over the map (white lines), so the map and the bench chart (:func:`cell_chart`) read together.
+    """
+    field_map(ax, x_mm, y_mm, dwell, label=f"dwell ({dwell_unit})", cmap=FIELD_CMAP, units=units, title=title,
+              box_mm=box_mm)
+    if chart is not None:
+        _cell_grid(ax, chart, units=units, color="white", lw=0.7, names=False)
+    return ax
+
+
+def _cell_grid(ax, chart, *, units: str, color=_INK, lw: float = 0.6, fontsize: float = 6.5, names: bool = True):
+    """Cell edges of a lapping chart and (``names``) column letters above it and row numbers right of it."""
+    ps, _ = _pos_scale(units)
+    xe = np.asarray(chart.x_edges_mm, float) * ps
+    ye = np.asarray(chart.y_edges_mm, float) * ps
+    for v in xe:
+        ax.plot([v, v], [ye[0], ye[-1]], color=color, lw=lw, zorder=3)
+    for v in ye:
+        ax.plot([xe[0], xe[-1]], [v, v], color=color, lw=lw, zorder=3)
+    if not names:
+        return
+    top = ax.get_xaxis_transform()  # x in data, y in axes fraction
+    side = ax.get_yaxis_transform()  # x in axes fraction, y in data
+    for name, a, b in zip(chart.columns, xe[:-1], xe[1:]):
+        ax.text((a + b) / 2, 1.01, name, transform=top, ha="center", va="bottom", fontsize=fontsize,
+                fontweight="bold", color=_INK, gid="cell-column", clip_on=False)
+    for name, a, b in zip(chart.rows, ye[:-1], ye[1:]):
+        ax.text(1.01, (a + b) / 2, name, transform=side, ha="left", va="center", fontsize=fontsize,
+                fontweight="bold", color=_INK, gid="cell-row", clip_on=False)
+
+
+def _cell_time_text(t: float) -> str:
+    """A cell's time as the bench chart prints it: '.' for none, one decimal, '<0.1' for a touch."""
+    if t <= 0:
+        return "."
+    return f"{t:.1f}" if t >= 0.05 else "<0.1"
+
+
+def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm=None):
+    """The bench chart of a lapping plan: the surface cut into named cells with the working time in each.
+
+    Parameters
+    ----------
+    ax : Axes
+        Placed on its figure already (the cell texts are sized to the drawn cells).
+    chart : flatcheck.lapping.CellChart
+        Columns A.. from the west, rows 1.. from the south, cell edges in mm, time per cell.
+    units : {"um", "in"}
+        Positions in mm or inches.
+    title : str, optional
+    box_mm : (xmin, xmax, ymin, ymax), optional
+        The whole surface (mm), outlined around the chart.
+
+    Returns
+    -------
+    float
+        The font size of the cell times (points); the texts carry ``gid`` "cell-time". Cells are
+        shaded from white (no time) to mid grey (the longest), so the black numbers read in grey print.
+    """
+    ps, pu = _pos_scale(units)
+    xe = np.asarray(chart.x_edges_mm, float) * ps
+    ye = np.asarray(chart.y_edges_mm, float) * ps
+    T = np.asarray(chart.time, float)
+    tmax = float(np.max(T)) if T.size and np.max(T) > 0 else 1.0
+    for j in range(len(chart.rows)):
+        for i in range(len(chart.columns)):
+            shade = 1.0 - 0.45 * max(T[j, i], 0.0) / tmax
+            ax.add_patch(Rectangle((xe[i], ye[j]), xe[i + 1] - xe[i], ye[j + 1] - ye[j], fc=str(shade), ec="none",
+                                   zorder=1))
+    box = box_mm if box_mm is not None else (xe[0] / ps, xe[-1] / ps, ye[0] / ps, ye[-1] / ps)
+    bx0, bx1, by0, by1 = (v * ps for v in box)
+    ax.plot([bx0, bx1, bx1, bx0, bx0], [by0, by0, by1, by1, by0], color="0.4", lw=0.8, ls="--", zorder=0)
+    (xa, xb), (ya, yb) = _plan_limits(box)
+    ax.set_xlim(xa * ps, xb * ps)
+    ax.set_ylim(ya * ps, yb * ps)
+    ax.set_xlabel(f"x ({pu})")
+    ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"))
+    _cell_grid(ax, chart, units=units, color=_INK, lw=0.6, fontsize=7)
+    # the largest font that fits the narrowest cell (measured on the drawn axes), 4.5 to 9 points
+    ax.apply_aspect()
+    fig = ax.figure
+    to_px = ax.transData.transform
+    w_pt = min(abs(to_px((b, 0))[0] - to_px((a, 0))[0]) for a, b in zip(xe[:-1], xe[1:])) * 72 / fig.dpi
+    h_pt = min(abs(to_px((0, b))[1] - to_px((0, a))[1]) for a, b in zip(ye[:-1], ye[1:])) * 72 / fig.dpi
+    texts = [[_cell_time_text(T[j, i]) for i in range(len(chart.columns))] for j in range(len(chart.rows))]
+    chars = max(len(t) for row in texts for t in row)
+    size = float(min(9.0, 0.6 * h_pt, (w_pt - 2.0) / (0.62 * chars)))
+    size = max(size, 4.5)
+    for j in range(len(chart.rows)):
+        for i in range(len(chart.columns)):
+            ax.text((xe[i] + xe[i + 1]) / 2, (ye[j] + ye[j + 1]) / 2, texts[j][i], ha="center", va="center",
+                    fontsize=size, color=_INK, fontweight="bold" if T[j, i] > 0 else "normal", gid="cell-time",
+                    zorder=4)
+    unit = "min" if chart.time_unit == "min" else "passes"
+    ax.set_title(title or f"time per cell ({unit}); columns A.. from the west, rows 1.. from the south",
+                 fontsize=10, loc="left", pad=13)
+    return size
 
 
 # ---------------------------------------------------------------------------- survey to survey
-def _colorbar_beside(ax, mappable, label: str, *, width_in: float = 0.12, pad_in: float = 0.08):
+def _colorbar_beside(ax, mappable, label: str, *, width_in: float = 0.12, pad_in: float = 0.08,
+                     fontsize: float = 7):
     """A colour bar exactly as tall as ``ax``, just right of it, that follows the axes' drawn box.
 
     Drawn as an inset of ``ax`` (axes coordinates), so a plan view shrunk to its aspect
@@ -750,18 +1013,34 @@ def _colorbar_beside(ax, mappable, label: str, *, width_in: float = 0.12, pad_in
     fw = ax.figure.get_figwidth() * ax.get_position().width
     cax = ax.inset_axes([1.0 + pad_in / fw, 0.0, width_in / fw, 1.0])
     cb = ax.figure.colorbar(mappable, cax=cax)
-    cb.set_label(label, fontsize=7)
-    cb.ax.tick_params(labelsize=6.5)
+    cb.set_label(label, fontsize=fontsize)
+    cb.ax.tick_params(labelsize=fontsize - 0.5)
     return cb
 
 
-def _plan_panels(fig, n: int, ncols: int, ratio: float, rect, *, top_in: float = 0.3, bottom_in: float = 0.5,
-                 right_in: float = 0.95, gap_in: float = 0.75):
+def plan_panels(fig, n: int, ncols: int, ratio: float, rect, *, top_in: float = 0.3, bottom_in: float = 0.5,
+                right_in: float = 0.95, gap_in: float = 0.75, max_height_in: float | None = None):
     """Axes for ``n`` plan views of one surface, sized to its drawn shape and stacked from the top of ``rect``.
 
-    ``ratio`` is the drawn length : width (already capped by the plan stretch); every view gets the same
-    box with room around it for its title (``top_in``), x label (``bottom_in``), colour bar (``right_in``)
-    and the next column (``gap_in``), all in inches. Returns the axes in reading order.
+    Parameters
+    ----------
+    fig : Figure
+    n, ncols : int
+        Number of views and views per row.
+    ratio : float
+        Drawn length : width of each view (see :func:`plan_ratio`).
+    rect : (left, bottom, right, top)
+        Figure fractions the views (with their titles, labels and colour bars) must stay inside.
+    top_in, bottom_in, right_in, gap_in : float
+        Room in inches above each view (title), below it (x label), right of it (colour bar) and
+        between columns.
+    max_height_in : float, optional
+        Tallest a view may be drawn (inches).
+
+    Returns
+    -------
+    (list of Axes, float)
+        The axes in reading order, and the figure fraction where the lowest x label ends.
     """
     fw, fh = fig.get_figwidth(), fig.get_figheight()
     left, bottom, right, top = rect
@@ -770,8 +1049,9 @@ def _plan_panels(fig, n: int, ncols: int, ratio: float, rect, *, top_in: float =
     aw = (width_in - ncols * right_in - (ncols - 1) * gap_in) / ncols
     ah = aw / ratio
     room = height_in - nrows * (top_in + bottom_in)
-    if nrows * ah > room:  # too tall for the space: shrink every view alike
-        ah = max(room / nrows, 0.3)
+    cap = room / nrows if max_height_in is None else min(room / nrows, max_height_in)
+    if ah > cap:  # too tall for the space: shrink every view alike
+        ah = max(cap, 0.3)
         aw = ah * ratio
     axes = []
     for k in range(n):
@@ -779,7 +1059,33 @@ def _plan_panels(fig, n: int, ncols: int, ratio: float, rect, *, top_in: float =
         x_in = left * fw + c * (aw + right_in + gap_in)
         y_in = top * fh - top_in - r * (ah + top_in + bottom_in) - ah
         axes.append(fig.add_axes([x_in / fw, y_in / fh, aw / fw, ah / fh]))
-    return axes
+    end = top * fh - nrows * (ah + top_in + bottom_in)
+    return axes, end / fh
+
+
+def plan_box(hm) -> tuple:
+    """The area a plan view of ``hm`` shows, ``(xmin, xmax, ymin, ymax)`` in mm.
+
+    The stated outline ``0..length_mm`` by ``0..width_mm`` when the surface has one, else the
+    extent of its points.
+    """
+    if hm.length_mm and hm.width_mm:
+        return (0.0, float(hm.length_mm), 0.0, float(hm.width_mm))
+    return tuple(float(v) for v in hm.extent_mm)
+
+
+def _plan_limits(box, pad_fraction: float = 0.04):
+    """Axis limits around a plan box with a margin, so markers and labels at the edges are not cut."""
+    x0, x1, y0, y1 = box
+    pad = pad_fraction * max(x1 - x0, y1 - y0, 1e-9)
+    return (x0 - pad, x1 + pad), (y0 - pad, y1 + pad)
+
+
+def plan_ratio(box, pad_fraction: float = 0.04) -> float:
+    """Drawn length : width of a plan view of ``box`` (mm), after the stretch of long surfaces."""
+    (a, b), (c, d) = _plan_limits(box, pad_fraction)
+    r = (b - a) / max(d - c, 1e-12)
+    return float(min(max(r, 1.0 / _MAX_PLAN_RATIO), _MAX_PLAN_RATIO))
 
 
 def _own_ls_deviation(x, y, z):
@@ -878,14 +1184,14 @@ def compare_change_map(
     x0 = 0.0 if length_mm else float(x.min()) * ps
     y0 = 0.0 if width_mm else float(y.min()) * ps
     pad = 0.04 * max(L, W)
-    ratio = min((L + 2 * pad) / max(W + 2 * pad, 1e-12), _MAX_PLAN_RATIO)
+    ratio = plan_ratio((x0, x0 + L, y0, y0 + W))
     if fig is None:  # a figure as tall as the views need: A4 wide
         fig = new_figure((A4_PORTRAIT_IN[0], 1.0))
         ncols = 1 if ratio > 2.0 else 2
         aw = (A4_PORTRAIT_IN[0] * (rect[2] - rect[0]) - ncols * 0.95 - (ncols - 1) * 0.75) / ncols
         rows_in = (4 // ncols) * (aw / ratio + 0.8)
         fig.set_size_inches(A4_PORTRAIT_IN[0], min(rows_in / (rect[3] - rect[1]), A4_PORTRAIT_IN[1]))
-    axes = _plan_panels(fig, 4, 1 if ratio > 2.0 else 2, ratio, rect)
+    axes, _ = plan_panels(fig, 4, 1 if ratio > 2.0 else 2, ratio, rect)
     shared = _levels(float(min(zb.min(), za.min()) * hs), float(max(zb.max(), za.max()) * hs), 10)
     panels = [
         (zb * hs, shared, HEIGHT_CMAP, "before (about its own LS plane)", f"height ({hu})"),
@@ -984,8 +1290,8 @@ def carriage_path(
         axes.append(fig.add_subplot(gs[1, 0], sharex=axes[0]))
         axes[0].tick_params(labelbottom=False)
     ax = axes[0]
-    ax.plot(t, np.asarray(rail_um, float) * hs, color="0.55", lw=1.0, label="guideway profile (raw)")
-    ax.plot(t, np.asarray(carriage_um, float) * hs, color=_INK, lw=1.8, label="carriage path")
+    ax.plot(t, np.asarray(rail_um, float) * hs, color="0.55", lw=1.0, label="surface under the carriage centre (raw)")
+    ax.plot(t, np.asarray(carriage_um, float) * hs, color=_INK, lw=1.8, label="carriage path (pads average)")
     ax.set_ylabel(f"height ({hu})")
     ax.grid(True, lw=0.3, color="0.8")
     handles, labels = ax.get_legend_handles_labels()
@@ -1056,7 +1362,7 @@ def text_block(ax, lines, *, fontsize: float = 8.5, y0: float = 1.0, line_height
             y -= 0.4 * lh
         for part in parts:
             ax.text(0.0, y, part, transform=ax.transAxes, fontsize=size, fontweight=weight, va="top", ha="left",
-                    color=_INK)
+                    color=_INK, gid="text")
             y -= lh * size / fontsize
     return y
 
@@ -1129,7 +1435,7 @@ def flow_table(ax, y: float, rows, *, col_x, col_labels=None, fontsize: float = 
     if title:
         y -= 0.5 * lh
         ax.text(0.0, y, title, transform=ax.transAxes, fontsize=fontsize * 1.25, fontweight="bold", va="top",
-                color=_INK)
+                color=_INK, gid="text")
         y -= 1.35 * lh
     def rule(yy, lw=0.5):
         ax.plot([0, 1], [yy, yy], transform=ax.transAxes, color="0.55", lw=lw)
@@ -1137,7 +1443,7 @@ def flow_table(ax, y: float, rows, *, col_x, col_labels=None, fontsize: float = 
         rule(y + 0.2 * lh, 0.8)
         for x, lab in zip(col_x, col_labels):
             ax.text(x, y, str(lab), transform=ax.transAxes, fontsize=fontsize * 0.9, fontweight="bold", va="top",
-                    color="0.2")
+                    color="0.2", gid="text")
         y -= lh
         rule(y + 0.2 * lh, 0.8)
     for row in rows:
@@ -1148,10 +1454,48 @@ def flow_table(ax, y: float, rows, *, col_x, col_labels=None, fontsize: float = 
                 text = "\n".join(textwrap.wrap(text, wrap_chars[c])) or ""
             n_lines = max(n_lines, text.count("\n") + 1)
             ax.text(x, y, text, transform=ax.transAxes, fontsize=fontsize, va="top", color=_INK,
-                    fontweight="bold" if c in bold_cols else "normal", linespacing=1.3)
+                    fontweight="bold" if c in bold_cols else "normal", linespacing=1.3, gid="text")
         y -= lh * (1 + 0.93 * (n_lines - 1)) + 0.2 * lh
         rule(y + 0.25 * lh, 0.3)
     return y - 0.3 * lh
+
+
+def _lines_in(text: str, wrap) -> int:
+    import textwrap
+
+    return max(1, len(textwrap.wrap(text, wrap))) if wrap else str(text).count("\n") + 1
+
+
+def flow_table_height_in(rows, *, col_labels=None, fontsize: float = 8.5, title: str | None = None,
+                         wrap_chars=None) -> float:
+    """Height in inches that :func:`flow_table` takes for these rows (same steps, nothing drawn)."""
+    lh = fontsize * 1.45 / 72
+    h = 1.85 * lh if title else 0.0
+    if col_labels:
+        h += lh
+    for row in rows:
+        n = 1
+        for c, cell in enumerate(row):
+            wrap = wrap_chars[c] if wrap_chars and c < len(wrap_chars) else None
+            n = max(n, _lines_in(str(cell), wrap))
+        h += lh * (1 + 0.93 * (n - 1)) + 0.2 * lh
+    return h + 0.3 * lh
+
+
+def text_block_height_in(lines, *, fontsize: float = 8.5, wrap_chars: int = 100) -> float:
+    """Height in inches that :func:`text_block` takes for these paragraphs (same steps, nothing drawn)."""
+    import textwrap
+
+    lh = fontsize * 1.45 / 72
+    h = 0.0
+    for item in lines:
+        text, style = (item, "") if isinstance(item, str) else item
+        size = fontsize * (1.25 if style == "h" else 0.85 if style == "s" else 1.0)
+        parts = textwrap.wrap(text, width=int(wrap_chars * fontsize / size)) or [""]
+        if style == "h":
+            h += 0.4 * lh
+        h += len(parts) * lh * size / fontsize
+    return h
 
 
 def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92)):
@@ -1170,12 +1514,35 @@ def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92)
     m = result.motion
     st = list(result.stations)
     local = np.array([s.local_flatness_um for s in st]) if len(st) == len(m.x_mm) else None
-    u = "µm" if units == "um" else "µin"
-    k = 1.0 if units == "um" else 1.0 / 0.0254  # 1 µin = 0.0254 µm exactly
-    return carriage_path(
-        fig, m.x_mm, m.raw_profile_um, m.path_um, pitch=m.pitch_path_arcsec, pitch_unit="arcsec",
-        local_um=local, local_limit_um=result.limit_um, units=units,
-        title=(f"carriage over its travel: path straightness {m.straightness_um * k:.3f} {u} "
-               f"(surface alone {m.raw_straightness_um * k:.3f} {u})"),
+    hs, u = _height_scale(units)
+    dec = 3 if units == "um" else 1
+    axes = carriage_path(
+        fig, m.x_mm, _about_straightness_line(m.x_mm, m.raw_profile_um), _about_straightness_line(m.x_mm, m.path_um),
+        pitch=m.pitch_path_arcsec, pitch_unit="arcsec", local_um=local, local_limit_um=result.limit_um, units=units,
+        title=(f"carriage over its travel: path straightness {m.straightness_um * hs:.{dec}f} {u} "
+               f"(surface alone {m.raw_straightness_um * hs:.{dec}f} {u})"),
         rect=rect,
     )
+    # both curves are drawn about their own straightness line, so their shapes and spreads compare directly
+    axes[0].set_ylabel(f"deviation from straight ({u})")
+    return axes
+
+
+def _about_straightness_line(x_mm, h_um):
+    """Heights about their own minimum-zone straightness line, centred in the zone (µm; NaN kept).
+
+    The guideway's raw profile and the carriage path are heights of different things (the surface on
+    the centre line, the pad-averaged carriage), so each is drawn about its own straight line: the
+    curves then share one datum and span exactly their stated straightness.
+    """
+    from .straightness import evaluate_straightness
+
+    x = np.asarray(x_mm, float)
+    h = np.asarray(h_um, float)
+    ok = np.isfinite(h)
+    if ok.sum() < 3:
+        return h
+    s = x - x[ok][0]
+    mz = evaluate_straightness(s[ok], h[ok]).mzli
+    d = h - (mz.a_um + mz.b_um_per_mm * s)
+    return d - (np.nanmax(d) + np.nanmin(d)) / 2

@@ -164,26 +164,67 @@ def test_pdf_book_is_atomic(tmp_path):
     assert book.pages == 2 and target.read_bytes()[:5] == b"%PDF-"
 
 
-def test_survey_layout_keeps_labels_of_lines_crossing_at_the_centre_apart():
-    # Union Jack on 1000 x 600 mm: both diagonals and both centre lines cross at C = (500, 300);
-    # their labels used to sit on top of each other at C (unreadable in the report).
-    xy = np.array([[0, 0], [1000, 600], [1000, 0], [0, 600], [500, 300], [0, 300], [1000, 300], [500, 0], [500, 600]],
-                  float)
-    lines = [("SW-NE", [0, 4, 1]), ("SE-NW", [2, 4, 3]), ("W-E", [5, 4, 6]), ("S-N", [7, 4, 8])]
-    fig = plot.new_figure((6, 4))
-    ax = plot.survey_layout(fig.add_subplot(), xy, lines, length_mm=1000, width_mm=600)
-    pos = {t.get_text(): np.array(t.get_position()) for t in ax.texts if t.get_text() in dict(lines)}
-    assert set(pos) == set(dict(lines))
-    names = list(pos)
-    gaps = [np.hypot(*(pos[a] - pos[b])) for i, a in enumerate(names) for b in names[i + 1:]]
-    # each label stays at least 12 % of the layout's span (1000 mm) from every other
-    assert min(gaps) >= 0.12 * 1000 - 1e-9
-    # and every label still lies on its own line (distance from the segment's supporting line is zero)
+def _union_jack():
+    """Union Jack on 1000 x 600 mm (stations 100 mm in from the edges): all four long lines cross at C."""
+    xs, ys = [100.0, 500.0, 900.0], [100.0, 300.0, 500.0]
+    xy = np.array([[x, y] for y in ys for x in xs])  # index 3 * row + column; C = 4
+    lines = [("SW-NE", [0, 4, 8]), ("SE-NW", [2, 4, 6]), ("SW-SE", [0, 1, 2]), ("NW-NE", [6, 7, 8]),
+             ("SW-NW", [0, 3, 6]), ("SE-NE", [2, 5, 8]), ("W-E", [3, 4, 5]), ("S-N", [1, 4, 7])]
+    return xy, lines, 1000.0, 600.0
+
+
+def _grid_survey():
+    """5 rows x 8 columns of stations on 630 x 400 mm (rows along x, columns along y)."""
+    xs, ys = np.linspace(50, 580, 8), np.linspace(50, 350, 5)
+    xy = np.array([[x, y] for y in ys for x in xs])
+    lines = [(f"row-{j + 1}", [8 * j + i for i in range(8)]) for j in range(5)]
+    lines += [(f"col-{'ABCDEFGH'[i]}", [8 * j + i for j in range(5)]) for i in range(8)]
+    return xy, lines, 630.0, 400.0
+
+
+def _guideway_survey():
+    """2000 x 200 mm guideway: three long lines (20 stations) and five cross lines of three stations."""
+    xs = np.linspace(50, 1950, 20)
+    xy = [[x, y] for y in (40.0, 100.0, 160.0) for x in xs]
+    lines = [(f"long-{k + 1}", list(range(20 * k, 20 * k + 20))) for k in range(3)]
+    for k, i in enumerate((0, 5, 10, 15, 19)):
+        lines.append((f"cross-{k + 1}", [i, 20 + i, 40 + i]))
+    return np.array(xy), lines, 2000.0, 200.0
+
+
+@pytest.mark.parametrize("survey", [_union_jack, _grid_survey, _guideway_survey])
+def test_survey_layout_labels_are_clear_of_each_other_and_of_the_stations(survey):
+    # The rendered boxes of the line labels (matplotlib's text extents) must overlap no other text, cover
+    # no station and stay inside the plan, each beside its own line. (Labels used to be put at points along
+    # the lines: on a Union Jack one covered the centre station, on a grid column labels ran into row labels.)
+    xy, lines, L, W = survey()
+    notes = {name: f"closure {0.001 * (k - 4):+.3f} µm" for k, (name, _) in enumerate(lines)}
+    fig = plot.new_figure((6.9, 4.4))
+    ax = fig.add_axes([0.12, 0.12, 0.84, 0.78])
+    plot.survey_layout(ax, xy, lines, length_mm=L, width_mm=W, line_notes=notes, title="lines walked")
+    boxes = _drawn_text_boxes(fig)
+    assert not _overlaps(boxes)
+    r = fig.canvas.get_renderer()
+    labels = {t.get_text().replace("\n", ": ").split(":")[0]: t.get_window_extent(r)
+              for t in ax.texts if t.get_gid() == "line-label"}
+    assert set(labels) == {name for name, _ in lines}
+    axbox = ax.get_window_extent(r)
+    st = ax.transData.transform(xy)
+    pt = fig.dpi / 72
     for name, idx in lines:
-        a, b = xy[idx[0]], xy[idx[-1]]
-        d = b - a
-        q = pos[name] - a
-        assert abs(d[0] * q[1] - d[1] * q[0]) / np.hypot(*d) == pytest.approx(0.0, abs=1e-9)
+        b = labels[name]
+        assert axbox.x0 <= b.x0 and b.x1 <= axbox.x1 and axbox.y0 <= b.y0 and b.y1 <= axbox.y1, name
+        inside = (st[:, 0] > b.x0) & (st[:, 0] < b.x1) & (st[:, 1] > b.y0) & (st[:, 1] < b.y1)
+        assert not inside.any(), f"{name}'s label covers a station"
+        assert f"{name}: {notes[name]}" in [t.get_text().replace("\n", ": ") for t in ax.texts]
+        # beside its own line: the box comes within 12 points of one of the line's segments
+        P = st[np.asarray(idx)]
+        gaps = []
+        for a, c in zip(P[:-1], P[1:]):
+            for q in np.linspace(0, 1, 50):
+                x, y = a + q * (c - a)
+                gaps.append(np.hypot(max(b.x0 - x, 0, x - b.x1), max(b.y0 - y, 0, y - b.y1)))
+        assert min(gaps) <= 12 * pt, f"{name}'s label is {min(gaps) / pt:.0f} pt from its line"
 
 
 def test_plan_views_of_a_long_narrow_surface_are_stretched_across_and_say_so():
@@ -302,3 +343,25 @@ def test_compare_change_map_refuses_mismatched_nodes():
     x, y, before, after, _ = _lapped_pair(500.0, 300.0)
     with pytest.raises(InputValueError):
         plot.compare_change_map(None, x, y, before, after[:-1], np.zeros_like(x))
+
+
+def test_map_markers_at_the_edge_are_drawn_whole_and_the_colour_bar_matches_the_map():
+    # A pad height map (no stated outline) with its low point in a corner: the low marker was cut in half
+    # by the axes edge, and the colour bar was drawn taller than a long map (fig.colorbar's shrink).
+    x, y = np.meshgrid(np.linspace(5, 75, 15), np.linspace(5, 75, 15))
+    z = -np.hypot(x - 75, y - 75) * 1e-2  # lowest at the (5, 5) corner (invented shape)
+    hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="pad")
+    for shape, size in ((hm, (5, 4)), (None, (8, 3))):
+        if shape is None:  # a long surface: 2000 x 200 mm
+            gx, gy = np.meshgrid(np.linspace(0, 2000, 21), np.linspace(0, 200, 5))
+            shape = HeightMap(gx.ravel(), gy.ravel(), (1e-6 * (gx - 1000) ** 2).ravel(), length_mm=2000, width_mm=200)
+        fig = plot.new_figure(size)
+        ax = plot.contour_map(fig.add_axes([0.15, 0.15, 0.6, 0.7]), shape)
+        fig.canvas.draw()
+        r = fig.canvas.get_renderer()
+        box = ax.get_window_extent(r)
+        for m in [ln for ln in ax.lines if ln.get_marker() in ("^", "v")]:
+            b = m.get_window_extent(r)
+            assert box.x0 <= b.x0 and b.x1 <= box.x1 and box.y0 <= b.y0 and b.y1 <= box.y1
+        (cax,) = ax.child_axes
+        assert cax.get_window_extent(r).height == pytest.approx(box.height, rel=0.01)

@@ -4,6 +4,7 @@ pdftoppm and pdftotext come with Debian's poppler-utils (installed by .ci/run). 
 fail with a message saying so; they never skip.
 """
 
+import re
 import shutil
 import subprocess
 from pathlib import Path
@@ -99,11 +100,28 @@ def test_every_page_renders_with_content(sample_report):
 
 
 def test_pictures_written_alone(sample_report):
+    # issue 8: "--png DIR for the pictures alone": each figure on its own, cut out of its page (no running
+    # head, footer, tables or notes), and nothing for the pages that are text only
     content, files, tmp = sample_report
-    assert len(files.pngs) == files.pages - 1  # every page but the summary
+    titles = report.page_titles(content)
+    names = {p.name.split("-", 1)[1] for p in files.pngs}
+    assert names == {"surface-map.png", "surface-3d.png", "local-flatness.png", "line-profiles-1-8.png",
+                     "survey-layout.png", "reduction-residuals.png", "carriage-motion.png", "lapping-removal.png",
+                     "lapping-dwell.png", "lapping-cell-chart.png"}
+    pages_with_pictures = {titles[int(p.name[:2]) - 1] for p in files.pngs}
+    assert not pages_with_pictures & {"Summary", "Grades and decision rule", "Methods, sources and cautions"}
+    assert not any(t.startswith("Lapping plan: passes") for t in pages_with_pictures)
+    page_h = 11.69 * 40  # the fixture writes at 40 dpi; an A4 page is 11.69 in tall
     for p in files.pngs:
-        grey = imread(p)[..., :3].mean(axis=2)
-        assert (grey < 0.5).mean() > 0.003
+        img = imread(p)
+        grey = img[..., :3].mean(axis=2)
+        assert (grey < 0.5).mean() > 0.003, f"{p.name} looks blank"
+        # a picture, not a page: shorter than the page less its head and footer
+        assert img.shape[0] < 0.88 * page_h, p.name
+    # the map alone: its first rows are not the page's running head but the map's title, so the top tenth
+    # of the picture holds text and the map's frame only (no rule across the whole width at the top)
+    top = imread(next(p for p in files.pngs if p.name.endswith("surface-map.png")))[..., :3].mean(axis=2)
+    assert not (top[:3] < 0.5).all(axis=1).any()
 
 
 def test_report_states_the_flatness_computed_independently(sample_report):
@@ -262,3 +280,225 @@ def test_map_page_x_label_clear_of_the_3d_title(size_mm):
     assert title.startswith("the same surface in three dimensions")
     title_box = [t for t in ax3.findobj(Text) if t.get_text() == title][0].get_window_extent(r)
     assert label_box.y0 > title_box.y1, (label_box, title_box)
+
+
+# ------------------------------------------------------------------ the four sample reports, page by page
+SAMPLES = Path(__file__).resolve().parents[1] / "sample_readings"
+
+
+def _sample_content(name):
+    """Report content of a sample as the audit's commands make it (no Monte Carlo, to stay quick)."""
+    from flatcheck.cli.common import load_input
+    from flatcheck.cli.report_cmd import carriage_from_options, lapping_from_options
+
+    lap_none = dict(target_um=None, target_grade=None, lap_diameter_mm=None, lap_size_mm=None, rate_um_per_min=None,
+                    rate_um_per_pass=None, strokes_per_pass=None, stroke_mm=0.0)
+    if name == "pad":  # report pad-KY-B4-heights.csv --window d20 --target-um 0.2 --lap-diameter-mm 20
+        path, window, units, standard = SAMPLES / "pad-KY-B4-heights.csv", "d20", "um", None
+        lap, bearing = dict(lap_none, target_um=0.2, lap_diameter_mm=20.0), (None, None, None)
+    elif name == "guideway":  # --pad 120x80 --gap-um 8 --target-um 2 --lap-diameter-mm 80 --rate-um-per-min 0.2
+        path, window, units, standard = SAMPLES / "guideway-KY-G1.toml", "auto", "um", None
+        lap = dict(lap_none, target_um=2.0, lap_diameter_mm=80.0, rate_um_per_min=0.2)
+        bearing = (None, "120x80", 8.0)
+    elif name == "grid":  # --units in --bearing bearing_tandem_slide.toml
+        path, window, units, standard = SAMPLES / "plate-KY-P7-grid.toml", "auto", "in", None
+        lap, bearing = lap_none, (SAMPLES / "bearing_tandem_slide.toml", None, None)
+    else:  # plate: --standard din-876
+        path, window, units, standard = SAMPLES / "plate-KY-P3-2024-03-11.toml", "auto", "um", "din-876"
+        lap, bearing = lap_none, (None, None, None)
+    loaded = load_input(path)
+    lapping = lapping_from_options(loaded.heightmap, **lap)
+    carriage = carriage_from_options(*bearing)[0]
+    ev = evaluate_surface(loaded, window=window)
+    return report.analyse(ev, standard=standard, carriage=carriage, window=window, **lapping), units
+
+
+@pytest.fixture(scope="module")
+def samples():
+    return {name: _sample_content(name) for name in ("pad", "guideway", "grid", "plate")}
+
+
+def _drawn_texts(fig):
+    """(text, rendered box) of every text a page draws: the frame, titles, axis and tick labels (3-D too),
+    legends, tables, notes and annotations; contour labels (no gid: they sit on their lines) left out."""
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    texts = list(fig.texts)
+    axes = [a for ax in fig.axes for a in (ax, *ax.child_axes)]
+    for ax in axes:
+        is3d = getattr(ax, "name", "") == "3d"
+        texts += [ax.title, ax._left_title, ax._right_title, ax.xaxis.label, ax.yaxis.label]
+        texts += [t for t in ax.texts if t.get_gid() is not None]
+        if ax.get_legend() is not None:
+            texts += list(ax.get_legend().get_texts())
+        for axis in (ax.xaxis, ax.yaxis) + ((ax.zaxis,) if is3d else ()):
+            if is3d and axis is ax.zaxis:
+                texts.append(axis.label)
+            lo, hi = sorted(axis.get_view_interval())
+            eps = 1e-9 * max(abs(lo), abs(hi), 1.0)
+            texts += [t for tick in axis.get_major_ticks() if lo - eps <= tick.get_loc() <= hi + eps
+                      for t in (tick.label1, tick.label2)]
+    return [(t.get_text(), t.get_window_extent(r)) for t in texts if t.get_visible() and t.get_text().strip()]
+
+
+def _draw_page(content, units, k):
+    from flatcheck import plot
+
+    plan = report._page_plan(content)
+    title, draw = plan[k]
+    fig = plot.new_figure()
+    pictures = draw(fig, content, units)
+    report._frame(fig, content, title, k + 1, len(plan))
+    return fig, title, pictures
+
+
+@pytest.mark.parametrize("name", ["pad", "guideway", "grid", "plate"])
+def test_no_text_of_any_page_overlaps_another_or_leaves_the_page(samples, name):
+    # The audit's four reports: labels ran into titles (pad lapping page), line labels into each other (layout
+    # pages), 3-D tick labels piled up (guideway). Checked on matplotlib's rendered extents of every text.
+    content, units = samples[name]
+    for k in range(len(report.page_titles(content))):
+        fig, title, _ = _draw_page(content, units, k)
+        boxes = _drawn_texts(fig)
+        bad = [(a, b) for i, (a, A) in enumerate(boxes) for b, B in boxes[i + 1:]
+               if min(A.x1, B.x1) - max(A.x0, B.x0) > 1 and min(A.y1, B.y1) - max(A.y0, B.y0) > 1]
+        assert not bad, f"{name}, page {title!r}: {bad[:5]}"
+        W, H = fig.bbox.width, fig.bbox.height
+        out = [t for t, b in boxes if b.x0 < -1 or b.y0 < -1 or b.x1 > W + 1 or b.y1 > H + 1]
+        assert not out, f"{name}, page {title!r}: off the page: {out}"
+
+
+def test_colour_bars_are_as_tall_as_their_maps(samples):
+    # The guideway's map was a thin strip beside a colour bar three times its height.
+    content, units = samples["guideway"]
+    titles = report.page_titles(content)
+    for page in ("Surface map", "Lapping plan"):
+        fig, _, pictures = _draw_page(content, units, titles.index(page))
+        fig.canvas.draw()
+        r = fig.canvas.get_renderer()
+        maps = [ax for _, axes in pictures for ax in axes if ax.child_axes]
+        assert maps, page
+        for ax in maps:
+            h, hc = ax.get_window_extent(r).height, ax.child_axes[0].get_window_extent(r).height
+            assert hc == pytest.approx(h, rel=0.02), (page, ax.get_title(loc="left"))
+    # and the long map uses the page's width: at least 80 % of the space between the margins
+    fig, _, pictures = _draw_page(content, units, titles.index("Surface map"))
+    ax = dict(pictures)["surface-map"][0]
+    assert ax.get_position().width > 0.8 * (0.94 - 0.11 - 0.95 / 8.27)
+
+
+def test_guideway_says_why_it_has_no_local_flatness_and_how_to_get_it(samples):
+    content, units = samples["guideway"]
+    assert "Local flatness" not in report.page_titles(content)  # the 250 x 250 mm window does not fit 2000 x 200
+    fig, _, _ = _draw_page(content, units, report.page_titles(content).index("Surface map"))
+    text = " ".join(t for t, _ in _drawn_texts(fig))
+    assert "250 x 250 mm" in text and "does not fit" in text and "--window 120x120" in text
+
+
+def test_residual_histogram_moves_to_the_next_page_when_the_table_is_long(samples):
+    # the P7 grid's 13 lines fill the layout page: the histogram used to be dropped without a word
+    content, units = samples["grid"]
+    titles = report.page_titles(content)
+    k = titles.index("Survey layout and closure")
+    assert titles[k + 1] == "Survey layout and closure (continued)"
+    _, _, pictures = _draw_page(content, units, k + 1)
+    assert [name for name, _ in pictures] == ["reduction-residuals"]
+    # the Union Jack's 8 lines leave room: the histogram stays on the layout page
+    content, units = samples["plate"]
+    _, _, pictures = _draw_page(content, units, report.page_titles(content).index("Survey layout and closure"))
+    assert "reduction-residuals" in dict(pictures)
+
+
+def test_heights_in_microinches_and_lengths_in_inches_with_units_in(samples):
+    content, units = samples["grid"]
+    titles = report.page_titles(content)
+    for page in ("Summary", "Local flatness", "Air bearing: fitness and carriage motion"):
+        fig, _, _ = _draw_page(content, units, titles.index(page))
+        text = " ".join(t for t, _ in _drawn_texts(fig))
+        # 1 in = 25.4 mm and 1 µin = 0.0254 µm exactly (international inch, 1959)
+        assert not re.search(r"\d mm\b|\d µm\b|\bum\b|um/m", text), (page, re.findall(r".{30}(?:\d mm|\d µm|um/m).{5}", text))
+    fig, _, _ = _draw_page(content, units, 0)
+    text = " ".join(t for t, _ in _drawn_texts(fig))
+    assert f"{630 / 25.4:.2f} x {400 / 25.4:.2f} in" in text
+    fig, _, _ = _draw_page(content, units, titles.index("Air bearing: fitness and carriage motion"))
+    text = " ".join(t for t, _ in _drawn_texts(fig))
+    assert f"gap {8 / 0.0254:.1f} µin" in text
+
+
+def test_carriage_path_and_surface_share_one_datum(samples):
+    # Each curve is drawn about its own minimum-zone straightness line, so both are centred on zero and each
+    # spans exactly its stated straightness (they were drawn 22.6-23.7 and 11-13 µin apart).
+    content, units = samples["grid"]
+    m = content.bearing.motion
+    fig, _, pictures = _draw_page(content, units, report.page_titles(content).index(
+        "Air bearing: fitness and carriage motion"))
+    ax = dict(pictures)["carriage-motion"][0]
+    drawn = {ln.get_label(): np.asarray(ln.get_ydata(), float) for ln in ax.lines}
+    path = drawn["carriage path (pads average)"] * 0.0254  # back to µm (1 µin = 0.0254 µm exactly)
+    raw = drawn["surface under the carriage centre (raw)"] * 0.0254
+    for d, strt in ((path, m.straightness_um), (raw, m.raw_straightness_um)):
+        assert np.ptp(d) == pytest.approx(strt, rel=1e-6)
+        assert d.max() == pytest.approx(-d.min(), abs=1e-9)
+
+
+def test_cautions_and_sources_follow_the_surface_and_the_methods_used(samples):
+    pad, _ = samples["pad"]
+    # the pad is a height map (material not stated): no granite, no lifting, no air; lapping sources present
+    assert not any("granite" in c.lower() and "silica:" in c for c in pad.cautions)
+    assert not any("lifting gear" in c for c in pad.cautions) and not any("Compressed air" in c for c in pad.cautions)
+    srcs = " ".join(pad.sources)
+    assert "Moody" not in srcs and "Union Jack" not in srcs
+    assert "Preston" in srcs and "1927" in srcs and "doi:10.37188/lam.2024.021" in srcs
+    plate, _ = samples["plate"]
+    srcs = " ".join(plate.sources)
+    assert "Union Jack" in srcs and "Preston" not in srcs and "Lapping" not in srcs
+    assert any("black granite can release respirable crystalline silica" in c for c in plate.cautions)
+    grid, _ = samples["grid"]
+    assert any("Compressed air" in c for c in grid.cautions) and "Union Jack layout" not in " ".join(grid.sources)
+
+
+def test_lapping_page_has_the_bench_chart_and_passes_with_centre_and_extent(samples):
+    # issue 7: "a chart of the surface divided into cells with the time for each, that can be printed and taken
+    # to the bench"; the pass table named cells but no chart was drawn, and had no centre or extent
+    content, units = samples["guideway"]
+    p = content.lapping
+    titles = report.page_titles(content)
+    fig, _, pictures = _draw_page(content, units, titles.index("Lapping plan"))
+    chart_ax = dict(pictures)["lapping-cell-chart"][0]
+    ch = p.chart
+    cells = [t for t in chart_ax.texts if t.get_gid() == "cell-time"]
+    assert len(cells) == len(ch.columns) * len(ch.rows)
+    xe, ye = np.asarray(ch.x_edges_mm), np.asarray(ch.y_edges_mm)
+    for t in cells:  # each cell's time where the cell is (the chart's own numbers, as 'flatcheck lap' prints them)
+        x, y = t.get_position()
+        i, j = np.searchsorted(xe, x) - 1, np.searchsorted(ye, y) - 1
+        v = ch.time[j, i]
+        assert t.get_text() == ("." if v <= 0 else f"{v:.1f}" if v >= 0.05 else "<0.1")
+    assert [t.get_text() for t in chart_ax.texts if t.get_gid() == "cell-column"] == list(ch.columns)
+    assert [t.get_text() for t in chart_ax.texts if t.get_gid() == "cell-row"] == list(ch.rows)
+    # the pass table: every pass with its cells, centre and the extent of the lap centre's travel
+    fig, _, _ = _draw_page(content, units, titles.index("Lapping plan: passes"))
+    text = " | ".join(t for t, _ in _drawn_texts(fig))
+    assert "centre x, y (mm)" in text and "lap centre travels x, y (mm)" in text
+    for q in p.passes:
+        x0, x1, y0, y1 = q.extent_mm
+        assert f"{q.zone} | {q.centre_x_mm:.0f}, {q.centre_y_mm:.0f} | {x0:.0f} to {x1:.0f}, {y0:.0f} to {y1:.0f}" in text
+
+
+def test_a_long_pass_table_continues_on_further_pages(samples):
+    # only the first 8 passes used to be shown; now every pass is, on as many pages as it takes
+    import dataclasses
+
+    content, units = samples["guideway"]
+    p = content.lapping
+    many = tuple(dataclasses.replace(q, order=k + 1) for k, q in enumerate(p.passes * 15))
+    long = dataclasses.replace(content, lapping=dataclasses.replace(p, passes=many))
+    titles = report.page_titles(long)
+    pass_pages = [k for k, t in enumerate(titles) if t.startswith("Lapping plan: passes")]
+    assert len(pass_pages) >= 2 and titles[pass_pages[0]] == f"Lapping plan: passes (1 of {len(pass_pages)})"
+    seen = []
+    for k in pass_pages:
+        fig, _, _ = _draw_page(long, units, k)
+        texts = [t for t, _ in _drawn_texts(fig)]
+        seen += [int(t) for t in texts if t.isdigit()]  # the pass numbers (first column)
+    assert set(range(1, len(many) + 1)) <= set(seen)

@@ -7,6 +7,7 @@ so for the same input, ``--seed`` and ``--trials`` the report states what ``flat
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 
 import typer
@@ -20,6 +21,7 @@ from .common import (
     load_input,
     progress_bar,
     seed_option,
+    stderr_console,
     stdout_console,
     trials_option,
     u_height_option,
@@ -28,7 +30,40 @@ from .common import (
     window_option,
 )
 
-#: Monte Carlo trials when none are asked for: the same default as ``flatcheck reduce --uncertainty``.
+
+class StatusLine:
+    """A one-line status on standard error ("reading the survey…") for the steps that have no bar.
+
+    Shown only when ``enabled`` and standard error is a terminal, like the progress bars; ``stop()``
+    clears it (a progress bar cannot be shown while it is). Use as a context manager.
+    """
+
+    def __init__(self, enabled: bool = True):
+        self.enabled = bool(enabled) and sys.stderr.isatty()
+        self._status = None
+
+    def say(self, text: str) -> None:
+        """Show ``text`` as the step now running."""
+        if not self.enabled:
+            return
+        if self._status is None:
+            self._status = stderr_console().status(f"{text}…", spinner="line")
+            self._status.start()
+        else:
+            self._status.update(f"{text}…")
+
+    def stop(self) -> None:
+        """Clear the line (before a progress bar starts, and at the end)."""
+        if self._status is not None:
+            self._status.stop()
+            self._status = None
+
+    def __enter__(self) -> "StatusLine":
+        return self
+
+    def __exit__(self, *exc) -> bool:
+        self.stop()
+        return False
 
 
 def carriage_from_options(bearing: Path | None, pad: str | None, gap_um: float | None):
@@ -58,7 +93,7 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
 
 
 def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, seed: int | None,
-                        u_height_um: float | None, show_progress: bool = True):
+                        u_height_um: float | None, show_progress: bool = True, status: StatusLine | None = None):
     """The shared evaluation, with Monte Carlo uncertainty when it can be had.
 
     Returns ``(evaluation, why_not)``: ``why_not`` says why there is no uncertainty (or is None).
@@ -69,6 +104,8 @@ def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, 
 
     if str(window).strip().lower() != "auto":
         parse_window(window)  # a bad window fails here, so the only input error below is the uncertainty's
+    status = status or StatusLine(False)
+    status.say("evaluating the surface (flatness, lines, local flatness)")
     if not uncertainty:
         return evaluate_surface(loaded, window=window), "not evaluated (--no-uncertainty)"
     if loaded.survey is None and u_height_um is None:
@@ -77,17 +114,30 @@ def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, 
     mc = dict(trials=trials, seed=seed, u_height_um=u_height_um)
     try:
         with progress_bar("Monte Carlo", trials, enabled=show_progress) as advance:
-            return evaluate_surface(loaded, window=window, monte_carlo=dict(mc, progress=advance)), None
+            def step(n=1):
+                status.stop()  # the bar takes the line over
+                advance(n)
+
+            return evaluate_surface(loaded, window=window, monte_carlo=dict(mc, progress=step)), None
     except InputValueError as exc:  # nothing to propagate: say so in the report instead of failing
         return evaluate_surface(loaded, window=window), f"not evaluated: {exc.message}"
 
 
 def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_progress: bool, **analysis):
-    """Gather and write the report with a progress bar on stderr; returns (content, files)."""
+    """Gather and write the report, with a status line and a progress bar on stderr; returns (content, files).
+
+    The steps between the Monte Carlo bar and the page bar (grades, the air bearing, the lapping plan,
+    loading the plotting library) are named on a status line as they run.
+    """
     from ..report import analyse, page_titles, write_report
 
-    content = analyse(evaluation, **analysis)
-    n = len(page_titles(content))
+    with StatusLine(show_progress) as status:
+        content = analyse(evaluation, progress=status.say, **analysis)
+        status.say("loading the plotting library")
+        from .. import plot  # noqa: F401  (the first import takes a second or so: say so)
+
+        status.say("laying out the pages")
+        n = len(page_titles(content))
     with progress_bar("drawing pages", n, enabled=show_progress) as advance:
         files = write_report(output, content, units=units, png_dir=png, on_page=lambda: advance(1))
     return content, files
@@ -95,16 +145,11 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
 
 def check_lap_option_values(*, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
                             stroke_mm) -> None:
-    """Refuse bad lap numbers as ``flatcheck lap`` does, naming the option, before any work."""
-    from .lap_cmd import _parse_size, check_option
+    """Refuse bad lap numbers as ``flatcheck lap`` does (its own checks), naming the option, before any work."""
+    from .lap_cmd import check_lap_options
 
-    check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
-    check_option(rate_um_per_min, "--rate-um-per-min", what="a removal rate in µm/min")
-    check_option(rate_um_per_pass, "--rate-um-per-pass", what="a removal in µm per pass")
-    check_option(strokes_per_pass, "--strokes-per-pass", minimum=1, strict=False, what="a whole number of strokes")
-    check_option(stroke_mm, "--stroke-mm", strict=False, what="a stroke length in mm")
-    if lap_size_mm is not None:
-        _parse_size(lap_size_mm)
+    check_lap_options(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min,
+                      rate_um_per_pass=rate_um_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
 
 
 def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_size_mm, rate_um_per_min,
@@ -127,12 +172,14 @@ def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_si
             raise InputValueError("lap options without a target", where="--target-um/--target-grade",
                                   fix="add --target-um T or --target-grade STANDARD:GRADE for the lapping page")
         return {}
-    from .lap_cmd import build_lap, check_lap_fits, resolve_target
+    from .lap_cmd import build_lap, check_lap_on_surface, resolve_target
 
     target, source = resolve_target(hm, target_um, target_grade)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
                            stroke_mm or 0.0)
-    check_lap_fits(hm, lap, "--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm")
+    # as flatcheck lap: the lap must not cover the whole surface, and its chart cells must be few enough to print
+    check_lap_on_surface(hm, lap, lap_option="--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm",
+                         cell_option=None)
     return dict(target_um=target, target_source=source, lap=lap, lap_notes=tuple(notes),
                 lap_rate_assumed=rate_um_per_min is None and rate_um_per_pass is None)
 
@@ -177,18 +224,21 @@ def report_cmd(
                             rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
                             strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
     carriage, fraction, marginal, budget = carriage_from_options(bearing, pad, gap_um)
-    loaded = load_input(input, method=method.value)
-    lapping = lapping_from_options(
-        loaded.heightmap, target_um=target_um, target_grade=target_grade, lap_diameter_mm=lap_diameter_mm,
-        lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
-        strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm,
-    )
-    ev, why_not = evaluate_for_report(loaded, window=window, uncertainty=not no_uncertainty, trials=trials, seed=seed,
-                                      u_height_um=u_height_um, show_progress=not json_out)
+    with StatusLine(not json_out) as status:
+        status.say(f"reading {input.name}")
+        loaded = load_input(input, method=method.value)
+        lapping = lapping_from_options(
+            loaded.heightmap, target_um=target_um, target_grade=target_grade, lap_diameter_mm=lap_diameter_mm,
+            lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
+            strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm,
+        )
+        ev, why_not = evaluate_for_report(loaded, window=window, uncertainty=not no_uncertainty, trials=trials,
+                                          seed=seed, u_height_um=u_height_um, show_progress=not json_out,
+                                          status=status)
     content, files = make_report(
         ev, output=output, png=png, units=units.value, show_progress=not json_out,
         standard=standard, rule=rule.value, carriage=carriage, gap_fraction=fraction,
-        marginal_from=marginal, budget=budget, uncertainty_missing=why_not, **lapping,
+        marginal_from=marginal, budget=budget, uncertainty_missing=why_not, window=window, **lapping,
     )
     if json_out:
         emit_json(report_json(content, files, input))
@@ -196,7 +246,7 @@ def report_cmd(
     con = stdout_console()
     con.print(f"[bold]Report[/bold] {files.pdf} ({files.pages} pages) for {content.heightmap.label}")
     if files.pngs:
-        con.print(f"pictures: {len(files.pngs)} PNG files in {png}")
+        con.print(f"pictures: {len(files.pngs)} PNG files in {png} (each figure on its own)")
 
 
 def report_json(content, files, input_path) -> dict:

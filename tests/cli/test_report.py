@@ -34,7 +34,11 @@ def test_report_writes_pdf_and_pictures(cli, plate_csv, tmp_path):
     code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf", "--png", pics, "--json", "--standard", "din-876")
     assert code == 0 and "Traceback" not in err
     data = json.loads(out)  # exactly one JSON object on stdout
-    assert data["pages"] >= 4 and len(data["png"]) == data["pages"] - 1
+    assert data["pages"] >= 4
+    # the pictures alone (issue 8): one file per figure, none for the text pages (summary, grades, sources)
+    assert sorted(Path(p).name for p in data["png"]) == [
+        "02-surface-3d.png", "02-surface-map.png", "03-local-flatness.png", "04-line-profiles-1-7.png"]
+    assert sorted(pics.iterdir()) == sorted(Path(p) for p in data["png"])
     # Analytic: the crown peaks at 2 µm in the middle and is 0 along the edges, so its minimum zone
     # (through the zero edges, horizontal) is 2 µm.
     assert data["flatness_mz_um"] == pytest.approx(2.0, abs=1e-9)
@@ -165,3 +169,86 @@ def test_lap_options_are_checked_as_lap_checks_them(cli, tmp_path, args, option)
     _one_line_error(code, err)
     assert err.startswith(f"flatcheck: error: {option}:")
     assert not (tmp_path / "r.pdf").exists()
+
+
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_readings"
+
+
+@pytest.mark.parametrize(
+    "name, args, says",
+    [
+        ("guideway-KY-G1.toml", ("--pad", "120x80", "--gap-um", "8", "--target-um", "2", "--lap-diameter-mm", "80",
+                                 "--rate-um-per-min", "0.2"),
+         ("bench chart", "Lapping plan: passes", "Preston", "--window 120x120", "Verdict:")),
+        ("pad-KY-B4-heights.csv", ("--u-height-um", "0.02", "--window", "d20", "--target-um", "0.2",
+                                   "--lap-diameter-mm", "20"),
+         ("bench chart", "Lapping plan: passes", "Local flatness")),
+        ("plate-KY-P7-grid.toml", ("--units", "in", "--bearing", SAMPLES / "bearing_tandem_slide.toml"),
+         ("Survey layout and closure (continued)", "µin", "Air bearing")),
+    ],
+)
+def test_sample_reports_render_with_content_on_every_page(cli, tmp_path, name, args, says):
+    # issue 8: tests render the PDF's pages (pdftoppm) and check that each page has content, here for the
+    # guideway, the pad and the grid samples with bearing and lapping options (few trials: quick)
+    code, out, err = cli("report", SAMPLES / name, "-o", tmp_path / "r.pdf", "--trials", "200", "--seed", "1",
+                         "--json", *args)
+    assert code == 0, err
+    data = json.loads(out)
+    pdftoppm, pdftotext = shutil.which("pdftoppm"), shutil.which("pdftotext")
+    assert pdftoppm and pdftotext, "install Debian's poppler-utils"
+    subprocess.run([pdftoppm, "-png", "-r", "25", str(tmp_path / "r.pdf"), str(tmp_path / "p")], check=True)
+    pages = sorted(tmp_path.glob("p-*.png"))
+    assert len(pages) == data["pages"]
+    from matplotlib.image import imread
+
+    for page in pages:
+        grey = imread(page)[..., :3].mean(axis=2)
+        body = grey[int(0.1 * grey.shape[0]) : int(0.9 * grey.shape[0])]  # between the running head and the footer
+        assert (body < 0.5).mean() > 0.003 and body.std() > 0.05, f"{page.name} looks blank"
+    text = subprocess.run([pdftotext, "-layout", str(tmp_path / "r.pdf"), "-"], capture_output=True, text=True,
+                          check=True).stdout
+    for s in says:
+        assert s in text, s
+
+
+def test_report_names_its_slow_steps_on_a_status_line(cli, tmp_path, monkeypatch):
+    # About two seconds passed between the Monte Carlo bar and the page bar with nothing shown: the air
+    # bearing, the lapping plan and loading the plotting library now each say so while they run.
+    from flatcheck.cli import report_cmd
+
+    said = []
+
+    class Recorder(report_cmd.StatusLine):
+        def __init__(self, enabled=True):
+            super().__init__(False)
+
+        def say(self, text):
+            said.append(text)
+
+    monkeypatch.setattr(report_cmd, "StatusLine", Recorder)
+    code, out, err = cli("report", SAMPLES / "guideway-KY-G1.toml", "-o", tmp_path / "r.pdf", "--trials", "100",
+                         "--pad", "120x80", "--gap-um", "8", "--target-um", "2", "--lap-diameter-mm", "80")
+    assert code == 0, err
+    steps = " | ".join(said)
+    for step in ("reading guideway-KY-G1.toml", "evaluating the surface", "air bearing", "lapping plan",
+                 "loading the plotting library"):
+        assert step in steps
+    assert err == ""  # not a terminal: nothing on stderr
+
+
+def test_status_line_shows_only_on_a_terminal(monkeypatch):
+    import io
+    import sys
+
+    from flatcheck.cli.report_cmd import StatusLine
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    for tty in (False, True):
+        buf = Tty() if tty else io.StringIO()
+        monkeypatch.setattr(sys, "stderr", buf)
+        with StatusLine(True) as status:
+            status.say("lapping plan: least removal")
+        assert ("lapping plan: least removal" in buf.getvalue()) is tty
