@@ -11,8 +11,8 @@ from ..lapping import LapModel
 from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, emit_json, load_input, stdout_console, Units, units_option
-from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _h, _parse_size, check_option, resolve_target
+from .common import SAFETY_LINES, emit_json, load_input, refuse_overwriting_inputs, stdout_console, Units, units_option
+from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _h, _parse_size, check_option, check_output, resolve_target
 
 
 def cautions(pr: Progress) -> list:
@@ -168,7 +168,7 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
         )
         con.print(
             f"Change map: the {pr.x_mm.size} nodes {_why_no_grid(pr, con.width)}{where}; "
-            "the change at every node is in --json",
+            "the change at every node is in --json, a picture with --plot FILE.png",
             markup=False,
         )
     for c in cautions(pr)[:1]:
@@ -247,6 +247,9 @@ def compare_cmd(
     match_tol_mm: float = typer.Option(DEFAULT_MATCH_TOL_MM, "--match-tol-mm", help="Node matching tolerance (mm)."),
     units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
+    plot_out: Path = typer.Option(
+        None, "--plot", help="Write a PNG of the change map: before, after, change and least removal."
+    ),
 ) -> None:
     """Change map, removed volume, flatness before/after, calibrated rate and sessions to the target."""
     if dwell_min is not None and log is not None:
@@ -259,12 +262,14 @@ def compare_cmd(
     check_option(match_tol_mm, "--match-tol-mm", what="a distance in mm")
     if lap_size_mm is not None:
         _parse_size(lap_size_mm)
+    refuse_overwriting_inputs({"--plot": plot_out}, [before, after, log])
+    check_output(plot_out, "--plot")
     lb = load_input(before)
     la = load_input(after)
     _check_same_surface(lb, la)
     hb, ha = lb.heightmap, la.heightmap
     try:
-        match_nodes(hb, ha, tol_mm=match_tol_mm)
+        idx = match_nodes(hb, ha, tol_mm=match_tol_mm)
     except InputValueError as exc:  # name both files: the message speaks of "before" and "after" surveys
         raise InputValueError(exc.message, where=f"{before} -> {after}", fix=exc.fix) from None
     lap = None
@@ -284,7 +289,15 @@ def compare_cmd(
     if any(v is not None for v in (target_um, target_grade, target_gap_um, gap_fraction)):
         target, source = resolve_target(hb, target_um, target_grade, target_gap_um, gap_fraction)
     pr = compare_surveys(hb, ha, tol_mm=match_tol_mm, dwell_min=dwell_min, lap=lap, log=dlog, target_um=target)
+    if plot_out is not None:
+        from .. import plot
+
+        axes = plot.compare_change_map(None, pr.x_mm, pr.y_mm, hb.height_um, ha.height_um[idx], pr.removed_um,
+                                       units=units.value, length_mm=hb.length_mm, width_mm=hb.width_mm)
+        plot.save_png(axes[0].figure, plot_out, dpi=120)
     if json_out:
         emit_json(progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value))
     else:
         render_summary(pr, lap=lap, target_source=source, units=units.value)
+        if plot_out is not None:
+            stdout_console().print(f"picture written to {plot_out}", markup=False)

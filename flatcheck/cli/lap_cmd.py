@@ -14,7 +14,16 @@ from ..errors import InputValueError, OutputError
 from ..lapping import LapModel, LapPlan, least_removal, plan_lapping
 from ..units import height_unit_label, um_to
 from ._app import app
-from .common import SAFETY_LINES, emit_json, load_surface, progress_bar, stdout_console, Units, units_option
+from .common import (
+    SAFETY_LINES,
+    emit_json,
+    load_surface,
+    progress_bar,
+    refuse_overwriting_inputs,
+    stdout_console,
+    Units,
+    units_option,
+)
 
 #: Placeholder rate when the user has not calibrated one: times are then "per µm/min" and scale by 1/rate.
 _ASSUMED_RATE_UM_PER_MIN = 1.0
@@ -542,6 +551,7 @@ def lap_cmd(
         rate_um_per_pass=rate_um_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm, step_mm=step_mm,
         cell_mm=cell_mm, levels=levels, smoothing=smoothing, smoothness=smoothness, min_pass_fraction=min_pass_fraction,
     )
+    refuse_overwriting_inputs({"--removal-csv": removal_csv, "--plan-out": plan_out}, [input])
     check_output(removal_csv, "--removal-csv")
     check_output(plan_out, "--plan-out")
     hm, _ = load_surface(input)

@@ -305,3 +305,23 @@ def test_microinch_output_has_sensible_decimals(cli, pair):
     code, out, err = cli("compare", before, after, "--dwell-min", "5", "--target-um", "0.5", "--units", "in")
     assert code == 0, err
     assert re.findall(r"\d\.\d\d+ µin", out) == [] and "Target 19.7 µin" in out  # 0.5 / 0.0254 = 19.69 µin
+
+
+def test_plot_writes_the_change_map(cli, tmp_path, pair):
+    before, after, log, *_ = pair
+    png = tmp_path / "change.png"
+    code, out, err = cli("compare", before, after, "--plot", png)
+    assert code == 0, err
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and "picture written to" in out
+    png.unlink()
+    code, out, err = cli("compare", before, after, "--plot", png, "--json")
+    assert code == 0 and json.loads(out)["command"] == "compare" and png.exists()  # stdout stays one JSON object
+    # an output can never replace an input
+    for victim in (before, after, log):
+        text = victim.read_text(encoding="utf-8")
+        extra = ("--log", log, "--lap-diameter-mm", "100") if victim == log else ()
+        code, out, err = cli("compare", before, after, *extra, "--plot", victim)
+        one_line_error(code, out, err)
+        assert err.startswith("flatcheck: error: --plot:") and victim.read_text(encoding="utf-8") == text
+    code, out, err = cli("compare", before, after, "--plot", tmp_path / "missing" / "c.png")
+    one_line_error(code, out, err)

@@ -386,3 +386,15 @@ def test_microinch_output_has_sensible_decimals(cli, tmp_path):
         assert "Target flatness 7.9 µin" in text  # 0.2 µm / 0.0254 = 7.87 µin
     depths = [line.split("│")[5].strip() for line in out.splitlines() if line.startswith("│")]
     assert depths and all(re.fullmatch(r"\d+\.\d", d) for d in depths)
+
+
+def test_outputs_never_replace_the_input(cli, hill_csv, tmp_path):
+    text = hill_csv.read_text(encoding="utf-8")
+    for option in ("--plan-out", "--removal-csv"):
+        code, out, err = cli("lap", hill_csv, "--target-um", "0.8", option, tmp_path / ".." / tmp_path.name / hill_csv.name)
+        one_line_error(code, out, err)
+        assert err.startswith(f"flatcheck: error: {option}:") and hill_csv.read_text(encoding="utf-8") == text
+    same = tmp_path / "out.txt"
+    code, out, err = cli("lap", hill_csv, "--target-um", "0.8", "--plan-out", same, "--removal-csv", same)
+    one_line_error(code, out, err)
+    assert not same.exists()
