@@ -52,6 +52,7 @@ __all__ = [
     "plan_box",
     "plan_ratio",
     "cell_chart",
+    "cell_chart_blocks",
     "bearing_motion",
     "local_flatness_map",
     "local_flatness_profile",
@@ -913,10 +914,16 @@ def dwell_map(ax, x_mm, y_mm, dwell, *, dwell_unit: str = "s", units: str = "um"
     return ax
 
 
-def _cell_grid(ax, chart, *, units: str, color=_INK, lw: float = 0.6, fontsize: float = 6.5, names: bool = True):
-    """Cell edges of a lapping chart and (``names``) column letters above it and row numbers right of it."""
+def _cell_grid(ax, chart, *, units: str, color=_INK, lw: float = 0.6, fontsize: float = 6.5, names: bool = True,
+               columns=None):
+    """Cell edges of a lapping chart and (``names``) column letters above it and row numbers right of it.
+
+    ``columns`` is ``(start, stop)``: only those columns (a block of a long chart). Column letters too
+    wide for their cells are written every second (third...) column so that none overlap.
+    """
     ps, _ = _pos_scale(units)
-    xe = np.asarray(chart.x_edges_mm, float) * ps
+    start, stop = columns or (0, len(chart.columns))
+    xe = np.asarray(chart.x_edges_mm, float)[start : stop + 1] * ps
     ye = np.asarray(chart.y_edges_mm, float) * ps
     for v in xe:
         ax.plot([v, v], [ye[0], ye[-1]], color=color, lw=lw, zorder=3)
@@ -924,9 +931,16 @@ def _cell_grid(ax, chart, *, units: str, color=_INK, lw: float = 0.6, fontsize: 
         ax.plot([xe[0], xe[-1]], [v, v], color=color, lw=lw, zorder=3)
     if not names:
         return
+    ax.apply_aspect()
+    to_px = ax.transData.transform
+    cell_pt = min(abs(to_px((b, 0))[0] - to_px((a, 0))[0]) for a, b in zip(xe[:-1], xe[1:])) * 72 / ax.figure.dpi
+    widest = max(len(c) for c in chart.columns[start:stop]) * 0.65 * fontsize + 2.0
+    every = max(1, int(np.ceil(widest / max(cell_pt, 1e-9))))
     top = ax.get_xaxis_transform()  # x in data, y in axes fraction
     side = ax.get_yaxis_transform()  # x in axes fraction, y in data
-    for name, a, b in zip(chart.columns, xe[:-1], xe[1:]):
+    for k, (name, a, b) in enumerate(zip(chart.columns[start:stop], xe[:-1], xe[1:])):
+        if k % every:
+            continue
         ax.text((a + b) / 2, 1.01, name, transform=top, ha="center", va="bottom", fontsize=fontsize,
                 fontweight="bold", color=_INK, gid="cell-column", clip_on=False)
     for name, a, b in zip(chart.rows, ye[:-1], ye[1:]):
@@ -941,7 +955,39 @@ def _cell_time_text(t: float) -> str:
     return f"{t:.1f}" if t >= 0.05 else "<0.1"
 
 
-def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm=None):
+def cell_chart_blocks(chart, width_in: float, *, min_cell_in: float = 0.3, box_mm=None) -> list:
+    """Cut a lapping chart into blocks of whole columns whose cells are drawn at least ``min_cell_in`` wide.
+
+    Parameters
+    ----------
+    chart : flatcheck.lapping.CellChart
+    width_in : float
+        Width the chart is drawn at (inches).
+    min_cell_in : float
+        Narrowest cell that keeps its time legible (inches; 0.3 in holds "12.5" at 7 points).
+    box_mm : (xmin, xmax, ymin, ymax), optional
+        The whole surface (mm); its length sets the scale of the first try.
+
+    Returns
+    -------
+    list of (int, int)
+        ``(start, stop)`` column ranges, west first; one block when the whole chart fits.
+    """
+    xe = np.asarray(chart.x_edges_mm, float)
+    n = len(chart.columns)
+    span = (box_mm[1] - box_mm[0]) if box_mm is not None else float(xe[-1] - xe[0])
+    narrowest = float(np.min(np.diff(xe)))
+    for blocks in range(1, n + 1):
+        per = int(np.ceil(n / blocks))
+        cuts = [(k, min(n, k + per)) for k in range(0, n, per)]
+        longest = max(float(xe[b] - xe[a]) for a, b in cuts)
+        scale = width_in / (1.08 * (span if blocks == 1 else longest))  # inches per mm, with the view's margins
+        if narrowest * scale >= min_cell_in or per == 1:
+            return cuts
+    return [(k, k + 1) for k in range(n)]
+
+
+def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm=None, columns=None):
     """The bench chart of a lapping plan: the surface cut into named cells with the working time in each.
 
     Parameters
@@ -954,7 +1000,9 @@ def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm
         Positions in mm or inches.
     title : str, optional
     box_mm : (xmin, xmax, ymin, ymax), optional
-        The whole surface (mm), outlined around the chart.
+        The whole surface (mm), outlined around the chart (its x range is cut to ``columns``).
+    columns : (int, int), optional
+        Draw only columns ``start`` to ``stop - 1``: one block of a long chart (see :func:`cell_chart_blocks`).
 
     Returns
     -------
@@ -963,16 +1011,22 @@ def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm
         shaded from white (no time) to mid grey (the longest), so the black numbers read in grey print.
     """
     ps, pu = _pos_scale(units)
-    xe = np.asarray(chart.x_edges_mm, float) * ps
+    start, stop = columns or (0, len(chart.columns))
+    xe_all = np.asarray(chart.x_edges_mm, float) * ps
+    xe = xe_all[start : stop + 1]
     ye = np.asarray(chart.y_edges_mm, float) * ps
     T = np.asarray(chart.time, float)
     tmax = float(np.max(T)) if T.size and np.max(T) > 0 else 1.0
+    T = T[:, start:stop]
     for j in range(len(chart.rows)):
-        for i in range(len(chart.columns)):
+        for i in range(stop - start):
             shade = 1.0 - 0.45 * max(T[j, i], 0.0) / tmax
             ax.add_patch(Rectangle((xe[i], ye[j]), xe[i + 1] - xe[i], ye[j + 1] - ye[j], fc=str(shade), ec="none",
                                    zorder=1))
-    box = box_mm if box_mm is not None else (xe[0] / ps, xe[-1] / ps, ye[0] / ps, ye[-1] / ps)
+    box = box_mm if box_mm is not None else (xe_all[0] / ps, xe_all[-1] / ps, ye[0] / ps, ye[-1] / ps)
+    if columns is not None:  # a block: its own stretch of the surface
+        box = (max(box[0], xe[0] / ps) if start else box[0], min(box[1], xe[-1] / ps) if stop < len(chart.columns)
+               else box[1], box[2], box[3])
     bx0, bx1, by0, by1 = (v * ps for v in box)
     ax.plot([bx0, bx1, bx1, bx0, bx0], [by0, by0, by1, by1, by0], color="0.4", lw=0.8, ls="--", zorder=0)
     (xa, xb), (ya, yb) = _plan_limits(box)
@@ -980,25 +1034,27 @@ def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm
     ax.set_ylim(ya * ps, yb * ps)
     ax.set_xlabel(f"x ({pu})")
     ax.set_ylabel(_plan_aspect(ax, f"y ({pu})"))
-    _cell_grid(ax, chart, units=units, color=_INK, lw=0.6, fontsize=7)
+    _cell_grid(ax, chart, units=units, color=_INK, lw=0.6, fontsize=7, columns=(start, stop))
     # the largest font that fits the narrowest cell (measured on the drawn axes), 4.5 to 9 points
     ax.apply_aspect()
     fig = ax.figure
     to_px = ax.transData.transform
     w_pt = min(abs(to_px((b, 0))[0] - to_px((a, 0))[0]) for a, b in zip(xe[:-1], xe[1:])) * 72 / fig.dpi
     h_pt = min(abs(to_px((0, b))[1] - to_px((0, a))[1]) for a, b in zip(ye[:-1], ye[1:])) * 72 / fig.dpi
-    texts = [[_cell_time_text(T[j, i]) for i in range(len(chart.columns))] for j in range(len(chart.rows))]
+    texts = [[_cell_time_text(T[j, i]) for i in range(stop - start)] for j in range(len(chart.rows))]
     chars = max(len(t) for row in texts for t in row)
     size = float(min(9.0, 0.6 * h_pt, (w_pt - 2.0) / (0.62 * chars)))
     size = max(size, 4.5)
     for j in range(len(chart.rows)):
-        for i in range(len(chart.columns)):
+        for i in range(stop - start):
             ax.text((xe[i] + xe[i + 1]) / 2, (ye[j] + ye[j + 1]) / 2, texts[j][i], ha="center", va="center",
                     fontsize=size, color=_INK, fontweight="bold" if T[j, i] > 0 else "normal", gid="cell-time",
                     zorder=4)
     unit = "min" if chart.time_unit == "min" else "passes"
-    ax.set_title(title or f"time per cell ({unit}); columns A.. from the west, rows 1.. from the south",
-                 fontsize=10, loc="left", pad=13)
+    if title is None:
+        title = f"time per cell ({unit}); columns A.. from the west, rows 1.. from the south"
+    if title:
+        ax.set_title(title, fontsize=10, loc="left", pad=13)
     return size
 
 

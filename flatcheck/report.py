@@ -696,7 +696,10 @@ def _page_plan(content):
     if content.bearing is not None:
         plan.append(("Air bearing: fitness and carriage motion", _page_bearing))
     if content.lapping is not None:
-        plan.append(("Lapping plan", _page_lapping))
+        together = _chart_fits_on_lapping_page(content)
+        plan.append(("Lapping plan", lambda fig, c, u, together=together: _page_lapping(fig, c, u, chart=together)))
+        if not together:
+            plan.append(("Lapping plan: bench chart", _page_chart))
         chunks = _pass_pages(content)
         for k, (start, stop, last) in enumerate(chunks):
             title = "Lapping plan: passes" + (f" ({k + 1} of {len(chunks)})" if len(chunks) > 1 else "")
@@ -1066,38 +1069,131 @@ def _lapping_foot(c, units):
     return text
 
 
-def _page_lapping(fig, c, units):
-    """Removal and dwell maps and the bench chart of cells with the time in each."""
+_CHART_TOP_IN = 0.5  # room above each block of the bench chart: title and column letters (inches)
+_CHART_BOTTOM_IN = 0.5  # below it: the x label
+
+
+def _lapping_maps(fig, c, units):
+    """Head text, removal and dwell maps at the top of the lapping page; returns (maps, bottom, foot)."""
     from . import plot
 
-    p = c.lapping
-    rm = p.removal
     fh = fig.get_figheight()
     head = _lapping_text(c, units)
     head_in = plot.text_block_height_in(head, fontsize=_TEXT_FS, wrap_chars=110)
     tax = fig.add_axes([0.06, _TOP - head_in / fh, 0.88, head_in / fh])
     plot.text_block(tax, head, fontsize=_TEXT_FS, wrap_chars=110)
-    foot = _lapping_foot(c, units)
-    foot_in = plot.text_block_height_in(foot, fontsize=_TEXT_FS, wrap_chars=110)
-    box = plot.plan_box(c.heightmap)
-    ratio = plot.plan_ratio(box)
+    ratio = plot.plan_ratio(plot.plan_box(c.heightmap))
     side = ratio <= 2.0  # a plate: removal and dwell side by side; a long surface: one above the other
     maps, bottom = plot.plan_panels(fig, 2, 2 if side else 1, ratio,
                                     (_PLAN_RECT_LEFT, _BOTTOM, 0.94, _TOP - head_in / fh - 0.01),
                                     top_in=0.42, max_height_in=2.4 if side else 1.3, gap_in=0.9)
+    return maps, bottom
+
+
+def _chart_blocks(c, width_in):
+    """Blocks of whole columns of the bench chart and the part of the surface each shows (mm)."""
+    from . import plot
+
+    p = c.lapping
+    box = plot.plan_box(c.heightmap)
+    blocks = plot.cell_chart_blocks(p.chart, width_in, box_mm=box)
+    xe = np.asarray(p.chart.x_edges_mm, float)
+    n = len(p.chart.columns)
+    sub = [(box[0] if a == 0 else float(xe[a]), box[1] if b == n else float(xe[b]), box[2], box[3]) for a, b in blocks]
+    return blocks, sub
+
+
+_MIN_CELL_IN = 0.3  # narrowest legible chart cell (inches): holds "12.5" at 7 points
+
+
+def _chart_height_in(c, width_in) -> float:
+    """Least height (inches) the bench chart needs, at most ``width_in`` wide, with cells wide enough to read."""
+    from . import plot
+
+    blocks, sub = _chart_blocks(c, width_in)
+    ratio = max(plot.plan_ratio(sb) for sb in sub)
+    narrowest = float(np.min(np.diff(np.asarray(c.lapping.chart.x_edges_mm, float))))
+    span = max(sb[1] - sb[0] for sb in sub)
+    w = min(width_in, _MIN_CELL_IN * 1.08 * span / narrowest)  # as narrow as the cells allow
+    return len(blocks) * (w / ratio + _CHART_TOP_IN + _CHART_BOTTOM_IN)
+
+
+def _chart_width_in(fig) -> float:
+    return (0.94 - _PLAN_RECT_LEFT) * fig.get_figwidth() - 0.3
+
+
+def _chart_fits_on_lapping_page(c) -> bool:
+    """Whether the bench chart fits below the maps at a legible size (else it gets a page of its own)."""
+    from . import plot
+
+    scratch = plot.new_figure()
+    _, bottom = _lapping_maps(scratch, c, "um")
+    foot_in = plot.text_block_height_in(_lapping_foot(c, "um"), fontsize=_TEXT_FS, wrap_chars=110)
+    room = (bottom - 0.005 - _BOTTOM) * scratch.get_figheight() - foot_in - 0.1
+    return _chart_height_in(c, _chart_width_in(scratch)) <= room
+
+
+def _draw_chart(fig, c, units, rect):
+    """The bench chart in ``rect``, cut into blocks of whole columns (west first) when its cells would be too
+    narrow to read; returns its axes."""
+    from . import plot
+
+    p = c.lapping
+    unit = "min" if p.lap.time_unit == "min" else "passes"
+    blocks, sub = _chart_blocks(c, _chart_width_in(fig))
+    caxes, _ = plot.plan_panels(fig, len(blocks), 1, max(plot.plan_ratio(sb) for sb in sub), rect,
+                                top_in=_CHART_TOP_IN, bottom_in=_CHART_BOTTOM_IN, right_in=0.3, max_height_in=4.5)
+    head = f"bench chart: time per cell ({unit}); columns A.. from the west, rows 1.. from the south, north up"
+    for k, (cax, (a, b), sb) in enumerate(zip(caxes, blocks, sub)):
+        cols = f"columns {p.chart.columns[a]}-{p.chart.columns[b - 1]}"
+        title = head if len(blocks) == 1 else (f"bench chart: time per cell ({unit}), {cols}" if k == 0 else cols)
+        plot.cell_chart(cax, p.chart, units=units, box_mm=sb, columns=(a, b), title=title)
+    return list(caxes)
+
+
+def _page_lapping(fig, c, units, chart=None):
+    """Removal and dwell maps and (``chart``; ``None``: if it fits) the bench chart of cells with their times."""
+    from . import plot
+
+    p = c.lapping
+    rm = p.removal
+    fh = fig.get_figheight()
+    if chart is None:
+        chart = _chart_fits_on_lapping_page(c)
+    box = plot.plan_box(c.heightmap)
+    maps, bottom = _lapping_maps(fig, c, units)
     plot.removal_map(maps[0], p.xs_mm, p.ys_mm, p.wanted_um, units=units, box_mm=box,
                      title=f"least removal (deepest {_h(rm.max_depth_um, units)})")
-    unit = "min" if p.lap.time_unit == "min" else "passes"
     plot.dwell_map(maps[1], p.xs_mm, p.ys_mm, p.plan_dwell, dwell_unit=p.lap.time_unit, units=units, box_mm=box,
                    chart=p.chart, title="dwell, cells of the chart" + (" (rate assumed)" if c.lap_rate_assumed else ""))
-    (cax,), _ = plot.plan_panels(fig, 1, 1, ratio, (_PLAN_RECT_LEFT, _BOTTOM + (foot_in + 0.1) / fh, 0.94,
-                                                    bottom - 0.005), top_in=0.5, right_in=0.3, max_height_in=4.5)
-    plot.cell_chart(cax, p.chart, units=units, box_mm=box,
-                    title=f"bench chart: time per cell ({unit}); columns A.. from the west, rows 1.. from the south, "
-                          "north up")
-    fax = fig.add_axes([0.06, _BOTTOM, 0.88, foot_in / fh])
+    foot = _lapping_foot(c, units)
+    if not chart:
+        foot = [("The bench chart (time per cell) is on the next page.", "b")] + foot
+    foot_in = plot.text_block_height_in(foot, fontsize=_TEXT_FS, wrap_chars=110)
+    pictures = [("lapping-removal", [maps[0]]), ("lapping-dwell", [maps[1]])]
+    if chart:
+        rect = (_PLAN_RECT_LEFT, _BOTTOM + (foot_in + 0.1) / fh, 0.94, bottom - 0.005)
+        pictures.append(("lapping-cell-chart", _draw_chart(fig, c, units, rect)))
+        fax = fig.add_axes([0.06, _BOTTOM, 0.88, foot_in / fh])
+    else:
+        fax = fig.add_axes([0.06, bottom - 0.01 - foot_in / fh, 0.88, foot_in / fh])
     plot.text_block(fax, foot, fontsize=_TEXT_FS, wrap_chars=110)
-    return [("lapping-removal", [maps[0]]), ("lapping-dwell", [maps[1]]), ("lapping-cell-chart", [cax])]
+    return pictures
+
+
+def _page_chart(fig, c, units):
+    """The bench chart on a page of its own (a long surface cut into blocks of columns)."""
+    from . import plot
+
+    note = [("Columns A.. from the west, rows 1.. from the south; north is up. Each number is the time the lap "
+             "spends with its centre in that cell; '.' none. Cell edges are measured from the south-west corner of "
+             "the surveyed area.", "s")]
+    fh = fig.get_figheight()
+    note_in = plot.text_block_height_in(note, fontsize=_TEXT_FS, wrap_chars=110)
+    tax = fig.add_axes([0.06, _TOP - note_in / fh, 0.88, note_in / fh])
+    plot.text_block(tax, note, fontsize=_TEXT_FS, wrap_chars=110)
+    rect = (_PLAN_RECT_LEFT, _BOTTOM, 0.94, _TOP - note_in / fh - 0.01)
+    return [("lapping-cell-chart", _draw_chart(fig, c, units, rect))]
 
 
 def _pass_rows(c, units):

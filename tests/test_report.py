@@ -464,9 +464,10 @@ def test_lapping_page_has_the_bench_chart_and_passes_with_centre_and_extent(samp
     p = content.lapping
     titles = report.page_titles(content)
     fig, _, pictures = _draw_page(content, units, titles.index("Lapping plan"))
-    chart_ax = dict(pictures)["lapping-cell-chart"][0]
+    chart_axes = dict(pictures)["lapping-cell-chart"]  # the chart, cut into blocks of columns if it is long
     ch = p.chart
-    cells = [t for t in chart_ax.texts if t.get_gid() == "cell-time"]
+    texts = [t for ax in chart_axes for t in ax.texts]
+    cells = [t for t in texts if t.get_gid() == "cell-time"]
     assert len(cells) == len(ch.columns) * len(ch.rows)
     xe, ye = np.asarray(ch.x_edges_mm), np.asarray(ch.y_edges_mm)
     for t in cells:  # each cell's time where the cell is (the chart's own numbers, as 'flatcheck lap' prints them)
@@ -474,8 +475,10 @@ def test_lapping_page_has_the_bench_chart_and_passes_with_centre_and_extent(samp
         i, j = np.searchsorted(xe, x) - 1, np.searchsorted(ye, y) - 1
         v = ch.time[j, i]
         assert t.get_text() == ("." if v <= 0 else f"{v:.1f}" if v >= 0.05 else "<0.1")
-    assert [t.get_text() for t in chart_ax.texts if t.get_gid() == "cell-column"] == list(ch.columns)
-    assert [t.get_text() for t in chart_ax.texts if t.get_gid() == "cell-row"] == list(ch.rows)
+    assert [t.get_text() for t in texts if t.get_gid() == "cell-column"] == list(ch.columns)
+    assert [t.get_text() for t in chart_axes[0].texts if t.get_gid() == "cell-row"] == list(ch.rows)
+    for t in cells:  # legible: at least 6 points
+        assert t.get_fontsize() >= 6
     # the pass table: every pass with its cells, centre and the extent of the lap centre's travel
     fig, _, _ = _draw_page(content, units, titles.index("Lapping plan: passes"))
     text = " | ".join(t for t, _ in _drawn_texts(fig))

@@ -7,6 +7,7 @@ so for the same input, ``--seed`` and ``--trials`` the report states what ``flat
 
 from __future__ import annotations
 
+import re
 import sys
 from pathlib import Path
 
@@ -19,6 +20,7 @@ from .reduce_cmd import Method
 from .common import (
     emit_json,
     load_input,
+    refuse_overwriting_inputs,
     progress_bar,
     seed_option,
     stderr_console,
@@ -90,6 +92,27 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
         from ..tolerance import get_standard
 
         get_standard(standard)  # an unknown name fails here
+
+
+#: The pictures --png writes: NN-<picture>.png (see flatcheck.report.write_report).
+_PICTURE_NAME = re.compile(r"^\d\d-[a-z0-9-]+\.png$")
+
+
+def refuse_pictures_over_inputs(png: Path | None, inputs) -> None:
+    """Refuse a --png folder holding an input whose name is one the pictures take (they would replace it)."""
+    if png is None:
+        return
+    for inp in inputs:
+        if inp is None:
+            continue
+        inp = Path(inp)
+        try:
+            same_folder = inp.resolve().parent == png.resolve()
+        except OSError:
+            continue
+        if same_folder and _PICTURE_NAME.match(inp.name):
+            raise OutputError(f"{inp} is an input file and has the name of a picture the report writes there",
+                              where="--png", fix="choose another folder for --png")
 
 
 def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, seed: int | None,
@@ -218,6 +241,8 @@ def report_cmd(
 ) -> None:
     """Write a PDF report: identity, method, map, local flatness, profiles, flatness with uncertainty, grades."""
     check_outputs(output, png, standard)
+    refuse_overwriting_inputs({"-o": output}, [input, bearing])
+    refuse_pictures_over_inputs(png, [input, bearing])
     if trials < 100:
         raise InputValueError(f"--trials {trials} is too few", where="--trials", fix="give at least 100, e.g. --trials 20000")
     check_lap_option_values(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm,

@@ -252,3 +252,20 @@ def test_status_line_shows_only_on_a_terminal(monkeypatch):
         with StatusLine(True) as status:
             status.say("lapping plan: least removal")
         assert ("lapping plan: least removal" in buf.getvalue()) is tty
+
+
+def test_report_never_writes_over_its_input(cli, plate_csv, tmp_path):
+    # a height map is read whatever its name, so `report map.pdf -o map.pdf` would have replaced the input
+    src = tmp_path / "map.pdf"
+    src.write_bytes(plate_csv.read_bytes())
+    code, out, err = cli("report", src, "-o", src, "--no-uncertainty")
+    _one_line_error(code, err)
+    assert err.startswith("flatcheck: error: -o:") and src.read_bytes() == plate_csv.read_bytes()
+    # nor can a picture replace an input that happens to carry a picture's name in the --png folder
+    pics = tmp_path / "pics"
+    pics.mkdir()
+    src = pics / "02-surface-map.png"
+    src.write_bytes(plate_csv.read_bytes())
+    code, out, err = cli("report", src, "-o", tmp_path / "r.pdf", "--png", pics, "--no-uncertainty")
+    _one_line_error(code, err)
+    assert err.startswith("flatcheck: error: --png:") and src.read_bytes() == plate_csv.read_bytes()
