@@ -1351,14 +1351,19 @@ def carriage_path(
     ax.set_ylabel(f"height ({hu})")
     ax.grid(True, lw=0.3, color="0.8")
     handles, labels = ax.get_legend_handles_labels()
+    # headroom above the curves for the legend, so it never hides them
+    lo, hi = ax.get_ylim()
+    ax.set_ylim(lo, hi + 0.3 * (hi - lo))
     if pitch is not None:
         ax2 = ax.twinx()
         ax2.plot(t, np.asarray(pitch, float), color=_ACCENT, lw=0.9, ls="--", label="carriage pitch")
         ax2.set_ylabel(f"pitch ({pitch_unit})", color=_ACCENT)
+        lo2, hi2 = ax2.get_ylim()
+        ax2.set_ylim(lo2, hi2 + 0.3 * (hi2 - lo2))
         h2, l2 = ax2.get_legend_handles_labels()
         handles += h2
         labels += l2
-    ax.legend(handles, labels, fontsize=7, loc="best", framealpha=0.9)
+    ax.legend(handles, labels, fontsize=7, loc="upper center", ncol=len(labels), framealpha=0.9)
     if local_um is not None:
         a = axes[1]
         a.plot(t, np.asarray(local_um, float) * hs, color=_INK, lw=1.2)

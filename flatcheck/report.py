@@ -793,7 +793,7 @@ def _page_summary(fig, c, units):
         text.append((f"Local flatness (minimum zone inside a {_window_text(c.window, units)} window moved over the "
                      f"surface): largest {_h(lf.worst_um, units)}, window centred at x = {_pos(lf.worst_x_mm, units)}, "
                      f"y = {_pos(lf.worst_y_mm, units)}.", "s"))
-    elif c.local_missing:
+    elif c.local_missing and not any("window" in n for n in c.notes):  # said once: the notes may say it already
         text.append((_in_units(c.local_missing, units), "s"))
     y = plot.text_block(ax, text, y0=y, wrap_chars=110)
     if c.grades:
