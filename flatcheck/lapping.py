@@ -917,7 +917,7 @@ class Shortfall:
             "footprint": max(0.0, self.best_um - self.target_um),
             "smoothing": max(0.0, self.smoothed_um - self.best_um),
             "rounding": max(0.0, self.rounded_um - self.smoothed_um),
-            "short passes": max(0.0, self.plan_um - self.rounded_um),
+            "short_passes": max(0.0, self.plan_um - self.rounded_um),
         }
 
     @property
@@ -955,7 +955,7 @@ class Shortfall:
                         f"; flatcheck lap --levels {self.levels_suggested}, at the price of more passes)"
                     )
                 parts.append(f"rounding the dwell to {self.levels} time steps costs {v}{more}")
-            elif cause == "short passes":
+            elif cause == "short_passes":
                 parts.append(
                     f"tidying passes shorter than {self.min_pass_time:.2g} {unit} costs {v} (keep them with "
                     "flatcheck lap --min-pass-fraction 0)"
