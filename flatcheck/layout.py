@@ -312,6 +312,21 @@ def grid_column_name(i: int) -> str:
 # patterns
 
 
+def _checked_plate(length_mm, width_mm, foot_spacing_mm, margin_mm, units):
+    """Checked plate size, foot spacing and margin of a planned layout.
+
+    Returns ``(units, length, width, foot spacing, margin)``, lengths in mm (``units`` is only the
+    unit the user typed, for the error messages); raises LayoutError naming the bad value.
+    """
+    u = _check_units(units)
+    L = _positive(length_mm, "length", "length_mm", u)
+    W = _positive(width_mm, "width", "width_mm", u)
+    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm", u)
+    m = _margin(margin_mm, units=u)
+    _check_room(L, W, m, u)
+    return u, L, W, B, m
+
+
 def plan_union_jack(
     length_mm: float,
     width_mm: float,
@@ -371,12 +386,7 @@ def plan_union_jack(
     >>> s.meta["layout"]["steps_x"], s.meta["layout"]["steps_y"], s.meta["layout"]["steps_diagonal"]
     (8, 4, 8)
     """
-    u = _check_units(units)
-    L = _positive(length_mm, "length", "length_mm", u)
-    W = _positive(width_mm, "width", "width_mm", u)
-    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm", u)
-    m = _margin(margin_mm, units=u)
-    _check_room(L, W, m, u)
+    u, L, W, B, m = _checked_plate(length_mm, width_mm, foot_spacing_mm, margin_mm, units)
     ax, ay = L - 2 * m, W - 2 * m
     if steps is None:
         nx = _steps_fitting(ax, B, even=True)
@@ -500,12 +510,7 @@ def plan_grid(
         Bad sizes, fewer than 2 steps each way, or diagonals on a grid that is
         not square.
     """
-    u = _check_units(units)
-    L = _positive(length_mm, "length", "length_mm", u)
-    W = _positive(width_mm, "width", "width_mm", u)
-    B = _positive(foot_spacing_mm, "foot spacing", "foot_spacing_mm", u)
-    m = _margin(margin_mm, units=u)
-    _check_room(L, W, m, u)
+    u, L, W, B, m = _checked_plate(length_mm, width_mm, foot_spacing_mm, margin_mm, units)
     ax, ay = L - 2 * m, W - 2 * m
     if steps is None:
         nx = _steps_fitting(ax, B, even=False)

@@ -1,4 +1,4 @@
-"""docs/json-output.md names every key the commands print with --json (grade, bearing, lap, compare, report)."""
+"""docs/json-output.md names every key the commands print with --json (reduce, grade, bearing, lap, compare, report)."""
 
 import json
 import re
@@ -79,3 +79,26 @@ def test_every_json_key_is_documented(cli, command, tmp_path):
     assert not missing, f"keys of {command} --json missing from docs/json-output.md: {missing}"
     for k in PINNED[command]:
         assert re.search(rf"`{k}`[^\n]*\*\*pinned\*\*", section), k
+
+
+def test_every_reduce_json_key_is_documented(cli, tmp_path):
+    # docs/json-output.md must name every key `flatcheck reduce --json` prints
+    section = _section("reduce")
+    keys = set()
+    for args in [
+        (SAMPLES / "plate-KY-P3-2024-03-11.toml", "--uncertainty", "--trials", "300", "--seed", "1", "--units", "in"),
+        (SAMPLES / "plate-KY-P3-2024-03-11.toml", "--method", "moody"),
+        (SAMPLES / "pad-KY-B4-heights.csv", "--uncertainty", "--trials", "300", "--u-height-um", "0.02", "--units", "in", "--window", "d20"),
+        (SAMPLES / "guideway-KY-G1.toml",),
+        (SAMPLES / "plate-KY-P7-grid.toml",),
+    ]:
+        code, out, err = cli("reduce", *args, "--json")
+        assert code == 0, err
+        keys |= _keys(json.loads(out))
+    missing = sorted(k for k in keys if f"`{k}`" not in section and f"`{k}`" not in section.replace(", `", "`, `"))
+    assert not missing, f"keys of reduce --json missing from docs/json-output.md: {missing}"
+    # the pinned keys are marked as such
+    for k in ("nodes", "minimum_zone_um", "least_squares_um"):
+        assert re.search(rf"`{k}`[^\n]*\*\*pinned\*\*", section), k
+    # the doc says what the code does: peak, valley and RMS are about the least-squares plane
+    assert "`peak_um + valley_um = least_squares_um`" in section

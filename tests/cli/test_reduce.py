@@ -442,48 +442,6 @@ def test_input_kind_is_found_from_the_content_not_the_name(cli, tmp_path):
     assert code == 2 and str(bad) in err and "x_mm,y_mm,height_um" in err
 
 
-def _json_doc_section(command):
-    text = (Path(__file__).resolve().parents[2] / "docs" / "json-output.md").read_text(encoding="utf-8")
-    start = text.index(f"## `flatcheck {command}`")
-    end = text.find("\n## ", start + 1)
-    return text[start : end if end > 0 else None]
-
-
-def _key_names(obj, out=None):
-    out = set() if out is None else out
-    if isinstance(obj, dict):
-        for k, v in obj.items():
-            out.add(k)
-            _key_names(v, out)
-    elif isinstance(obj, list):
-        for v in obj:
-            _key_names(v, out)
-    return out
-
-
-def test_every_reduce_json_key_is_documented(cli, tmp_path):
-    # docs/json-output.md must name every key `flatcheck reduce --json` prints
-    section = _json_doc_section("reduce")
-    keys = set()
-    for args in [
-        (PLATE, "--uncertainty", "--trials", "300", "--seed", "1", "--units", "in"),
-        (PLATE, "--method", "moody"),
-        (PAD, "--uncertainty", "--trials", "300", "--u-height-um", "0.02", "--units", "in", "--window", "d20"),
-        (SAMPLES / "guideway-KY-G1.toml",),
-        (GRID,),
-    ]:
-        code, out, err = cli("reduce", *args, "--json")
-        assert code == 0, err
-        keys |= _key_names(json.loads(out))
-    missing = sorted(k for k in keys if f"`{k}`" not in section and f"`{k}`" not in section.replace(", `", "`, `"))
-    assert not missing, f"keys of reduce --json missing from docs/json-output.md: {missing}"
-    # the pinned keys are marked as such
-    for k in ("nodes", "minimum_zone_um", "least_squares_um"):
-        assert re.search(rf"`{k}`[^\n]*\*\*pinned\*\*", section), k
-    # the doc says what the code does: peak, valley and RMS are about the least-squares plane
-    assert "`peak_um + valley_um = least_squares_um`" in section
-
-
 def test_summary_names_a_suspect_group_once(cli, tmp_path, monkeypatch):
     # A mis-keyed diagonal reading (17.24 keyed as 71.24) on the single-run Union Jack: the layout cannot tell
     # which diagonal reading is wrong, so the summary names the group once instead of listing 73 readings.
