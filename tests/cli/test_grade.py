@@ -172,8 +172,7 @@ def test_survey_input_uses_surface_size(cli):
     from pathlib import Path
 
     sample = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
-    if not sample.exists():
-        pytest.skip("sample survey not present")
+    assert sample.exists(), "the bundled sample survey is part of the repository"
     obj = _json(cli, "grade", sample, "-s", "din-876", "--grade", "0")
     assert obj["size_source"] == "surface"
     # DIN 876 grade 0 uses the longer side: 4 (1 + L/1000) (REFERENCE.md 4.1)
