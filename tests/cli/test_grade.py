@@ -257,3 +257,20 @@ def test_best_grade_of_a_plate_outside_the_range_is_called_indicative(cli, tmp_p
     assert "AA" in line and "outside" in " ".join(out.split())
     code, out, err = cli("grade", _write_map(tmp_path / "big.csv", lambda x, y: 1e-4 * x), "-s", "asme-b89.3.7")
     assert "indicative" not in out
+
+
+def test_default_trials_shrink_for_large_surveys_but_not_below_ten_thousand(cli):
+    # U is evaluated by default; a dense survey must not make that take minutes (about 8e6 station-trials),
+    # while a plate survey of a few dozen stations keeps 100 000 trials.
+    from flatcheck.cli.grade_cmd import default_grade_trials
+
+    assert default_grade_trials(45) == 100_000
+    assert default_grade_trials(228) == 40_000
+    assert default_grade_trials(874) == 10_000 and default_grade_trials(40_000) == 10_000
+    from pathlib import Path
+
+    plate = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
+    obj = _json(cli, "grade", plate, "-s", "din-876", "--seed", "2")
+    assert "100000 trials" in obj["uncertainty_note"]
+    obj = _json(cli, "grade", plate, "-s", "din-876", "--seed", "2", "--trials", "500")
+    assert "500 trials" in obj["uncertainty_note"]
