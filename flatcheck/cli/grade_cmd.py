@@ -32,7 +32,8 @@ from ..units import MM_PER_INCH, UM_PER_UIN, height_unit_label, um_to
 from ._app import app
 from ..evaluation import survey_uncertainty
 from .common import (
-    DEFAULT_TRIALS,
+    auto_trials_option,
+    default_auto_trials,
     emit_json,
     load_input,
     progress_bar,
@@ -321,18 +322,6 @@ def render_grades(report: dict, units: str) -> None:
         con.print(f"[dim]note:[/dim] {n}")
 
 
-def default_grade_trials(n_stations: int) -> int:
-    """Monte Carlo trials when ``grade`` evaluates U without being asked for a number of trials.
-
-    JCGM 101:2008 asks for enough trials that U is stable to the digits stated; 10^5 trials are cheap for a
-    plate survey of a few dozen stations, but a dense grid of a thousand stations would take the better part
-    of a minute. Each trial costs about in proportion to the stations, so the default keeps roughly the same
-    work (about 8 million station-trials, a few seconds here) and never goes below 10 000 trials, which
-    still give U to about 1-2 % (the note states the number used; ``--trials`` overrides).
-    """
-    return int(min(DEFAULT_TRIALS, max(10_000, round(8e6 / max(int(n_stations), 1), -4))))
-
-
 @app.command("grade")
 def grade_cmd(
     input: Path = typer.Argument(..., help="Survey TOML or height-map CSV (x_mm,y_mm,height_um)."),
@@ -363,11 +352,7 @@ def grade_cmd(
     no_uncertainty: bool = typer.Option(
         False, "--no-uncertainty", help="Do not evaluate U: only a stated U, or simple acceptance, decides."
     ),
-    trials: int = typer.Option(
-        None, "--trials", min=100,
-        help="Monte Carlo trials (JCGM 101); default 100000, fewer for large surveys (about 8 million / stations, "
-        "at least 10000).",
-    ),
+    trials: int | None = auto_trials_option(),
     seed: int = seed_option(),
     u_height_um: float = u_height_option(),
 ) -> None:
@@ -394,7 +379,7 @@ def grade_cmd(
     if monte_carlo or automatic:
         try:
             if trials is None:
-                trials = default_grade_trials(hm.x_mm.size)
+                trials = default_auto_trials(hm.x_mm.size)
             with progress_bar("Monte Carlo", trials) as advance:
                 mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
         except InputValueError as exc:

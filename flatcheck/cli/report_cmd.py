@@ -18,14 +18,15 @@ from ._app import app
 from .grade_cmd import Rule
 from .reduce_cmd import Method
 from .common import (
+    auto_trials_option,
+    default_auto_trials,
     emit_json,
     load_input,
-    refuse_overwriting_inputs,
     progress_bar,
+    refuse_overwriting_inputs,
     seed_option,
     stderr_console,
     stdout_console,
-    trials_option,
     u_height_option,
     Units,
     units_option,
@@ -234,7 +235,7 @@ def report_cmd(
     no_uncertainty: bool = typer.Option(
         False, "--no-uncertainty", help="Leave out the Monte Carlo uncertainty of the flatness (JCGM 101)."),
     seed: int | None = seed_option(),
-    trials: int = trials_option(),
+    trials: int | None = auto_trials_option(),
     u_height_um: float | None = u_height_option(),
     method: Method = typer.Option(Method.least_squares, "--method", help="Survey reduction: least-squares or moody."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
@@ -243,7 +244,7 @@ def report_cmd(
     check_outputs(output, png, standard)
     refuse_overwriting_inputs({"-o": output}, [input, bearing])
     refuse_pictures_over_inputs(png, [input, bearing])
-    if trials < 100:
+    if trials is not None and trials < 100:
         raise InputValueError(f"--trials {trials} is too few", where="--trials", fix="give at least 100, e.g. --trials 20000")
     check_lap_option_values(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm,
                             rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
@@ -257,6 +258,8 @@ def report_cmd(
             lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
             strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm,
         )
+        if trials is None:
+            trials = default_auto_trials(loaded.heightmap.x_mm.size)
         ev, why_not = evaluate_for_report(loaded, window=window, uncertainty=not no_uncertainty, trials=trials,
                                           seed=seed, u_height_um=u_height_um, show_progress=not json_out,
                                           status=status)

@@ -262,11 +262,11 @@ def test_best_grade_of_a_plate_outside_the_range_is_called_indicative(cli, tmp_p
 def test_default_trials_shrink_for_large_surveys_but_not_below_ten_thousand(cli):
     # U is evaluated by default; a dense survey must not make that take minutes (about 8e6 station-trials),
     # while a plate survey of a few dozen stations keeps 100 000 trials.
-    from flatcheck.cli.grade_cmd import default_grade_trials
+    from flatcheck.cli.common import default_auto_trials
 
-    assert default_grade_trials(45) == 100_000
-    assert default_grade_trials(228) == 40_000
-    assert default_grade_trials(874) == 10_000 and default_grade_trials(40_000) == 10_000
+    assert default_auto_trials(45) == 100_000
+    assert default_auto_trials(228) == 40_000
+    assert default_auto_trials(874) == 10_000 and default_auto_trials(40_000) == 10_000
     from pathlib import Path
 
     plate = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
