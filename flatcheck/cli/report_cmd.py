@@ -16,6 +16,7 @@ import typer
 from ..errors import InputValueError, OutputError
 from ._app import app
 from .grade_cmd import Rule
+from .lap_cmd import check_lap_options
 from .reduce_cmd import Method
 from .common import (
     auto_trials_option,
@@ -167,18 +168,12 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
     return content, files
 
 
-def check_lap_option_values(*, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
-                            stroke_mm) -> None:
-    """Refuse bad lap numbers as ``flatcheck lap`` does (its own checks), naming the option, before any work."""
-    from .lap_cmd import check_lap_options
-
-    check_lap_options(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min,
-                      rate_um_per_pass=rate_um_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
-
-
 def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_size_mm, rate_um_per_min,
                          rate_um_per_pass, strokes_per_pass, stroke_mm) -> dict:
     """Target, lap and notes of the lapping page, parsed and checked as ``flatcheck lap`` does (empty: no page).
+
+    The lap's numbers are checked by :func:`~flatcheck.cli.lap_cmd.build_lap`; ``report_cmd`` also
+    checks them before reading the input (:func:`~flatcheck.cli.lap_cmd.check_lap_options`).
 
     Raises
     ------
@@ -188,9 +183,6 @@ def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_si
     """
     lap_given = any(v is not None for v in (lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass,
                                             strokes_per_pass)) or stroke_mm
-    check_lap_option_values(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm,
-                            rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
-                            strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
     if target_um is None and target_grade is None:
         if lap_given:
             raise InputValueError("lap options without a target", where="--target-um/--target-grade",
@@ -244,11 +236,8 @@ def report_cmd(
     check_outputs(output, png, standard)
     refuse_overwriting_inputs({"-o": output}, [input, bearing])
     refuse_pictures_over_inputs(png, [input, bearing])
-    if trials is not None and trials < 100:
-        raise InputValueError(f"--trials {trials} is too few", where="--trials", fix="give at least 100, e.g. --trials 20000")
-    check_lap_option_values(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm,
-                            rate_um_per_min=rate_um_per_min, rate_um_per_pass=rate_um_per_pass,
-                            strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
+    check_lap_options(lap_diameter_mm=lap_diameter_mm, lap_size_mm=lap_size_mm, rate_um_per_min=rate_um_per_min,
+                      rate_um_per_pass=rate_um_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm)
     carriage, fraction, marginal, budget = carriage_from_options(bearing, pad, gap_um)
     with StatusLine(not json_out) as status:
         status.say(f"reading {input.name}")
