@@ -390,7 +390,7 @@ class SurfaceEvaluation:
                         "reading": o.reading, "residual_um": o.residual_um, "w": o.w, "text": o.describe(),
                         # diagnosis: suspect group (1, 2...), 0 = flagged only through a suspect, None = not
                         # diagnosed; readings in the group; w once the suspects are set aside
-                        "group": o.group, "group_size": o.group_size,
+                        "group": o.group, "group_size": o.group_size, "group_lines": list(o.group_lines),
                         "w_after": o.w_after if np.isfinite(o.w_after) else None,
                     }
                     for o in red.outliers

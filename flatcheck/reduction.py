@@ -1208,9 +1208,9 @@ def _obs_sigma(model: _Model, sigma0_um: float) -> tuple[np.ndarray, bool]:
     return sigma0_um / np.sqrt(model.w), False  # Pope: a-posteriori sigma
 
 
-def _standardize(model: _Model, r: np.ndarray, red: np.ndarray, sigma0_um: float) -> np.ndarray:
+def _standardize(model: _Model, r: np.ndarray, red: np.ndarray, sigma0_um: float, sigma: np.ndarray) -> np.ndarray:
+    """``w`` of every observation, ``sigma`` (µm) from :func:`_obs_sigma`; NaN where it cannot be tested."""
     inst = model.survey.instrument
-    sigma, _ = _obs_sigma(model, sigma0_um)
     with np.errstate(invalid="ignore", divide="ignore"):
         w = r / (sigma * np.sqrt(red))
     w[~(red > 1e-8)] = np.nan
@@ -1307,8 +1307,8 @@ def _least_squares(survey: Survey) -> Reduction:
     sigma0_um, sigma0_reading = _sigma0(model, r, dof)
     if dof <= 0:
         warnings.append("the readings have no redundancy, so they cannot be checked: add lines or repeat runs")
-    w_std = _standardize(model, r, red, sigma0_um)
     sigma_um, apriori = _obs_sigma(model, sigma0_um)
+    w_std = _standardize(model, r, red, sigma0_um, sigma_um)
     groups, w_after = _snoop(model, K, r, red, w_std, sigma_um, apriori, dof)
     outliers = _outliers(model, r, w_std, groups, w_after, diagnosed=K is not None)
     warnings += _outlier_warnings(model, outliers, groups, w_std, diagnosed=K is not None)

@@ -214,7 +214,7 @@ def render_reduction(ev, doc, units, map_out) -> None:
                 continue
             shown_groups.add(group)
             if o.get("group_size", 1) > 1:  # the layout cannot tell which: name the group, not one member
-                names = dict.fromkeys(m["line"] for m in res["outliers"] if m.get("group") == group)
+                names = o["group_lines"]
                 lines = ("lines " if len(names) > 1 else "line ") + " and ".join(repr(n) for n in names)
                 text = (f"one of {o['group_size']} readings of {lines} (|w| = {abs(o['w']):.2f}); "
                         "this layout cannot tell which (see the note below)")

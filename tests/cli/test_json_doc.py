@@ -84,6 +84,9 @@ def test_every_json_key_is_documented(cli, command, tmp_path):
 def test_every_reduce_json_key_is_documented(cli, tmp_path):
     # docs/json-output.md must name every key `flatcheck reduce --json` prints
     section = _section("reduce")
+    plate = (SAMPLES / "plate-KY-P3-2024-03-11.toml").read_text(encoding="utf-8")
+    mis_keyed = tmp_path / "mis.toml"
+    mis_keyed.write_text(plate.replace("17.24", "71.24"), encoding="utf-8")
     keys = set()
     for args in [
         (SAMPLES / "plate-KY-P3-2024-03-11.toml", "--uncertainty", "--trials", "300", "--seed", "1", "--units", "in"),
@@ -91,6 +94,7 @@ def test_every_reduce_json_key_is_documented(cli, tmp_path):
         (SAMPLES / "pad-KY-B4-heights.csv", "--uncertainty", "--trials", "300", "--u-height-um", "0.02", "--units", "in", "--window", "d20"),
         (SAMPLES / "guideway-KY-G1.toml",),
         (SAMPLES / "plate-KY-P7-grid.toml",),
+        (mis_keyed,),  # flagged readings, with their diagnosis
     ]:
         code, out, err = cli("reduce", *args, "--json")
         assert code == 0, err
