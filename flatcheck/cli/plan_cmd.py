@@ -94,7 +94,7 @@ def _layout_warnings(survey) -> list[str]:
     import numpy as np
 
     from ..errors import FlatcheckError
-    from ..reduction import network_rank
+    from ..reduction import _article, network_rank
     from ..simulate import simulate_survey
 
     filled = simulate_survey(survey, lambda x, y: np.zeros_like(x))
@@ -115,7 +115,7 @@ def _layout_warnings(survey) -> list[str]:
             fix = "plan a Union Jack (--pattern union-jack)"
         what = "rows and columns" if survey.pattern == "grid" else "this layout"
         out.append(
-            f"{what} read with an {survey.instrument.kind} cannot see {shape}: a surface of that shape "
+            f"{what} read with {_article(survey.instrument.kind)} {survey.instrument.kind} cannot see {shape}: a surface of that shape "
             f"reads like a flat one, and flatcheck reduce will refuse the filled-in survey; {fix}"
         )
     return out
