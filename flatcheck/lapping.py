@@ -35,6 +35,7 @@ import numpy as np
 from .errors import GeometryError, InputValueError
 from .flatness import minimum_zone
 from .heightmap import HeightMap
+from .units import format_height
 
 __all__ = [
     "LeastRemoval",
@@ -853,15 +854,6 @@ class CellChart:
         return [f"{self.columns[a]}{self.rows[b]}" for a, b in zip(np.atleast_1d(i), np.atleast_1d(j))]
 
 
-def _fmt_height(v_um: float, units: str) -> str:
-    """A height for a sentence: µm to the nm, µin to 0.1 µin (about 2.5 nm)."""
-    from .units import height_unit_label, um_to
-
-    return f"{um_to(v_um, units):.3f} {height_unit_label(units)}" if units == "um" else (
-        f"{um_to(v_um, units):.1f} {height_unit_label(units)}"
-    )
-
-
 @dataclass(frozen=True)
 class Shortfall:
     """Why a plan misses its target, split into its causes, with what to change.
@@ -934,7 +926,7 @@ class Shortfall:
         """The shortfall and its remedies in one or two sentences (heights in ``units``: "um" or "in")."""
 
         def h(v):
-            return _fmt_height(v, units)
+            return format_height(v, units)
 
         loss = self.losses_um
         unit = "min" if self.time_unit == "min" else "passes"

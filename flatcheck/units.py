@@ -34,6 +34,7 @@ __all__ = [
     "rise_um",
     "um_to",
     "height_unit_label",
+    "format_height",
 ]
 
 ARCSEC_TO_RAD = math.pi / 648000.0  # exact: pi/(180*3600)
@@ -193,3 +194,14 @@ def um_to(values_um, units: str):
 def height_unit_label(units: str) -> str:
     """Symbol of the height unit for the display system ``"um"`` or ``"in"``."""
     return "µm" if units == "um" else "µin"
+
+
+def format_height(v_um: float, units: str, *, unit: bool = True) -> str:
+    """A height (µm) as displayed: µm to the nm, µin to 0.1 µin (about 2.5 nm), with its unit symbol.
+
+    No more digits in µin than the µm figure carries. ``unit=False`` gives the number alone (table
+    columns that name the unit in their header).
+    """
+    v = um_to(v_um, units)
+    text = f"{v:.3f}" if units == "um" else f"{v:.1f}"
+    return f"{text} {height_unit_label(units)}" if unit else text

@@ -72,3 +72,12 @@ def test_display_units():
     assert um_to(2.0, "um") == 2.0
     with pytest.raises(UnitError):
         um_to(1.0, "ft")
+
+
+def test_format_height_digits_in_each_system():
+    # 1 in = 25.4 mm exactly (international inch, 1959), so 1 µin = 0.0254 µm: 2.54 µm = 100.0 µin
+    from flatcheck.units import format_height
+
+    assert format_height(2.54, "um") == "2.540 µm"
+    assert format_height(2.54, "in") == "100.0 µin"
+    assert format_height(2.54, "in", unit=False) == "100.0"

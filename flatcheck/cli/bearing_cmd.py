@@ -23,7 +23,7 @@ from ..bearing import (
 )
 from ..errors import FlatcheckError, InputValueError
 from ..io.bearing_toml import parse_pad_size, read_bearing_toml
-from ..units import height_unit_label, um_to
+from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
     SAFETY_LINES,
@@ -213,11 +213,9 @@ def _fmt_where(where) -> str:
 def render_summary(result: BearingResult, *, label: str, units: str) -> None:
     """Human summary on standard output (rich)."""
     con = stdout_console()
-    hu = height_unit_label(units)
 
     def h(v):
-        # µm to the nm; µin to 0.1 µin (about 2.5 nm): no more digits than the µm figure carries
-        return f"{um_to(v, units):.3f} {hu}" if units == "um" else f"{um_to(v, units):.1f} {hu}"
+        return format_height(v, units)
 
     colour = {"fit": "green", "marginal": "yellow", "unfit": "red"}[result.verdict]
     pads = result.carriage.active_pads
@@ -555,7 +553,7 @@ def _curve_table(film, *, units: str, orifice: bool) -> Table:
     for i in rows:
         mark = ", ".join(m for m, ok in (("nominal gap", i == nominal), ("peak stiffness", i == peak)) if ok)
         cells = [
-            f"{um_to(float(c.gap_um[i]), units):.3f}" if units == "um" else f"{um_to(float(c.gap_um[i]), units):.1f}",
+            format_height(float(c.gap_um[i]), units, unit=False),
             f"{c.load_n[i]:.1f}", f"{c.stiffness_n_per_um[i]:.2f}", _sig3(c.flow_l_per_min[i]),
             _sig3(c.mass_flow_kg_s[i] * KG_S_TO_MG_S),
         ]
@@ -569,10 +567,9 @@ def _render_film(film, *, units: str) -> None:
     from ..film import OrificeFeed, orifice_notes
 
     con = stdout_console()
-    hu = height_unit_label(units)
 
-    def h(v):  # as the bearing summary: µm to the nm, µin to 0.1 µin
-        return f"{um_to(v, units):.3f} {hu}" if units == "um" else f"{um_to(v, units):.1f} {hu}"
+    def h(v):
+        return format_height(v, units)
 
     c = film.curve
     f = film.feed

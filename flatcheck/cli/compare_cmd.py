@@ -9,10 +9,10 @@ import typer
 from ..errors import InputValueError
 from ..lapping import LapModel
 from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
-from ..units import height_unit_label, um_to
+from ..units import format_height, height_unit_label, um_to
 from ._app import app
 from .common import SAFETY_LINES, emit_json, load_input, refuse_overwriting_inputs, stdout_console, Units, units_option
-from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _h, _parse_size, check_option, check_output, resolve_target
+from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _parse_size, check_option, check_output, resolve_target
 
 
 def cautions(pr: Progress) -> list:
@@ -153,7 +153,7 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
     con = stdout_console()
 
     def h(v):
-        return _h(v, units)
+        return format_height(v, units)
 
     con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
     con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")

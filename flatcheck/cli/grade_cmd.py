@@ -28,7 +28,7 @@ from ..tolerance import (
     tolerance,
     tolerances,
 )
-from ..units import MM_PER_INCH, UM_PER_UIN, height_unit_label, um_to
+from ..units import MM_PER_INCH, UM_PER_UIN, format_height, height_unit_label, um_to
 from ._app import app
 from ..evaluation import survey_uncertainty
 from .common import (
@@ -271,7 +271,7 @@ def render_grades(report: dict, units: str) -> None:
     hu = height_unit_label(units)
 
     def h(v):
-        return "-" if v is None else f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
+        return "-" if v is None else format_height(v, units, unit=False)
 
     title = report["standard_title"] or "custom tolerance"
     con.print(f"[bold]Grading against {title}[/bold]  ({report['input']})")

@@ -12,7 +12,7 @@ from rich.table import Table
 
 from ..errors import InputValueError, OutputError
 from ..lapping import LapModel, LapPlan, least_removal, plan_lapping
-from ..units import height_unit_label, um_to
+from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
     SAFETY_LINES,
@@ -359,14 +359,8 @@ def short_by_hand_line(plan: LapPlan, units: str) -> str:
     return (
         f"! pass{'es' if n > 1 else ''} {orders}: {what}, too short to work evenly by hand; add the time to the "
         f"pass before or skip it (skipping {'all ' + str(n) if n > 1 else 'it'}: predicted "
-        f"{_h(plan.flatness_skipping_short_um, units)} instead of {_h(plan.predicted_flatness_um, units)})"
+        f"{format_height(plan.flatness_skipping_short_um, units)} instead of {format_height(plan.predicted_flatness_um, units)})"
     )
-
-
-def _h(v_um: float, units: str) -> str:
-    """A height with its unit: µm to the nm, µin to 0.1 µin (about 2.5 nm)."""
-    hu = height_unit_label(units)
-    return f"{um_to(v_um, units):.3f} {hu}" if units == "um" else f"{um_to(v_um, units):.1f} {hu}"
 
 
 def _fmt_extent(extent_mm) -> str:
@@ -434,7 +428,7 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
     lr = plan.removal
 
     def h(v):
-        return _h(v, units)
+        return format_height(v, units)
 
     out = [
         f"Lapping plan for {label}",
@@ -476,7 +470,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     hu = height_unit_label(units)
 
     def h(v):
-        return _h(v, units)
+        return format_height(v, units)
 
     con.print(f"[bold]Lapping plan[/bold] for {label}")
     con.print(f"Target flatness {h(lr.target_um)} ({target_source}); minimum zone now {h(lr.flatness_before_um)}")
@@ -500,7 +494,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         table.add_row(
             str(p.order), p.zone, f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
             _fmt_extent(p.extent_mm),
-            _h(p.depth_um, units).split()[0], t,
+            format_height(p.depth_um, units, unit=False), t,
         )
     if plan.passes:
         con.print(table)

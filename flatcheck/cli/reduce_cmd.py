@@ -12,7 +12,7 @@ from rich.table import Table
 
 from ..evaluation import evaluate_surface
 from ..io.heightmap_csv import write_heightmap_csv
-from ..units import MM_PER_INCH, height_unit_label, um_to
+from ..units import MM_PER_INCH, format_height, height_unit_label, um_to
 from ._app import app
 from .common import (
     emit_json,
@@ -104,7 +104,7 @@ def _fmt(v, units):
     """A height (µm) in the display unit: 3 decimals of µm or 1 of µin; '-' when there is none."""
     if not _finite(v):
         return "-"
-    text = f"{um_to(v, units):.3f}" if units == "um" else f"{um_to(v, units):.1f}"
+    text = format_height(v, units, unit=False)
     # a tiny negative number rounds to "-0.000": no sign on a zero
     return text[1:] if text.startswith("-") and float(text) == 0 else text
 
