@@ -9,7 +9,7 @@ import typer
 from ..errors import InputValueError
 from ..lapping import LapModel
 from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
-from ..units import format_height, height_unit_label, um_to
+from ..units import format_height, height_unit_label
 from ._app import app
 from .common import SAFETY_LINES, emit_json, load_input, refuse_overwriting_inputs, stdout_console, Units, units_option
 from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _parse_size, check_option, check_output, resolve_target
@@ -80,31 +80,35 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
 _MAX_GRID_ROWS = 30
 
 
-def change_grid_text(pr: Progress, units: str, width: int) -> str | None:
+def _change_grid(pr: Progress):
+    """The matched nodes as a regular grid ``(xs, ys, index)`` (see :attr:`HeightMap.grid`), or None."""
+    from ..heightmap import HeightMap
+
+    return HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
+
+
+def change_grid_text(pr: Progress, units: str, width: int, grid=None) -> str | None:
     """The change on a grid of nodes as plain text rows (north at the top), or None if it does not fit.
 
     The values are after minus before referred to the plane of the least removal, so untouched areas read
     about 0 and lapped areas are negative. None when the nodes are not a complete regular grid, or the grid
-    is wider than ``width`` characters or longer than ``_MAX_GRID_ROWS`` rows.
+    is wider than ``width`` characters or longer than ``_MAX_GRID_ROWS`` rows. ``grid`` is
+    :func:`_change_grid` of ``pr`` when the caller has it already.
     """
-    from ..heightmap import HeightMap
-
-    grid = HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
+    grid = _change_grid(pr) if grid is None else grid
     if grid is None:
         return None
     xs, ys, index = grid
     if ys.size > _MAX_GRID_ROWS:
         return None
-    vals = um_to(pr.change_referred_um, units)
-    fmt = "{:.3f}" if units == "um" else "{:.1f}"
 
-    def cell(v):
-        s = fmt.format(v)
+    def cell(v_um):
+        s = format_height(v_um, units, unit=False)
         return "0" if float(s) == 0 else s  # no "-0.000"
 
     ylab = [f"{y:g}" for y in ys]
     yw = max(4, max(len(v) for v in ylab))
-    cw = 1 + max(max(len(cell(v)) for v in vals), max(len(f"{x:g}") for x in xs))
+    cw = 1 + max(max(len(cell(v)) for v in pr.change_referred_um), max(len(f"{x:g}") for x in xs))
     if yw + 1 + xs.size * cw > width:
         return None
     hu = height_unit_label(units)
@@ -113,16 +117,16 @@ def change_grid_text(pr: Progress, units: str, width: int) -> str | None:
         f"{'y mm':>{yw}} " + "".join(f"{x:>{cw}g}" for x in xs),
     ]
     for j in range(ys.size - 1, -1, -1):
-        lines.append(f"{ylab[j]:>{yw}} " + "".join(f"{cell(vals[i]):>{cw}}" for i in index[j]))
+        lines.append(f"{ylab[j]:>{yw}} " + "".join(f"{cell(pr.change_referred_um[i]):>{cw}}" for i in index[j]))
     return "\n".join(lines)
 
 
-def _why_no_grid(pr: Progress, width: int) -> str:
-    from ..heightmap import HeightMap
-
-    grid = HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
+def _why_no_grid(grid, width: int) -> str:
+    """Why the change map is not printed as a grid (``grid`` from :func:`_change_grid`)."""
     if grid is None:
         return "are not a regular grid"
+    if grid[1].size > _MAX_GRID_ROWS:
+        return f"make a {grid[0].size} x {grid[1].size} grid, more rows than the summary prints ({_MAX_GRID_ROWS})"
     return f"make a {grid[0].size} x {grid[1].size} grid, too large for this terminal ({width} columns)"
 
 
@@ -158,16 +162,17 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
     con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
     con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")
     con.print(f"Removed {pr.removed_volume_mm3:.4g} mm^3, deepest {h(pr.max_removed_um)}")
-    grid = change_grid_text(pr, units, con.width)
-    if grid is not None:
-        con.print(grid, markup=False)
+    grid = _change_grid(pr)
+    text = change_grid_text(pr, units, con.width, grid)
+    if text is not None:
+        con.print(text, markup=False)
     else:
         deepest = int(pr.removed_um.argmax())
         where = (
             f"; the most came off at ({pr.x_mm[deepest]:g}, {pr.y_mm[deepest]:g}) mm" if pr.max_removed_um > 0 else ""
         )
         con.print(
-            f"Change map: the {pr.x_mm.size} nodes {_why_no_grid(pr, con.width)}{where}; "
+            f"Change map: the {pr.x_mm.size} nodes {_why_no_grid(grid, con.width)}{where}; "
             "the change at every node is in --json, a picture with --plot FILE.png",
             markup=False,
         )
