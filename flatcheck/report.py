@@ -521,9 +521,9 @@ def _size_text(length_mm, width_mm, units: str = "um") -> str:
 
 def _inches(v_mm: float) -> str:
     """A length in inches to 0.01 in (1 in = 25.4 mm exactly), without the unit."""
-    from .units import MM_PER_INCH
+    from .units import format_length
 
-    return f"{v_mm / MM_PER_INCH:.2f}"
+    return format_length(v_mm, "in", unit=False)
 
 
 def _identity_rows(hm, survey, reduction, units: str = "um"):
@@ -730,22 +730,22 @@ def _frame(fig, content, title, page, pages):
 
 
 def _h(v_um, units):
-    from .units import UM_PER_UIN
+    from .units import format_height
 
-    if units == "in":
-        return f"{v_um / UM_PER_UIN:.1f} µin"
-    return f"{v_um:.3f} µm"
+    return format_height(v_um, units)
 
 
 def _pos(v_mm, units):
-    if units == "in":
-        return f"{_inches(v_mm)} in"
-    return f"{v_mm:.0f} mm"
+    from .units import format_length
+
+    return format_length(v_mm, units)
 
 
 def _num(v_mm, units) -> str:
     """A position without its unit (the column heading names it): whole mm, or inches to 0.01."""
-    return _inches(v_mm) if units == "in" else f"{v_mm:.0f}"
+    from .units import format_length
+
+    return format_length(v_mm, units, unit=False)
 
 
 def _window_text(win, units) -> str:

@@ -35,6 +35,7 @@ __all__ = [
     "um_to",
     "height_unit_label",
     "format_height",
+    "format_length",
 ]
 
 ARCSEC_TO_RAD = math.pi / 648000.0  # exact: pi/(180*3600)
@@ -205,3 +206,16 @@ def format_height(v_um: float, units: str, *, unit: bool = True) -> str:
     v = um_to(v_um, units)
     text = f"{v:.3f}" if units == "um" else f"{v:.1f}"
     return f"{text} {height_unit_label(units)}" if unit else text
+
+
+def format_length(v_mm: float, units: str, *, unit: bool = True) -> str:
+    """A position or size (mm) as displayed: whole mm, or inches to 0.01 in (1 in = 25.4 mm exactly).
+
+    ``units`` is the display system (``"um"``: lengths in mm; ``"in"``: inches). ``unit=False`` gives the
+    number alone.
+    """
+    if units == "in":
+        text, symbol = f"{v_mm / MM_PER_INCH:.2f}", "in"
+    else:
+        text, symbol = f"{v_mm:.0f}", "mm"
+    return f"{text} {symbol}" if unit else text

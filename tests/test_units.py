@@ -81,3 +81,12 @@ def test_format_height_digits_in_each_system():
     assert format_height(2.54, "um") == "2.540 µm"
     assert format_height(2.54, "in") == "100.0 µin"
     assert format_height(2.54, "in", unit=False) == "100.0"
+
+
+def test_format_length_in_each_system():
+    # 1 in = 25.4 mm exactly (international inch, 1959): 254 mm = 10.00 in
+    from flatcheck.units import format_length
+
+    assert format_length(254.0, "um") == "254 mm"
+    assert format_length(254.0, "in") == "10.00 in"
+    assert format_length(254.0, "in", unit=False) == "10.00"

@@ -12,7 +12,7 @@ from rich.table import Table
 
 from ..evaluation import evaluate_surface
 from ..io.heightmap_csv import write_heightmap_csv
-from ..units import MM_PER_INCH, format_height, height_unit_label, um_to
+from ..units import MM_PER_INCH, format_height, format_length, height_unit_label, um_to
 from ._app import app
 from .common import (
     emit_json,
@@ -109,13 +109,6 @@ def _fmt(v, units):
     return text[1:] if text.startswith("-") and float(text) == 0 else text
 
 
-def _pos(v_mm: float, units: str, *, unit: bool = True) -> str:
-    """A position (mm) in the display unit: whole mm, or inches to 0.01 in (1 in = 25.4 mm exactly)."""
-    if units == "in":
-        return f"{v_mm / MM_PER_INCH:.2f}" + (" in" if unit else "")
-    return f"{v_mm:.0f}" + (" mm" if unit else "")
-
-
 def _window_text(lf: dict, units: str) -> str:
     """The local-flatness window in the display unit (the option takes mm)."""
     if units != "in":
@@ -181,7 +174,7 @@ def render_reduction(ev, doc, units, map_out) -> None:
     if lf:
         con.print(
             f"  local flatness over {_window_text(lf, units)}: {_fmt(lf['max_um'], units)} {hu} at "
-            f"x = {_pos(lf['x_mm'], units)}, y = {_pos(lf['y_mm'], units)}"
+            f"x = {format_length(lf['x_mm'], units)}, y = {format_length(lf['y_mm'], units)}"
         )
     res = doc.get("residuals")
     if res:
@@ -239,8 +232,8 @@ def _render_map(con, ev, units) -> None:
         cells = [[_fmt(z, units) for z in Z[j]] for j in range(ys.size - 1, -1, -1)]
         lu = "in" if units == "in" else "mm"
         if units == "in":
-            ylab = [_pos(y, units, unit=False) for y in ys[::-1]]
-            xlab = [_pos(x, units, unit=False) for x in xs]
+            ylab = [format_length(y, units, unit=False) for y in ys[::-1]]
+            xlab = [format_length(x, units, unit=False) for x in xs]
         else:
             ylab = [f"{y:g}" for y in ys[::-1]]
             xlab = [f"{x:g}" for x in xs]
@@ -272,7 +265,7 @@ def _render_map(con, ev, units) -> None:
             t.add_column("y in" if units == "in" else "y mm", justify="right")
             t.add_column(hu, justify="right")
         cells = [
-            (n, _pos(x, units, unit=False), _pos(y, units, unit=False), _fmt(z, units))
+            (n, format_length(x, units, unit=False), format_length(y, units, unit=False), _fmt(z, units))
             for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
         ]
         half = (len(cells) + 1) // 2
