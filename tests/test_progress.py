@@ -83,20 +83,26 @@ def test_relative_plane_is_removed(a, b, c):
     assert coef == pytest.approx(np.zeros(3), abs=1e-9)
 
 
-def test_sessions_to_target_hand_calculation():
-    # 3 x 3 grid, centre 1 µm high (REFERENCE section 10 item 8 surface). The session lowers the centre by
-    # 0.2 µm, leaving 0.8 µm; reaching 0.3 µm needs 0.5 µm more at the centre: ceil(0.5 / 0.2) = 3 sessions.
+def _centre_bump_lapped():
+    """3 x 3 grid at 100 mm, centre 1 µm high before and 0.8 µm after one session (the rest untouched)."""
     x, y = np.meshgrid([0.0, 100.0, 200.0], [0.0, 100.0, 200.0])
     x, y = x.ravel(), y.ravel()
     zb = np.zeros(9)
     zb[4] = 1.0
     za = zb.copy()
     za[4] = 0.8
-    pr = compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.3)
+    return HeightMap(x, y, zb), HeightMap(x, y, za)
+
+
+def test_sessions_to_target_hand_calculation():
+    # 3 x 3 grid, centre 1 µm high (REFERENCE section 10 item 8 surface). The session lowers the centre by
+    # 0.2 µm, leaving 0.8 µm; reaching 0.3 µm needs 0.5 µm more at the centre: ceil(0.5 / 0.2) = 3 sessions.
+    before, after = _centre_bump_lapped()
+    pr = compare_surveys(before, after, target_um=0.3)
     assert pr.removed_um[4] == pytest.approx(0.2)
     assert pr.flatness_before_um == pytest.approx(1.0) and pr.flatness_after_um == pytest.approx(0.8)
     assert pr.sessions_to_target == 3
-    assert compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.9).sessions_to_target == 0
+    assert compare_surveys(before, after, target_um=0.9).sessions_to_target == 0
 
 
 def test_unmatched_node_is_named(rng):
@@ -129,16 +135,11 @@ def test_sessions_left_are_stated_unrounded_with_minutes():
     # Hand calculation on the 3 x 3 grid above: the session lowers the centre 1 -> 0.8 µm in 10 min. A target of
     # 0.79 µm needs 0.01 µm more at the centre: 0.01 / 0.2 = 1/20 of the session (not "1 more session"), and at
     # the session's volume rate 10 min x 1/20 = 0.5 min (volume ratio = depth ratio: the same single node).
-    x, y = np.meshgrid([0.0, 100.0, 200.0], [0.0, 100.0, 200.0])
-    x, y = x.ravel(), y.ravel()
-    zb = np.zeros(9)
-    zb[4] = 1.0
-    za = zb.copy()
-    za[4] = 0.8
-    pr = compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.79, dwell_min=10.0)
+    before, after = _centre_bump_lapped()
+    pr = compare_surveys(before, after, target_um=0.79, dwell_min=10.0)
     assert pr.sessions_fraction == pytest.approx(0.05, rel=1e-6)
     assert pr.minutes_to_target == pytest.approx(0.5, rel=1e-6)
     assert pr.sessions_to_target == 1  # the rounded-up figure is kept for scripts
-    met = compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.9, dwell_min=10.0)
+    met = compare_surveys(before, after, target_um=0.9, dwell_min=10.0)
     assert met.sessions_fraction == 0.0 and met.minutes_to_target == 0.0
-    assert compare_surveys(HeightMap(x, y, zb), HeightMap(x, y, za), target_um=0.79).minutes_to_target is None
+    assert compare_surveys(before, after, target_um=0.79).minutes_to_target is None
