@@ -15,13 +15,13 @@ import numpy as np
 import pytest
 
 from flatcheck.errors import InputValueError
-from flatcheck.evaluation import LoadedInput, evaluate_surface, survey_uncertainty
-from flatcheck.io.survey_toml import read_survey
-from flatcheck.flatness import minimum_zone
-from flatcheck.layout import plan_grid, plan_union_jack
-from flatcheck.reduction import reduce_survey
-from flatcheck.simulate import simulate_survey
-from flatcheck.survey import Instrument, observations
+from flatcheck.evaluation import MeasuredSurface, evaluate_surface, survey_uncertainty
+from flatcheck.io._survey_toml import read_survey
+from flatcheck.form._planes import minimum_zone
+from flatcheck.survey._planning import plan_grid, plan_union_jack
+from flatcheck.survey._reduce import reduce_survey
+from flatcheck.survey._simulate import simulate_survey
+from flatcheck.survey._model import Instrument, observations
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
 
@@ -37,7 +37,7 @@ def dome_um(x, y):
 
 def loaded(survey, method="least-squares"):
     red = reduce_survey(survey, method=method)
-    return LoadedInput("test.toml", red.heightmap, survey, red)
+    return MeasuredSurface("test.toml", red.heightmap, survey, red)
 
 
 def small_dof_plan():
@@ -214,7 +214,7 @@ def test_outliers_in_the_json_carry_their_diagnosis():
 
 def test_auto_window_that_does_not_fit_is_explained_in_the_evaluation():
     # Every command that evaluates a surface (reduce, report, demo) gets the reason with the result.
-    from flatcheck.cli.common import load_input
+    from flatcheck import open_surface as load_input
 
     guide = Path(__file__).resolve().parents[1] / "sample_readings" / "guideway-KY-G1.toml"
     ev = evaluate_surface(load_input(guide), window="auto")

@@ -11,9 +11,9 @@ from scipy.optimize import linprog, nnls
 from scipy.spatial import ConvexHull
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.flatness import minimum_zone
-from flatcheck.heightmap import HeightMap
-from flatcheck.lapping import (
+from flatcheck.form._planes import minimum_zone
+from flatcheck.form._heightmap import HeightMap
+from flatcheck.lapping._plan import (
     LapModel,
     cell_column_name,
     deconvolve_dwell,
@@ -247,7 +247,7 @@ def test_deconvolution_recovers_known_2d_dwell_and_matches_numpy_convolution(rng
 def test_large_solver_agrees_with_scipy_nnls(rng):
     # 21 x 21 = 441 nodes takes the projected-gradient path; reference: scipy.optimize.nnls on the
     # same stacked (Tikhonov) system
-    from flatcheck.lapping import _conv_matrix
+    from flatcheck.lapping._plan import _conv_matrix
 
     k = lap_kernel(LapModel(diameter_mm=50.0), 10.0, 10.0)
     yy, xx = np.mgrid[0:21, 0:21]
@@ -424,7 +424,7 @@ def test_gradient_penalty_matches_scipy_nnls(rng):
     yy, xx = np.mgrid[0:12, 0:14]
     r = np.maximum(0.0, 2 * np.exp(-((xx - 6) ** 2 + (yy - 5) ** 2) / 10.0) - 0.3) + rng.normal(0, 0.02, xx.shape)
     r = np.maximum(r, 0)
-    from flatcheck.lapping import _conv_matrix
+    from flatcheck.lapping._plan import _conv_matrix
 
     mu = 0.3 * np.sqrt((k**2).sum())
     A = _conv_matrix(r.shape, k).toarray()
@@ -445,7 +445,7 @@ def test_gradient_penalty_matches_scipy_nnls(rng):
     r2 = np.maximum(0.0, 2 * np.exp(-((xx - 8) ** 2 + (yy - 12) ** 2) / 20.0) - 0.4)
     t2 = deconvolve_dwell(r2, k, smoothness=0.3)
     A2 = _conv_matrix(r2.shape, k)
-    from flatcheck.lapping import _difference_matrix
+    from flatcheck.lapping._plan import _difference_matrix
 
     D2 = _difference_matrix(r2.shape)
     t2_ref, _ = nnls(np.vstack([A2.toarray(), mu * D2.toarray()]), np.r_[r2.ravel(), np.zeros(D2.shape[0])],
@@ -520,7 +520,7 @@ def test_chart_cells_are_the_stated_size_from_the_corner(rng, cell, xe, ye):
 def test_interpolation_matrix_matches_scipy(rng):
     from scipy.interpolate import RegularGridInterpolator
 
-    from flatcheck.lapping import grid_interpolation_matrix
+    from flatcheck.lapping._plan import grid_interpolation_matrix
 
     xs, ys = np.array([0.0, 10.0, 25.0, 40.0]), np.array([5.0, 15.0, 35.0])
     v = rng.normal(size=(3, 4))
@@ -532,7 +532,7 @@ def test_interpolation_matrix_matches_scipy(rng):
 
 def test_points_in_the_fit_match_scipy_nnls(rng):
     # reference: scipy.optimize.nnls on the stacked system [A; w P A] written out densely
-    from flatcheck.lapping import _conv_matrix, grid_interpolation_matrix
+    from flatcheck.lapping._plan import _conv_matrix, grid_interpolation_matrix
 
     k = lap_kernel(LapModel(diameter_mm=40.0), 10.0, 10.0)
     yy, xx = np.mgrid[0:9, 0:11]
@@ -555,9 +555,9 @@ def test_finer_dwell_grid_is_not_worse_unrounded():
     # stay within the surveyed extent; on the survey's grid they wander half a pitch beyond it).
     from pathlib import Path
 
-    from flatcheck.cli.common import load_surface
+    from flatcheck import open_surface
 
-    hm, _ = load_surface(Path(__file__).resolve().parents[1] / "sample_readings" / "guideway-KY-G1.toml")
+    hm = open_surface(Path(__file__).resolve().parents[1] / "sample_readings" / "guideway-KY-G1.toml").heightmap
     lr = least_removal(hm, 2.0)
     lap = LapModel("round", diameter_mm=80.0)
     own = plan_lapping(hm, lr, lap, smoothness=0.0)
@@ -573,10 +573,10 @@ def test_passes_under_ten_seconds_are_flagged_with_the_cost_of_skipping_them():
     # without a word. 10 s is this module's limit (common practice, no single source).
     from pathlib import Path
 
-    from flatcheck.cli.common import load_surface
-    from flatcheck.lapping import HAND_MIN_PASS_MIN
+    from flatcheck import open_surface
+    from flatcheck.lapping._plan import HAND_MIN_PASS_MIN
 
-    hm, _ = load_surface(Path(__file__).resolve().parents[1] / "sample_readings" / "pad-KY-B4-heights.csv")
+    hm = open_surface(Path(__file__).resolve().parents[1] / "sample_readings" / "pad-KY-B4-heights.csv").heightmap
     plan = plan_lapping(hm, least_removal(hm, 0.2), LapModel("round", diameter_mm=20.0))
     assert HAND_MIN_PASS_MIN == pytest.approx(10.0 / 60.0)
     short = [p.order for p in plan.passes if p.time * 60.0 < 10.0]

@@ -14,16 +14,16 @@ import pytest
 from matplotlib.image import imread
 from scipy.optimize import linprog, minimize_scalar
 
-from flatcheck import report
-from flatcheck.bearing import Carriage, Pad
+from flatcheck.output import _report as report
+from flatcheck.bearing._pads import Carriage, Pad
 from flatcheck.errors import InputValueError, OutputError
-from flatcheck.evaluation import LoadedInput, evaluate_surface
-from flatcheck.heightmap import HeightMap
-from flatcheck.io.survey_toml import read_survey
-from flatcheck.lapping import LapModel
-from flatcheck.reduction import reduce_survey
+from flatcheck.evaluation import MeasuredSurface, evaluate_surface
+from flatcheck.form._heightmap import HeightMap
+from flatcheck.io._survey_toml import read_survey
+from flatcheck.lapping._plan import LapModel
+from flatcheck.survey._reduce import reduce_survey
 
-SAMPLE = Path(report.__file__).parent / "data" / "plate-KY-P3-2024-03-11.toml"
+SAMPLE = Path(report.__file__).parents[1] / "data" / "plate-KY-P3-2024-03-11.toml"
 
 
 def _tool(name):
@@ -45,7 +45,7 @@ def _text(pdf: Path) -> str:
 
 def _page_text(draw, content, units):
     """Every text one page of the report draws (one figure, no PDF), joined into one string."""
-    from flatcheck import plot
+    from flatcheck.output import _plots as plot
 
     fig = plot.new_figure()
     draw(fig, content, units)
@@ -64,11 +64,11 @@ def _mz_reference(x, y, z):
 def _loaded(path=SAMPLE):
     survey = read_survey(path)
     red = reduce_survey(survey)
-    return LoadedInput(str(path), red.heightmap, survey, red)
+    return MeasuredSurface(str(path), red.heightmap, survey, red)
 
 
 def _map_report(hm, **kw):
-    return report.analyse(evaluate_surface(LoadedInput("map.csv", hm), window="none"), **kw)
+    return report.analyse(evaluate_surface(MeasuredSurface("map.csv", hm), window="none"), **kw)
 
 
 @pytest.fixture(scope="module")
@@ -203,7 +203,7 @@ def test_local_flatness_page_states_the_worst_window_checked_by_linear_programs(
     x, y = np.meshgrid(np.arange(0.0, 601.0, 50.0), np.arange(0.0, 401.0, 50.0))
     z = rng.normal(0.0, 0.5, x.shape)
     hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="bumpy map")
-    content = report.analyse(evaluate_surface(LoadedInput("m.csv", hm), window="200x200"))
+    content = report.analyse(evaluate_surface(MeasuredSurface("m.csv", hm), window="200x200"))
     best, where = -1.0, None
     for cx in np.arange(100.0, 501.0, 50.0):
         for cy in np.arange(100.0, 301.0, 50.0):
@@ -261,7 +261,7 @@ def test_write_report_refuses_a_missing_picture_folder_and_keeps_the_old_pdf(tmp
 def test_map_page_x_label_clear_of_the_3d_title(size_mm):
     # A square pad's map reached down so far that its x label ran into the 3-D view's title.
     # Checked on the drawn extents (matplotlib's renderer), for a square, a plate and a guideway.
-    from flatcheck import plot
+    from flatcheck.output import _plots as plot
 
     L, W = size_mm
     x, y = np.meshgrid(np.linspace(0, L, 9), np.linspace(0, W, 9))
@@ -288,7 +288,7 @@ SAMPLES = Path(__file__).resolve().parents[1] / "sample_readings"
 
 def _sample_content(name):
     """Report content of a sample as the audit's commands make it (no Monte Carlo, to stay quick)."""
-    from flatcheck.cli.common import load_input
+    from flatcheck import open_surface as load_input
     from flatcheck.cli.report_cmd import carriage_from_options, lapping_from_options
 
     lap_none = dict(target_um=None, target_grade=None, lap_diameter_mm=None, lap_size_mm=None, rate_um_per_min=None,
@@ -342,7 +342,7 @@ def _drawn_texts(fig):
 
 
 def _draw_page(content, units, k):
-    from flatcheck import plot
+    from flatcheck.output import _plots as plot
 
     plan = report._page_plan(content)
     title, draw = plan[k]

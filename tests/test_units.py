@@ -6,14 +6,7 @@ import numpy as np
 import pytest
 
 from flatcheck.errors import UnitError
-from flatcheck.units import (
-    ARCSEC_TO_RAD,
-    UM_PER_UIN,
-    angle_unit,
-    length_unit,
-    rise_um,
-    um_to,
-)
+from flatcheck.units import ARCSEC_TO_RAD, UM_PER_UIN, angle_unit, length_unit, rise_um, um_to
 
 
 def test_arcsec_definition():

@@ -23,7 +23,6 @@ __all__ = [
     "emit_json",
     "jsonable",
     "progress_bar",
-    "load_surface",
     "load_input",
     "refuse_overwriting_inputs",
     "window_option",
@@ -131,66 +130,29 @@ def progress_bar(description: str, total: int, *, enabled: bool = True):
             prog.stop()
 
 
-def load_surface(path: Path, *, method: str = "least-squares"):
-    """Load an input file as a height map (a height-map CSV, or a TOML survey reduced with ``method``).
-
-    The kind of file is found as :func:`load_input` finds it.
-
-    Returns
-    -------
-    (HeightMap, Reduction or None)
-        The surface and, for surveys, the full reduction result.
-    """
-    loaded = load_input(path, method=method)
-    return loaded.heightmap, loaded.reduction
-
-
 #: Library wording -> the command line's, in the fixes of errors raised by the core.
 _CLI_WORDS = {"method 'least-squares'": "--method least-squares", "method 'moody'": "--method moody"}
 
 
-def _reduce_named(path: Path, survey, method: str):
-    """Reduce ``survey``; an error from the core is re-raised naming the file (and the option of its fix).
+def load_input(path: Path, *, method: str = "least-squares"):
+    """Open a surface file with :func:`flatcheck.open_surface`, its fixes in the command line's words.
 
-    The reduction (flatcheck.reduction, flatcheck.moody) knows the survey, not the file it came
-    from; docs/survey-format.md promises the file in every message, so it is added here.
+    Returns
+    -------
+    flatcheck.MeasuredSurface
     """
     from ..errors import FlatcheckError
-    from ..io.survey_toml import require_readings
-    from ..reduction import reduce_survey
+    from ..io import open_surface
 
-    require_readings(survey)  # an unread line, with its TOML line number
     try:
-        return reduce_survey(survey, method=method)
+        return open_surface(path, method=method)
     except FlatcheckError as exc:
-        where = exc.where or ""
-        name = str(path)
-        if name not in where:
-            where = f"{name}, {where}" if where else name
         fix = exc.fix
-        for lib, cli in _CLI_WORDS.items():
-            fix = fix.replace(lib, cli) if fix else fix
-        raise type(exc)(exc.message, where=where, fix=fix) from None
-
-
-def load_input(path: Path, *, method: str = "least-squares"):
-    """Load an input file as a :class:`flatcheck.evaluation.LoadedInput`.
-
-    A file whose first line (after comments) is the header ``x_mm,y_mm,height_um``, or
-    whose name ends in ``.csv``, is read as a height map, whatever its name (pad.dat);
-    anything else as a TOML survey, reduced with ``method``. Every error names the file.
-    """
-    from ..evaluation import LoadedInput
-    from ..io.heightmap_csv import is_heightmap_csv, read_heightmap_csv
-
-    path = Path(path)
-    if path.suffix.lower() == ".csv" or is_heightmap_csv(path):
-        return LoadedInput(str(path), read_heightmap_csv(path))
-    from ..io.survey_toml import read_survey
-
-    survey = read_survey(path)
-    red = _reduce_named(path, survey, method)
-    return LoadedInput(str(path), red.heightmap, survey, red)
+        if fix and any(lib in fix for lib in _CLI_WORDS):
+            for lib, cli in _CLI_WORDS.items():
+                fix = fix.replace(lib, cli)
+            raise type(exc)(exc.message, where=exc.where, fix=fix) from None
+        raise
 
 
 def _same_file(a: Path, b: Path) -> bool:

@@ -7,12 +7,27 @@ from pathlib import Path
 import typer
 
 from ..errors import InputValueError
-from ..lapping import LapModel
-from ..progress import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
+from ..lapping._plan import LapModel
+from ..lapping._sessions import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
 from ..units import format_height, height_unit_label
 from ._app import app
-from .common import SAFETY_LINES, emit_json, load_input, refuse_overwriting_inputs, stdout_console, Units, units_option
-from .lap_cmd import GAP_FRACTION_HELP, TARGET_GAP_HELP, _parse_size, check_option, check_output, resolve_target
+from .common import (
+    SAFETY_LINES,
+    emit_json,
+    load_input,
+    refuse_overwriting_inputs,
+    stdout_console,
+    Units,
+    units_option,
+)
+from .lap_cmd import (
+    GAP_FRACTION_HELP,
+    TARGET_GAP_HELP,
+    _parse_size,
+    check_option,
+    check_output,
+    resolve_target,
+)
 
 
 def cautions(pr: Progress) -> list:
@@ -82,7 +97,7 @@ _MAX_GRID_ROWS = 30
 
 def _change_grid(pr: Progress):
     """The matched nodes as a regular grid ``(xs, ys, index)`` (see :attr:`HeightMap.grid`), or None."""
-    from ..heightmap import HeightMap
+    from ..form._heightmap import HeightMap
 
     return HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
 
@@ -285,7 +300,7 @@ def compare_cmd(
         lap = LapModel("round", diameter_mm=lap_diameter_mm)
     dlog = None
     if log is not None:
-        from ..io.lap_log import read_lap_log
+        from ..io._lap_log import read_lap_log
 
         dlog = read_lap_log(log)
         if lap is None:
@@ -295,7 +310,7 @@ def compare_cmd(
         target, source = resolve_target(hb, target_um, target_grade, target_gap_um, gap_fraction)
     pr = compare_surveys(hb, ha, tol_mm=match_tol_mm, dwell_min=dwell_min, lap=lap, log=dlog, target_um=target)
     if plot_out is not None:
-        from .. import plot
+        from ..output import _plots as plot
 
         axes = plot.compare_change_map(None, pr.x_mm, pr.y_mm, hb.height_um, ha.height_um[idx], pr.removed_um,
                                        units=units.value, length_mm=hb.length_mm, width_mm=hb.width_mm)

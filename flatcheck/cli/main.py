@@ -22,14 +22,19 @@ from ._app import app
 
 # Each command module registers its commands on `app` when imported (one line per module);
 # the order here is the order of `flatcheck --help`, the order of the work at the bench.
-from . import (  # noqa: F401,E402
+from . import (
     plan_cmd,
+    enter_cmd,
     reduce_cmd,
     grade_cmd,
     bearing_cmd,
+    guideway_cmd,
     lap_cmd,
     compare_cmd,
     report_cmd,
+    register_cmd,
+    fringes_cmd,
+    sphere_cmd,
     demo_cmd,
     info_cmd,
 )

@@ -91,7 +91,7 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
     if png is not None and not png.is_dir():
         raise OutputError(f"{png} is not an existing folder", where="--png", fix="create the folder first")
     if standard is not None:
-        from ..tolerance import get_standard
+        from ..conformance._tolerance import get_standard
 
         get_standard(standard)  # an unknown name fails here
 
@@ -125,7 +125,7 @@ def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, 
     A height map without ``u_height_um`` has none. A survey with nothing to propagate (no stated
     reading uncertainty and no redundancy) is reported without one, and the report says why.
     """
-    from ..evaluation import evaluate_surface, parse_window
+    from ..evaluation._evaluate import evaluate_surface, parse_window
 
     if str(window).strip().lower() != "auto":
         parse_window(window)  # a bad window fails here, so the only input error below is the uncertainty's
@@ -154,12 +154,12 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
     The steps between the Monte Carlo bar and the page bar (grades, the air bearing, the lapping plan,
     loading the plotting library) are named on a status line as they run.
     """
-    from ..report import analyse, page_titles, write_report
+    from ..output._report import analyse, page_titles, write_report
 
     with StatusLine(show_progress) as status:
         content = analyse(evaluation, progress=status.say, **analysis)
         status.say("loading the plotting library")
-        from .. import plot  # noqa: F401  (the first import takes a second or so: say so)
+        from ..output import _plots as plot  # noqa: F401  (the first import takes a second or so: say so)
 
         status.say("laying out the pages")
         n = len(page_titles(content))
@@ -268,7 +268,7 @@ def report_cmd(
 
 def report_json(content, files, input_path) -> dict:
     """The JSON object of ``flatcheck report --json`` (heights µm, positions mm)."""
-    from ..report import uncertainty_text
+    from ..output._report import uncertainty_text
 
     unc = content.uncertainty
     lf = content.local

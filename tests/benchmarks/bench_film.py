@@ -16,7 +16,13 @@ import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from flatcheck.film import PorousFeed, circular_pad_mesh, film_along_travel, pad_deviation, rectangular_pad_mesh
+from flatcheck.bearing._film import (
+    PorousFeed,
+    circular_pad_mesh,
+    film_along_travel,
+    pad_deviation,
+    rectangular_pad_mesh,
+)
 
 N_POS = 200
 FEED = PorousFeed(1e-15, 5.0, 500.0)
@@ -69,7 +75,7 @@ def test_bench_film_200_positions(shape, pivot):
 @pytest.mark.benchmark
 def test_bench_orifice_film_200_positions():
     """Orifice-fed Ø50 mm pad (one central 0.2 mm orifice), 65 x 65 mesh, ball pivot, same baseline."""
-    from flatcheck.film import OrificeFeed
+    from flatcheck.bearing._film import OrificeFeed
 
     mesh = circular_pad_mesh(50.0, 65)
     feed = OrificeFeed(0.2, 500.0)

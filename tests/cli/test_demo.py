@@ -5,11 +5,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from flatcheck.cli.common import load_input
+from flatcheck import open_surface as load_input
 from flatcheck.cli.demo_cmd import DEMO_FILES, DEMO_SEED, DEMO_STANDARD, DEMO_TRIALS, sample_path
-from flatcheck.evaluation import survey_uncertainty
-from flatcheck.io.survey_toml import read_survey
-from flatcheck.reduction import reduce_survey
+from flatcheck.evaluation._evaluate import survey_uncertainty
+from flatcheck.io._survey_toml import read_survey
+from flatcheck.survey._reduce import reduce_survey
 
 
 def test_demo_prints_the_results_and_writes_its_report(cli, tmp_path, monkeypatch):

@@ -7,9 +7,9 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
-from flatcheck.flatness import minimum_zone
-from flatcheck.io.heightmap_csv import write_heightmap_csv
-from flatcheck.simulate import surface_grid
+from flatcheck.form._planes import minimum_zone
+from flatcheck.io._heightmap_csv import write_heightmap_csv
+from flatcheck.survey._simulate import surface_grid
 
 
 def write_surface(path, func, length=600.0, width=400.0, pitch=25.0):
@@ -331,12 +331,12 @@ def test_too_many_chart_cells_names_cell_mm_and_the_size_that_fits(cli, args, op
 
 def test_lap_option_checks_for_other_commands_name_the_option():
     # build_lap and check_lap_options are what the report calls: their errors name lap's options
-    from flatcheck.cli.common import load_surface
+    from flatcheck import open_surface
     from flatcheck.cli.lap_cmd import build_lap, check_lap_on_surface, check_lap_options
     from flatcheck.errors import InputValueError
-    from flatcheck.lapping import LapModel
+    from flatcheck.lapping._plan import LapModel
 
-    hm, _ = load_surface(SAMPLES / "plate-KY-P3-2024-03-11.toml")
+    hm = open_surface(SAMPLES / "plate-KY-P3-2024-03-11.toml").heightmap
     for args, option in (((-5.0, None, None, None, None, 0.0), "--lap-diameter-mm"),
                          ((100.0, None, None, None, None, -3.0), "--stroke-mm"),
                          ((None, "0x5", None, None, None, 0.0), "--lap-size-mm")):

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import pytest
 
-from flatcheck.io import survey_toml as st
+from flatcheck.io import _survey_toml as st
 
 DOC = Path(__file__).resolve().parents[2] / "docs" / "survey-format.md"
 

@@ -1,0 +1,28 @@
+"""Everything stated about one surface: flatness, lines, local flatness and uncertainty.
+
+Used alike by ``reduce``, ``grade``, the report and the demo. Imports
+:mod:`flatcheck.form` and :mod:`flatcheck.survey`.
+
+    MeasuredSurface, evaluate_surface, SurfaceEvaluation, survey_uncertainty,
+    SurveyUncertainty, Window, parse_window, DEFAULT_WINDOW, default_trials
+"""
+
+from .._lazy import attach as _attach
+
+__getattr__, __dir__, __all__ = _attach(
+    __name__,
+    {
+        '_measured': (
+            'MeasuredSurface',
+        ),
+        '_evaluate': (
+            'Window',
+            'parse_window',
+            'DEFAULT_WINDOW',
+            'SurveyUncertainty',
+            'survey_uncertainty',
+            'SurfaceEvaluation',
+            'evaluate_surface',
+        ),
+    },
+)

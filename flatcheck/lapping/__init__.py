@@ -1,0 +1,50 @@
+"""Lapping: least removal, the lap model, dwell and pass plans, and session-to-session progress.
+
+Imports :mod:`flatcheck.form`, :mod:`flatcheck.errors` and :mod:`flatcheck.units`.
+
+Plans
+    least_removal, LeastRemoval, plan_lapping, LapPlan, LapModel, Pass, CellChart,
+    preston_rate_um_per_min, deconvolve_dwell, removal_from_dwell, default_cell_mm
+Sessions
+    compare_surveys, Progress, DwellLog, match_nodes
+"""
+
+from .._lazy import attach as _attach
+
+__getattr__, __dir__, __all__ = _attach(
+    __name__,
+    {
+        '_plan': (
+            'node_area_weights',
+            'HighSpot',
+            'LeastRemoval',
+            'least_removal',
+            'preston_rate_um_per_min',
+            'LapModel',
+            'lap_kernel',
+            'removal_from_dwell',
+            'grid_interpolation_matrix',
+            'deconvolve_dwell',
+            'cell_column_name',
+            'Pass',
+            'CellChart',
+            'Shortfall',
+            'LapPlan',
+            'STATION_WEIGHT',
+            'DEFAULT_ALLOWANCE',
+            'DEFAULT_MIN_PASS_FRACTION',
+            'plan_lapping',
+            'HAND_MIN_PASS_MIN',
+            'MAX_CHART_CELLS',
+            'default_cell_mm',
+            'chart_edges',
+        ),
+        '_sessions': (
+            'DEFAULT_MATCH_TOL_MM',
+            'match_nodes',
+            'DwellLog',
+            'Progress',
+            'compare_surveys',
+        ),
+    },
+)

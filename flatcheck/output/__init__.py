@@ -1,0 +1,60 @@
+"""Pictures and the PDF report: the only package that imports matplotlib.
+
+Imports the core packages (never :mod:`flatcheck.cli`).
+
+    write_report, analyse, ReportContent, ReportFiles, and every picture function
+    (contour_map, line_profiles, survey_layout, local_flatness_map, carriage_path, ...)
+"""
+
+from .._lazy import attach as _attach
+
+__getattr__, __dir__, __all__ = _attach(
+    __name__,
+    {
+        '_plots': (
+            'HEIGHT_CMAP',
+            'FIELD_CMAP',
+            'A4_PORTRAIT_IN',
+            'new_figure',
+            'save_png',
+            'PdfBook',
+            'contour_map',
+            'surface_view',
+            'LineProfile',
+            'line_profiles',
+            'survey_layout',
+            'field_map',
+            'local_flatness_map',
+            'local_flatness_profile',
+            'mark_window',
+            'removal_map',
+            'dwell_map',
+            'cell_chart_blocks',
+            'cell_chart',
+            'plan_panels',
+            'plan_box',
+            'plan_ratio',
+            'compare_change_map',
+            'carriage_path',
+            'residual_histogram',
+            'text_block',
+            'table',
+            'page_frame',
+            'flow_table',
+            'flow_table_height_in',
+            'text_block_height_in',
+            'bearing_motion',
+        ),
+        '_report': (
+            'SCOPE_STATEMENT',
+            'LineResult',
+            'GradeRow',
+            'ReportContent',
+            'ReportFiles',
+            'analyse',
+            'uncertainty_text',
+            'page_titles',
+            'write_report',
+        ),
+    },
+)
