@@ -18,13 +18,13 @@ from pathlib import Path
 
 import numpy as np
 
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.io._atomic import write_text_atomic
-from flatcheck.io._heightmap_csv import format_heightmap_csv
-from flatcheck.io._survey_toml import format_survey
-from flatcheck.survey._planning import plan_grid, plan_lines, plan_union_jack
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, Surface
+from flatcheck.form import HeightMap
+from flatcheck.io import write_text_atomic
+from flatcheck.io import format_heightmap_csv
+from flatcheck.io import format_survey
+from flatcheck.survey import plan_grid, plan_lines, plan_union_jack
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, Surface
 
 SEED = 20240311
 HERE = Path(__file__).resolve().parent

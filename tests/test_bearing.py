@@ -13,7 +13,7 @@ from hypothesis import strategies as st
 from scipy.optimize import minimize_scalar
 from scipy.special import j1
 
-from flatcheck.bearing._pads import (
+from flatcheck.bearing import (
     Carriage,
     MotionBudget,
     Pad,
@@ -26,7 +26,7 @@ from flatcheck.bearing._pads import (
     straightness_mz_um,
 )
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.form._heightmap import HeightMap
+from flatcheck.form import HeightMap
 
 ARCSEC_PER_UM_PER_MM = 1e-3 * 648000 / math.pi  # 1 µm/mm = 1e-3 rad; 1 rad = 648000/pi arcsec (exact)
 
@@ -403,7 +403,7 @@ def test_coarse_survey_under_the_pad_is_warned(pitch_x, pitch_y, coarse):
 
 
 def test_survey_spacing_sees_the_lines_under_the_pad_only():
-    from flatcheck.bearing._pads import survey_spacing_mm
+    from flatcheck.bearing import survey_spacing_mm
 
     # three survey lines at y = 40, 100, 160 with stations 100 mm apart; dense line at y = 10 away from the pad
     xs = np.concatenate([np.arange(0, 1001, 100.0)] * 3 + [np.arange(0, 1001, 5.0)])

@@ -4,9 +4,9 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from flatcheck.conformance._decision import assess_grades, decide, normalise_rule
+from flatcheck.conformance import assess_grades, decide, normalise_rule
 from flatcheck.errors import InputValueError
-from flatcheck.conformance._tolerance import tolerances
+from flatcheck.conformance import tolerances
 
 
 def test_reference_item_24():

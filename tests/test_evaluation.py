@@ -16,12 +16,12 @@ import pytest
 
 from flatcheck.errors import InputValueError
 from flatcheck.evaluation import MeasuredSurface, evaluate_surface, survey_uncertainty
-from flatcheck.io._survey_toml import read_survey
-from flatcheck.form._planes import minimum_zone
-from flatcheck.survey._planning import plan_grid, plan_union_jack
-from flatcheck.survey._reduce import reduce_survey
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, observations
+from flatcheck.io import read_survey
+from flatcheck.form import minimum_zone
+from flatcheck.survey import plan_grid, plan_union_jack
+from flatcheck.survey import reduce_survey
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, observations
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
 

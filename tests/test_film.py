@@ -16,7 +16,7 @@ from scipy.integrate import quad
 from scipy.special import i0, i1
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.bearing._film import (
+from flatcheck.bearing import (
     FILM_ASSUMPTIONS,
     PorousFeed,
     circular_pad_mesh,
@@ -283,7 +283,7 @@ def test_errors_are_flatcheck_errors(disc64):
 
 
 def test_capacity_message_quotes_the_threshold_it_applies(disc64):
-    from flatcheck.bearing._film import CAPACITY_FRACTION
+    from flatcheck.bearing import CAPACITY_FRACTION
 
     # closed-film load: gauge supply pressure times the pad area (elementary), on the mesh's own area
     cap = (PS - PA) * disc64.pad_area_mm2 * 1e-6

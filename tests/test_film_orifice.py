@@ -16,7 +16,7 @@ from scipy.integrate import quad
 from scipy.optimize import brentq
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.bearing._film import (
+from flatcheck.bearing import (
     ORIFICE_ASSUMPTIONS,
     OrificeFeed,
     circular_pad_mesh,

@@ -7,7 +7,7 @@ from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.form._planes import (
+from flatcheck.form import (
     corner_stations,
     diagonal_plane,
     evaluate_flatness,

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from flatcheck.errors import InputValueError
-from flatcheck.form._heightmap import HeightMap, regular_grid
+from flatcheck.form import HeightMap, regular_grid
 
 
 def test_grid_detection_and_order(rng):

@@ -11,9 +11,9 @@ from scipy.optimize import linprog, nnls
 from scipy.spatial import ConvexHull
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.form._planes import minimum_zone
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.lapping._plan import (
+from flatcheck.form import minimum_zone
+from flatcheck.form import HeightMap
+from flatcheck.lapping import (
     LapModel,
     cell_column_name,
     deconvolve_dwell,
@@ -520,7 +520,7 @@ def test_chart_cells_are_the_stated_size_from_the_corner(rng, cell, xe, ye):
 def test_interpolation_matrix_matches_scipy(rng):
     from scipy.interpolate import RegularGridInterpolator
 
-    from flatcheck.lapping._plan import grid_interpolation_matrix
+    from flatcheck.lapping import grid_interpolation_matrix
 
     xs, ys = np.array([0.0, 10.0, 25.0, 40.0]), np.array([5.0, 15.0, 35.0])
     v = rng.normal(size=(3, 4))
@@ -574,7 +574,7 @@ def test_passes_under_ten_seconds_are_flagged_with_the_cost_of_skipping_them():
     from pathlib import Path
 
     from flatcheck import open_surface
-    from flatcheck.lapping._plan import HAND_MIN_PASS_MIN
+    from flatcheck.lapping import HAND_MIN_PASS_MIN
 
     hm = open_surface(Path(__file__).resolve().parents[1] / "sample_readings" / "pad-KY-B4-heights.csv").heightmap
     plan = plan_lapping(hm, least_removal(hm, 0.2), LapModel("round", diameter_mm=20.0))

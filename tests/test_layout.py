@@ -8,7 +8,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from flatcheck.errors import FlatcheckError, LayoutError
-from flatcheck.survey._planning import (
+from flatcheck.survey import (
     grid_column_name,
     plan_grid,
     plan_lines,
@@ -16,8 +16,8 @@ from flatcheck.survey._planning import (
     reading_sequence,
     summarize_layout,
 )
-from flatcheck.survey._model import Instrument, observations
-from flatcheck.survey._simulate import simulate_survey
+from flatcheck.survey import Instrument, observations
+from flatcheck.survey import simulate_survey
 
 
 def _pos(survey, name):
@@ -232,7 +232,7 @@ def test_margin_leaving_no_room_is_named():
 
 
 def test_reading_cap_counts_what_is_read():
-    from flatcheck.survey._planning import MAX_READINGS_PER_PASS
+    from flatcheck.survey import MAX_READINGS_PER_PASS
 
     # Union Jack readings = 3 n_x + 3 n_y + 2 n_d (two diagonals, three lines each way); 1000 x 630 at 100 mm:
     # 3*8 + 3*4 + 2*8 = 52 (the count the plan command prints, checked by hand in tests/cli/test_plan.py)

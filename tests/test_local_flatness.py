@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-from flatcheck.form._minzone import solve_minimum_zone
+from flatcheck.form import solve_minimum_zone
 from flatcheck.errors import InputValueError
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.form._local import local_flatness
+from flatcheck.form import HeightMap
+from flatcheck.form import local_flatness
 
 
 def _grid_map(fn, nx=11, ny=7, pitch=100.0):

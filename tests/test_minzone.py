@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
-from flatcheck.form._minzone import minimum_zone_batch, solve_minimum_zone
+from flatcheck.form import minimum_zone_batch, solve_minimum_zone
 from flatcheck.errors import GeometryError, InputValueError
 
 

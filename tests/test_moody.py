@@ -13,12 +13,12 @@ import numpy as np
 import pytest
 
 from flatcheck.errors import LayoutError
-from flatcheck.form._planes import least_squares_plane
-from flatcheck.survey._planning import plan_grid, plan_union_jack
-from flatcheck.survey._moody import moody_reduce
-from flatcheck.survey._reduce import reduce_survey
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, Run, observations
+from flatcheck.form import least_squares_plane
+from flatcheck.survey import plan_grid, plan_union_jack
+from flatcheck.survey import moody_reduce
+from flatcheck.survey import reduce_survey
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, Run, observations
 
 AC = Instrument("autocollimator", "arcsec")
 LEVEL = Instrument("level", "um/m")

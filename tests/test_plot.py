@@ -11,8 +11,8 @@ from matplotlib.image import imread
 
 from flatcheck.output import _plots as plot
 from flatcheck.errors import InputValueError, OutputError
-from flatcheck.form._planes import minimum_zone
-from flatcheck.form._heightmap import HeightMap
+from flatcheck.form import minimum_zone
+from flatcheck.form import HeightMap
 
 
 def _grid_3x3_corner():
@@ -301,7 +301,7 @@ def _lapped_pair(L, W):
 
 @pytest.mark.parametrize("size_mm", [(1000.0, 630.0), (2000.0, 200.0)])
 def test_compare_change_map_draws_before_after_change_and_least_removal(size_mm):
-    from flatcheck.lapping._sessions import compare_surveys
+    from flatcheck.lapping import compare_surveys
 
     L, W = size_mm
     x, y, before, after, dip = _lapped_pair(L, W)

@@ -6,9 +6,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from flatcheck.errors import InputValueError
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.lapping._plan import LapModel
-from flatcheck.lapping._sessions import DwellLog, compare_surveys, match_nodes
+from flatcheck.form import HeightMap
+from flatcheck.lapping import LapModel
+from flatcheck.lapping import DwellLog, compare_surveys, match_nodes
 
 
 def _before(rng, step=25.0):

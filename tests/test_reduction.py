@@ -16,11 +16,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from flatcheck.errors import GeometryError, InputValueError, LayoutError, UnobservableError
-from flatcheck.survey._planning import plan_grid, plan_lines, plan_union_jack
-from flatcheck.survey._network import OUTLIER_THRESHOLD, network_rank
-from flatcheck.survey._reduce import reduce_survey
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, Run, Station, Surface, Survey, SurveyLine, observations
+from flatcheck.survey import plan_grid, plan_lines, plan_union_jack
+from flatcheck.survey import OUTLIER_THRESHOLD, network_rank
+from flatcheck.survey import reduce_survey
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, Run, Station, Surface, Survey, SurveyLine, observations
 from flatcheck.units import ARCSEC_TO_RAD
 
 INSTRUMENTS = {
@@ -529,7 +529,7 @@ def test_turned_level_measures_its_zero():
     # Physics of a level (common practice, no single source): turned end for end it reads the slope
     # negated while its zero keeps its sign, so forward + turned runs of a line separate slope and zero:
     # zero = (r_forward + r_turned) / 2 for every step.
-    from flatcheck.survey._model import Instrument
+    from flatcheck.survey import Instrument
 
     plan = plan_grid(600.0, 400.0, 100.0, instrument=Instrument("level", "um/m"))
     surface = lambda x, y: 1e-6 * (x - 300) ** 2 - 2e-6 * (y - 200) ** 2  # noqa: E731

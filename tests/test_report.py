@@ -15,13 +15,13 @@ from matplotlib.image import imread
 from scipy.optimize import linprog, minimize_scalar
 
 from flatcheck.output import _report as report
-from flatcheck.bearing._pads import Carriage, Pad
+from flatcheck.bearing import Carriage, Pad
 from flatcheck.errors import InputValueError, OutputError
 from flatcheck.evaluation import MeasuredSurface, evaluate_surface
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.io._survey_toml import read_survey
-from flatcheck.lapping._plan import LapModel
-from flatcheck.survey._reduce import reduce_survey
+from flatcheck.form import HeightMap
+from flatcheck.io import read_survey
+from flatcheck.lapping import LapModel
+from flatcheck.survey import reduce_survey
 
 SAMPLE = Path(report.__file__).parents[1] / "data" / "plate-KY-P3-2024-03-11.toml"
 

@@ -8,9 +8,9 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from flatcheck.errors import InputValueError, UnitError
-from flatcheck.survey._planning import plan_grid, plan_lines, plan_union_jack
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, observations
+from flatcheck.survey import plan_grid, plan_lines, plan_union_jack
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, observations
 
 
 def _reduce_lstsq(survey):

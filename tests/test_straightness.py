@@ -7,7 +7,7 @@ from hypothesis import strategies as st
 from scipy.optimize import linprog
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.form._straightness import evaluate_straightness, minimum_zone_line
+from flatcheck.form import evaluate_straightness, minimum_zone_line
 
 
 def lp_line(s, z):

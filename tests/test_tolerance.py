@@ -8,8 +8,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from flatcheck.errors import GeometryError, InputValueError
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.conformance._tolerance import (
+from flatcheck.form import HeightMap
+from flatcheck.conformance import (
     ASME_TABLE_AA_UIN,
     ISO8512_2_TABLE_UM,
     STANDARDS,

@@ -6,7 +6,7 @@ from scipy.optimize import linprog
 from scipy.stats import norm
 
 from flatcheck.errors import InputValueError
-from flatcheck.form._montecarlo import coverage_intervals, monte_carlo_flatness
+from flatcheck.form import coverage_intervals, monte_carlo_flatness
 
 Z95 = norm.ppf(0.975)  # 1.959964, Source: scipy.stats.norm quantile (standard normal table)
 

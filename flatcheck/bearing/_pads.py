@@ -41,8 +41,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import GeometryError, InputValueError
-from ..form._planes import least_squares_plane, minimum_zone
-from ..form._heightmap import HeightMap
+from ..form import least_squares_plane, minimum_zone
+from ..form import HeightMap
 from ..units import ARCSEC_TO_RAD
 
 __all__ = [

@@ -11,7 +11,7 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
-    rich_markup_mode="rich",
+    rich_markup_mode=None,  # plain help: quick to start, flags read as flags, no boxes in pipes
 )
 
 

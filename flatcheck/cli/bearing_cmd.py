@@ -11,7 +11,7 @@ import numpy as np
 import typer
 from rich.table import Table
 
-from ..bearing._pads import (
+from ..bearing import (
     DEFAULT_GAP_FRACTION,
     DEFAULT_MARGINAL_FROM,
     BearingResult,
@@ -22,7 +22,7 @@ from ..bearing._pads import (
     station_positions,
 )
 from ..errors import FlatcheckError, InputValueError
-from ..io._bearing_toml import parse_pad_size, read_bearing_toml
+from ..io import parse_pad_size, read_bearing_toml
 from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
@@ -186,7 +186,7 @@ def _origin(field: str | None, carriage, bearing: Path | None, step_mm, travel_s
 
 def _check_mesh(cells: int) -> None:
     """Refuse a film mesh too coarse to mean anything or too fine to solve, naming ``--film-mesh``."""
-    from ..bearing._film import MAX_MESH_CELLS, MESH_LIMIT_REASON, MIN_MESH_CELLS
+    from ..bearing import MAX_MESH_CELLS, MESH_LIMIT_REASON, MIN_MESH_CELLS
 
     if cells < MIN_MESH_CELLS:
         raise InputValueError(
@@ -311,7 +311,7 @@ def bearing_cmd(
     ),
 ) -> None:
     """Judge the surface for air-bearing pads: local flatness against the gap, clearance, carriage motion."""
-    from ..io._heightmap_csv import read_heightmap_csv
+    from ..io import read_heightmap_csv
 
     _check_options(
         {
@@ -395,7 +395,7 @@ def bearing_cmd(
 def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts, *, kind_given=False,
           from_file=False):
     """The film feed (porous layer or orifices) from the options; wrong-kind or missing options refused."""
-    from ..bearing._film import OrificeFeed, PorousFeed, orifice_ring
+    from ..bearing import OrificeFeed, PorousFeed, orifice_ring
 
     pads = carriage.active_pads
     kinds = sorted({p.pad.kind for p in pads})
@@ -454,7 +454,7 @@ def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_
 
 def _film(surface, carriage, result, feed, load_n, pivot, mesh, method):
     """Film at every station and the bearing result with the film checks added."""
-    from ..bearing._film import bearing_film, check_carriage_load, with_film_checks
+    from ..bearing import bearing_film, check_carriage_load, with_film_checks
 
     check_carriage_load(carriage, feed, load_n)
     total = len(result.stations) * len(carriage.active_pads)
@@ -468,7 +468,7 @@ def _add_film_json(data: dict, film) -> None:
     """Add the pinned ``film`` object and a ``film`` entry to each station object."""
     from .common import jsonable
 
-    from ..bearing._film import KG_S_TO_MG_S, OrificeFeed, orifice_notes
+    from ..bearing import KG_S_TO_MG_S, OrificeFeed, orifice_notes
 
     c = film.curve
     f = film.feed
@@ -535,7 +535,7 @@ def _sig3(v: float) -> str:
 
 def _curve_table(film, *, units: str, orifice: bool) -> Table:
     """A short table of the flat-guide curve: gaps from gap/4 to 4 gap, the nominal and peak-stiffness rows marked."""
-    from ..bearing._film import KG_S_TO_MG_S, curve_table_rows
+    from ..bearing import KG_S_TO_MG_S, curve_table_rows
 
     c = film.curve
     gap = film.curve_gap_um if film.curve_gap_um is not None else float(np.sqrt(c.gap_um[0] * c.gap_um[-1]))
@@ -562,7 +562,7 @@ def _curve_table(film, *, units: str, orifice: bool) -> Table:
 
 
 def _render_film(film, *, units: str) -> None:
-    from ..bearing._film import OrificeFeed, orifice_notes
+    from ..bearing import OrificeFeed, orifice_notes
 
     con = stdout_console()
 

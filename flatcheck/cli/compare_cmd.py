@@ -7,8 +7,8 @@ from pathlib import Path
 import typer
 
 from ..errors import InputValueError
-from ..lapping._plan import LapModel
-from ..lapping._sessions import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
+from ..lapping import LapModel
+from ..lapping import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
 from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
@@ -97,7 +97,7 @@ _MAX_GRID_ROWS = 30
 
 def _change_grid(pr: Progress):
     """The matched nodes as a regular grid ``(xs, ys, index)`` (see :attr:`HeightMap.grid`), or None."""
-    from ..form._heightmap import HeightMap
+    from ..form import HeightMap
 
     return HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
 
@@ -300,7 +300,7 @@ def compare_cmd(
         lap = LapModel("round", diameter_mm=lap_diameter_mm)
     dlog = None
     if log is not None:
-        from ..io._lap_log import read_lap_log
+        from ..io import read_lap_log
 
         dlog = read_lap_log(log)
         if lap is None:

@@ -37,8 +37,8 @@ def demo_cmd(
     units: Units = units_option(),
 ) -> None:
     """Reduce the bundled sample as 'flatcheck reduce' does, grade it, and write its PDF report."""
-    from ..evaluation._evaluate import evaluate_surface
-    from ..io._atomic import write_bytes_atomic
+    from ..evaluation import evaluate_surface
+    from ..io import write_bytes_atomic
     from . import grade_cmd, reduce_cmd
     from .report_cmd import check_outputs, make_report
 

@@ -16,10 +16,10 @@ from pathlib import Path
 import typer
 from rich.table import Table
 
-from ..conformance._decision import CONFORMS, DOES_NOT_CONFORM, assess_grades
+from ..conformance import CONFORMS, DOES_NOT_CONFORM, assess_grades
 from ..errors import ExitStatus, InputValueError
-from ..form._planes import minimum_zone
-from ..conformance._tolerance import (
+from ..form import minimum_zone
+from ..conformance import (
     Tolerance,
     get_standard,
     plate_size,
@@ -30,7 +30,7 @@ from ..conformance._tolerance import (
 )
 from ..units import MM_PER_INCH, UM_PER_UIN, format_height, height_unit_label, um_to
 from ._app import app
-from ..evaluation._evaluate import survey_uncertainty
+from ..evaluation import survey_uncertainty
 from .common import (
     auto_trials_option,
     default_auto_trials,
@@ -196,7 +196,7 @@ def build_grade_report(
             "mean foot height; range over all positions on the map's grid, two orientations",
         }
         if repeat_tolerance_um is not None:
-            from ..conformance._decision import decide
+            from ..conformance import decide
 
             d = decide(rr.variation_um, repeat_tolerance_um, None, "simple")
             repeat["verdict"] = d.verdict

@@ -11,7 +11,7 @@ import typer
 from rich.table import Table
 
 from ..errors import InputValueError, OutputError
-from ..lapping._plan import LapModel, LapPlan, least_removal, plan_lapping
+from ..lapping import LapModel, LapPlan, least_removal, plan_lapping
 from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
@@ -64,7 +64,7 @@ def resolve_target(
             fix="e.g. --target-um 3, --target-grade din-876:0 or --target-gap-um 8",
         )
     if target_gap_um is not None:
-        from ..bearing._pads import DEFAULT_GAP_FRACTION
+        from ..bearing import DEFAULT_GAP_FRACTION
 
         check_option(target_gap_um, "--target-gap-um", what="an air gap in µm")
         fraction = DEFAULT_GAP_FRACTION if gap_fraction is None else gap_fraction
@@ -79,7 +79,7 @@ def resolve_target(
         if not (math.isfinite(target_um) and target_um >= 0):
             raise InputValueError(f"target {target_um} µm must be >= 0", where="--target-um", fix="give a flatness in µm")
         return float(target_um), "given"
-    from ..conformance._tolerance import plate_size, tolerance
+    from ..conformance import plate_size, tolerance
 
     std, sep, grade = target_grade.partition(":")
     if not sep or not std or not grade:
@@ -213,7 +213,7 @@ def check_lap_on_surface(hm, lap: LapModel, *, lap_option: str, cell_mm: float |
     cells (``cell_mm``, default the lap's size) must be few enough to print. ``cell_option`` is None for a
     command without a cell option: the error then names ``lap_option``.
     """
-    from ..lapping._plan import MAX_CHART_CELLS, chart_edges, default_cell_mm
+    from ..lapping import MAX_CHART_CELLS, chart_edges, default_cell_mm
 
     check_lap_fits(hm, lap, lap_option)
     xe, ye = chart_edges(hm, lap, cell_mm)
@@ -537,7 +537,7 @@ def lap_cmd(
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
 ) -> None:
     """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness."""
-    from ..io._atomic import write_text_atomic
+    from ..io import write_text_atomic
 
     # options first, so a typing slip is reported before the survey is reduced
     check_lap_options(

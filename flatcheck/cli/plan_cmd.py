@@ -10,15 +10,9 @@ import typer
 from rich.table import Table
 
 from ..errors import InputValueError, LayoutError, OutputError
-from ..io._survey_toml import write_survey
-from ..survey._planning import (
-    DEFAULT_MARGIN_MM,
-    plan_grid,
-    plan_union_jack,
-    reading_sequence,
-    summarize_layout,
-)
-from ..survey._model import Instrument, Surface
+from ..io import write_survey
+from ..survey import DEFAULT_MARGIN_MM, plan_grid, plan_union_jack, reading_sequence, summarize_layout
+from ..survey import Instrument, Surface
 from ..units import MM_PER_INCH, angle_unit, length_unit
 from ._app import app
 from .common import emit_json, stdout_console
@@ -101,7 +95,7 @@ def _layout_warnings(survey) -> list[str]:
 
     from ..errors import FlatcheckError
     from ..survey._network import _article, network_rank
-    from ..survey._simulate import simulate_survey
+    from ..survey import simulate_survey
 
     filled = simulate_survey(survey, lambda x, y: np.zeros_like(x))
     try:

@@ -10,8 +10,8 @@ import typer
 from rich.markup import escape
 from rich.table import Table
 
-from ..evaluation._evaluate import evaluate_surface
-from ..io._heightmap_csv import write_heightmap_csv
+from ..evaluation import evaluate_surface
+from ..io import write_heightmap_csv
 from ..units import MM_PER_INCH, format_height, format_length, height_unit_label, um_to
 from ._app import app
 from .common import (

@@ -91,7 +91,7 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
     if png is not None and not png.is_dir():
         raise OutputError(f"{png} is not an existing folder", where="--png", fix="create the folder first")
     if standard is not None:
-        from ..conformance._tolerance import get_standard
+        from ..conformance import get_standard
 
         get_standard(standard)  # an unknown name fails here
 
@@ -125,7 +125,7 @@ def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, 
     A height map without ``u_height_um`` has none. A survey with nothing to propagate (no stated
     reading uncertainty and no redundancy) is reported without one, and the report says why.
     """
-    from ..evaluation._evaluate import evaluate_surface, parse_window
+    from ..evaluation import evaluate_surface, parse_window
 
     if str(window).strip().lower() != "auto":
         parse_window(window)  # a bad window fails here, so the only input error below is the uncertainty's
@@ -154,7 +154,7 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
     The steps between the Monte Carlo bar and the page bar (grades, the air bearing, the lapping plan,
     loading the plotting library) are named on a status line as they run.
     """
-    from ..output._report import analyse, page_titles, write_report
+    from ..output import analyse, page_titles, write_report
 
     with StatusLine(show_progress) as status:
         content = analyse(evaluation, progress=status.say, **analysis)
@@ -268,7 +268,7 @@ def report_cmd(
 
 def report_json(content, files, input_path) -> dict:
     """The JSON object of ``flatcheck report --json`` (heights µm, positions mm)."""
-    from ..output._report import uncertainty_text
+    from ..output import uncertainty_text
 
     unc = content.uncertainty
     lf = content.local

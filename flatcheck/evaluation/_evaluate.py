@@ -16,8 +16,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputValueError
-from ..form._planes import FlatnessReport, evaluate_flatness
-from ..form._heightmap import HeightMap
+from ..form import FlatnessReport, evaluate_flatness
+from ..form import HeightMap
 from ._measured import MeasuredSurface
 
 __all__ = [
@@ -159,7 +159,7 @@ def survey_uncertainty(
         When there is nothing to propagate (no stated uncertainty and fewer than 3 degrees
         of freedom to estimate one) or the survey is too large for the dense operator.
     """
-    from ..form._montecarlo import monte_carlo_flatness
+    from ..form import monte_carlo_flatness
 
     if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
         raise InputValueError(f"the seed must be a whole number 0 or above, got {seed!r}", where="--seed",
@@ -179,7 +179,7 @@ def survey_uncertainty(
         values = hm.height_um
         x, y = hm.x_mm, hm.y_mm
     else:
-        from ..survey._model import observations
+        from ..survey import observations
 
         survey, red = loaded.survey, loaded.reduction
         op = red.operator
@@ -396,7 +396,7 @@ class SurfaceEvaluation:
         line's first station). ``reading`` is the value as written in the run (its order and sign); ``w``
         is None where the reading cannot be tested (redundancy number 0, or no scatter to test against).
         """
-        from ..survey._model import observations
+        from ..survey import observations
 
         sv, red = self.loaded.survey, self.loaded.reduction
         obs = observations(sv)
@@ -531,7 +531,7 @@ def _line_results(loaded: MeasuredSurface) -> list:
     sv, red = loaded.survey, loaded.reduction
     if sv is None:
         return []
-    from ..form._straightness import evaluate_straightness
+    from ..form import evaluate_straightness
 
     hm = loaded.heightmap
     pos = {n: i for i, n in enumerate(hm.names)}
@@ -559,7 +559,7 @@ def _line_results(loaded: MeasuredSurface) -> list:
 
 
 def _local(hm: HeightMap, win: Window):
-    from ..form._local import local_flatness
+    from ..form import local_flatness
 
     size = win.length_mm if win.shape == "circle" else (win.length_mm, win.width_mm)
     return local_flatness(hm, size_mm=size, shape=win.shape)

@@ -45,7 +45,7 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..bearing._pads import Carriage, MotionBudget, Pad, PlacedPad
+from ..bearing import Carriage, MotionBudget, Pad, PlacedPad
 from ..errors import FlatcheckError, InputFormatError, InputValueError
 from ._text import read_text
 

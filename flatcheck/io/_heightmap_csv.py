@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputFormatError, InputValueError
-from ..form._heightmap import HeightMap
+from ..form import HeightMap
 from ._atomic import write_text_atomic
 from ._text import read_text
 

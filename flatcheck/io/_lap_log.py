@@ -17,7 +17,7 @@ import math
 from pathlib import Path
 
 from ..errors import InputFormatError, InputValueError
-from ..lapping._sessions import DwellLog
+from ..lapping import DwellLog
 from ._text import read_text
 
 __all__ = ["LOG_HEADER", "read_lap_log"]

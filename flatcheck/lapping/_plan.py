@@ -33,8 +33,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import GeometryError, InputValueError
-from ..form._planes import minimum_zone
-from ..form._heightmap import HeightMap
+from ..form import minimum_zone
+from ..form import HeightMap
 from ..units import format_height
 
 __all__ = [
@@ -89,7 +89,7 @@ def node_area_weights(x_mm, y_mm) -> np.ndarray:
     GeometryError
         Fewer than three points, or all points on one line (no area).
     """
-    from ..form._heightmap import regular_grid
+    from ..form import regular_grid
 
     x = np.asarray(x_mm, float).ravel()
     y = np.asarray(y_mm, float).ravel()
@@ -131,7 +131,7 @@ def _trapezoid_weights(v: np.ndarray) -> np.ndarray:
 
 def _neighbours(x: np.ndarray, y: np.ndarray):
     """Pairs (i, j) of neighbouring nodes: grid 4-neighbours, else Delaunay edges."""
-    from ..form._heightmap import regular_grid
+    from ..form import regular_grid
 
     grid = regular_grid(x, y)
     if grid is not None:

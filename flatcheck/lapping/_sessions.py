@@ -22,8 +22,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import GeometryError, InputValueError
-from ..form._planes import least_squares_plane, minimum_zone
-from ..form._heightmap import HeightMap
+from ..form import least_squares_plane, minimum_zone
+from ..form import HeightMap
 from ._plan import LapModel, least_removal, node_area_weights
 
 __all__ = ["DwellLog", "Progress", "match_nodes", "compare_surveys"]

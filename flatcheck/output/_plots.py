@@ -148,7 +148,7 @@ def save_png(fig: Figure, path, *, dpi: float = 150, axes=None, pad_in: float = 
     """
     from matplotlib.transforms import Bbox
 
-    from ..io._atomic import atomic_path
+    from ..io import atomic_path
 
     path = Path(path)
     bbox = None
@@ -186,7 +186,7 @@ class PdfBook:
     def __enter__(self) -> "PdfBook":
         from matplotlib.backends.backend_pdf import PdfPages
 
-        from ..io._atomic import atomic_path
+        from ..io import atomic_path
 
         self._stack = contextlib.ExitStack()
         tmp = self._stack.enter_context(atomic_path(self.path, suffix=".pdf"))
@@ -1146,7 +1146,7 @@ def plan_ratio(box, pad_fraction: float = 0.04) -> float:
 
 def _own_ls_deviation(x, y, z):
     """Heights about their own least-squares plane (µm), as :mod:`flatcheck.progress` refers each survey."""
-    from ..form._planes import least_squares_plane
+    from ..form import least_squares_plane
 
     p = least_squares_plane(x, y, z)
     return z - (p.a_um + p.b_um_per_mm * x + p.c_um_per_mm * y)
@@ -1596,7 +1596,7 @@ def _about_straightness_line(x_mm, h_um):
     the centre line, the pad-averaged carriage), so each is drawn about its own straight line: the
     curves then share one datum and span exactly their stated straightness.
     """
-    from ..form._straightness import evaluate_straightness
+    from ..form import evaluate_straightness
 
     x = np.asarray(x_mm, float)
     h = np.asarray(h_um, float)

@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputValueError, OutputError
-from ..form._heightmap import HeightMap
+from ..form import HeightMap
 
 __all__ = [
     "LineResult",
@@ -225,7 +225,7 @@ class ReportFiles:
 # =============================================================================== analysis
 def _survey_lines(evaluation) -> list:
     """Survey lines with their straightness zone (flatcheck.straightness) and the evaluation's closures."""
-    from ..form._straightness import evaluate_straightness
+    from ..form import evaluate_straightness
 
     loaded = evaluation.loaded
     hm, sv = loaded.heightmap, loaded.survey
@@ -250,7 +250,7 @@ def _survey_lines(evaluation) -> list:
 
 def _grid_lines(hm: HeightMap, max_lines: int = 8) -> list:
     """Rows and two columns of a gridded height map, with their minimum-zone straightness."""
-    from ..form._straightness import evaluate_straightness
+    from ..form import evaluate_straightness
 
     g = hm.grid
     if g is None:
@@ -273,7 +273,7 @@ def _grid_lines(hm: HeightMap, max_lines: int = 8) -> list:
 
 def _plane_fits(flat):
     """PlaneFit views of the shared flatness report: the zone's lower plane, and the LS plane."""
-    from ..form._planes import PlaneFit
+    from ..form import PlaneFit
 
     mz = flat.mzpl  # mid-plane of the zone; its lower plane lies FLTv below it
     ls = flat.lspl
@@ -380,7 +380,7 @@ def analyse(
     bearing = None
     if carriage is not None:
         say("air bearing: the carriage over its travel")
-        from ..bearing._pads import evaluate_bearing
+        from ..bearing import evaluate_bearing
 
         kw = {}
         if gap_fraction is not None:
@@ -391,7 +391,7 @@ def analyse(
     lapping = None
     if target_um is not None:
         say("lapping plan: least removal, dwell map and passes")
-        from ..lapping._plan import least_removal, plan_lapping
+        from ..lapping import least_removal, plan_lapping
 
         lapping = plan_lapping(hm, least_removal(hm, float(target_um)), lap)
     issued = (today or _dt.date.today()).isoformat()
@@ -477,7 +477,7 @@ def _line_rms(survey, reduction) -> dict:
     """RMS residual of each line's readings (µm), from the reduction."""
     if survey is None or reduction is None:
         return {}
-    from ..survey._model import observations
+    from ..survey import observations
 
     obs = observations(survey)
     r = np.asarray(reduction.residual_um, float)
@@ -492,8 +492,8 @@ def _line_rms(survey, reduction) -> dict:
 
 
 def _grades(hm, standard, flatness_um, u_um, rule):
-    from ..conformance._decision import assess_grades
-    from ..conformance._tolerance import get_standard, plate_size, tolerances
+    from ..conformance import assess_grades
+    from ..conformance import get_standard, plate_size, tolerances
 
     std = get_standard(standard)
     size = plate_size(hm)
@@ -643,7 +643,7 @@ def _local_missing(evaluation, window: str | None) -> str:
     """Why a report has no local flatness, and the option that gives it (empty when it has one)."""
     if evaluation.local is not None:
         return ""
-    from ..evaluation._evaluate import DEFAULT_WINDOW
+    from ..evaluation import DEFAULT_WINDOW
 
     asked = "auto" if window is None else str(window).strip().lower()
     if asked == "none":

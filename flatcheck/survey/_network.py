@@ -82,7 +82,7 @@ import scipy.sparse.linalg as spla
 from scipy.sparse.csgraph import connected_components
 
 from ..errors import GeometryError, InputValueError, UnobservableError
-from ..form._heightmap import HeightMap
+from ..form import HeightMap
 from ._model import Survey, observations
 from ..units import angle_unit, length_unit
 

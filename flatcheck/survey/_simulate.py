@@ -28,7 +28,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from ..errors import InputValueError
-from ..form._heightmap import HeightMap
+from ..form import HeightMap
 from ._model import Run, Survey
 from ..units import ARCSEC_TO_RAD, angle_unit, length_unit
 

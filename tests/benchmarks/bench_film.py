@@ -16,7 +16,7 @@ import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from flatcheck.bearing._film import (
+from flatcheck.bearing import (
     PorousFeed,
     circular_pad_mesh,
     film_along_travel,
@@ -75,7 +75,7 @@ def test_bench_film_200_positions(shape, pivot):
 @pytest.mark.benchmark
 def test_bench_orifice_film_200_positions():
     """Orifice-fed Ø50 mm pad (one central 0.2 mm orifice), 65 x 65 mesh, ball pivot, same baseline."""
-    from flatcheck.bearing._film import OrificeFeed
+    from flatcheck.bearing import OrificeFeed
 
     mesh = circular_pad_mesh(50.0, 65)
     feed = OrificeFeed(0.2, 500.0)

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
-from flatcheck.form._minzone import solve_minimum_zone
+from flatcheck.form import solve_minimum_zone
 
 
 def _direct_lp(x, y, z):

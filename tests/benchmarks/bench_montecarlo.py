@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
-from flatcheck.form._montecarlo import monte_carlo_flatness
+from flatcheck.form import monte_carlo_flatness
 
 
 def _lp(x, y, z):

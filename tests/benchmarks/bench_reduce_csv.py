@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from flatcheck.cli.main import run
-from flatcheck.io._heightmap_csv import read_heightmap_csv
+from flatcheck.io import read_heightmap_csv
 
 
 def _best(fn, repeat=3):

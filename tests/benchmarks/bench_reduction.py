@@ -18,10 +18,10 @@ import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from flatcheck.survey._planning import plan_grid
-from flatcheck.survey._reduce import reduce_survey
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, observations
+from flatcheck.survey import plan_grid
+from flatcheck.survey import reduce_survey
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, observations
 
 N_SIDE = 200  # stations per side
 PITCH_MM = 10.0

@@ -6,8 +6,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from flatcheck.io._heightmap_csv import write_heightmap_csv
-from flatcheck.survey._simulate import surface_grid
+from flatcheck.io import write_heightmap_csv
+from flatcheck.survey import surface_grid
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_readings" / "bearing_tandem_slide.toml"
 ARCSEC_PER_UM_PER_MM = 1e-3 * 648000 / math.pi  # exact: 1 µm/mm = 1e-3 rad

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 from scipy.special import i0
-from flatcheck.io._heightmap_csv import write_heightmap_csv
-from flatcheck.survey._simulate import surface_grid
+from flatcheck.io import write_heightmap_csv
+from flatcheck.survey import surface_grid
 
 PA, PS = 101325.0, 600000.0
 FILM = ["--supply-kpa", f"{(PS - PA) / 1e3:.6f}", "--permeability-m2", "1e-15", "--layer-mm", "5"]
@@ -124,7 +124,7 @@ def _radial_orifice(h_um, d_mm=0.2, R=0.025, mu=1.81e-5, rg=287.05, t=293.15):
     """Central orifice on a circular pad, uniform gap: exact log solution + brentq + quad (see test_film_orifice)."""
     from scipy.optimize import brentq
 
-    from flatcheck.bearing._film import orifice_mass_flow
+    from flatcheck.bearing import orifice_mass_flow
 
     r0 = d_mm / 2 * 1e-3
     area = min(math.pi * (d_mm * 1e-3) ** 2 / 4, math.pi * d_mm * 1e-3 * h_um * 1e-6)
@@ -197,7 +197,7 @@ def test_film_mesh_out_of_range_names_the_option(cli, flat_csv, cells, match):
 
 def test_mesh_count_is_bounded_in_the_library():
     from flatcheck.errors import InputValueError
-    from flatcheck.bearing._film import MAX_MESH_CELLS, circular_pad_mesh
+    from flatcheck.bearing import MAX_MESH_CELLS, circular_pad_mesh
 
     with pytest.raises(InputValueError, match="above 512"):
         circular_pad_mesh(50.0, MAX_MESH_CELLS + 1)

@@ -112,10 +112,10 @@ def test_bad_log_one_line(cli, pair, tmp_path):
 
 def _survey_file(path, ident, length_mm=600.0, width_mm=400.0, bump_um=1.0):
     """A Union Jack survey (level, exact readings) of a crowned surface, written as TOML."""
-    from flatcheck.io._survey_toml import write_survey
-    from flatcheck.survey._planning import plan_union_jack
-    from flatcheck.survey._simulate import simulate_survey
-    from flatcheck.survey._model import Instrument, Surface
+    from flatcheck.io import write_survey
+    from flatcheck.survey import plan_union_jack
+    from flatcheck.survey import simulate_survey
+    from flatcheck.survey import Instrument, Surface
 
     plan = plan_union_jack(length_mm, width_mm, 100.0, instrument=Instrument("level", "um/m"),
                            surface=Surface("plate", length_mm, width_mm, ident=ident))

@@ -7,9 +7,9 @@ import pytest
 
 from flatcheck import open_surface as load_input
 from flatcheck.cli.demo_cmd import DEMO_FILES, DEMO_SEED, DEMO_STANDARD, DEMO_TRIALS, sample_path
-from flatcheck.evaluation._evaluate import survey_uncertainty
-from flatcheck.io._survey_toml import read_survey
-from flatcheck.survey._reduce import reduce_survey
+from flatcheck.evaluation import survey_uncertainty
+from flatcheck.io import read_survey
+from flatcheck.survey import reduce_survey
 
 
 def test_demo_prints_the_results_and_writes_its_report(cli, tmp_path, monkeypatch):

@@ -7,9 +7,9 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
-from flatcheck.form._planes import minimum_zone
-from flatcheck.io._heightmap_csv import write_heightmap_csv
-from flatcheck.survey._simulate import surface_grid
+from flatcheck.form import minimum_zone
+from flatcheck.io import write_heightmap_csv
+from flatcheck.survey import surface_grid
 
 
 def write_surface(path, func, length=600.0, width=400.0, pitch=25.0):
@@ -334,7 +334,7 @@ def test_lap_option_checks_for_other_commands_name_the_option():
     from flatcheck import open_surface
     from flatcheck.cli.lap_cmd import build_lap, check_lap_on_surface, check_lap_options
     from flatcheck.errors import InputValueError
-    from flatcheck.lapping._plan import LapModel
+    from flatcheck.lapping import LapModel
 
     hm = open_surface(SAMPLES / "plate-KY-P3-2024-03-11.toml").heightmap
     for args, option in (((-5.0, None, None, None, None, 0.0), "--lap-diameter-mm"),

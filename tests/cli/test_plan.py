@@ -7,7 +7,7 @@ import re
 import numpy as np
 import pytest
 
-from flatcheck.io._survey_toml import read_survey
+from flatcheck.io import read_survey
 
 
 def _one_line_error(code, out, err):
@@ -139,8 +139,8 @@ def test_autocollimator_grid_without_diagonals_is_warned_at_planning(cli, tmp_pa
     code, out, err = cli(*args, "--json")
     assert code == 0 and any("twist" in w and "--diagonals" in w for w in json.loads(out)["warnings"])
     # reduce, on that layout filled in, refuses it for the reason plan gave
-    from flatcheck.io._survey_toml import write_survey
-    from flatcheck.survey._simulate import simulate_survey
+    from flatcheck.io import write_survey
+    from flatcheck.survey import simulate_survey
 
     filled = tmp_path / "filled.toml"
     write_survey(filled, simulate_survey(read_survey(blank), lambda x, y: 1e-5 * x * y))
@@ -220,7 +220,7 @@ def test_plan_fill_reduce_gives_the_surface_back(cli, tmp_path, sizes):
     blank = tmp_path / "blank.toml"
     code, out, err = cli("plan", *sizes, "-o", blank)
     assert code == 0, err
-    from flatcheck.survey._simulate import simulate_survey
+    from flatcheck.survey import simulate_survey
 
     sim = simulate_survey(read_survey(blank), _surface_um)
     text = blank.read_text()

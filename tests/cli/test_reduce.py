@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from flatcheck.form._planes import minimum_zone
+from flatcheck.form import minimum_zone
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_readings"
 PLATE = SAMPLES / "plate-KY-P3-2024-03-11.toml"
@@ -73,7 +73,7 @@ def test_moody_method_and_map_out(cli, tmp_path):
     assert code == 0, err
     doc = json.loads(out)
     assert doc["method"] == "moody"
-    from flatcheck.io._heightmap_csv import read_heightmap_csv
+    from flatcheck.io import read_heightmap_csv
 
     hm = read_heightmap_csv(out_csv)
     assert hm.n == len(doc["nodes"])
@@ -174,8 +174,8 @@ def test_line_without_readings_names_its_toml_line(cli, tmp_path):
 
 
 def _filled(tmp_path, name, plan, fn=lambda x, y: 1e-5 * x * y):
-    from flatcheck.io._survey_toml import write_survey
-    from flatcheck.survey._simulate import simulate_survey
+    from flatcheck.io import write_survey
+    from flatcheck.survey import simulate_survey
 
     p = tmp_path / name
     write_survey(p, simulate_survey(plan, fn))
@@ -183,7 +183,7 @@ def _filled(tmp_path, name, plan, fn=lambda x, y: 1e-5 * x * y):
 
 
 def test_twist_refusal_names_the_file_and_the_fix(cli, tmp_path):
-    from flatcheck.survey._planning import plan_grid
+    from flatcheck.survey import plan_grid
 
     p = _filled(tmp_path, "grid.toml", plan_grid(460, 360, 100))
     code, out, err = cli("reduce", p)
@@ -192,8 +192,8 @@ def test_twist_refusal_names_the_file_and_the_fix(cli, tmp_path):
 
 
 def test_moody_on_a_grid_names_the_file_and_the_option(cli, tmp_path):
-    from flatcheck.survey._planning import plan_grid
-    from flatcheck.survey._model import Instrument
+    from flatcheck.survey import plan_grid
+    from flatcheck.survey import Instrument
 
     p = _filled(tmp_path, "grid.toml", plan_grid(460, 360, 100, instrument=Instrument("level", "um/m")))
     code, out, err = cli("reduce", p, "--method", "moody")
@@ -202,8 +202,8 @@ def test_moody_on_a_grid_names_the_file_and_the_option(cli, tmp_path):
 
 
 def test_disconnected_stations_name_the_file(cli, tmp_path):
-    from flatcheck.survey._planning import plan_lines
-    from flatcheck.survey._model import Instrument
+    from flatcheck.survey import plan_lines
+    from flatcheck.survey import Instrument
 
     plan = plan_lines([("a", (50, 50), (750, 50), 7), ("b", (50, 150), (750, 150), 7)], length_mm=800, width_mm=200,
                       instrument=Instrument("level", "um/m"))
@@ -334,8 +334,8 @@ def test_refuse_overwriting_inputs_helper(tmp_path):
 def test_no_redundancy_says_so_instead_of_nan(cli, tmp_path):
     # an indicator grid read once: as many readings as unknowns, so no scatter can be estimated
     # (the summary printed "- µm (nan um)")
-    from flatcheck.survey._planning import plan_grid
-    from flatcheck.survey._model import Instrument
+    from flatcheck.survey import plan_grid
+    from flatcheck.survey import Instrument
 
     p = _filled(tmp_path, "ind.toml", plan_grid(90, 90, 40, margin_mm=5, instrument=Instrument("indicator", "um")),
                 lambda x, y: 1e-3 * x * y)
@@ -357,7 +357,7 @@ def test_scatter_text_without_a_value(sigma):
 def test_a_zero_never_prints_with_a_minus_sign(cli, tmp_path, monkeypatch):
     # noise-free readings close to rounding error (about -1e-15 µm), which printed as "-0.000"
     from flatcheck.cli.reduce_cmd import _fmt
-    from flatcheck.survey._planning import plan_union_jack
+    from flatcheck.survey import plan_union_jack
 
     assert _fmt(-1e-9, "um") == "0.000" and _fmt(-1e-9, "in") == "0.0" and _fmt(-0.0006, "um") == "-0.001"
     monkeypatch.setenv("COLUMNS", "100")

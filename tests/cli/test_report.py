@@ -8,8 +8,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.io._heightmap_csv import write_heightmap_csv
+from flatcheck.form import HeightMap
+from flatcheck.io import write_heightmap_csv
 
 
 @pytest.fixture

@@ -3,7 +3,7 @@
 import pytest
 
 from flatcheck.errors import OutputError
-from flatcheck.io._atomic import atomic_path, write_text_atomic
+from flatcheck.io import atomic_path, write_text_atomic
 
 
 def test_failure_keeps_previous_file(tmp_path):

@@ -3,7 +3,7 @@
 import pytest
 
 from flatcheck.errors import InputFormatError, InputValueError
-from flatcheck.io._bearing_toml import parse_bearing_toml, parse_pad_size, read_bearing_toml
+from flatcheck.io import parse_bearing_toml, parse_pad_size, read_bearing_toml
 
 TANDEM = """
 [bearing]

@@ -4,8 +4,8 @@ import numpy as np
 import pytest
 
 from flatcheck.errors import InputFormatError, InputValueError
-from flatcheck.form._heightmap import HeightMap
-from flatcheck.io._heightmap_csv import read_heightmap_csv, write_heightmap_csv
+from flatcheck.form import HeightMap
+from flatcheck.io import read_heightmap_csv, write_heightmap_csv
 
 
 def _write(tmp_path, text, name="map.csv", mode="w"):
@@ -97,7 +97,7 @@ def test_wrong_separator_hinted(tmp_path, sep, word):
     ],
 )
 def test_is_heightmap_csv_reads_the_header_not_the_name(tmp_path, text, expected):
-    from flatcheck.io._heightmap_csv import is_heightmap_csv
+    from flatcheck.io import is_heightmap_csv
 
     p = tmp_path / "pad.dat"
     p.write_text(text, encoding="utf-8")

@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 
 from flatcheck.errors import FlatcheckError, InputFormatError, InputValueError, LayoutError, UnitError
-from flatcheck.io._survey_toml import format_survey, parse_survey, read_survey, write_survey
-from flatcheck.survey._planning import plan_grid, plan_lines, plan_union_jack
-from flatcheck.survey._simulate import simulate_survey
-from flatcheck.survey._model import Instrument, Surface, observations
+from flatcheck.io import format_survey, parse_survey, read_survey, write_survey
+from flatcheck.survey import plan_grid, plan_lines, plan_union_jack
+from flatcheck.survey import simulate_survey
+from flatcheck.survey import Instrument, Surface, observations
 
 
 def _norm(survey):
