@@ -55,7 +55,6 @@ __getattr__, __dir__, __all__ = _attach(
             'read_heightmap_csv',
             'write_heightmap_csv',
             'read_bearing_toml',
-            'parse_pad_size',
             'open_surface',
         ),
         'survey': (
@@ -128,6 +127,7 @@ __getattr__, __dir__, __all__ = _attach(
             'gap_field_um',
             'GapField',
             'DEFAULT_GAP_FRACTION',
+            'parse_pad_size',
             'PorousFeed',
             'solve_film',
             'film_equilibrium',

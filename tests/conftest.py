@@ -29,6 +29,50 @@ def rng():
     return np.random.default_rng(1234)
 
 
+def render_pdf_pages(pdf, out_dir=None, dpi=30):
+    """Render every page of a PDF (pypdfium2, no system tools); returns the pages as RGB arrays.
+
+    With ``out_dir`` each page is also written there as ``page-NN.png`` (to look at) and the paths are
+    returned instead.
+    """
+    import pypdfium2
+
+    doc = pypdfium2.PdfDocument(str(pdf))
+    try:
+        images = [doc[i].render(scale=dpi / 72.0, rev_byteorder=True).to_numpy()[..., :3].astype(float) / 255.0
+                  for i in range(len(doc))]
+    finally:
+        doc.close()
+    if out_dir is None:
+        return images
+    from matplotlib.image import imsave
+
+    paths = []
+    for i, img in enumerate(images, start=1):
+        paths.append(os.path.join(str(out_dir), f"page-{i:02d}.png"))
+        imsave(paths[-1], img)
+    return paths
+
+
+def pdf_text(pdf):
+    """The text of every page of a PDF (pypdfium2), pages joined by form feeds, lines by newlines."""
+    import pypdfium2
+
+    doc = pypdfium2.PdfDocument(str(pdf))
+    try:
+        pages = [doc[i].get_textpage().get_text_range().replace("\r\n", "\n").replace("\r", "\n")
+                 for i in range(len(doc))]
+    finally:
+        doc.close()
+    return "\f".join(pages)
+
+
+@pytest.fixture(scope="session")
+def pdf_tools():
+    """``(render_pdf_pages, pdf_text)``: read a PDF back in tests with nothing but Python packages."""
+    return render_pdf_pages, pdf_text
+
+
 @pytest.fixture
 def cli(capsys):
     """Run the command line in-process; returns ``(exit_code, stdout, stderr)``."""

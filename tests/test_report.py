@@ -1,12 +1,10 @@
-"""The PDF report: built from the bundled sample readings, rendered with pdftoppm, read back with pdftotext.
+"""The PDF report: built from the bundled sample readings, rendered and read back with pypdfium2.
 
-pdftoppm and pdftotext come with Debian's poppler-utils (installed by .ci/run). If they are missing the tests
-fail with a message saying so; they never skip.
+pypdfium2 is a Python package of the ``test`` extra (``pip install ".[test]"``), so the tests need nothing but
+Python (issue 15, item 1); the ``pdf_tools`` fixture in ``tests/conftest.py`` wraps it.
 """
 
 import re
-import shutil
-import subprocess
 from pathlib import Path
 
 import numpy as np
@@ -26,21 +24,22 @@ from flatcheck.survey import reduce_survey
 SAMPLE = Path(report.__file__).parents[1] / "data" / "plate-KY-P3-2024-03-11.toml"
 
 
-def _tool(name):
-    path = shutil.which(name)
-    if path is None:
-        pytest.fail(f"{name} is not installed: install Debian's poppler-utils (apt-get install poppler-utils)")
-    return path
+@pytest.fixture(scope="module")
+def pdf(pdf_tools):
+    """``pdf.render(path, out_dir, dpi)`` -> page PNG paths; ``pdf.text(path)`` -> the PDF's text."""
+    render_pages, text = pdf_tools
 
+    class _Pdf:
+        @staticmethod
+        def render(path: Path, out_dir: Path, dpi: int = 50) -> list:
+            # 50 dpi: pdfium's anti-aliased text is a grey blur at 30 dpi, too light for the blank-page check
+            return [Path(p) for p in render_pages(path, out_dir, dpi)]
 
-def _render(pdf: Path, out_dir: Path, dpi: int = 30) -> list:
-    subprocess.run([_tool("pdftoppm"), "-png", "-r", str(dpi), str(pdf), str(out_dir / "page")], check=True)
-    return sorted(out_dir.glob("page-*.png"))
+        @staticmethod
+        def text(path: Path) -> str:
+            return text(path)
 
-
-def _text(pdf: Path) -> str:
-    res = subprocess.run([_tool("pdftotext"), "-layout", str(pdf), "-"], check=True, capture_output=True, text=True)
-    return res.stdout
+    return _Pdf
 
 
 def _page_text(draw, content, units):
@@ -85,9 +84,9 @@ def sample_report(tmp_path_factory):
     return content, files, tmp
 
 
-def test_every_page_renders_with_content(sample_report):
+def test_every_page_renders_with_content(sample_report, pdf):
     content, files, tmp = sample_report
-    pages = _render(files.pdf, tmp)
+    pages = pdf.render(files.pdf, tmp)
     assert len(pages) == files.pages == len(report.page_titles(content))
     for page in pages:
         grey = imread(page)[..., :3].mean(axis=2)
@@ -124,10 +123,10 @@ def test_pictures_written_alone(sample_report):
     assert not (top[:3] < 0.5).all(axis=1).any()
 
 
-def test_report_states_the_flatness_computed_independently(sample_report):
+def test_report_states_the_flatness_computed_independently(sample_report, pdf):
     content, files, _ = sample_report
     hm = content.heightmap
-    text = _text(files.pdf)
+    text = pdf.text(files.pdf)
     # reference: minimum zone by a direct scipy LP, least squares by numpy lstsq (peak to valley of residuals)
     mz = _mz_reference(hm.x_mm, hm.y_mm, hm.height_um)
     A = np.column_stack([np.ones(hm.n), hm.x_mm, hm.y_mm])
@@ -157,18 +156,18 @@ def test_grade_verdicts_follow_the_iso_14253_rule(sample_report):
     assert tol["0"] == pytest.approx(8.0) and tol["00"] == pytest.approx(4.0)
 
 
-def test_heightmap_report_matches_the_worked_3x3_example(tmp_path):
+def test_heightmap_report_matches_the_worked_3x3_example(tmp_path, pdf):
     x, y = np.meshgrid([0.0, 1.0, 2.0], [0.0, 1.0, 2.0])
     z = np.zeros_like(x)
     z[2, 2] = 1.0
     hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="corner bump")
     content = _map_report(hm)
     files = report.write_report(tmp_path / "small.pdf", content)
-    text = _text(files.pdf)
+    text = pdf.text(files.pdf)
     # Source: REFERENCE.md check value 7 (derived with numpy): MZ 0.7500 µm, LS peak-to-valley 0.8333 µm
     assert "0.750 µm" in text and "0.833 µm" in text
     assert "not evaluated" in text  # a height map carries no reading uncertainty: said, not invented
-    assert len(_render(files.pdf, tmp_path)) == files.pages
+    assert len(pdf.render(files.pdf, tmp_path)) == files.pages
 
 
 def test_straightness_of_a_parabola_is_a_quarter_of_its_sagitta():
@@ -289,7 +288,7 @@ SAMPLES = Path(__file__).resolve().parents[1] / "sample_readings"
 def _sample_content(name):
     """Report content of a sample as the audit's commands make it (no Monte Carlo, to stay quick)."""
     from flatcheck import open_surface as load_input
-    from flatcheck.cli.report_cmd import carriage_from_options, lapping_from_options
+    from flatcheck.cli._report_job import carriage_from_options, lapping_from_options
 
     lap_none = dict(target_um=None, target_grade=None, lap_diameter_mm=None, lap_size_mm=None, rate_um_per_min=None,
                     rate_um_per_pass=None, strokes_per_pass=None, stroke_mm=0.0)

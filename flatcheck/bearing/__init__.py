@@ -10,6 +10,8 @@ Air film (Reynolds equation)
     flat_guide_curve, bearing_film, FilmState, FilmCurve, FilmEquilibrium, FilmTravel,
     orifice_mass_flow, critical_pressure_ratio, orifice_ring, FILM_ASSUMPTIONS,
     ORIFICE_ASSUMPTIONS
+A pad's film as a force law (for carriages that share their load)
+    PadFilmModel, FilmResponse
 """
 
 from .._lazy import attach as _attach
@@ -60,6 +62,15 @@ __getattr__, __dir__, __all__ = _attach(
             'orifice_notes',
             'check_carriage_load',
             'with_film_checks',
+        ),
+        '_build': (
+            'parse_pad_size',
+            'carriage_from_options',
+            'film_feed',
+        ),
+        '_response': (
+            'FilmResponse',
+            'PadFilmModel',
         ),
         '_pads': (
             'DEFAULT_GAP_FRACTION',

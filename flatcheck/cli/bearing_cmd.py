@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from enum import Enum
 from pathlib import Path
@@ -15,14 +14,14 @@ from ..bearing import (
     DEFAULT_GAP_FRACTION,
     DEFAULT_MARGINAL_FROM,
     BearingResult,
-    Carriage,
     MotionBudget,
-    Pad,
+    carriage_from_options,
     evaluate_bearing,
+    film_feed,
     station_positions,
 )
 from ..errors import FlatcheckError, InputValueError
-from ..io import parse_pad_size, read_bearing_toml
+from ..io import read_bearing_toml
 from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
@@ -45,60 +44,6 @@ class PadKind(str, Enum):
 class Interp(str, Enum):
     linear = "linear"
     cubic = "cubic"
-
-
-def build_carriage(
-    *,
-    bearing: Path | None,
-    pad: str | None,
-    gap_um: float | None,
-    kind: str | None,
-    y_mm: float | None,
-    travel_start_mm: float | None,
-    travel_end_mm: float | None,
-    step_mm: float | None,
-):
-    """Carriage, gap fraction, marginal fraction and budget from a bearing file and/or options.
-
-    Options override the file: ``--pad``/``--gap-um``/``--kind`` replace every pad's size/gap/kind
-    (``kind=None``: the file's kinds, or porous without a file).
-    """
-    if bearing is not None:
-        desc = read_bearing_toml(bearing)
-        carriage, fraction, marginal, budget = desc.carriage, desc.gap_fraction, desc.marginal_from, desc.budget
-        if pad is not None or gap_um is not None or kind is not None:
-            placed = []
-            for p in carriage.pads:
-                shape, length, width = (p.pad.shape, p.pad.length_mm, p.pad.width_mm)
-                if pad is not None:
-                    shape, length, width = parse_pad_size(pad, where="--pad")
-                g = p.pad.gap_um if gap_um is None else gap_um
-                k = p.pad.kind if kind is None else kind
-                placed.append(dataclasses.replace(p, pad=_pad(shape, length, width, g, k)))
-            carriage = dataclasses.replace(carriage, pads=tuple(placed))
-    else:
-        if pad is None or gap_um is None:
-            raise InputValueError(
-                "no pad described", where="--pad/--gap-um", fix="give --pad LxW (or dD) and --gap-um, or --bearing FILE.toml"
-            )
-        shape, length, width = parse_pad_size(pad, where="--pad")
-        carriage = Carriage.single(_pad(shape, length, width, gap_um, kind or "porous"))
-        fraction, marginal, budget = None, None, MotionBudget()
-    changes = {
-        k: v
-        for k, v in (("y_mm", y_mm), ("travel_start_mm", travel_start_mm), ("travel_end_mm", travel_end_mm), ("step_mm", step_mm))
-        if v is not None
-    }
-    if changes:
-        carriage = dataclasses.replace(carriage, **changes)
-    return carriage, fraction, marginal, budget
-
-
-def _pad(shape, length, width, gap_um, kind) -> Pad:
-    try:
-        return Pad(shape, length, width, gap_um, kind)
-    except InputValueError as exc:
-        raise InputValueError(exc.message, where="--pad/--gap-um", fix=exc.fix) from None
 
 
 def result_json(result: BearingResult, *, input_path: Path, label: str, units: str) -> dict:
@@ -327,8 +272,8 @@ def bearing_cmd(
     )
     _check_mesh(film_mesh)
     refuse_overwriting_inputs({"--plot": plot_out}, [input, bearing, pad_face])
-    carriage, fraction, marginal, budget = build_carriage(
-        bearing=bearing,
+    carriage, fraction, marginal, budget = carriage_from_options(
+        None if bearing is None else read_bearing_toml(bearing),
         pad=pad,
         gap_um=gap_um,
         kind=None if kind is None else kind.value,
@@ -369,8 +314,8 @@ def bearing_cmd(
     orifice_opts = {"--orifice-mm": orifice_mm, "--cd": cd, "--orifices": orifices, "--pocket-mm": pocket_mm,
                     "--pocket-depth-um": pocket_depth_um}
     if any(v is not None for v in (supply_kpa, permeability_m2, layer_mm, *orifice_opts.values())):
-        feed = _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts,
-                     kind_given=kind is not None, from_file=bearing is not None)
+        feed = film_feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts,
+                         kind_given=kind is not None, from_file=bearing is not None)
         film, result = _film(surface, carriage, result, feed, load_n, not film_fixed, film_mesh, interp.value)
     label = surface.label or input.name
     if plot_out is not None:
@@ -390,66 +335,6 @@ def bearing_cmd(
             _render_film(film, units=units.value)
         if plot_out is not None:
             stdout_console().print(f"picture written to {plot_out}")
-
-
-def _feed(carriage, supply_kpa, permeability_m2, layer_mm, ambient_kpa, orifice_opts, *, kind_given=False,
-          from_file=False):
-    """The film feed (porous layer or orifices) from the options; wrong-kind or missing options refused."""
-    from ..bearing import OrificeFeed, PorousFeed, orifice_ring
-
-    pads = carriage.active_pads
-    kinds = sorted({p.pad.kind for p in pads})
-    if len(kinds) != 1:
-        raise InputValueError(
-            f"the film model needs pads of one kind; this carriage has {' and '.join(kinds)} pads",
-            where="film options", fix="describe porous and orifice pads in separate bearing files",
-        )
-    kind = kinds[0]
-    porous_opts = {"--permeability-m2": permeability_m2, "--layer-mm": layer_mm}
-    given_orifice = [k for k, v in orifice_opts.items() if v is not None]
-    given_porous = [k for k, v in porous_opts.items() if v is not None]
-    said = f" (--kind {kind})" if kind_given else (" (the bearing file's kind)" if from_file else " (the default --kind)")
-    if kind == "porous" and given_orifice:
-        raise InputValueError(
-            f"{', '.join(given_orifice)} {'describes' if len(given_orifice) == 1 else 'describe'} orifice pads, "
-            f"but the pads are porous{said}", where="film options",
-            fix=("use --kind orifice" if kind_given else "add --kind orifice") + ", or drop the orifice options",
-        )
-    if kind == "orifice" and given_porous:
-        raise InputValueError(
-            f"{', '.join(given_porous)} {'describes' if len(given_porous) == 1 else 'describe'} porous pads, "
-            f"but the pads are orifice-fed{said}", where="film options",
-            fix="use --kind porous for a porous pad, or drop the porous options",
-        )
-    if kind == "porous":
-        missing = [n for n, v in (("--supply-kpa", supply_kpa), *porous_opts.items()) if v is None]
-        fix = "give --supply-kpa, --permeability-m2 and --layer-mm together"
-    else:
-        missing = [n for n, v in (("--supply-kpa", supply_kpa), ("--orifice-mm", orifice_opts["--orifice-mm"]))
-                   if v is None]
-        fix = "give --supply-kpa and --orifice-mm together (with --kind orifice)"
-    if missing:
-        raise InputValueError(f"the film model needs {', '.join(missing)} as well", where="film options", fix=fix)
-    try:
-        if kind == "porous":
-            return PorousFeed(permeability_m2, layer_mm, supply_kpa, ambient_kpa)
-        shapes = {(p.pad.shape, p.pad.length_mm, p.pad.width_mm) for p in pads}
-        count = orifice_opts["--orifices"]
-        if count is not None and count > 1 and len(shapes) > 1:
-            raise InputValueError(
-                "--orifices lays orifices out on one pad size, but the pads differ in size", where="--orifices",
-                fix="give pads of one size, or one central orifice",
-            )
-        shape, length, width = next(iter(shapes))
-        layout = orifice_ring(shape, length, width, 1 if count is None else count)
-        cd = orifice_opts["--cd"]
-        return OrificeFeed(
-            orifice_opts["--orifice-mm"], supply_kpa, 0.8 if cd is None else cd, positions_mm=layout,
-            pocket_mm=orifice_opts["--pocket-mm"] or 0.0, pocket_depth_um=orifice_opts["--pocket-depth-um"] or 0.0,
-            ambient_kpa=ambient_kpa,
-        )
-    except InputValueError as exc:
-        raise InputValueError(exc.message, where=exc.where or "film options", fix=exc.fix) from None
 
 
 def _film(surface, carriage, result, feed, load_n, pivot, mesh, method):

@@ -13,7 +13,8 @@ from pathlib import Path
 import numpy as np
 from rich.console import Console
 
-from ..errors import InputFormatError, OutputError
+from ..errors import OutputError
+from ..evaluation._trials import DEFAULT_TRIALS, default_trials as default_auto_trials  # noqa: F401
 from ..safety import SAFETY_LINES as _SAFETY_LINES
 
 __all__ = [
@@ -35,6 +36,25 @@ __all__ = [
     "default_auto_trials",
     "SAFETY_LINES",
 ]
+
+
+class Method(str, Enum):
+    """How a survey is reduced (``--method``)."""
+
+    least_squares = "least-squares"
+    moody = "moody"
+
+
+class Rule(str, Enum):
+    """The decision rule of a grade (``--rule``)."""
+
+    iso14253 = "iso14253"
+    simple = "simple"
+
+
+#: Help of the air-bearing target options, shared by the commands that take a target (lap, compare, report).
+TARGET_GAP_HELP = "Target: the air-bearing limit for this gap in µm (a fraction of it, see --gap-fraction)."
+GAP_FRACTION_HELP = "With --target-gap-um: the fraction of the gap (default 0.25, common practice)."
 
 
 class Units(str, Enum):
@@ -155,6 +175,19 @@ def load_input(path: Path, *, method: str = "least-squares"):
         raise
 
 
+def check_output(path: Path | None, option: str) -> None:
+    """Refuse, before any work, an output path whose folder is missing or which is a folder."""
+    if path is None:
+        return
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(
+            f"cannot write {path}: folder {folder} does not exist", where=option, fix="create the folder or choose another path"
+        )
+    if path.is_dir():
+        raise OutputError(f"cannot write {path}: it is a folder", where=option, fix="give a file name")
+
+
 def _same_file(a: Path, b: Path) -> bool:
     """True when ``a`` and ``b`` name one file: same resolved path, or (both existing) the same inode."""
     try:
@@ -227,11 +260,6 @@ def window_option():
     )
 
 
-#: Monte Carlo trials unless asked otherwise (JCGM 101:2008 asks M >> 1/(1-p); 1e5 gives the
-#: standard uncertainty to well under 1 % and the 95 % interval ends to about 1 %).
-DEFAULT_TRIALS = 100_000
-
-
 def units_option():
     """The ``--units`` option: µm, or inches (heights in µin)."""
     import typer
@@ -244,18 +272,6 @@ def trials_option():
     import typer
 
     return typer.Option(DEFAULT_TRIALS, "--trials", min=100, help="Monte Carlo trials (JCGM 101).")
-
-
-def default_auto_trials(n_stations: int) -> int:
-    """Monte Carlo trials when ``grade`` or ``report`` evaluates U without being asked for a number of trials.
-
-    JCGM 101:2008 asks for enough trials that U is stable to the digits stated; 10^5 trials are cheap for a
-    plate survey of a few dozen stations, but a dense grid of a thousand stations would take the better part
-    of a minute (measured: 874 stations, 44 s). Each trial costs about in proportion to the stations, so the default keeps roughly the same
-    work (about 8 million station-trials, a few seconds here) and never goes below 10 000 trials, which
-    still give U to about 1-2 % (the note states the number used; ``--trials`` overrides).
-    """
-    return int(min(DEFAULT_TRIALS, max(10_000, round(8e6 / max(int(n_stations), 1), -4))))
 
 
 def auto_trials_option():

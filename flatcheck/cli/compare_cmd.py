@@ -7,11 +7,14 @@ from pathlib import Path
 import typer
 
 from ..errors import InputValueError
-from ..lapping import LapModel
+from ..lapping import LapModel, check_option, parse_lap_size, resolve_target
 from ..lapping import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
 from ..units import format_height, height_unit_label
 from ._app import app
 from .common import (
+    GAP_FRACTION_HELP,
+    TARGET_GAP_HELP,
+    check_output,
     SAFETY_LINES,
     emit_json,
     load_input,
@@ -19,14 +22,6 @@ from .common import (
     stdout_console,
     Units,
     units_option,
-)
-from .lap_cmd import (
-    GAP_FRACTION_HELP,
-    TARGET_GAP_HELP,
-    _parse_size,
-    check_option,
-    check_output,
-    resolve_target,
 )
 
 
@@ -281,7 +276,7 @@ def compare_cmd(
     check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
     check_option(match_tol_mm, "--match-tol-mm", what="a distance in mm")
     if lap_size_mm is not None:
-        _parse_size(lap_size_mm)
+        parse_lap_size(lap_size_mm)
     refuse_overwriting_inputs({"--plot": plot_out}, [before, after, log])
     check_output(plot_out, "--plot")
     lb = load_input(before)
@@ -294,7 +289,7 @@ def compare_cmd(
         raise InputValueError(exc.message, where=f"{before} -> {after}", fix=exc.fix) from None
     lap = None
     if lap_size_mm is not None:
-        l, w = _parse_size(lap_size_mm)
+        l, w = parse_lap_size(lap_size_mm)
         lap = LapModel("rect", length_mm=l, width_mm=w)
     elif lap_diameter_mm is not None:
         lap = LapModel("round", diameter_mm=lap_diameter_mm)

@@ -39,8 +39,10 @@ def demo_cmd(
     """Reduce the bundled sample as 'flatcheck reduce' does, grade it, and write its PDF report."""
     from ..evaluation import evaluate_surface
     from ..io import write_bytes_atomic
-    from . import grade_cmd, reduce_cmd
-    from .report_cmd import check_outputs, make_report
+    from ..conformance import grade_surface
+    from ._grade_view import render_grades
+    from ._reduce_view import render_reduction
+    from ._report_job import check_outputs, make_report
 
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out} exists and is not a folder", where="--out", fix="choose another folder")
@@ -66,18 +68,18 @@ def demo_cmd(
     con.print("[bold]flatcheck demo[/bold]: a fictional tool room's granite plate, surveyed before lapping")
     con.print(f"[dim]1. as 'flatcheck reduce {survey_copy} --uncertainty --seed {DEMO_SEED} --trials {DEMO_TRIALS}' "
               "states it:[/dim]", soft_wrap=True)
-    reduce_cmd.render_reduction(ev, ev.to_dict(), units.value, None)
+    render_reduction(ev, ev.to_dict(), units.value, None)
 
     con.print()
     con.print(f"[dim]2. graded as 'flatcheck grade {survey_copy} --standard {DEMO_STANDARD} --uncertainty "
               f"--seed {DEMO_SEED} --trials {DEMO_TRIALS}' grades it:[/dim]", soft_wrap=True)
-    grading = grade_cmd.build_grade_report(
+    grading = grade_surface(
         loaded.heightmap, standard=DEMO_STANDARD, grade=None, tolerance_um=None, rule="iso14253",
         expanded_uncertainty_um=ev.uncertainty.minimum_zone.expanded_um, length_mm=None, width_mm=None,
         length_basis=None, basis="formula", asme_form="inch",
     )
     grading["input"] = str(survey_copy)
-    grade_cmd.render_grades(grading, units.value)
+    render_grades(grading, units.value)
 
     content, files = make_report(ev, output=pdf, png=None, units=units.value, show_progress=True,
                                  standard=DEMO_STANDARD)

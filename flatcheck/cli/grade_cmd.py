@@ -14,40 +14,25 @@ from enum import Enum
 from pathlib import Path
 
 import typer
-from rich.table import Table
 
-from ..conformance import CONFORMS, DOES_NOT_CONFORM, assess_grades
+from ..conformance import grade_surface
 from ..errors import ExitStatus, InputValueError
-from ..form import minimum_zone
-from ..conformance import (
-    Tolerance,
-    get_standard,
-    plate_size,
-    reference_length_mm,
-    repeat_reading,
-    tolerance,
-    tolerances,
-)
-from ..units import MM_PER_INCH, UM_PER_UIN, format_height, height_unit_label, um_to
+from ..units import UM_PER_UIN
 from ._app import app
+from ._grade_view import _add_uin, render_grades
 from ..evaluation import survey_uncertainty
 from .common import (
+    Rule,
     auto_trials_option,
     default_auto_trials,
     emit_json,
     load_input,
     progress_bar,
     seed_option,
-    stdout_console,
     u_height_option,
     Units,
     units_option,
 )
-
-
-class Rule(str, Enum):
-    iso14253 = "iso14253"
-    simple = "simple"
 
 
 class LengthBasis(str, Enum):
@@ -63,13 +48,6 @@ class Basis(str, Enum):
 class AsmeForm(str, Enum):
     inch = "inch"
     metric = "metric"
-
-
-_SIZE_SOURCE_TEXT = {
-    "option": "given with --length-mm/--width-mm",
-    "surface": "the surveyed surface's stated size",
-    "point-extent": "the extent of the measured points (give --length-mm/--width-mm for the plate's own size)",
-}
 
 
 def _one_of(um: float | None, uin: float | None, name: str) -> float | None:
@@ -95,231 +73,6 @@ def _check_positive(options: dict) -> None:
     for opt, v in options.items():
         if v is not None and (not math.isfinite(v) or v <= 0):
             raise InputValueError(f"{v:g} is not a positive number", where=opt, fix=f"give {opt} above 0")
-
-
-def build_grade_report(
-    hm,
-    *,
-    standard: str | None,
-    grade: str | None,
-    tolerance_um: float | None,
-    rule: str,
-    expanded_uncertainty_um: float | None,
-    length_mm: float | None,
-    width_mm: float | None,
-    length_basis: str | None,
-    basis: str,
-    asme_form: str,
-    repeat_foot_radius_mm: float | None = None,
-    repeat_tolerance_um: float | None = None,
-) -> dict:
-    """Everything the command reports, as a JSON-ready dict (heights in µm, lengths in mm).
-
-    ``expanded_uncertainty_um`` feeds the decision directly; a Monte Carlo evaluation can
-    supply it instead of the option.
-    """
-    if standard is None and tolerance_um is None:
-        raise InputValueError(
-            "no standard and no tolerance given", where="--standard", fix="give --standard S or --tolerance-um T"
-        )
-    std = None if standard is None else get_standard(standard)
-    size = plate_size(hm, length_mm, width_mm)
-    fit = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
-    notes: list[str] = []
-
-    if tolerance_um is not None:
-        if tolerance_um <= 0:
-            raise InputValueError(f"tolerance {tolerance_um:g} µm is not positive", where="--tolerance-um", fix="give T > 0")
-        label = "custom" if grade is None else str(grade)
-        lb = length_basis or (std.length_basis if std is not None else "diagonal")
-        used = None if std is None else reference_length_mm(size.length_mm, size.width_mm, lb)
-        tols = (
-            Tolerance(
-                standard="custom" if std is None else std.key,
-                grade=label,
-                tolerance_um=float(tolerance_um),
-                length_used_mm=float("nan") if used is None else used,
-                length_basis=lb,
-                basis="given",
-                status="given by the user",
-                table_um=None,
-                in_range=True,
-                notes=("tolerance given by the user, not computed from the standard",),
-            ),
-        )
-    elif grade is not None:
-        tols = (
-            tolerance(std, grade, size.length_mm, size.width_mm, length_basis=length_basis, basis=basis, asme_form=asme_form),
-        )
-    else:
-        tols = tolerances(std, size.length_mm, size.width_mm, length_basis=length_basis, basis=basis, asme_form=asme_form)
-
-    flatness_um = max(0.0, fit.flatness_um)  # the LP may return -1e-15 for a perfect plane
-    verdicts = assess_grades(flatness_um, tols, expanded_uncertainty_um, rule)
-    first = verdicts[0].decision
-    if not first.uncertainty_known and first.rule_requested == "iso14253-1":
-        notes.append(
-            "expanded uncertainty unknown: the ISO 14253-1 rule could not be applied; verdicts use simple "
-            "acceptance and do not account for measurement uncertainty (evaluate it with --uncertainty, "
-            "or state U with --uncertainty-um or --uncertainty-uin)"
-        )
-    for v in verdicts:
-        for n in v.tolerance.notes:
-            if n not in notes and not n.startswith("a published table gives"):
-                notes.append(n)
-    tabulated = [(v.tolerance.grade, v.tolerance.table_um) for v in verdicts if v.tolerance.table_um is not None]
-    if tabulated and tols[0].basis == "formula":
-        listed = ", ".join(f"{g}: {t:.3g}" for g, t in tabulated)
-        notes.append(f"a published table gives for this size (um) {listed}; use --basis table to grade by it")
-    if size.source == "point-extent":
-        notes.append("plate size taken from the extent of the measured points; tolerances may be too small")
-
-    best = None
-    if tolerance_um is None and grade is None:
-        for v in verdicts:  # finest first
-            if v.decision.verdict == CONFORMS:
-                best = v.tolerance.grade
-                break
-    rejected = all(v.decision.verdict == DOES_NOT_CONFORM for v in verdicts)
-
-    repeat = None
-    if repeat_foot_radius_mm is not None:
-        rr = repeat_reading(hm, repeat_foot_radius_mm)
-        repeat = {
-            "variation_um": rr.variation_um,
-            "foot_radius_mm": rr.foot_radius_mm,
-            "positions": rr.positions,
-            "tolerance_um": repeat_tolerance_um,
-            "verdict": None,
-            "rule": None,
-            "method": "three-foot gage, feet at 120 degrees on the given radius; reading = probe height minus "
-            "mean foot height; range over all positions on the map's grid, two orientations",
-        }
-        if repeat_tolerance_um is not None:
-            from ..conformance import decide
-
-            d = decide(rr.variation_um, repeat_tolerance_um, None, "simple")
-            repeat["verdict"] = d.verdict
-            repeat["rule"] = "simple acceptance (no uncertainty for the repeat reading)"
-        notes.append("repeat-reading tolerance values of the standard are not built in (not verified); give your own")
-    elif repeat_tolerance_um is not None:
-        raise InputValueError(
-            "--repeat-tolerance-um needs --repeat-radius-mm", where="--repeat-tolerance-um", fix="give the gage's foot radius"
-        )
-
-    length_used = tols[0].length_used_mm
-    return {
-        "input": None,
-        "standard": "custom" if std is None else std.key,
-        "standard_title": None if std is None else std.title,
-        "length_mm": size.length_mm,
-        "width_mm": size.width_mm,
-        "size_source": size.source,
-        "length_used_mm": None if length_used != length_used else length_used,  # NaN -> null
-        "length_basis": tols[0].length_basis if std is not None else None,
-        "basis": tols[0].basis,
-        "formula": None if std is None else std.formula,
-        "rounding": None if std is None else std.rounding,
-        "flatness_um": flatness_um,
-        "flatness_method": "minimum zone (vertical, linear program)",
-        "points": hm.n,
-        "expanded_uncertainty_um": first.expanded_uncertainty_um,
-        "rule": first.rule,
-        "rule_requested": first.rule_requested,
-        "rule_statement": first.statement,
-        "grades": [
-            {
-                "grade": v.tolerance.grade,
-                "tolerance_um": v.tolerance.tolerance_um,
-                "verdict": v.decision.verdict,
-                "acceptance_limit_um": v.decision.acceptance_limit_um,
-                "rejection_limit_um": v.decision.rejection_limit_um,
-                "status": v.tolerance.status,
-                "basis": v.tolerance.basis,
-                "table_tolerance_um": v.tolerance.table_um,
-                "in_range": v.tolerance.in_range,
-            }
-            for v in verdicts
-        ],
-        "best_grade": best,
-        "reject": rejected,
-        "repeat_reading": repeat,
-        "notes": notes,
-    }
-
-
-def _add_uin(report: dict) -> None:
-    """Add µin values beside the pinned µm keys (1 µin = 0.0254 µm exactly)."""
-    report["flatness_uin"] = um_to(report["flatness_um"], "in")
-    u = report["expanded_uncertainty_um"]
-    report["expanded_uncertainty_uin"] = None if u is None else um_to(u, "in")
-    for g in report["grades"]:
-        g["tolerance_uin"] = um_to(g["tolerance_um"], "in")
-        g["acceptance_limit_uin"] = um_to(g["acceptance_limit_um"], "in")
-        g["rejection_limit_uin"] = um_to(g["rejection_limit_um"], "in")
-    if report["repeat_reading"] is not None:
-        rr = report["repeat_reading"]
-        rr["variation_uin"] = um_to(rr["variation_um"], "in")
-
-
-_SHORT_STATUS = {"secondary source": "secondary", "given by the user": "user"}
-_VERDICT_STYLE = {"conforms": "green", "does-not-conform": "red", "undecided": "yellow"}
-
-
-def render_grades(report: dict, units: str) -> None:
-    con = stdout_console()
-    hu = height_unit_label(units)
-
-    def h(v):
-        return "-" if v is None else format_height(v, units, unit=False)
-
-    title = report["standard_title"] or "custom tolerance"
-    con.print(f"[bold]Grading against {title}[/bold]  ({report['input']})")
-    con.print(f"Flatness F = {h(report['flatness_um'])} {hu} ({report['flatness_method']}, {report['points']} points)")
-    u = report["expanded_uncertainty_um"]
-    con.print(f"Expanded uncertainty U = {h(u)} {hu}" if u is not None else "Expanded uncertainty U: unknown")
-    table = Table(title_justify="left")
-    table.add_column("grade")
-    table.add_column(f"T {hu}", justify="right")
-    table.add_column("accept F <=", justify="right")
-    table.add_column("reject F >", justify="right")
-    table.add_column("verdict", no_wrap=True)
-    table.add_column("value source")
-    for g in report["grades"]:
-        style = _VERDICT_STYLE[g["verdict"]]
-        src = _SHORT_STATUS.get(g["status"], g["status"]) + ("" if g["in_range"] else ", out of range")
-        table.add_row(
-            g["grade"],
-            h(g["tolerance_um"]),
-            h(g["acceptance_limit_um"]),
-            h(g["rejection_limit_um"]),
-            f"[{style}]{g['verdict']}[/{style}]",
-            src,
-        )
-    con.print(table)
-    con.print(f"Rule: {report['rule_statement']}")
-    if report["length_used_mm"] is not None:
-        which = {"side": "longer side", "diagonal": "diagonal"}[report["length_basis"]]
-        inch = f" = {report['length_used_mm'] / MM_PER_INCH:.2f} in" if units == "in" else ""
-        con.print(
-            f"Length used: {report['length_used_mm']:.1f} mm{inch} ({which}) of a {report['length_mm']:g} x "
-            f"{report['width_mm']:g} mm plate; size: {_SIZE_SOURCE_TEXT[report['size_source']]}"
-        )
-    if report["formula"] and report["basis"] == "table":
-        con.print(f"Values from a published table (secondary); the standard's formula: {report['formula']}")
-    elif report["formula"]:
-        con.print(f"Formula: {report['formula']}; rounding: {report['rounding']}")
-    if report["best_grade"] is not None:
-        how = "proven (ISO 14253-1)" if report["rule"] == "iso14253-1" else "under simple acceptance"
-        best = next(g for g in report["grades"] if g["grade"] == report["best_grade"])
-        outside = "" if best["in_range"] else " (the plate is outside the standard's size range: indicative only)"
-        con.print(f"Finest grade that conforms, {how}: [bold]{report['best_grade']}[/bold]{outside}")
-    rr = report["repeat_reading"]
-    if rr is not None:
-        extra = "" if rr["verdict"] is None else f" against {h(rr['tolerance_um'])} {hu}: {rr['verdict']} ({rr['rule']})"
-        con.print(f"Repeat reading (simulated gage, feet at {rr['foot_radius_mm']:g} mm): {h(rr['variation_um'])} {hu}{extra}")
-    for n in report["notes"]:
-        con.print(f"[dim]note:[/dim] {n}")
 
 
 @app.command("grade")
@@ -389,7 +142,7 @@ def grade_cmd(
         else:
             unc = mc.minimum_zone.expanded_um
             mc_note = mc.note
-    report = build_grade_report(
+    report = grade_surface(
         hm,
         standard=standard,
         grade=grade,

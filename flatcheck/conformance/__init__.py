@@ -28,6 +28,9 @@ __getattr__, __dir__, __all__ = _attach(
             'decide',
             'assess_grades',
         ),
+        '_grading': (
+            'grade_surface',
+        ),
         '_tolerance': (
             'LENGTH_BASES',
             'BASES',

@@ -15,6 +15,10 @@ __getattr__, __dir__, __all__ = _attach(
         '_measured': (
             'MeasuredSurface',
         ),
+        '_trials': (
+            'DEFAULT_TRIALS',
+            'default_trials',
+        ),
         '_evaluate': (
             'Window',
             'parse_window',

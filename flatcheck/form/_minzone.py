@@ -313,11 +313,10 @@ def _dual_simplex(X, Y, Z, B, max_iter):
         v[active] = va
         r = _resid(Za, va, X, Y)  # residual about the lower plane
         lo_arg = r.argmin(axis=1)
-        up_slack = va[:, 3:4] - r
-        up_arg = up_slack.argmin(axis=1)
+        up_arg = r.argmax(axis=1)  # least slack below the upper plane
         ar = np.arange(active.size)
         lo_min = r[ar, lo_arg]
-        up_min = up_slack[ar, up_arg]
+        up_min = va[:, 3] - r[ar, up_arg]
         worst = np.minimum(lo_min, up_min)
         fin = worst >= -_TOL
         done[active[fin]] = True
@@ -355,10 +354,13 @@ def _initial_basis(X, Y):
 
 
 def _resid(Z, v, X, Y):
-    """Residuals (m, n) of heights Z (m, n) about lower planes v (m, >=3)."""
-    r = Z - v[:, 0:1]
-    r -= v[:, 1:2] * X
-    r -= v[:, 2:3] * Y
+    """Residuals (m, n) of heights Z (m, n) about lower planes v (m, >=3).
+
+    The planes are evaluated as one matrix product (m, 3) x (3, n), then subtracted in place:
+    two passes over the (m, n) array instead of four.
+    """
+    r = np.matmul(v[:, :3], np.vstack([np.ones_like(X), X, Y]))
+    np.subtract(Z, r, out=r)
     return r
 
 
@@ -587,6 +589,15 @@ def _hull_vertices(X, Y, Z):
 def minimum_zone_batch(x_mm, y_mm, heights_um, *, start=None, max_iter: int = 100):
     """Vertical minimum zone for many height sets measured at the same positions.
 
+    Each set is solved by the dual simplex from a warm start (the contact basis of
+    ``start``). On large point sets the simplex works on a shared *working set*: the
+    points whose distance to the warm start's zone planes is within a few times the
+    largest change of any height in the batch (only those can become contacts in one
+    step), then every point of every set is checked; sets with a point outside their
+    zone take the offending points into the working set and continue from their basis
+    (constraint generation, as for one large set). The answer is exact either way: each
+    zone is certified by its multipliers (dual feasibility) and by checking all points.
+
     Parameters
     ----------
     x_mm, y_mm : array_like, shape (n,)
@@ -614,8 +625,9 @@ def minimum_zone_batch(x_mm, y_mm, heights_um, *, start=None, max_iter: int = 10
     if not np.isfinite(Z).all():
         raise InputValueError("a height is not a finite number", fix="remove NaN/inf trials")
     n = x.size
+    m = Z.shape[0]
     ref = Z.mean(axis=0)
-    frame, _ = _frame(x, y, ref)
+    frame, Zref = _frame(x, y, ref)
     X, Y = frame.X, frame.Y
     Zn = frame.to_norm(Z)
     B0 = None
@@ -626,12 +638,59 @@ def minimum_zone_batch(x_mm, y_mm, heights_um, *, start=None, max_iter: int = 10
             B0 = None
     if B0 is None:
         B0 = _initial_basis(X, Y)
-    v, B, done = _dual_simplex(X, Y, Zn, np.broadcast_to(B0, (Z.shape[0], 4)), max_iter)
-    r = _resid(Zn, v, X, Y)
-    ok, _ = _certify(X, Y, Zn, B, v, r)
-    ok &= done
-    t = (r.max(axis=1) - r.min(axis=1)) * frame.zs
-    bad = np.flatnonzero(~ok)
+    S = _working_set(X, Y, Zref, Zn, B0)
+    B = np.broadcast_to(B0, (m, 4)).copy()
+    t = np.full(m, np.nan)
+    certified = np.zeros(m, dtype=bool)
+    todo = np.arange(m)
+    for _ in range(20):
+        if todo.size == 0:
+            break
+        Xs, Ys = X[S], Y[S]
+        Zs = Zn[np.ix_(todo, S)] if S.size < n else Zn[todo]
+        v, Bl, done = _dual_simplex(Xs, Ys, Zs, _local_rows(B[todo], S, n), max_iter)
+        B[todo] = _map_rows(Bl, S, n)
+        r = _resid(Zn[todo], v, X, Y)  # every point of every set
+        lo, hi = r.min(axis=1), r.max(axis=1)
+        inside = (lo >= -_TOL) & (hi <= v[:, 3] + _TOL)
+        fin = done & inside
+        if fin.any():
+            ok, _ = _certify(X, Y, None, B[todo[fin]], v[fin], r[fin])
+            idx = todo[fin]
+            t[idx] = (hi[fin] - lo[fin]) * frame.zs
+            certified[idx] = ok
+        more = done & ~inside
+        if not more.any() or S.size == n:
+            break
+        rm = r[more]
+        out = (rm < -_TOL) | (rm > v[more, 3:4] + _TOL)
+        S = np.union1d(S, np.flatnonzero(out.any(axis=0)))
+        todo = todo[more]
+    bad = np.flatnonzero(~certified)
     for k in bad:
         t[k] = solve_minimum_zone(x, y, Z[k]).t_um
     return t, int(bad.size)
+
+
+def _working_set(X, Y, Zref, Zn, B0):
+    """Points that may touch a zone in a batch: near the warm start's zone planes (see the caller).
+
+    A point whose distance to both planes of the reference zone exceeds six times the RMS
+    change of one height in the batch rarely becomes a contact; if it does, the full check
+    after the simplex brings it in. Small sets are kept whole.
+    """
+    n = X.size
+    if n <= 200:
+        return np.arange(n)
+    G, i, s = _rows(B0[None, :], X, Y, n)
+    try:
+        v = np.linalg.solve(G[0], s[0] * Zref[i[0]])
+    except np.linalg.LinAlgError:
+        return np.arange(n)
+    r = Zref - (v[0] + v[1] * X + v[2] * Y)
+    lo = r.min()
+    slack = np.minimum(r - lo, (r.max() - lo) - (r - lo))
+    dev = float(np.sqrt(np.mean((Zn[: min(Zn.shape[0], 2000)] - Zref) ** 2)))  # RMS change of one height
+    S = np.flatnonzero(slack <= 6.0 * dev + 1e-12)
+    S = np.union1d(S, B0 % n)
+    return np.arange(n) if S.size > n // 2 else S

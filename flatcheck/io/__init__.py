@@ -10,7 +10,7 @@ Surveys (TOML)
 Height maps (CSV)
     read_heightmap_csv, write_heightmap_csv, format_heightmap_csv, is_heightmap_csv
 Bearings (TOML)
-    read_bearing_toml, parse_bearing_toml, parse_pad_size, BearingDescription
+    read_bearing_toml, parse_bearing_toml, BearingDescription
 Lapping logs (CSV)
     read_lap_log
 Text in, files out
@@ -31,7 +31,7 @@ __getattr__, __dir__, __all__ = _attach(
             "read_heightmap_csv", "write_heightmap_csv", "format_heightmap_csv", "is_heightmap_csv",
             "HEADER",
         ),
-        "_bearing_toml": ("read_bearing_toml", "parse_bearing_toml", "parse_pad_size", "BearingDescription"),
+        "_bearing_toml": ("read_bearing_toml", "parse_bearing_toml", "BearingDescription"),
         "_lap_log": ("read_lap_log", "LOG_HEADER"),
         "_text": ("read_text",),
         "_atomic": ("write_text_atomic", "write_bytes_atomic", "atomic_path"),

@@ -46,14 +46,12 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..bearing import Carriage, MotionBudget, Pad, PlacedPad
+from ..bearing import parse_pad_size
 from ..errors import FlatcheckError, InputFormatError, InputValueError
-from ._text import read_text
+from ._text import read_text, toml_loads
 
 __all__ = ["BearingDescription", "parse_pad_size", "read_bearing_toml", "parse_bearing_toml"]
 
-_PAD_RE = re.compile(
-    r"^\s*(?:(?P<d>[dD]|Ø)\s*(?P<dia>[0-9.eE+-]+)|(?P<l>[0-9.eE+-]+)\s*[xX×*]\s*(?P<w>[0-9.eE+-]+))\s*(?:mm)?\s*$"
-)
 
 _BEARING_KEYS = {"label", "pad", "gap_um", "kind", "gap_fraction", "marginal_from"}
 _CARRIAGE_KEYS = {"face", "y_mm", "travel_start_mm", "travel_end_mm", "step_mm", "pad"}
@@ -81,45 +79,6 @@ class BearingDescription:
     gap_fraction: float | None
     marginal_from: float | None
     budget: MotionBudget
-
-
-def parse_pad_size(text: str, *, where: str | None = None) -> tuple[str, float, float]:
-    """Parse a pad size: ``"LxW"`` (rectangle, mm, L along the travel) or ``"dD"`` (circle of diameter D mm).
-
-    Parameters
-    ----------
-    text : str
-        For example ``"120x80"``, ``"120 x 80 mm"``, ``"d80"``.
-    where : str, optional
-        Location for the error message.
-
-    Returns
-    -------
-    (shape, length_mm, width_mm)
-        ``shape`` is ``"rect"`` or ``"circle"``; for a circle both sizes are the diameter.
-
-    Raises
-    ------
-    InputValueError
-        Text in neither form, or sizes that are not positive numbers.
-    """
-    m = _PAD_RE.match(str(text))
-    fix = "write the pad as LxW in mm (e.g. 120x80) or dD for a circular pad (e.g. d80)"
-    if m is None:
-        raise InputValueError(f"cannot read the pad size {text!r}", where=where, fix=fix)
-    try:
-        if m.group("dia") is not None:
-            d = float(m.group("dia"))
-            shape, length, width = "circle", d, d
-        else:
-            shape, length, width = "rect", float(m.group("l")), float(m.group("w"))
-    except ValueError:
-        raise InputValueError(f"cannot read the pad size {text!r}", where=where, fix=fix) from None
-    if not all(math.isfinite(v) for v in (length, width)):
-        raise InputValueError(f"the pad size {text!r} is not a finite number of mm", where=where, fix=fix)
-    if not (length > 0 and width > 0):
-        raise InputValueError(f"the pad size {text!r} must be positive", where=where, fix=fix)
-    return shape, length, width
 
 
 def _shown(value) -> str:
@@ -203,7 +162,7 @@ def parse_bearing_toml(text: str, *, source: str = "<bearing>") -> BearingDescri
         A value of the wrong type or out of range.
     """
     try:
-        doc = tomllib.loads(text)
+        doc = toml_loads(text, where=source)
     except tomllib.TOMLDecodeError as exc:
         raise InputFormatError(f"not a valid TOML file ({exc})", where=source, fix="check the TOML syntax") from None
     _check_keys(doc, {"bearing", "carriage", "budget"}, source)

@@ -35,7 +35,7 @@ from ..survey import INSTRUMENT_KINDS, PATTERNS, Instrument, Run, Surface, Surve
 from ..units import MM_PER_INCH, angle_unit, length_unit
 from ._atomic import write_text_atomic
 from ._heightmap_csv import HEADER as _CSV_HEADER
-from ._text import read_text
+from ._text import read_text, toml_loads
 
 __all__ = [
     "FORMAT_NAME",
@@ -346,7 +346,7 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
     """Parse the text of a survey file (see :func:`read_survey`); ``source`` names it in messages."""
     ctx = _Ctx(source, text)
     try:
-        data = tomllib.loads(text)
+        data = toml_loads(text, where=source)
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)

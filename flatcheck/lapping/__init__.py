@@ -39,6 +39,16 @@ __getattr__, __dir__, __all__ = _attach(
             'default_cell_mm',
             'chart_edges',
         ),
+        '_targets': (
+            'ASSUMED_RATE_UM_PER_MIN',
+            'resolve_target',
+            'parse_lap_size',
+            'check_option',
+            'check_lap_fits',
+            'check_lap_options',
+            'check_lap_on_surface',
+            'build_lap',
+        ),
         '_sessions': (
             'DEFAULT_MATCH_TOL_MM',
             'match_nodes',

@@ -262,7 +262,7 @@ def test_best_grade_of_a_plate_outside_the_range_is_called_indicative(cli, tmp_p
 def test_default_trials_shrink_for_large_surveys_but_not_below_ten_thousand(cli):
     # U is evaluated by default; a dense survey must not make that take minutes (about 8e6 station-trials),
     # while a plate survey of a few dozen stations keeps 100 000 trials.
-    from flatcheck.cli.common import default_auto_trials
+    from flatcheck.evaluation import default_trials as default_auto_trials
 
     assert default_auto_trials(45) == 100_000
     assert default_auto_trials(228) == 40_000

@@ -332,7 +332,7 @@ def test_too_many_chart_cells_names_cell_mm_and_the_size_that_fits(cli, args, op
 def test_lap_option_checks_for_other_commands_name_the_option():
     # build_lap and check_lap_options are what the report calls: their errors name lap's options
     from flatcheck import open_surface
-    from flatcheck.cli.lap_cmd import build_lap, check_lap_on_surface, check_lap_options
+    from flatcheck.lapping import build_lap, check_lap_on_surface, check_lap_options
     from flatcheck.errors import InputValueError
     from flatcheck.lapping import LapModel
 

@@ -347,7 +347,7 @@ def test_no_redundancy_says_so_instead_of_nan(cli, tmp_path):
 
 @pytest.mark.parametrize("sigma", [float("nan"), None, "missing"])
 def test_scatter_text_without_a_value(sigma):
-    from flatcheck.cli.reduce_cmd import _scatter_text
+    from flatcheck.cli._reduce_view import _scatter_text
 
     res = {"redundancy": 0} if sigma == "missing" else {"redundancy": 0, "sigma0_um": sigma, "sigma0_reading": sigma}
     assert _scatter_text(res, "um", "um") == "no redundancy: no scatter estimate"
@@ -356,7 +356,7 @@ def test_scatter_text_without_a_value(sigma):
 
 def test_a_zero_never_prints_with_a_minus_sign(cli, tmp_path, monkeypatch):
     # noise-free readings close to rounding error (about -1e-15 µm), which printed as "-0.000"
-    from flatcheck.cli.reduce_cmd import _fmt
+    from flatcheck.cli._reduce_view import _fmt
     from flatcheck.survey import plan_union_jack
 
     assert _fmt(-1e-9, "um") == "0.000" and _fmt(-1e-9, "in") == "0.0" and _fmt(-0.0006, "um") == "-0.001"

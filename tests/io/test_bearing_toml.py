@@ -3,7 +3,8 @@
 import pytest
 
 from flatcheck.errors import InputFormatError, InputValueError
-from flatcheck.io import parse_bearing_toml, parse_pad_size, read_bearing_toml
+from flatcheck.bearing import parse_pad_size
+from flatcheck.io import parse_bearing_toml, read_bearing_toml
 
 TANDEM = """
 [bearing]

@@ -1,0 +1,194 @@
+"""How a reduction is printed at the bench (used by ``reduce`` and ``demo``)."""
+
+from __future__ import annotations
+
+
+import numpy as np
+from rich.markup import escape
+from rich.table import Table
+
+from ..units import MM_PER_INCH, format_height, format_length, height_unit_label
+from .common import stdout_console
+
+
+def _finite(v) -> bool:
+    """True for a real, finite number (not None, NaN, infinite or text)."""
+    try:
+        return v is not None and not isinstance(v, bool) and bool(np.isfinite(float(v)))
+    except (TypeError, ValueError):
+        return False
+
+
+def _fmt(v, units):
+    """A height (µm) in the display unit: 3 decimals of µm or 1 of µin; '-' when there is none."""
+    if not _finite(v):
+        return "-"
+    text = format_height(v, units, unit=False)
+    # a tiny negative number rounds to "-0.000": no sign on a zero
+    return text[1:] if text.startswith("-") and float(text) == 0 else text
+
+
+def _window_text(lf: dict, units: str) -> str:
+    """The local-flatness window in the display unit (the option takes mm)."""
+    if units != "in":
+        return lf["window"]
+    a, b = lf["length_mm"] / MM_PER_INCH, lf["width_mm"] / MM_PER_INCH
+    if lf.get("shape") == "circle":
+        return f"d{a:.2f} in ({lf['window']})"
+    return f"{a:.2f} x {b:.2f} in ({lf['window']})"
+
+
+def _scatter_text(res: dict, units: str, reading_unit: str) -> str:
+    """One reading's standard deviation, or why there is none (no redundancy: sigma0 is NaN or missing)."""
+    s0 = res.get("sigma0_um")
+    if not _finite(s0) or not res.get("redundancy"):
+        return "no redundancy: no scatter estimate"
+    text = f"{_fmt(s0, units)} {height_unit_label(units)}"
+    s0r = res.get("sigma0_reading")
+    if _finite(s0r):
+        text += f" ({s0r:.3g} {reading_unit})"
+    return text
+
+
+def render_reduction(ev, doc, units, map_out) -> None:
+    con = stdout_console()
+    hu = height_unit_label(units)
+    f = doc["flatness"]
+    con.print(f"[bold]{doc['surface']['description'] or 'Surface'}[/bold]  {doc['surface'].get('ident') or ''}")
+    con.print(f"  input: {doc['input']} ({doc['kind']})")
+    if doc.get("instrument"):
+        ins = doc["instrument"]
+        con.print(f"  instrument: {ins['kind']}, readings in {ins['unit']}; pattern {doc.get('pattern')}")
+    con.print(f"  method: {ev.method_text}")
+    con.print(
+        f"  {ev.heightmap.n} {'stations' if ev.loaded.survey is not None else 'points'}"
+        + (f", {doc['residuals']['observations']} readings" if doc.get("residuals") else "")
+    )
+    con.print()
+    t = Table(title=f"Flatness ({hu})", title_justify="left")
+    t.add_column("reference")
+    t.add_column("total (FLTt)", justify="right")
+    t.add_column("peak (FLTp)", justify="right")
+    t.add_column("valley (FLTv)", justify="right")
+    t.add_column("RMS (FLTq)", justify="right")
+    for row in doc["flatness"]["references"]:
+        t.add_row(row["reference"], _fmt(row["fltt_um"], units), _fmt(row["fltp_um"], units), _fmt(row["fltv_um"], units), _fmt(row["fltq_um"], units))
+    con.print(t)
+    line = f"  flatness (minimum zone): [bold]{_fmt(f['minimum_zone_um'], units)} {hu}[/bold]"
+    if f.get("expanded_uncertainty_um") is not None:
+        lo, hi = f["coverage_interval_um"]
+        line += (
+            f"  U = {_fmt(f['expanded_uncertainty_um'], units)} {hu} (k = 2 equivalent); 95 % interval "
+            f"{_fmt(lo, units)} to {_fmt(hi, units)} {hu}"
+        )
+    con.print(line)
+    if ev.uncertainty is not None:
+        mz = ev.uncertainty.minimum_zone
+        con.print(
+            f"  [dim]Monte Carlo (JCGM 101), {mz.trials} trials, seed {mz.seed}: {ev.uncertainty.basis}; "
+            f"U = 2 x standard deviation; simulated mean {_fmt(mz.mean_um, units)} {hu} "
+            f"(random errors inflate a zone)[/dim]"
+        )
+    lf = doc.get("local_flatness")
+    if lf:
+        con.print(
+            f"  local flatness over {_window_text(lf, units)}: {_fmt(lf['max_um'], units)} {hu} at "
+            f"x = {format_length(lf['x_mm'], units)}, y = {format_length(lf['y_mm'], units)}"
+        )
+    res = doc.get("residuals")
+    if res:
+        con.print()
+        scatter = _scatter_text(res, units, (doc.get("instrument") or {}).get("unit", ""))
+        if scatter.startswith("no redundancy"):
+            con.print(f"  redundancy {res.get('redundancy', 0)}; {scatter}")
+        else:
+            con.print(f"  redundancy {res['redundancy']}; one reading's standard deviation from the residuals: {scatter}")
+        lines = doc.get("lines") or []
+        if lines:
+            t = Table(title=f"Lines ({hu})", title_justify="left")
+            t.add_column("line")
+            t.add_column("closure", justify="right")
+            t.add_column("at", no_wrap=True)
+            t.add_column("straightness (MZ)", justify="right")
+            t.add_column("runs spread", justify="right")
+            for ln in lines:
+                t.add_row(ln["name"], _fmt(ln["closure_um"], units), ln.get("closure_station") or "", _fmt(ln.get("straightness_um"), units), _fmt(ln.get("run_spread_um"), units))
+            con.print(t)
+            meaning = {ln["meaning"] for ln in lines if ln.get("meaning")}
+            for m in meaning:
+                con.print(f"  [dim]closure: {m}[/dim]")
+        # One line per suspect group (its text names the group); readings flagged only through a
+        # suspect's error (group 0) are counted in the warnings, not listed.
+        shown_groups = set()
+        for o in res["outliers"]:
+            group = o.get("group")
+            if group == 0 or (group is not None and group in shown_groups):
+                continue
+            shown_groups.add(group)
+            if o.get("group_size", 1) > 1:  # the layout cannot tell which: name the group, not one member
+                names = o["group_lines"]
+                lines = ("lines " if len(names) > 1 else "line ") + " and ".join(repr(n) for n in names)
+                text = (f"one of {o['group_size']} readings of {lines} (|w| = {abs(o['w']):.2f}); "
+                        "this layout cannot tell which (see the note below)")
+            else:
+                text = o["text"]
+            con.print(f"  [bold red]suspect reading[/bold red]: {escape(text)}")
+    for w in list(doc.get("notes") or []) + list(doc.get("warnings") or []):
+        con.print(f"  [yellow]note:[/yellow] {escape(w)}")
+    _render_map(con, ev, units)
+    if map_out is not None:
+        con.print(f"  height map written to {map_out}")
+
+
+def _render_map(con, ev, units) -> None:
+    hm = ev.heightmap
+    hu = height_unit_label(units)
+    if hm.grid is not None:
+        xs, ys, index = hm.grid
+        if xs.size > 16 or ys.size > 30:
+            return
+        Z = hm.grid_heights_um()
+        cells = [[_fmt(z, units) for z in Z[j]] for j in range(ys.size - 1, -1, -1)]
+        lu = "in" if units == "in" else "mm"
+        if units == "in":
+            ylab = [format_length(y, units, unit=False) for y in ys[::-1]]
+            xlab = [format_length(x, units, unit=False) for x in xs]
+        else:
+            ylab = [f"{y:g}" for y in ys[::-1]]
+            xlab = [f"{x:g}" for x in xs]
+        # one character of padding each side of a cell and a rule between cells
+        cw = max(max(len(c) for row in cells for c in row), max(len(v) for v in xlab))
+        yw = max(len(f"y {lu}"), max(len(v) for v in ylab))
+        need = yw + 3 + xs.size * (cw + 3) + 1
+        if need > con.width:
+            con.print(
+                f"  height map ({xs.size} x {ys.size} points) needs {need} columns, the terminal has {con.width}: "
+                "widen it, or use --map-out or --json"
+            )
+            return
+        t = Table(
+            title=f"Height map, {hu} about the least-squares plane (rows y {lu}, columns x {lu})",
+            title_justify="left",
+        )
+        t.add_column(f"y {lu}", justify="right", no_wrap=True)
+        for x in xlab:
+            t.add_column(x, justify="right", no_wrap=True)
+        for lab, row in zip(ylab, cells):
+            t.add_row(lab, *row)
+        con.print(t)
+    elif hm.n <= 120 and hm.names is not None:
+        t = Table(title=f"Station heights ({hu}, about the least-squares plane)", title_justify="left")
+        for _ in range(2):
+            t.add_column("station", no_wrap=True)
+            t.add_column("x in" if units == "in" else "x mm", justify="right")
+            t.add_column("y in" if units == "in" else "y mm", justify="right")
+            t.add_column(hu, justify="right")
+        cells = [
+            (n, format_length(x, units, unit=False), format_length(y, units, unit=False), _fmt(z, units))
+            for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
+        ]
+        half = (len(cells) + 1) // 2
+        for i in range(half):
+            row = list(cells[i]) + (list(cells[i + half]) if i + half < len(cells) else [""] * 4)
+            t.add_row(*row)
+        con.print(t)
