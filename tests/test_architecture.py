@@ -221,3 +221,16 @@ def test_start_up_loads_nothing_heavy(code):
     assert out.returncode == 0, out.stderr
     loaded = out.stdout.rsplit("HEAVY:", 1)[1].strip()
     assert loaded == "", f"start-up loaded {loaded}"
+
+
+def test_the_command_lines_copies_of_core_defaults_stay_equal():
+    # the CLI writes these defaults out so that starting it does not load numpy; they must not drift
+    from flatcheck.bearing import DEFAULT_GAP_FRACTION, DEFAULT_MARGINAL_FROM
+    from flatcheck.cli import bearing_cmd, compare_cmd, plan_cmd
+    from flatcheck.lapping import DEFAULT_MATCH_TOL_MM
+    from flatcheck.survey import DEFAULT_MARGIN_MM
+
+    assert plan_cmd.DEFAULT_MARGIN_MM == DEFAULT_MARGIN_MM
+    assert (bearing_cmd.DEFAULT_GAP_FRACTION, bearing_cmd.DEFAULT_MARGINAL_FROM) == (
+        DEFAULT_GAP_FRACTION, DEFAULT_MARGINAL_FROM)
+    assert compare_cmd.DEFAULT_MATCH_TOL_MM == DEFAULT_MATCH_TOL_MM

@@ -6,23 +6,13 @@ import math
 from enum import Enum
 from pathlib import Path
 
-import numpy as np
 import typer
-from rich.table import Table
 
-from ..bearing import (
-    DEFAULT_GAP_FRACTION,
-    DEFAULT_MARGINAL_FROM,
-    BearingResult,
-    MotionBudget,
-    carriage_from_options,
-    evaluate_bearing,
-    film_feed,
-    station_positions,
-)
+DEFAULT_GAP_FRACTION = 0.25  # the core's value (a test keeps them equal); importing it would load numpy when the CLI starts
+DEFAULT_MARGINAL_FROM = 0.8  # the core's value (a test keeps them equal); importing it would load numpy when the CLI starts
 from ..errors import FlatcheckError, InputValueError
-from ..io import read_bearing_toml
-from ..units import format_height, height_unit_label
+from typing import TYPE_CHECKING
+
 from ._app import app
 from .common import (
     SAFETY_LINES,
@@ -34,6 +24,11 @@ from .common import (
     Units,
     units_option,
 )
+
+if TYPE_CHECKING:  # annotations only
+    from rich.table import Table
+
+    from ..bearing import BearingResult
 
 
 class PadKind(str, Enum):
@@ -155,6 +150,9 @@ def _fmt_where(where) -> str:
 
 def render_summary(result: BearingResult, *, label: str, units: str) -> None:
     """Human summary on standard output (rich)."""
+    from rich.table import Table
+    from ..units import format_height
+
     con = stdout_console()
 
     def h(v):
@@ -256,6 +254,13 @@ def bearing_cmd(
     ),
 ) -> None:
     """Judge the surface for air-bearing pads: local flatness against the gap, clearance, carriage motion."""
+    from ..bearing import MotionBudget
+    from ..bearing import carriage_from_options
+    from ..bearing import evaluate_bearing
+    from ..bearing import film_feed
+    from ..io import read_bearing_toml
+    from ..bearing import station_positions
+
     from ..io import read_heightmap_csv
 
     _check_options(
@@ -420,6 +425,11 @@ def _sig3(v: float) -> str:
 
 def _curve_table(film, *, units: str, orifice: bool) -> Table:
     """A short table of the flat-guide curve: gaps from gap/4 to 4 gap, the nominal and peak-stiffness rows marked."""
+    from rich.table import Table
+    from ..units import format_height
+    from ..units import height_unit_label
+    import numpy as np
+
     from ..bearing import KG_S_TO_MG_S, curve_table_rows
 
     c = film.curve
@@ -447,6 +457,8 @@ def _curve_table(film, *, units: str, orifice: bool) -> Table:
 
 
 def _render_film(film, *, units: str) -> None:
+    from ..units import format_height
+    import numpy as np
     from ..bearing import OrificeFeed, orifice_notes
 
     con = stdout_console()

@@ -10,11 +10,11 @@ from contextlib import contextmanager
 from enum import Enum
 from pathlib import Path
 
-import numpy as np
-from rich.console import Console
+
+from typing import TYPE_CHECKING
 
 from ..errors import OutputError
-from ..evaluation._trials import DEFAULT_TRIALS, default_trials as default_auto_trials  # noqa: F401
+from ..evaluation._trials import DEFAULT_TRIALS, default_trials as default_auto_trials  # noqa: F401  (light: no numpy)
 from ..safety import SAFETY_LINES as _SAFETY_LINES
 
 __all__ = [
@@ -64,13 +64,21 @@ class Units(str, Enum):
     inch = "in"
 
 
+if TYPE_CHECKING:  # annotations only
+    from rich.console import Console
+
+
 def stdout_console() -> Console:
     """Console on standard output (summaries)."""
+    from rich.console import Console
+
     return Console(file=sys.stdout, highlight=False, soft_wrap=False)
 
 
 def stderr_console() -> Console:
     """Console on standard error (progress, warnings)."""
+    from rich.console import Console
+
     return Console(file=sys.stderr, highlight=False)
 
 
@@ -79,6 +87,8 @@ def jsonable(obj):
 
     NaN and infinities become ``null``: JSON has no such numbers.
     """
+    import numpy as np
+
     import dataclasses
 
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
@@ -269,6 +279,7 @@ def units_option():
 
 def trials_option():
     """The ``--trials`` option of the Monte Carlo uncertainty."""
+
     import typer
 
     return typer.Option(DEFAULT_TRIALS, "--trials", min=100, help="Monte Carlo trials (JCGM 101).")

@@ -7,9 +7,9 @@ from pathlib import Path
 import typer
 
 from ..errors import InputValueError
-from ..lapping import LapModel, check_option, parse_lap_size, resolve_target
-from ..lapping import DEFAULT_MATCH_TOL_MM, Progress, compare_surveys, match_nodes
-from ..units import format_height, height_unit_label
+DEFAULT_MATCH_TOL_MM = 0.5  # the core's value (a test keeps them equal); importing it would load numpy when the CLI starts
+from typing import TYPE_CHECKING
+
 from ._app import app
 from .common import (
     GAP_FRACTION_HELP,
@@ -23,6 +23,9 @@ from .common import (
     Units,
     units_option,
 )
+
+if TYPE_CHECKING:  # annotations only
+    from ..lapping import LapModel, Progress
 
 
 def cautions(pr: Progress) -> list:
@@ -105,6 +108,9 @@ def change_grid_text(pr: Progress, units: str, width: int, grid=None) -> str | N
     is wider than ``width`` characters or longer than ``_MAX_GRID_ROWS`` rows. ``grid`` is
     :func:`_change_grid` of ``pr`` when the caller has it already.
     """
+    from ..units import format_height
+    from ..units import height_unit_label
+
     grid = _change_grid(pr) if grid is None else grid
     if grid is None:
         return None
@@ -164,6 +170,8 @@ def sessions_text(pr: Progress) -> str:
 
 def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str) -> None:
     """Human summary on stdout."""
+    from ..units import format_height
+
     con = stdout_console()
 
     def h(v):
@@ -267,6 +275,13 @@ def compare_cmd(
     ),
 ) -> None:
     """Change map, removed volume, flatness before/after, calibrated rate and sessions to the target."""
+    from ..lapping import LapModel
+    from ..lapping import check_option
+    from ..lapping import compare_surveys
+    from ..lapping import match_nodes
+    from ..lapping import parse_lap_size
+    from ..lapping import resolve_target
+
     if dwell_min is not None and log is not None:
         raise InputValueError("give --dwell-min or --log, not both", where="--dwell-min/--log")
     if lap_diameter_mm is not None and lap_size_mm is not None:

@@ -15,12 +15,8 @@ from pathlib import Path
 
 import typer
 
-from ..conformance import grade_surface
 from ..errors import ExitStatus, InputValueError
-from ..units import UM_PER_UIN
 from ._app import app
-from ._grade_view import _add_uin, render_grades
-from ..evaluation import survey_uncertainty
 from .common import (
     Rule,
     auto_trials_option,
@@ -51,6 +47,7 @@ class AsmeForm(str, Enum):
 
 
 def _one_of(um: float | None, uin: float | None, name: str) -> float | None:
+    from ..units import UM_PER_UIN
     if um is not None and uin is not None:
         raise InputValueError(
             f"both --{name}-um and --{name}-uin given", where=f"--{name}-um/--{name}-uin", fix="give only one"
@@ -110,6 +107,11 @@ def grade_cmd(
     u_height_um: float = u_height_option(),
 ) -> None:
     """Grade the surface's flatness against a standard, with an ISO 14253-1 decision rule."""
+    from ._grade_view import _add_uin
+    from ..conformance import grade_surface
+    from ._grade_view import render_grades
+    from ..evaluation import survey_uncertainty
+
     tol = _one_of(tolerance_um, tolerance_uin, "tolerance")
     unc = _one_of(uncertainty_um, uncertainty_uin, "uncertainty")
     if monte_carlo and unc is not None:

@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-from rich.table import Table
 
-from ..units import ANGLE_UNITS, LENGTH_UNITS
 from ._app import app
 from .common import stdout_console
 
@@ -12,6 +10,10 @@ from .common import stdout_console
 @app.command("units")
 def units_cmd() -> None:
     """List the reading units (with aliases) and how each becomes a height rise."""
+    from ..units import ANGLE_UNITS
+    from ..units import LENGTH_UNITS
+    from rich.table import Table
+
     table = Table(title="Reading units", title_justify="left")
     table.add_column("unit")
     table.add_column("aliases")

@@ -7,18 +7,9 @@ import textwrap
 from pathlib import Path
 
 import typer
-from rich.table import Table
 
-from ..lapping import (
-    LapPlan,
-    build_lap,
-    check_lap_on_surface,
-    check_lap_options,
-    least_removal,
-    plan_lapping,
-    resolve_target,
-)
-from ..units import format_height, height_unit_label
+from typing import TYPE_CHECKING
+
 from ._app import app
 from .common import (
     GAP_FRACTION_HELP,
@@ -33,6 +24,9 @@ from .common import (
     Units,
     units_option,
 )
+
+if TYPE_CHECKING:  # annotations only
+    from ..lapping import LapPlan
 
 
 def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str, notes: list, units: str) -> dict:
@@ -113,6 +107,8 @@ def _fmt_pass_time(plan: LapPlan, p) -> str:
 
 def short_by_hand_line(plan: LapPlan, units: str) -> str:
     """The footnote of the passes marked "!" (empty when there are none)."""
+    from ..units import format_height
+
     n = len(plan.too_short_by_hand)
     if not n:
         return ""
@@ -187,6 +183,8 @@ def chart_text(plan: LapPlan, max_width: int = 96) -> str:
 
 def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> str:
     """The whole plan as plain text: summary, passes, chart, caution."""
+    from ..units import format_height
+
     lr = plan.removal
 
     def h(v):
@@ -227,6 +225,10 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
 
 def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> None:
     """Human summary on stdout (rich)."""
+    from rich.table import Table
+    from ..units import format_height
+    from ..units import height_unit_label
+
     con = stdout_console()
     lr = plan.removal
     hu = height_unit_label(units)
@@ -299,6 +301,13 @@ def lap_cmd(
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
 ) -> None:
     """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness."""
+    from ..lapping import build_lap
+    from ..lapping import check_lap_on_surface
+    from ..lapping import check_lap_options
+    from ..lapping import least_removal
+    from ..lapping import plan_lapping
+    from ..lapping import resolve_target
+
     from ..io import write_text_atomic
 
     # options first, so a typing slip is reported before the survey is reduced

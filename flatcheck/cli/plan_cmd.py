@@ -7,13 +7,9 @@ import sys
 from pathlib import Path
 
 import typer
-from rich.table import Table
 
 from ..errors import InputValueError, LayoutError, OutputError
-from ..io import write_survey
-from ..survey import DEFAULT_MARGIN_MM, plan_grid, plan_union_jack, reading_sequence, summarize_layout
-from ..survey import Instrument, Surface
-from ..units import MM_PER_INCH, angle_unit, length_unit
+DEFAULT_MARGIN_MM = 30.0  # the core's value (a test keeps them equal); importing it would load numpy when the CLI starts
 from ._app import app
 from .common import emit_json, stdout_console
 
@@ -55,6 +51,8 @@ DEFAULT_MARGIN_IN = 1.25
 
 def _size_mm(name: str, v_mm, v_in, *, required: bool = True):
     """One size given as ``--<name>-mm`` or ``--<name>-in``: (value in mm or None, unit it was given in)."""
+    from ..units import MM_PER_INCH
+
     if v_mm is not None and v_in is not None:
         raise InputValueError(
             f"both --{name}-mm and --{name}-in are given", where=f"--{name}-in", fix="give the size once, in mm or in inches"
@@ -150,6 +148,18 @@ def plan_cmd(
     Sizes are given in mm (--length-mm...) or in inches (--length-in...); with any size in inches the
     blank file writes every length in inches (length_in, foot_spacing_in...) and the summary shows inches.
     """
+    from ..survey import Instrument
+    from ..units import MM_PER_INCH
+    from ..survey import Surface
+    from rich.table import Table
+    from ..units import angle_unit
+    from ..units import length_unit
+    from ..survey import plan_grid
+    from ..survey import plan_union_jack
+    from ..survey import reading_sequence
+    from ..survey import summarize_layout
+    from ..io import write_survey
+
     L, u_l = _size_mm("length", length_mm, length_in)
     W, u_w = _size_mm("width", width_mm, width_in)
     B, u_b = _size_mm("foot-spacing", foot_spacing_mm, foot_spacing_in)

@@ -6,11 +6,7 @@ from pathlib import Path
 
 import typer
 
-from ..evaluation import evaluate_surface
-from ..io import write_heightmap_csv
-from ..units import um_to
 from ._app import app
-from ._reduce_view import render_reduction
 from .common import (
     Method,
     emit_json,
@@ -44,6 +40,11 @@ def reduce_cmd(
     u_height_um: float = u_height_option(),
 ) -> None:
     """Reduce a survey (or read a height map) and state its flatness."""
+    from ..evaluation import evaluate_surface
+    from ._reduce_view import render_reduction
+    from ..units import um_to
+    from ..io import write_heightmap_csv
+
     refuse_overwriting_inputs({"--map-out": map_out}, [input])
     loaded = load_input(input, method=method.value)
     mc = None

@@ -12,17 +12,6 @@ from pathlib import Path
 import typer
 
 from ._app import app
-from ._report_job import (
-    StatusLine,
-    carriage_from_options,
-    check_outputs,
-    evaluate_for_report,
-    lapping_from_options,
-    make_report,
-    refuse_pictures_over_inputs,
-    report_json,
-)
-from ..lapping import check_lap_options
 from .common import (
     Method,
     Rule,
@@ -73,6 +62,16 @@ def report_cmd(
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
 ) -> None:
     """Write a PDF report: identity, method, map, local flatness, profiles, flatness with uncertainty, grades."""
+    from ._report_job import StatusLine
+    from ._report_job import carriage_from_options
+    from ..lapping import check_lap_options
+    from ._report_job import check_outputs
+    from ._report_job import evaluate_for_report
+    from ._report_job import lapping_from_options
+    from ._report_job import make_report
+    from ._report_job import refuse_pictures_over_inputs
+    from ._report_job import report_json
+
     check_outputs(output, png, standard)
     refuse_overwriting_inputs({"-o": output}, [input, bearing])
     refuse_pictures_over_inputs(png, [input, bearing])
