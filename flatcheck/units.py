@@ -15,10 +15,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:  # annotations only; numpy loads where it is used, not when the CLI starts
+    import numpy as np
 
-from .errors import UnitError
 
 __all__ = [
     "ARCSEC_TO_RAD",
@@ -122,6 +123,8 @@ def angle_unit(name: str, *, where: str | None = None) -> AngleUnit:
     UnitError
         If the name is unknown; the message lists the accepted names.
     """
+    from .errors import UnitError
+
     unit = ANGLE_UNITS.get(str(name).strip().lower())
     if unit is None:
         raise UnitError(
@@ -140,6 +143,8 @@ def length_unit(name: str, *, where: str | None = None) -> LengthUnit:
     UnitError
         If the name is unknown; the message lists the accepted names.
     """
+    from .errors import UnitError
+
     unit = LENGTH_UNITS.get(str(name).strip().lower())
     if unit is None:
         raise UnitError(
@@ -174,6 +179,8 @@ def rise_um(reading, base_mm, unit: AngleUnit) -> np.ndarray:
     >>> round(float(rise_um(1.0, 100.0, angle_unit("arcsec"))), 5)
     0.48481
     """
+    import numpy as np
+
     reading = np.asarray(reading, dtype=float)
     base_um = np.asarray(base_mm, dtype=float) * 1e3
     if unit.kind == "angle":
@@ -183,6 +190,9 @@ def rise_um(reading, base_mm, unit: AngleUnit) -> np.ndarray:
 
 def um_to(values_um, units: str):
     """Convert heights from µm to the display system: ``"um"`` (identity) or ``"in"`` (µin)."""
+    from .errors import UnitError
+    import numpy as np
+
     if units == "um":
         return values_um
     if units == "in":

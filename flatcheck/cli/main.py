@@ -96,3 +96,7 @@ def _error(message: str) -> None:
 def main() -> None:
     """Console-script entry point."""
     sys.exit(run())
+
+
+if __name__ == "__main__":  # python -m flatcheck.cli.main
+    main()
