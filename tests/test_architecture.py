@@ -156,8 +156,11 @@ FLOORS = {
     "flatcheck.conformance": {"flatcheck.form"},
     "flatcheck.bearing": {"flatcheck.form"},
     "flatcheck.lapping": {"flatcheck.form", "flatcheck.conformance", "flatcheck.bearing"},
+    "flatcheck.optics": {"flatcheck.form"},
+    "flatcheck.spheres": {"flatcheck.form"},
+    "flatcheck.bench": {"flatcheck.form", "flatcheck.survey", "flatcheck.conformance", "flatcheck.evaluation"},
 }
-BASE = ("flatcheck.errors", "flatcheck.units", "flatcheck._lazy", "flatcheck.safety")
+BASE = ("flatcheck.errors", "flatcheck.units", "flatcheck.limits", "flatcheck._lazy", "flatcheck.safety")
 
 
 @pytest.mark.parametrize("package", sorted(FLOORS))
