@@ -156,7 +156,7 @@ FLOORS = {
     "flatcheck.conformance": {"flatcheck.form"},
     "flatcheck.bearing": {"flatcheck.form"},
     "flatcheck.lapping": {"flatcheck.form", "flatcheck.conformance", "flatcheck.bearing"},
-    "flatcheck.optics": {"flatcheck.form"},
+    "flatcheck.optics": {"flatcheck.form", "flatcheck.bearing"},
     "flatcheck.spheres": {"flatcheck.form"},
     "flatcheck.bench": {"flatcheck.form", "flatcheck.survey", "flatcheck.conformance", "flatcheck.evaluation"},
 }
