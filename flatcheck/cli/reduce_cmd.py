@@ -14,8 +14,10 @@ from .common import (
     progress_bar,
     refuse_overwriting_inputs,
     seed_option,
+    load_lab_defaults,
     trials_option,
     u_height_option,
+    uncertainty_defaults_option,
     Units,
     units_option,
     window_option,
@@ -29,7 +31,7 @@ def reduce_cmd(
         Method.least_squares, "--method", help="least-squares network adjustment (any layout) or classic moody (Union Jack)."
     ),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object instead of the summary."),
-    map_out: Path = typer.Option(None, "--map-out", help="Write the nodes as a height-map CSV (x_mm,y_mm,height_um)."),
+    map_out: Path = typer.Option(None, "--map-out", help="Write the nodes as a height-map CSV (x_mm,y_mm,height_um), or as ISO 25178-72 X3P when the name ends in .x3p."),
     units: Units = units_option(),
     window: str = window_option(),
     uncertainty: bool = typer.Option(
@@ -38,6 +40,7 @@ def reduce_cmd(
     trials: int = trials_option(),
     seed: int = seed_option(),
     u_height_um: float = u_height_option(),
+    uncertainty_defaults: Path = uncertainty_defaults_option(),
 ) -> None:
     """Reduce a survey (or read a height map) and state its flatness."""
     from ..evaluation import evaluate_surface
@@ -50,18 +53,33 @@ def reduce_cmd(
     mc = None
     if uncertainty:
         with progress_bar("Monte Carlo", trials, enabled=True) as advance:
-            mc = dict(trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
+            mc = dict(trials=trials, seed=seed, u_height_um=u_height_um, progress=advance,
+                      lab_defaults=load_lab_defaults(uncertainty_defaults))
             ev = evaluate_surface(loaded, window=window, monte_carlo=mc)
     else:
         ev = evaluate_surface(loaded, window=window)
-    if map_out is not None:
+    if map_out is not None and map_out.suffix.lower() == ".x3p":  # ISO 25178-72, for other surface software
+        from ..io import write_x3p
+
+        sv = loaded.survey
+        meta = {} if sv is None else {"ident": sv.surface.ident, "description": sv.surface.description,
+                                      "material": sv.surface.material, "date": sv.date,
+                                      "length_mm": sv.surface.length_mm, "width_mm": sv.surface.width_mm}
+        write_x3p(map_out, ev.heightmap, meta={k: v for k, v in meta.items() if v})
+    elif map_out is not None:
         hm = ev.heightmap
         write_heightmap_csv(
             map_out,
             hm,
             comment=f"flatcheck reduce {input.name} ({ev.method}); heights in µm about the least-squares plane",
         )
-    doc = ev.to_dict(nodes=json_out)
+    # a height map's nodes (up to millions) go out as columns, not one dict per point (cli._json)
+    big = json_out and ev.loaded.survey is None
+    doc = ev.to_dict(nodes=json_out and not big)
+    if big:
+        from ._json import node_rows
+
+        doc["nodes"] = node_rows(ev.heightmap)
     # JSON values stay in µm and mm whatever --units says (scripts rely on the *_um / *_mm keys);
     # "units" names the unit of the *_um values, "display_units" what the summary shows.
     doc["units"] = "um"

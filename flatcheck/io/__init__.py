@@ -13,6 +13,10 @@ Bearings (TOML)
     read_bearing_toml, parse_bearing_toml, BearingDescription
 Lapping logs (CSV)
     read_lap_log
+Exchange
+    read_x3p, write_x3p (ISO 25178-72 X3P); write_export_csv (spreadsheet tables); read_csv_meta
+Lab uncertainty defaults (TOML)
+    read_uncertainty_defaults, parse_uncertainty_defaults
 Text in, files out
     read_text, write_text_atomic, write_bytes_atomic, atomic_path
 """
@@ -33,7 +37,11 @@ __getattr__, __dir__, __all__ = _attach(
         ),
         "_bearing_toml": ("read_bearing_toml", "parse_bearing_toml", "BearingDescription"),
         "_lap_log": ("read_lap_log", "LOG_HEADER"),
+        "_x3p": ("read_x3p", "write_x3p", "format_x3p", "read_x3p_contents", "X3pContents"),
+        "_export_csv": ("write_export_csv", "format_export_csv"),
+        "_csv_meta": ("read_csv_meta", "parse_csv_meta", "CsvMeta"),
         "_text": ("read_text",),
+        "_uncertainty_defaults": ("read_uncertainty_defaults", "parse_uncertainty_defaults", "ENV_VAR"),
         "_atomic": ("write_text_atomic", "write_bytes_atomic", "atomic_path"),
     },
 )

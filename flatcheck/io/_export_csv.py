@@ -24,7 +24,7 @@ import io
 import math
 
 from ..errors import InputValueError
-from ._atomic_write import write_bytes_atomic
+from ._atomic import write_bytes_atomic
 
 __all__ = ["EXPORT_TABLES", "format_export_csv", "write_export_csv"]
 

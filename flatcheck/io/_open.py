@@ -14,8 +14,9 @@ def open_surface(path, *, method: str = "least-squares") -> MeasuredSurface:
     """Open a surface file: read it, reduce a survey, and return the measured surface.
 
     A file whose first line (after comments) is the header ``x_mm,y_mm,height_um``, or
-    whose name ends in ``.csv``, is read as a height map whatever its name; anything
-    else is read as a TOML survey (``format = "flatcheck-survey"``) and reduced.
+    whose name ends in ``.csv`` and whose content is not a TOML survey, is read as a
+    height map; anything else is read as a TOML survey (``format = "flatcheck-survey"``)
+    and reduced.
 
     Parameters
     ----------
@@ -37,12 +38,21 @@ def open_surface(path, *, method: str = "least-squares") -> MeasuredSurface:
         Any error of reading or reducing, naming the file (and the TOML line or field
         where there is one).
     """
-    from ._heightmap_csv import is_heightmap_csv, read_heightmap_csv
+    from ._heightmap_csv import is_heightmap_csv, looks_like_survey_toml, read_heightmap_csv
     from ._survey_toml import read_survey, require_readings
 
     path = Path(path)
-    if path.suffix.lower() == ".csv" or is_heightmap_csv(path):
-        return MeasuredSurface(str(path), read_heightmap_csv(path))
+    if path.suffix.lower() == ".x3p":  # ISO 25178-72 (a zip: no text content to look at)
+        from ._x3p import read_x3p
+
+        hm = read_x3p(path)
+        _check_ranges(hm, path)
+        return MeasuredSurface(str(path), hm)
+    # the content decides: a TOML survey saved as .csv is read as the survey it is
+    if is_heightmap_csv(path) or (path.suffix.lower() == ".csv" and looks_like_survey_toml(path) is None):
+        hm = read_heightmap_csv(path)
+        _check_ranges(hm, path)
+        return MeasuredSurface(str(path), hm)
     survey = read_survey(path)
     require_readings(survey)  # an unread line, with its TOML line number
     from ..survey import reduce_survey
@@ -56,3 +66,20 @@ def open_surface(path, *, method: str = "least-squares") -> MeasuredSurface:
             where = f"{name}, {where}" if where else name
         raise type(exc)(exc.message, where=where, fix=exc.fix) from None
     return MeasuredSurface(str(path), red.heightmap, survey, red)
+
+
+def _check_ranges(hm, path) -> None:
+    """Refuse positions and heights outside the ranges of docs/limits.md before any evaluation (a position of
+    1e15 mm or a height of 1e300 µm would overflow the arithmetic or ask for terabytes)."""
+    import numpy as np
+
+    from ..limits import LIMITS, check_range
+
+    for name, values, kind in (("x_mm", hm.x_mm, "position_mm"), ("y_mm", hm.y_mm, "position_mm"),
+                               ("height_um", hm.height_um, "height_um")):
+        lim = LIMITS[kind]
+        bad = np.flatnonzero((values < lim.low) | (values > lim.high))
+        if bad.size:
+            i = int(bad[0])
+            check_range(values[i], kind, name=name,
+                        where=f"{path}, the point at x = {hm.x_mm[i]:.6g} mm, y = {hm.y_mm[i]:.6g} mm, {name}")

@@ -43,7 +43,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputFormatError, InputValueError, OutputError
-from ._atomic_write import write_bytes_atomic
+from ._atomic import write_bytes_atomic
 from ._csv_meta import CsvMeta, parse_csv_meta
 
 __all__ = ["X3pContents", "format_x3p", "write_x3p", "read_x3p", "read_x3p_contents", "M_PER_MM", "M_PER_UM"]

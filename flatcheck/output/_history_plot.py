@@ -110,7 +110,7 @@ def save_figure_png(fig, path, *, dpi: float = 120) -> None:
     OutputError
         The folder does not exist or cannot be written.
     """
-    from ..io._atomic_write import atomic_target
+    from ..io import atomic_path as atomic_target
 
     with atomic_target(path, suffix=".png") as tmp:
         fig.savefig(tmp, format="png", dpi=dpi)

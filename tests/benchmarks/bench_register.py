@@ -43,7 +43,7 @@ def _best(fn, repeat=5):
 @pytest.mark.benchmark
 def test_history_and_due_use_the_indexes(tmp_path):
     import flatcheck
-    from flatcheck.cli.common import load_input
+    from flatcheck import open_surface as load_input
     from flatcheck.records import Calibration, Register, due_list, surface_history, survey_entry, text_sha256
 
     ev = flatcheck.evaluate_surface(load_input(SAMPLE), monte_carlo=dict(trials=300, seed=1))

@@ -532,3 +532,20 @@ def test_run_spread_is_not_stated_for_a_turned_run_with_its_own_zero(cli, tmp_pa
     assert "flip_sign = true" in example.read_text(encoding="utf-8")
     assert spreads[example]["W-E"] is None
     assert spreads[PLATE]["W-E"] is not None and spreads[PLATE]["W-E"] > 0.01
+
+
+def test_map_out_x3p_reads_back_with_the_same_flatness(cli, tmp_path):
+    # ISO 25178-72 X3P out and in again: the same 45 station heights, so the same minimum zone
+    # (an exact LP on the same points; the file stores heights in metres, double precision)
+    import json
+
+    survey = Path(__file__).resolve().parents[2] / "sample_readings" / "plate-KY-P3-2024-03-11.toml"
+    x3p = tmp_path / "plate.x3p"
+    code, out, err = cli("reduce", survey, "--map-out", x3p, "--json", "--window", "none")
+    assert code == 0, err
+    first = json.loads(out)
+    code, out, err = cli("reduce", x3p, "--json", "--window", "none")
+    assert code == 0, err
+    again = json.loads(out)
+    assert again["kind"] == "height-map" and len(again["nodes"]) == len(first["nodes"]) == 45
+    assert again["flatness"]["minimum_zone_um"] == pytest.approx(first["flatness"]["minimum_zone_um"], abs=1e-9)

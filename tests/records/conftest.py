@@ -11,7 +11,7 @@ SAMPLES = Path(__file__).resolve().parents[2] / "sample_readings"
 def entry_of():
     """``entry_of(path, **options)``: the register entry of a survey file (a short Monte Carlo run)."""
     import flatcheck
-    from flatcheck.cli.common import load_input
+    from flatcheck import open_surface as load_input
     from flatcheck.records import survey_entry
 
     def make(path, *, trials=300, seed=1, **options):
