@@ -64,7 +64,8 @@ def run(argv: list[str] | None = None) -> int:
             return int(ExitStatus.BAD_INPUT)
         hint = ""
         if exc.ctx is not None:
-            where = "flatcheck" if exc.ctx.parent is None else f"flatcheck {exc.ctx.info_name}"
+            # the whole path ('flatcheck register add'), not only the last word
+            where = "flatcheck" if exc.ctx.parent is None else exc.ctx.command_path
             hint = f" (see '{where} --help')"
         _error(" ".join(exc.format_message().split()) + hint)
         return int(ExitStatus.BAD_INPUT)
