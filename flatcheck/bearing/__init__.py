@@ -19,15 +19,12 @@ from .._lazy import attach as _attach
 __getattr__, __dir__, __all__ = _attach(
     __name__,
     {
-        '_film': (
+        '_feeds': (
             'AIR_VISCOSITY_20C_PA_S',
             'AIR_GAS_CONSTANT_J_PER_KG_K',
             'ROOM_TEMPERATURE_K',
             'STANDARD_AMBIENT_KPA',
             'FILM_ASSUMPTIONS',
-            'MIN_MESH_CELLS',
-            'MAX_MESH_CELLS',
-            'MESH_LIMIT_REASON',
             'KG_S_TO_MG_S',
             'PorousFeed',
             'AIR_HEAT_CAPACITY_RATIO',
@@ -37,16 +34,26 @@ __getattr__, __dir__, __all__ = _attach(
             'orifice_mass_flow',
             'OrificeFeed',
             'orifice_ring',
+        ),
+        '_mesh': (
+            'MIN_MESH_CELLS',
+            'MAX_MESH_CELLS',
+            'MESH_LIMIT_REASON',
             'PadMesh',
             'circular_pad_mesh',
             'rectangular_pad_mesh',
+            'graded_edges',
             'PadDeviation',
             'pad_deviation',
             'surface_under_pad',
+        ),
+        '_solver': (
             'FilmState',
             'FilmCurve',
             'FilmEquilibrium',
             'FilmTravel',
+        ),
+        '_equilibrium': (
             'CAPACITY_FRACTION',
             'solve_film',
             'default_curve_gaps_um',
@@ -55,6 +62,10 @@ __getattr__, __dir__, __all__ = _attach(
             'curve_table_rows',
             'film_equilibrium',
             'film_along_travel',
+        ),
+        '_bearing_film': (
+            'pad_film_mesh',
+            'RESOLVED_FILM_UM',
             'DEFAULT_STIFFNESS_CHANGE_LIMIT',
             'PadFilmTravel',
             'BearingFilm',

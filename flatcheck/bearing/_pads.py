@@ -677,7 +677,12 @@ class CarriageMotion:
     raw_straightness_um : float
         Minimum-zone straightness of ``raw_profile_um``, µm.
     pitch_arcsec, roll_arcsec : float
-        Peak-to-valley of pitch and roll over the travel, arcsec.
+        Peak-to-valley of pitch and roll over the travel, arcsec; NaN (with the path NaN too) when the pad
+        layout does not determine that angle (see ``roll_determined``).
+    pitch_determined, roll_determined : bool
+        False when two or more pads stand on one line along the travel (roll) or across it (pitch): such
+        pads, pivoting in their films, do not hold the carriage about that line, so its angle is set by
+        whatever else guides the carriage, not by this surface.
     """
 
     x_mm: np.ndarray
@@ -689,6 +694,8 @@ class CarriageMotion:
     raw_straightness_um: float
     pitch_arcsec: float
     roll_arcsec: float
+    pitch_determined: bool = True
+    roll_determined: bool = True
 
 
 @dataclass(frozen=True)
@@ -873,6 +880,40 @@ def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarra
     return np.linspace(start, end, n + 1), y, span / n
 
 
+def attitude_determined(pads) -> tuple[bool, bool]:
+    """Whether the pad layout fixes the carriage's pitch and roll: ``(pitch, roll)``.
+
+    Pads pivoting in their films hold the carriage only through their heights, so the carriage's attitude is
+    fixed only when the pad centres span an area. Two or more pads on one line leave the rotation about that
+    line free: along the travel, roll; across it, pitch; an oblique line, both. A single pad is the carriage
+    itself: its footprint tilt is its attitude, so both count as determined.
+
+    Parameters
+    ----------
+    pads : sequence of PlacedPad
+        The pads on the analysed face (offsets in mm).
+
+    Returns
+    -------
+    tuple of bool
+    """
+    if len(pads) < 2:
+        return True, True
+    d = np.array([[p.along_mm, p.across_mm] for p in pads], float)
+    d = d - d.mean(axis=0)
+    size = max(max(p.pad.length_mm, p.pad.width_mm) for p in pads)
+    scale = max(size, float(np.abs(d).max()), 1.0)
+    u, sv, vt = np.linalg.svd(d, full_matrices=False)
+    tol = 1e-9 * scale  # the same position within rounding
+    rank = int(np.sum(sv > tol * math.sqrt(len(pads))))
+    if rank >= 2:
+        return True, True
+    if rank == 0:  # every pad at one spot
+        return False, False
+    along, across = abs(vt[0, 0]), abs(vt[0, 1])  # direction of the line the pads stand on
+    return bool(across < 1e-9), bool(along < 1e-9)
+
+
 def _carriage_attitude(pads, stations):
     """Carriage height at its reference point and tilt (µm/mm) from the pad-averaged heights.
 
@@ -1027,8 +1068,9 @@ def evaluate_bearing(
 
     x_ok = np.array([s.x_mm for s in stations])
     path = np.array([s.mean_height_um for s in stations])
-    pitch = np.array([s.pitch_arcsec for s in stations])
-    roll = np.array([s.roll_arcsec for s in stations])
+    pitch_fixed, roll_fixed = attitude_determined(pads)
+    pitch = np.array([s.pitch_arcsec if pitch_fixed else np.nan for s in stations])
+    roll = np.array([s.roll_arcsec if roll_fixed else np.nan for s in stations])
     raw = surface.sample(x_ok, np.full_like(x_ok, y0), method=method)
     raw_ok = np.isfinite(raw)
     motion = CarriageMotion(
@@ -1039,8 +1081,10 @@ def evaluate_bearing(
         raw_profile_um=raw,
         straightness_um=straightness_mz_um(x_ok, path),
         raw_straightness_um=straightness_mz_um(x_ok[raw_ok], raw[raw_ok]) if raw_ok.sum() >= 3 else float("nan"),
-        pitch_arcsec=float(np.ptp(pitch)),
-        roll_arcsec=float(np.ptp(roll)),
+        pitch_arcsec=float(np.ptp(pitch)) if pitch_fixed else float("nan"),
+        roll_arcsec=float(np.ptp(roll)) if roll_fixed else float("nan"),
+        pitch_determined=pitch_fixed,
+        roll_determined=roll_fixed,
     )
 
     # ------------------------------------------------------------------ checks
@@ -1077,7 +1121,7 @@ def evaluate_bearing(
         ("carriage pitch", motion.pitch_arcsec, budget.pitch_arcsec, "arcsec", pitch),
         ("carriage roll", motion.roll_arcsec, budget.roll_arcsec, "arcsec", roll),
     ):
-        if lim is None:
+        if lim is None or not math.isfinite(value):  # an angle the pads do not determine: said in the notes
             continue
         r = value / lim
         status = _status(r, marginal_from)
@@ -1100,7 +1144,16 @@ def evaluate_bearing(
         "the nominal gap above it; clearance = gap - highest point above that plane"
         + (" - pad face's highest point above its own least-squares plane." if face is not None else "."),
         "Carriage: least-squares plane through the pad-averaged heights (equal stiffness unless stated).",
-    )
+    ) + tuple(
+        f"{angle.capitalize()} is not determined by this carriage: its pads stand on one line, and pads "
+        f"pivoting in their films do not hold the carriage about that line; its {angle} is set by whatever else "
+        f"guides it, so no {angle} figure is given" + (f" and the {angle} budget is not checked." if lim is not None
+                                                        else ".")
+        for angle, fixed, lim in (("pitch", pitch_fixed, budget.pitch_arcsec), ("roll", roll_fixed, budget.roll_arcsec))
+        if not fixed and len(pads) > 1
+    ) + ((f"The surface is taken as the face {carriage.face!r} the pads ride on, its heights positive towards the "
+          "pads; a survey made from above (level, autocollimator) describes a top face, so check that the file "
+          "is a survey of this face.",) if carriage.face not in ("top",) else ())
     warnings = _input_warnings(surface, pads, xs, y0, pad_face)
     return BearingResult(
         carriage=carriage,
