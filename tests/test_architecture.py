@@ -8,6 +8,7 @@ package's lazy contents page counts as an import of the private module that defi
 from __future__ import annotations
 
 import ast
+import functools
 import subprocess
 import sys
 from pathlib import Path
@@ -61,6 +62,7 @@ def _imports(tree: ast.Module):
         stack.extend(ast.iter_child_nodes(node))
 
 
+@functools.lru_cache(maxsize=1)
 def _graph() -> dict[str, set[str]]:
     mods = _modules()
     trees = {m: ast.parse(p.read_text(encoding="utf-8")) for m, p in mods.items()}
@@ -159,6 +161,8 @@ FLOORS = {
     "flatcheck.optics": {"flatcheck.form", "flatcheck.bearing"},
     "flatcheck.spheres": {"flatcheck.form"},
     "flatcheck.bench": {"flatcheck.form", "flatcheck.survey", "flatcheck.conformance", "flatcheck.evaluation"},
+    "flatcheck.guideway": {"flatcheck.form", "flatcheck.survey", "flatcheck.evaluation", "flatcheck.bearing",
+                           "flatcheck.conformance"},
 }
 BASE = ("flatcheck.errors", "flatcheck.units", "flatcheck.limits", "flatcheck._lazy", "flatcheck.safety")
 
