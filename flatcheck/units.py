@@ -37,6 +37,11 @@ __all__ = [
     "height_unit_label",
     "format_height",
     "format_length",
+    "round_to_uncertainty",
+    "format_with_uncertainty",
+    "NORMAL_AIR_DENSITY_KG_M3",
+    "NORMAL_CONDITIONS",
+    "normal_litres_per_min",
 ]
 
 ARCSEC_TO_RAD = math.pi / 648000.0  # exact: pi/(180*3600)
@@ -229,3 +234,98 @@ def format_length(v_mm: float, units: str, *, unit: bool = True) -> str:
     else:
         text, symbol = f"{v_mm:.0f}", "mm"
     return f"{text} {symbol}" if unit else text
+
+
+# Air flow is stated at normal conditions, so that a figure does not depend on the day's weather: 0 °C and
+# 101.325 kPa (DIN 1343 normal conditions; ISO 8778's "standard reference atmosphere" is 20 °C and 100 kPa,
+# so "standard litres" are ambiguous and not used). Dry air's density there from the ideal gas law:
+# rho = p M / (R T) with p = 101325 Pa (exact), M = 0.0289647 kg/mol (dry air, ISO 2533 / ICAO standard
+# atmosphere), R = 8.314462618 J/(mol K) (exact since 2019), T = 273.15 K (exact): 1.29226 kg/m^3.
+NORMAL_CONDITIONS = "0 °C, 101.325 kPa (DIN 1343)"
+NORMAL_AIR_DENSITY_KG_M3 = 101325.0 * 0.0289647 / (8.314462618 * 273.15)
+
+
+def normal_litres_per_min(mass_kg_s):
+    """An air mass flow (kg/s) as normal litres per minute (NL/min: litres at 0 °C and 101.325 kPa).
+
+    Examples
+    --------
+    >>> round(float(normal_litres_per_min(NORMAL_AIR_DENSITY_KG_M3 / 60000.0)), 12)  # 1 litre a minute
+    1.0
+    """
+    import numpy as np
+
+    return np.asarray(mass_kg_s, float) / NORMAL_AIR_DENSITY_KG_M3 * 1000.0 * 60.0
+
+
+def round_to_uncertainty(value: float, uncertainty: float, *, digits: int = 2) -> tuple[float, float, int]:
+    """Round an uncertainty to ``digits`` significant digits and the value to the same decimal place.
+
+    The usual rule for stating a result (JCGM 100:2008, 7.2.6: an uncertainty with at most two
+    significant digits, the value rounded to match; from memory of the clause).
+
+    Parameters
+    ----------
+    value, uncertainty : float
+        The value and its (standard or expanded) uncertainty, in one unit.
+    digits : int
+        Significant digits of the uncertainty (2).
+
+    Returns
+    -------
+    value, uncertainty : float
+        Both rounded.
+    decimals : int
+        Decimal places kept (negative: rounded to tens, hundreds...).
+
+    Examples
+    --------
+    >>> round_to_uncertainty(2.48624, 0.16723)
+    (2.49, 0.17, 2)
+    >>> round_to_uncertainty(1234.5, 27.0)
+    (1234.0, 27.0, 0)
+    """
+    u = abs(float(uncertainty))
+    if not math.isfinite(u) or u <= 1e-9 * abs(float(value)) or u == 0.0 or not math.isfinite(float(value)):
+        return float(value), u, 3  # no uncertainty to round to: the usual three decimals
+    decimals = digits - 1 - math.floor(math.log10(u))
+    u_r = round(u, decimals)
+    if u_r >= 10 ** (digits - decimals):  # 0.0996 -> 0.100: one digit more than asked; round again
+        decimals -= 1
+        u_r = round(u, decimals)
+    return round(float(value), decimals), u_r, decimals
+
+
+def format_with_uncertainty(value_um: float, u_um: float, units: str = "um", *, unit: bool = True) -> tuple[str, str]:
+    """A height and its uncertainty as displayed: the uncertainty to two significant digits, the value to
+    the same decimal place (:func:`round_to_uncertainty`), in µm or µin.
+
+    Parameters
+    ----------
+    value_um, u_um : float
+        Value and uncertainty in µm.
+    units : {"um", "in"}
+        Display system (µin for ``"in"``).
+    unit : bool
+        Append the unit symbol to both texts.
+
+    Returns
+    -------
+    value_text, uncertainty_text : str
+
+    Examples
+    --------
+    >>> format_with_uncertainty(2.48624, 0.16723)
+    ('2.49 µm', '0.17 µm')
+    """
+    v, u = um_to(value_um, units), um_to(u_um, units)
+    _, _, dec = round_to_uncertainty(v, u)
+    fmt = f"{{:.{max(dec, 0)}f}}"
+    if dec < 0:
+        vt, ut = fmt.format(round(v, dec)), fmt.format(round(u, dec))
+    else:
+        vt, ut = fmt.format(v), fmt.format(u)
+    if unit:
+        sym = height_unit_label(units)
+        return f"{vt} {sym}", f"{ut} {sym}"
+    return vt, ut

@@ -72,6 +72,10 @@ def parse_window(text: str | None, *, where: str = "--window") -> Window | None:
         ) from None
     if not (win.length_mm > 0 and win.width_mm > 0 and np.isfinite(win.length_mm) and np.isfinite(win.width_mm)):
         raise InputValueError(f"window {text!r} must have positive sizes", where=where, fix="e.g. 250x250")
+    from ..limits import check_range
+
+    for v in {win.length_mm, win.width_mm}:  # before any scan is sized from it (docs/limits.md)
+        check_range(v, "window_mm", where=where, name=f"window {text!r}: a side of")
     return win
 
 
@@ -83,19 +87,23 @@ DEFAULT_WINDOW = Window("rect", 250.0, 250.0)
 # ----------------------------------------------------------------------------- uncertainty
 @dataclass(frozen=True)
 class SurveyUncertainty:
-    """Monte Carlo uncertainty of the flatness of a surface (µm).
+    """Monte Carlo uncertainty of the flatness of a surface (µm), from its whole budget.
 
     Attributes
     ----------
-    minimum_zone, least_squares : flatcheck.uncertainty.FlatnessUncertainty
-        Results for the minimum-zone and least-squares flatness.
+    minimum_zone, least_squares : flatcheck.form.FlatnessUncertainty
+        Results for the minimum-zone and least-squares flatness from one set of trials with every
+        source of the budget; ``expanded_um`` is the U of the whole budget (bias-corrected, see
+        :class:`flatcheck.evaluation.UncertaintyBudget`).
     basis : str
-        What was propagated (reading uncertainty and where it came from, scale, foot spacing).
+        What was propagated, in a line (the budget has the details).
     notes : tuple of str
         Cautions about the result (e.g. a reading scatter estimated with few degrees of freedom).
     u_dof : int or None
-        Degrees of freedom of the reading uncertainty when it was estimated from the survey's
-        own residuals (its uncertainty then propagated); None when it was stated.
+        Degrees of freedom of the reading uncertainty when it was estimated (residuals or repeat
+        readings; its own uncertainty then propagated); None when stated or a default.
+    budget : UncertaintyBudget or None
+        The budget: every source, its basis and contribution.
     """
 
     minimum_zone: object
@@ -103,18 +111,33 @@ class SurveyUncertainty:
     basis: str
     notes: tuple = ()
     u_dof: int | None = None
+    budget: object = None
 
     @property
     def note(self) -> str:
         """How the uncertainty was obtained, with its cautions."""
         mz = self.minimum_zone
-        lo, hi = mz.interval_um
+        lo, hi = mz.corrected_interval_um if mz.corrected_interval_um is not None else mz.interval_um
         text = (
-            f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {self.basis}. "
-            f"U is twice the standard deviation of the simulated minimum-zone flatness (k = 2 equivalent); "
-            f"95 % interval {lo:.3f} to {hi:.3f} µm, simulated mean {mz.mean_um:.3f} µm."
+            f"Monte Carlo propagation of the whole budget (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; "
+            f"{self.basis}. U covers the 95 % interval {lo:.3g} to {hi:.3g} µm, corrected for the noise bias of the "
+            f"minimum zone (estimated bias {(mz.estimated_bias_um or mz.bias_um):+.2g} µm); at least twice the standard "
+            "uncertainty."
         )
         return " ".join([text] + [n[:1].upper() + n[1:] + "." for n in self.notes])
+
+
+def _basis_line(budget) -> str:
+    """The budget in one line: each source that contributes, marked when a default."""
+    parts = []
+    for e in budget.entries:
+        if not e.applies or e.standard_uncertainty_um <= 0:
+            continue
+        text = f"{e.name} {e.standard_uncertainty_um:.2g} µm" + (" (default)" if e.default else "")
+        if e.name == "reading" and budget.reading_scatter_um is not None:
+            text += f" (scatter of the residuals sigma0 {budget.reading_scatter_um:.3f} µm, {budget.reading_dof} dof)"
+        parts.append(text)
+    return "sources (contribution to u): " + ", ".join(parts) if parts else "no source contributes"
 
 
 def survey_uncertainty(
@@ -124,122 +147,47 @@ def survey_uncertainty(
     seed: int | None = None,
     u_height_um: float | None = None,
     progress=None,
+    lab_defaults=None,
+    contribution_trials: int | None = None,
 ) -> SurveyUncertainty:
-    """Propagate the reading uncertainty of a survey (or a height map) to its flatness.
+    """The uncertainty of a surface's flatness from its whole budget (:func:`uncertainty_budget`).
 
-    For a survey, the readings' standard uncertainty is the instrument's stated
-    ``reading_uncertainty`` when the file gives one, else the survey's own scatter
-    (sigma0 of the least-squares adjustment, scaled with the foot spacing). Such an
-    estimate is itself uncertain: with ``nu`` = the redundancy, each trial draws the
-    scatter as ``sigma0 * sqrt(nu / chi2_nu)`` (see :mod:`flatcheck.uncertainty`), so
-    the interval keeps its 95 % coverage with few degrees of freedom; fewer than 3
-    are refused, fewer than 10 noted. The instrument's scale and foot-spacing
-    uncertainties, when stated, are added as common relative errors. The reduction
-    is linear in the readings, so each trial is one product with the reduction
-    operator.
-
-    For a height map, ``u_height_um`` (standard uncertainty of each height, µm,
-    independent) is required.
+    Every source of a survey is propagated together by Monte Carlo through the reduction
+    operator and the exact minimum zone (JCGM 101:2008), minimum zone and least squares from the
+    same trials; each source is also propagated alone for its contribution. A source the survey
+    file does not state takes a marked default (``lab_defaults`` or the built-in one), so a
+    survey with no statements gets a budget of marked defaults; with fewer than 3 degrees of
+    freedom in its residuals (or a scatter of exactly zero) the reading repeatability is the
+    default too.
 
     Parameters
     ----------
     loaded : MeasuredSurface
     trials : int
-        Monte Carlo trials (JCGM 101 suggests >= 1e4/(1-p), 2e5 for p = 0.95; 1e5 by default).
+        Monte Carlo trials of the whole budget (JCGM 101 suggests >= 1e4/(1-p); 1e5 by default).
     seed : int, optional
         Seed for reproducible results (reported either way).
     u_height_um : float, optional
         Height-map inputs only: standard uncertainty of each height in µm.
     progress : callable, optional
-        ``progress(k)`` after each batch of ``k`` trials.
+        ``progress(k)``; the increments add up to ``trials``.
+    lab_defaults : LabDefaults, optional
+        A lab's own defaults (:func:`flatcheck.io.read_uncertainty_defaults`).
+    contribution_trials : int, optional
+        Trials of each source alone (default ``min(trials, 10 000)``).
 
     Raises
     ------
     InputValueError
-        When there is nothing to propagate (no stated uncertainty and fewer than 3 degrees
-        of freedom to estimate one) or the survey is too large for the dense operator.
+        A height map without ``u_height_um``, a survey too large for the dense operator, an
+        implausible uncertainty input.
     """
-    from ..form import monte_carlo_flatness
+    from ._budget import uncertainty_budget
 
-    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
-        raise InputValueError(f"the seed must be a whole number 0 or above, got {seed!r}", where="--seed",
-                              fix="give --seed 0 or a larger whole number (or leave it out)")
-    hm = loaded.heightmap
-    notes = []
-    u_dof = None
-    if loaded.survey is None:
-        if u_height_um is None:
-            raise InputValueError(
-                "a height map carries no reading uncertainty",
-                where=loaded.path,
-                fix="give the standard uncertainty of one height with --u-height-um",
-            )
-        kw = dict(G=None, u_value_um=float(u_height_um))
-        basis = f"standard uncertainty {u_height_um:g} µm of each height, as given"
-        values = hm.height_um
-        x, y = hm.x_mm, hm.y_mm
-    else:
-        from ..survey import observations
-
-        survey, red = loaded.survey, loaded.reduction
-        op = red.operator
-        if op is None:
-            raise InputValueError(
-                f"the survey has {red.rank.n_observations} readings, too many for the Monte Carlo operator",
-                where=loaded.path,
-                fix="evaluate the uncertainty on a coarser survey or state it from the instrument's calibration",
-            )
-        obs = observations(survey)
-        inst = survey.instrument
-        if inst.reading_uncertainty is not None:
-            u = float(inst.reading_uncertainty) * np.abs(obs.um_per_unit)
-            basis = f"reading standard uncertainty {inst.reading_uncertainty:g} {inst.unit} as stated for the instrument"
-        else:
-            nu = int(red.redundancy)
-            if nu < 3 or not np.isfinite(red.sigma0_um):
-                have = "no redundancy" if nu <= 0 else f"only {nu} degree{'s' if nu > 1 else ''} of freedom"
-                raise InputValueError(
-                    f"no reading uncertainty is stated, and the survey's residuals give {have} to estimate one "
-                    "(with fewer than 3 the flatness has no finite standard uncertainty)",
-                    where=loaded.path,
-                    fix="state the instrument's reading uncertainty in the survey ([instrument] reading_uncertainty, "
-                    "in the reading unit; see docs/survey-format.md), or walk lines forward and back so that the "
-                    "readings check each other",
-                )
-            if red.ref_base_mm:
-                u = red.sigma0_um * obs.base_mm / red.ref_base_mm
-            else:
-                u = np.full(obs.value_um.size, red.sigma0_um)
-            u_dof = nu
-            basis = (
-                f"reading scatter from the survey's own residuals (sigma0 {red.sigma0_um:.3f} µm, "
-                f"{nu} degrees of freedom; drawn per trial as sigma0 x sqrt({nu} / chi-squared({nu})) so that "
-                "its own uncertainty is included)"
-            )
-            if nu < 10:
-                notes.append(
-                    f"the reading scatter is estimated from only {nu} degrees of freedom, so it is itself uncertain "
-                    "and widens the interval; stating the instrument's reading uncertainty (reading_uncertainty "
-                    "in the survey's instrument table) or walking lines forward and back gives a firmer figure"
-                )
-        kw = dict(G=op.G, u_value_um=u, u_dof=u_dof)
-        if inst.scale_uncertainty_rel:
-            kw["scale_u_rel"] = float(inst.scale_uncertainty_rel)
-            basis += f", scale {inst.scale_uncertainty_rel:g} relative"
-        if inst.foot_spacing_uncertainty_mm and not inst.reads_heights:
-            kw["group"] = obs.base_mm
-            kw["group_u_rel"] = {
-                float(b): float(inst.foot_spacing_uncertainty_mm) / float(b) for b in np.unique(obs.base_mm) if b > 0
-            }
-            basis += f", foot spacing {inst.foot_spacing_uncertainty_mm:g} mm"
-        order = np.array([survey.station_index[n] for n in op.station_names], dtype=int)
-        x, y = survey.x_mm[order], survey.y_mm[order]
-        values = obs.value_um
-    # the progress bar counts both evaluations as one run of `trials`
-    half = None if progress is None else (lambda k: progress(k / 2))
-    mz = monte_carlo_flatness(x, y, values, trials=trials, seed=seed, progress=half, reference="minimum_zone", **kw)
-    ls = monte_carlo_flatness(x, y, values, trials=trials, seed=mz.seed, progress=half, reference="least_squares", **kw)
-    return SurveyUncertainty(mz, ls, basis, tuple(notes), u_dof)
+    budget = uncertainty_budget(loaded, trials=trials, seed=seed, progress=progress, lab_defaults=lab_defaults,
+                                u_height_um=u_height_um, contribution_trials=contribution_trials)
+    return SurveyUncertainty(budget.minimum_zone, budget.least_squares, _basis_line(budget), budget.notes,
+                             budget.reading_dof, budget)
 
 
 # ----------------------------------------------------------------------------- evaluation
@@ -274,6 +222,14 @@ class SurfaceEvaluation:
     def heightmap(self) -> HeightMap:
         """The evaluated height map (µm about the least-squares plane for surveys)."""
         return self.loaded.heightmap
+
+    @property
+    def heightmap_about_ls(self) -> HeightMap:
+        """The heights referred to the least-squares plane of all points (µm), as the terminal, ``--map-out``
+        and the report show them: a survey's heights already are (to rounding); a height map's are not."""
+        p = self.flatness.lspl
+        hm = self.heightmap
+        return hm.with_heights(hm.height_um - (p.a_um + p.b_um_per_mm * hm.x_mm + p.c_um_per_mm * hm.y_mm))
 
     @property
     def method(self) -> str:
@@ -326,19 +282,36 @@ class SurfaceEvaluation:
         }
         if self.uncertainty is not None:
             mz, ls = self.uncertainty.minimum_zone, self.uncertainty.least_squares
+            b = self.uncertainty.budget
             flat.update(
                 expanded_uncertainty_um=mz.expanded_um,
                 standard_uncertainty_um=mz.std_um,
-                coverage_interval_um=list(mz.interval_um),
+                coverage_interval_um=list(mz.corrected_interval_um or mz.interval_um),
+                monte_carlo_interval_um=list(mz.interval_um),
                 shortest_interval_um=list(mz.shortest_interval_um),
                 monte_carlo_mean_um=mz.mean_um,
+                bias_um=mz.estimated_bias_um if mz.estimated_bias_um is not None else mz.bias_um,
+                bias_corrected_um=mz.corrected_estimate_um,
+                coverage_factor=(mz.expanded_um / mz.std_um) if mz.std_um > 0 else None,
                 least_squares_expanded_uncertainty_um=ls.expanded_um,
+                least_squares_standard_uncertainty_um=ls.std_um,
                 monte_carlo={
                     "trials": mz.trials, "seed": mz.seed, "basis": self.uncertainty.basis,
                     # degrees of freedom of a reading scatter estimated from the residuals (None: stated)
                     "reading_dof": self.uncertainty.u_dof,
+                    "contribution_trials": None if b is None else b.contribution_trials,
                 },
             )
+            if b is not None:
+                flat["uncertainty_budget"] = b.to_list()
+                flat["root_sum_of_squares_um"] = b.rss_um
+                if b.repeat is not None:
+                    r = b.repeat
+                    flat["repeat_readings"] = {
+                        "kind": r.kind, "unit": r.unit, "readings": r.n, "dof": r.dof,
+                        "standard_deviation": r.s if np.isfinite(r.s) else None, "range": r.range_,
+                        "tolerance": r.tolerance, "verdict": r.verdict, "used": r.used, "note": r.note,
+                    }
         surface = {"description": hm.label, "length_mm": hm.length_mm, "width_mm": hm.width_mm}
         doc = {
             "input": self.loaded.path,
@@ -497,11 +470,12 @@ def evaluate_surface(
         Local-flatness window (``"250x250"``, ``"d80"``), ``"auto"`` for 250 x 250 mm when it
         fits inside the surveyed area, ``"none"`` or None for no local flatness.
     monte_carlo : dict, optional
-        Keyword arguments of :func:`survey_uncertainty` (trials, seed, u_height_um, progress);
+        Keyword arguments of :func:`survey_uncertainty` (trials, seed, u_height_um, progress,
+        lab_defaults, contribution_trials);
         None for no uncertainty evaluation.
     """
     hm = loaded.heightmap
-    notes = []
+    notes = list(getattr(hm, "notes", ()))  # what the reader noticed (repeats averaged, an implausible extent)
     flat = evaluate_flatness(hm.x_mm, hm.y_mm, hm.height_um)
     lines = _line_results(loaded)
     auto = isinstance(window, str) and window.strip().lower() == "auto"
@@ -511,7 +485,13 @@ def evaluate_surface(
         xmin, xmax, ymin, ymax = hm.extent_mm
         fits = win.length_mm <= xmax - xmin + 1e-9 and win.width_mm <= ymax - ymin + 1e-9
         if fits:
-            local = _local(hm, win)
+            try:
+                local = _local(hm, win)
+            except InputValueError as exc:  # the default window is below the station spacing
+                if not auto:
+                    raise
+                notes.append(f"no local flatness over the default {win.text} window: {exc.message}")
+                win = None
         elif auto:
             note = _auto_window_note(hm)
             if note:

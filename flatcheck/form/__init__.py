@@ -14,9 +14,10 @@ Exact minimum zone
 Straightness (ISO 12780)
     evaluate_straightness, StraightnessReport, StraightnessParameters, minimum_zone_line
 Local flatness
-    local_flatness, LocalFlatness
+    local_flatness, LocalFlatness, smallest_window_mm
 Monte Carlo (JCGM 101)
-    monte_carlo_flatness, FlatnessUncertainty, coverage_intervals, K_EXPANDED
+    monte_carlo_flatness, FlatnessUncertainty, coverage_intervals, K_EXPANDED,
+    propagate_heights, HeightEffect, HeightPropagation, summarise_flatness
 """
 
 from .._lazy import attach as _attach
@@ -31,6 +32,7 @@ __getattr__, __dir__, __all__ = _attach(
         '_local': (
             'LocalFlatness',
             'local_flatness',
+            'smallest_window_mm',
         ),
         '_minzone': (
             'MinZoneSolution',
@@ -43,6 +45,10 @@ __getattr__, __dir__, __all__ = _attach(
             'FlatnessUncertainty',
             'coverage_intervals',
             'monte_carlo_flatness',
+            'HeightEffect',
+            'HeightPropagation',
+            'propagate_heights',
+            'summarise_flatness',
         ),
         '_planes': (
             'PlaneFit',

@@ -364,14 +364,19 @@ def _resid(Z, v, X, Y):
     return r
 
 
-def _certify(X, Y, Z, B, v, r=None):
-    """Optimality certificate per problem: dual multipliers >= 0 and every point inside the zone."""
+def _certify(X, Y, Z, B, v, r=None, lohi=None):
+    """Optimality certificate per problem: dual multipliers >= 0 and every point inside the zone.
+
+    ``lohi``: the least and largest residual of each problem when already known (saves two passes).
+    """
     n = X.size
     lam = _multipliers(B, X, Y, n)
     dual_ok = np.all(lam >= -1e-9, axis=1)
-    if r is None:
-        r = _resid(Z, v, X, Y)
-    primal_ok = (r.min(axis=1) >= -1e-9) & (r.max(axis=1) <= v[:, 3] + 1e-9)
+    if lohi is None:
+        if r is None:
+            r = _resid(Z, v, X, Y)
+        lohi = (r.min(axis=1), r.max(axis=1))
+    primal_ok = (lohi[0] >= -1e-9) & (lohi[1] <= v[:, 3] + 1e-9)
     return dual_ok & primal_ok, lam
 
 
@@ -624,20 +629,39 @@ def minimum_zone_batch(x_mm, y_mm, heights_um, *, start=None, max_iter: int = 10
         raise InputValueError(f"heights have {Z.shape[1]} columns for {x.size} positions", fix="one column per position")
     if not np.isfinite(Z).all():
         raise InputValueError("a height is not a finite number", fix="remove NaN/inf trials")
-    n = x.size
-    m = Z.shape[0]
     ref = Z.mean(axis=0)
     frame, Zref = _frame(x, y, ref)
+    B0 = _warm_basis(frame, start)
+    t, certified = _batch_normalised(frame, Zref, frame.to_norm(Z), B0, max_iter)
+    t *= frame.zs
+    bad = np.flatnonzero(~certified)
+    for k in bad:
+        t[k] = solve_minimum_zone(x, y, Z[k]).t_um
+    return t, int(bad.size)
+
+
+def _warm_basis(frame, start):
+    """Row ids (4,) of the warm-start basis from ``start`` when it is dual feasible, else a cold start."""
     X, Y = frame.X, frame.Y
-    Zn = frame.to_norm(Z)
-    B0 = None
+    n = X.size
     if start is not None and len(start.basis) == 4:
         B0 = np.array([i + n if up else i for i, up in start.basis], dtype=np.int64)
         lam = _multipliers(B0[None, :], X, Y, n)
-        if not np.all(lam >= -1e-9):
-            B0 = None
-    if B0 is None:
-        B0 = _initial_basis(X, Y)
+        if np.all(lam >= -1e-9):
+            return B0
+    return _initial_basis(X, Y)
+
+
+def _batch_normalised(frame, Zref, Zn, B0, max_iter=100):
+    """Minimum zones (normalised units) of height sets ``Zn`` (m, n) already in ``frame``'s normalised heights.
+
+    ``Zref`` (n,) are the normalised reference heights that choose the working set. Returns the zone
+    widths (m,) in normalised units (multiply by ``frame.zs`` for µm) and which of them are certified;
+    the caller solves the others another way. See :func:`minimum_zone_batch`.
+    """
+    X, Y = frame.X, frame.Y
+    n = X.size
+    m = Zn.shape[0]
     S = _working_set(X, Y, Zref, Zn, B0)
     B = np.broadcast_to(B0, (m, 4)).copy()
     t = np.full(m, np.nan)
@@ -646,18 +670,18 @@ def minimum_zone_batch(x_mm, y_mm, heights_um, *, start=None, max_iter: int = 10
     for _ in range(20):
         if todo.size == 0:
             break
-        Xs, Ys = X[S], Y[S]
-        Zs = Zn[np.ix_(todo, S)] if S.size < n else Zn[todo]
-        v, Bl, done = _dual_simplex(Xs, Ys, Zs, _local_rows(B[todo], S, n), max_iter)
+        whole = todo.size == m
+        Zs = (Zn if whole else Zn[todo]) if S.size == n else Zn[np.ix_(todo, S)]
+        v, Bl, done = _dual_simplex(X[S], Y[S], Zs, _local_rows(B[todo], S, n), max_iter)
         B[todo] = _map_rows(Bl, S, n)
-        r = _resid(Zn[todo], v, X, Y)  # every point of every set
+        r = _resid(Zn if whole else Zn[todo], v, X, Y)  # every point of every set
         lo, hi = r.min(axis=1), r.max(axis=1)
         inside = (lo >= -_TOL) & (hi <= v[:, 3] + _TOL)
         fin = done & inside
         if fin.any():
-            ok, _ = _certify(X, Y, None, B[todo[fin]], v[fin], r[fin])
+            ok, _ = _certify(X, Y, None, B[todo[fin]], v[fin], lohi=(lo[fin], hi[fin]))
             idx = todo[fin]
-            t[idx] = (hi[fin] - lo[fin]) * frame.zs
+            t[idx] = hi[fin] - lo[fin]
             certified[idx] = ok
         more = done & ~inside
         if not more.any() or S.size == n:
@@ -666,10 +690,7 @@ def minimum_zone_batch(x_mm, y_mm, heights_um, *, start=None, max_iter: int = 10
         out = (rm < -_TOL) | (rm > v[more, 3:4] + _TOL)
         S = np.union1d(S, np.flatnonzero(out.any(axis=0)))
         todo = todo[more]
-    bad = np.flatnonzero(~certified)
-    for k in bad:
-        t[k] = solve_minimum_zone(x, y, Z[k]).t_um
-    return t, int(bad.size)
+    return t, certified
 
 
 def _working_set(X, Y, Zref, Zn, B0):

@@ -7,10 +7,14 @@ Opening surfaces
     open_surface
 Surveys (TOML)
     read_survey, parse_survey, write_survey, format_survey, require_readings
+Planned surveys filled in reading by reading (flatcheck enter)
+    read_form, parse_form, fill_text, save_form, format_readings, SurveyForm, RunForm
 Height maps (CSV)
     read_heightmap_csv, write_heightmap_csv, format_heightmap_csv, is_heightmap_csv
 Bearings (TOML)
     read_bearing_toml, parse_bearing_toml, BearingDescription
+Guideways and carriages (TOML)
+    read_guideway_toml, parse_guideway_toml; read_carriage_toml, parse_carriage_toml, wrap_carriage, CarriageFile
 Lapping logs (CSV)
     read_lap_log
 Exchange
@@ -31,11 +35,14 @@ __getattr__, __dir__, __all__ = _attach(
             "read_survey", "parse_survey", "write_survey", "format_survey", "require_readings",
             "FORMAT_NAME", "FORMAT_VERSION", "SIGN_CONVENTIONS",
         ),
+        "_survey_fill": ("read_form", "parse_form", "fill_text", "save_form", "format_readings", "SurveyForm", "RunForm"),
         "_heightmap_csv": (
             "read_heightmap_csv", "write_heightmap_csv", "format_heightmap_csv", "is_heightmap_csv",
             "HEADER",
         ),
         "_bearing_toml": ("read_bearing_toml", "parse_bearing_toml", "BearingDescription"),
+        "_guideway_toml": ("read_guideway_toml", "parse_guideway_toml"),
+        "_carriage_toml": ("read_carriage_toml", "parse_carriage_toml", "wrap_carriage", "CarriageFile"),
         "_lap_log": ("read_lap_log", "LOG_HEADER"),
         "_x3p": ("read_x3p", "write_x3p", "format_x3p", "read_x3p_contents", "X3pContents"),
         "_export_csv": ("write_export_csv", "format_export_csv"),

@@ -59,8 +59,26 @@ SIGN_CONVENTIONS = {
     "height-down": True,
 }
 
-_TOP_KEYS = ("format", "version", "positive", "surface", "instrument", "layout", "conditions", "line")
-_SURFACE_KEYS = ("description", "ident", "length_mm", "width_mm", "length_in", "width_in", "material")
+_TOP_KEYS = (
+    "format", "version", "positive", "surface", "instrument", "layout", "conditions", "uncertainty", "repeat_readings",
+    "line",
+)
+_SURFACE_KEYS = (
+    "description", "ident", "length_mm", "width_mm", "length_in", "width_in", "material", "thickness_mm", "thickness_in",
+)
+#: Keys of the optional [uncertainty] table (flatcheck.evaluation._budget_sources.KEYS; docs/survey-format.md).
+_UNCERTAINTY_KEYS = (
+    "temperature_difference_u_k",
+    "expansion_coefficient_per_k",
+    "resolution",
+    "zero_drift",
+    "turbulence_per_m",
+    "reference_level_uncertainty",
+    "sampling_um",
+    "calibration_uncertainty_rel",
+)
+_REPEAT_KEYS = ("kind", "unit", "readings", "tolerance", "notes")
+_REPEAT_KINDS = ("instrument", "gauge")
 _INSTRUMENT_KEYS = (
     "kind",
     "unit",
@@ -249,13 +267,25 @@ def _get_length_mm(ctx, table, data, base, *, positive=True, nonneg=False, requi
         )
     if k_in in data:
         v = _get_number(ctx, table, data, k_in, positive=positive, nonneg=nonneg)
-        return v * MM_PER_INCH  # 1 in = 25.4 mm exactly
+        return _in_range(ctx, table, k_in, base, v * MM_PER_INCH)  # 1 in = 25.4 mm exactly
     v = _get_number(ctx, table, data, k_mm, positive=positive, nonneg=nonneg)
     if v is None and required:
         raise InputFormatError(
             f"the key {k_mm!r} is missing", where=ctx.where(table), fix=f"add {k_mm} = <number> (or {k_in} in inches)"
         )
-    return v
+    return _in_range(ctx, table, k_mm, base, v)
+
+
+def _in_range(ctx, table, key, base, v_mm):
+    """A length in mm inside its range of docs/limits.md (flatcheck.limits), checked before any layout is built."""
+    if v_mm is None:
+        return None
+    from ..limits import check_range
+
+    kind = {"foot_spacing": "foot_spacing_mm", "diagonal_foot_spacing": "foot_spacing_mm", "length": "length_mm",
+            "width": "length_mm"}.get(base, "position_mm")
+    check_range(v_mm, kind, where=ctx.where(table, key), name=key)
+    return v_mm
 
 
 def _get_int(ctx, table, data, key):
@@ -418,15 +448,31 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
             f"reports = {reports!r} applies to autocollimators only", where=ctx.where(it, "reports"), fix="remove the key"
         )
     fsu = _get_length_mm(ctx, it, idt, "foot_spacing_uncertainty", positive=False, nonneg=True)
+    ru = _get_number(ctx, it, idt, "reading_uncertainty", nonneg=True)
+    su = _get_number(ctx, it, idt, "scale_uncertainty_rel", nonneg=True)
+    from ..evaluation import check_plausible_uncertainty
+
+    if ru is not None:
+        check_plausible_uncertainty("reading_uncertainty", ru, kind=kind, unit=unit,
+                                    where=ctx.where(it, "reading_uncertainty"))
+    if su is not None:
+        check_plausible_uncertainty("scale_uncertainty_rel", su, kind=kind, unit=unit,
+                                    where=ctx.where(it, "scale_uncertainty_rel"))
     instrument = Instrument(
         kind=kind,
         unit=unit,
         reports=reports,
-        reading_uncertainty=_get_number(ctx, it, idt, "reading_uncertainty", nonneg=True),
-        scale_uncertainty_rel=_get_number(ctx, it, idt, "scale_uncertainty_rel", nonneg=True),
+        reading_uncertainty=ru,
+        scale_uncertainty_rel=su,
         foot_spacing_uncertainty_mm=fsu,
         model=_get_str(ctx, it, idt, "model"),
     )
+    thickness = _get_length_mm(ctx, ("surface",), sd, "thickness")
+    if thickness is not None:
+        key = "thickness_in" if "thickness_in" in sd else "thickness_mm"
+        check_plausible_uncertainty("thickness_mm", thickness, kind=kind, unit=unit, where=ctx.where(("surface",), key))
+    unc = _read_uncertainty_table(ctx, data, kind, unit)
+    repeat = _read_repeat_readings(ctx, data, kind, unit)
     # ---- sign convention
     if "positive" not in data:
         raise InputFormatError(
@@ -443,6 +489,10 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
     ct = ("conditions",)
     _check_keys(ctx, ct, cd, _CONDITION_KEYS)
     temperature = _get_number(ctx, ct, cd, "temperature_c")
+    if temperature is not None:
+        from ..limits import check_range
+
+        check_range(temperature, "temperature_c", where=ctx.where(ct, "temperature_c"), name="temperature_c")
     # ---- layout and lines
     ld = _get_table(ctx, data, "layout")
     lt = ("layout",)
@@ -497,7 +547,19 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
     inches = any(k in sd for k in inch_keys[:2]) or any(k in ld for k in inch_keys[2:]) or any(
         isinstance(it, dict) and "start_in" in it for it in raw_lines
     )
-    meta["file"] = {"positive": positive, "line_where": places, "inches": inches}
+    meta["file"] = {"positive": positive, "line_where": places, "inches": inches,
+                    "uncertainty_where": {k: ctx.where(("uncertainty",), k) for k in unc}}
+    if fsu is not None and not instrument.reads_heights:
+        smallest = min(float(ln.foot_spacing_mm) for ln in lines)
+        key = "foot_spacing_uncertainty_in" if "foot_spacing_uncertainty_in" in idt else "foot_spacing_uncertainty_mm"
+        check_plausible_uncertainty("foot_spacing_uncertainty_mm", fsu, kind=kind, unit=unit,
+                                    where=ctx.where(it, key), foot_spacing_mm=smallest)
+    if unc:
+        meta["uncertainty"] = unc
+    if thickness is not None:
+        meta["thickness_mm"] = thickness
+    if repeat is not None:
+        meta["repeat_readings"] = repeat
     return dataclasses.replace(
         plan,
         lines=tuple(lines),
@@ -508,6 +570,74 @@ def parse_survey(text: str, *, source: str = "<survey>") -> Survey:
         source=source,
         meta=meta,
     )
+
+
+def _read_uncertainty_table(ctx, data, kind, unit) -> dict:
+    """The optional ``[uncertainty]`` table: budget inputs, each checked for plausibility."""
+    from ..evaluation import check_plausible_uncertainty
+
+    ud = _get_table(ctx, data, "uncertainty", required=False)
+    ut = ("uncertainty",)
+    _check_keys(ctx, ut, ud, _UNCERTAINTY_KEYS)
+    out = {}
+    for key in _UNCERTAINTY_KEYS:
+        v = _get_number(ctx, ut, ud, key, nonneg=True)
+        if v is None:
+            continue
+        check_plausible_uncertainty(key, v, kind=kind, unit=unit, where=ctx.where(ut, key))
+        out[key] = v
+    return out
+
+
+def _read_repeat_readings(ctx, data, kind, unit):
+    """The optional ``[repeat_readings]`` table: series of repeated readings (docs/survey-format.md)."""
+    if "repeat_readings" not in data:
+        return None
+    rd = _get_table(ctx, data, "repeat_readings", required=False)
+    rt = ("repeat_readings",)
+    _check_keys(ctx, rt, rd, _REPEAT_KEYS)
+    rkind = _get_choice(ctx, rt, rd, "kind", _REPEAT_KINDS, default="instrument")
+    if rkind == "gauge":
+        runit = _get_str(ctx, rt, rd, "unit", required=True)
+        try:
+            runit = length_unit(runit).name
+        except UnitError as exc:
+            raise UnitError(exc.message + " for a repeat-reading gauge (it reads heights)", where=ctx.where(rt, "unit"),
+                            fix=exc.fix) from None
+    else:
+        if "unit" in rd and rd["unit"] != unit:
+            raise InputValueError(
+                f"unit {rd['unit']!r} differs from the instrument's {unit!r}", where=ctx.where(rt, "unit"),
+                fix="give the survey instrument's repeat readings in its own unit (or leave unit out), or set "
+                'kind = "gauge" for a repeat-reading gauge')
+        runit = unit
+    raw = rd.get("readings")
+    if raw is None:
+        raise InputFormatError("the key 'readings' is missing", where=ctx.where(rt),
+                               fix="add readings = [r1, r2, ...] (or a list of such lists, one per place)")
+    if not isinstance(raw, list) or not raw:
+        raise InputValueError("readings must be a list of numbers or of lists of numbers", where=ctx.where(rt, "readings"),
+                              fix="write readings = [r1, r2, ...] or [[...], [...]]")
+    series = raw if all(isinstance(v, list) for v in raw) else [raw]
+    clean = []
+    for i, ser in enumerate(series, start=1):
+        if not isinstance(ser, list) or not ser:
+            raise InputValueError(f"series {i} is empty or not a list", where=ctx.where(rt, "readings"),
+                                  fix="give each series as a list of numbers")
+        for k, v in enumerate(ser, start=1):
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(float(v)):
+                raise InputValueError(f"reading {k} of series {i} is {v!r}, not a finite number",
+                                      where=ctx.where(rt, "readings"), fix="write plain numbers")
+            if abs(float(v)) > 1e6:
+                raise InputValueError(f"reading {k} of series {i} is {v!r}: no repeat reading is that large",
+                                      where=ctx.where(rt, "readings"), fix=f"check the value and the unit ({runit!r})")
+        clean.append(tuple(float(v) for v in ser))
+    if sum(len(c) for c in clean) - len(clean) < 1:
+        raise InputValueError("the repeat readings have no series with two or more readings",
+                              where=ctx.where(rt, "readings"), fix="repeat a reading at least twice in one place")
+    tol = _get_number(ctx, rt, rd, "tolerance", positive=True)
+    return {"kind": rkind, "unit": runit, "series": tuple(clean), "tolerance": tol,
+            "notes": _get_str(ctx, rt, rd, "notes"), "where": ctx.where(rt)}
 
 
 def require_readings(survey: Survey) -> None:
@@ -782,7 +912,7 @@ def _inch(v_mm: float) -> float:
     return r if abs(r - t) <= 1e-12 * max(1.0, abs(t)) else t
 
 
-def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
+def format_survey(survey: Survey, *, inches: bool | None = None, blank_runs=None) -> str:
     """The survey as TOML text in the flatcheck survey format (see ``docs/survey-format.md``).
 
     Readings are written in the sign convention "rises-toward-line-end" (or
@@ -795,7 +925,16 @@ def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
     inches : bool, optional
         Write every length with the ``_in`` keys (inches, 1 in = 25.4 mm exactly) instead of
         ``_mm``. By default, as the survey was read (``meta["file"]["inches"]``), else mm.
+    blank_runs : sequence of {"forward", "reverse"}, optional
+        For a line with no runs yet (a planned survey): one ``[[line.run]]`` table per entry, with
+        ``readings = []`` and that ``order`` (``("forward", "reverse")``: a forward and a back run of
+        every line). By default such a line gets its own ``readings = []`` and ``order = "forward"``.
     """
+    if blank_runs is not None:
+        blank_runs = tuple(blank_runs)
+        if not blank_runs or any(r not in _ORDERS for r in blank_runs):
+            raise InputValueError(f"blank runs {blank_runs!r}", where="blank_runs",
+                                  fix=f"give one or more of {', '.join(_ORDERS)}")
     if inches is None:
         inches = bool((survey.meta.get("file") or {}).get("inches"))
     lu = "in" if inches else "mm"
@@ -826,6 +965,8 @@ def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
     w(f"length_{lu} = {ln_(surf.length_mm)}")
     w(f"width_{lu} = {ln_(surf.width_mm)}")
     w(f"material = {_s(surf.material)}")
+    if survey.meta.get("thickness_mm") is not None:
+        w(f"thickness_{lu} = {ln_(survey.meta['thickness_mm'])}")
     w("")
     w("[instrument]")
     w(f"kind = {_s(inst.kind)}")
@@ -870,6 +1011,24 @@ def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
             w(f"# {key} = {example}")
         else:
             w(f"{key} = {_f(v) if key == 'temperature_c' else _s(v)}")
+    unc = survey.meta.get("uncertainty") or {}
+    if unc:
+        w("")
+        w("[uncertainty]")
+        for key in _UNCERTAINTY_KEYS:
+            if key in unc:
+                w(f"{key} = {_f(unc[key])}")
+    rep = survey.meta.get("repeat_readings")
+    if rep:
+        w("")
+        w("[repeat_readings]")
+        w(f"kind = {_s(rep['kind'])}")
+        w(f"unit = {_s(rep['unit'])}")
+        w("readings = [" + ", ".join(_readings_block(ser) for ser in rep["series"]) + "]")
+        if rep.get("tolerance") is not None:
+            w(f"tolerance = {_f(rep['tolerance'])}")
+        if rep.get("notes"):
+            w(f"notes = {_s(rep['notes'])}")
     free = {spec[0]: spec for spec in lay.get("lines", [])} if pattern == "lines" else {}
     diag_base = lay.get("diagonal_foot_spacing_mm")
     for ln in survey.lines:
@@ -901,7 +1060,14 @@ def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
                 geo = lay["foot_spacing_mm"]
         if not heights and geo is not None and float(ln.foot_spacing_mm) != float(geo):
             w(f"foot_spacing_{lu} = {ln_(ln.foot_spacing_mm)}   # this line's own (calibrated) base")
-        if not ln.runs:
+        if not ln.runs and blank_runs is not None:
+            for order in blank_runs:
+                w("[[line.run]]")
+                if order == "reverse":
+                    w(f"# back run: walked from {ln.stations[-1]} to {ln.stations[0]}, readings listed as walked")
+                w("readings = []   # fill in, in the order taken")
+                w(f"order = {_s(order)}")
+        elif not ln.runs:
             w("readings = []   # fill in, in the order taken")
             w('order = "forward"')
         elif len(ln.runs) == 1:
@@ -918,12 +1084,12 @@ def format_survey(survey: Survey, *, inches: bool | None = None) -> str:
     return "\n".join(out) + "\n"
 
 
-def write_survey(path, survey: Survey, *, inches: bool | None = None) -> None:
-    """Write ``survey`` to ``path`` atomically (see :func:`format_survey`; ``inches`` as there).
+def write_survey(path, survey: Survey, *, inches: bool | None = None, blank_runs=None) -> None:
+    """Write ``survey`` to ``path`` atomically (see :func:`format_survey`; ``inches`` and ``blank_runs`` as there).
 
     Raises
     ------
     OutputError
         The folder does not exist or cannot be written.
     """
-    write_text_atomic(path, format_survey(survey, inches=inches))
+    write_text_atomic(path, format_survey(survey, inches=inches, blank_runs=blank_runs))
