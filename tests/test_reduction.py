@@ -746,3 +746,28 @@ def test_closures_of_exact_readings_are_exactly_zero(layout, kind):
         assert c.closure_um == 0.0 and math.copysign(1.0, c.closure_um) == 1.0
         if c.run_spread_um is not None:
             assert c.run_spread_um == 0.0 and math.copysign(1.0, c.run_spread_um) == 1.0
+
+
+# ------------------------------------------------------------------ sizes (issue 18, issue 15 item 20)
+def test_lazy_operator_of_a_mid_size_grid_matches_numpy_pseudo_inverse():
+    # A 22 x 22 level grid has 484 stations + 44 zeros: above the size where the reduction forms its
+    # dense inverse itself, so the operator is formed only when read; it must equal the numpy
+    # reference (pinv of the dense normal matrix), and the heights must be G @ readings (linear units)
+    size = 21 * 10.0 + 20.0
+    p = plan_grid(size, size, 10.0, margin_mm=10.0, instrument=Instrument("level", "um/m"))
+    s = simulate_survey(p, surface_um, noise_sd=0.3, instrument_zero="random", rng=5)
+    red = reduce_survey(s)
+    assert red.rank.n_unknowns > 450 and callable(red.operator._G)  # not formed yet
+    G_ref, _, _ = reference_operator(s)
+    np.testing.assert_allclose(red.operator.G, G_ref, atol=1e-9)
+    np.testing.assert_allclose(red.heightmap.height_um, G_ref @ observations(s).value_um, atol=1e-9)
+
+
+def test_oversized_layout_says_what_is_handled():
+    # a 2000 x 2000 station grid (about 8 million readings) is refused, and the message says the
+    # largest survey handled and why (figures measured in tests/benchmarks/bench_reduction_sizes.py)
+    with pytest.raises(LayoutError) as exc:
+        plan_grid(1999 * 10 + 60, 1999 * 10 + 60, 10)
+    msg = exc.value.message
+    assert "largest survey it handles is about a 350 x 350 station grid" in msg
+    assert "8 s" in msg and "450 MB" in msg and "docs/performance.md" in msg

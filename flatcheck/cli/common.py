@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 import os
 import sys
@@ -31,6 +30,8 @@ __all__ = [
     "trials_option",
     "seed_option",
     "u_height_option",
+    "uncertainty_defaults_option",
+    "load_lab_defaults",
     "DEFAULT_TRIALS",
     "auto_trials_option",
     "default_auto_trials",
@@ -68,11 +69,29 @@ if TYPE_CHECKING:  # annotations only
     from rich.console import Console
 
 
+#: Width given to the console when standard output is not a terminal (a pipe, a file, a test): no wrapping
+#: mid-sentence at 80 columns, and tables as wide as their contents (issue 15, item 9).
+NO_TERMINAL_WIDTH = 10_000
+
+
 def stdout_console() -> Console:
-    """Console on standard output (summaries)."""
+    """Console on standard output (summaries).
+
+    On a terminal (or with ``COLUMNS`` set), text wraps at that width. Written to a pipe or a file, nothing is
+    wrapped: long lines stay whole and tables take the width their contents need.
+    """
     from rich.console import Console
 
-    return Console(file=sys.stdout, highlight=False, soft_wrap=False)
+    if _is_terminal(sys.stdout) or os.environ.get("COLUMNS", "").strip().isdigit():  # a terminal, or a width asked for
+        return Console(file=sys.stdout, highlight=False, soft_wrap=False)
+    return Console(file=sys.stdout, highlight=False, soft_wrap=True, width=NO_TERMINAL_WIDTH)
+
+
+def _is_terminal(stream) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):  # a closed or replaced stream
+        return False
 
 
 def stderr_console() -> Console:
@@ -95,7 +114,7 @@ def jsonable(obj):
         return {f.name: jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if not f.name.startswith("_")}
     if isinstance(obj, dict):
         return {str(k): jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
+    if isinstance(obj, (list, tuple)) or type(obj).__name__ == "JsonRows":  # rows held as columns (cli._json)
         return [jsonable(v) for v in obj]
     if isinstance(obj, np.ndarray):
         return jsonable(obj.tolist())
@@ -114,8 +133,19 @@ def jsonable(obj):
 
 
 def emit_json(obj) -> None:
-    """Print exactly one JSON object on standard output."""
-    sys.stdout.write(json.dumps(jsonable(obj), indent=2, ensure_ascii=False, allow_nan=False) + "\n")
+    """Print exactly one JSON object on standard output.
+
+    The text is that of ``json.dumps(jsonable(obj), indent=2, ensure_ascii=False)``, made by
+    :mod:`flatcheck.cli._json`: long lists of numbers and records go through the C encoder in
+    blocks, with no Python step per element. It is complete before anything is written, so an
+    error never leaves half a document on standard output.
+    """
+    from ._json import write_json
+
+    parts = []
+    write_json(obj, parts.append)
+    parts.append("\n")
+    sys.stdout.writelines(parts)
     sys.stdout.flush()
 
 
@@ -282,7 +312,26 @@ def trials_option():
 
     import typer
 
-    return typer.Option(DEFAULT_TRIALS, "--trials", min=100, help="Monte Carlo trials (JCGM 101).")
+    return typer.Option(DEFAULT_TRIALS, "--trials", min=100, help="Monte Carlo trials (JCGM 101).",
+                        callback=_check_trials)
+
+
+def _check_trials(value):
+    """--trials within docs/limits.md (at most 10^6), refused with the reason before any allocation."""
+    if value is not None:
+        from ..limits import check_count
+
+        check_count(value, "trials", where="--trials", name="the number of trials")
+    return value
+
+
+def _check_u_height(value):
+    """--u-height-um within docs/limits.md, refused by its own name (never an internal one)."""
+    if value is not None:
+        from ..limits import check_range
+
+        check_range(value, "uncertainty_um", where="--u-height-um", name="the uncertainty of one height")
+    return value
 
 
 def auto_trials_option():
@@ -290,7 +339,7 @@ def auto_trials_option():
     import typer
 
     return typer.Option(
-        None, "--trials", min=100,
+        None, "--trials", min=100, callback=_check_trials,
         help="Monte Carlo trials (JCGM 101); default 100000, fewer for large surveys (about 8 million / stations, "
         "at least 10000).",
     )
@@ -308,8 +357,32 @@ def u_height_option():
     import typer
 
     return typer.Option(
-        None, "--u-height-um", min=0.0, help="Height-map inputs: standard uncertainty of each height in µm."
+        None, "--u-height-um", min=0.0, help="Height-map inputs: standard uncertainty of each height in µm.",
+        callback=_check_u_height,
     )
+
+
+def uncertainty_defaults_option():
+    """The ``--uncertainty-defaults`` option: a lab's own defaults for the uncertainty budget."""
+    import typer
+
+    return typer.Option(
+        None, "--uncertainty-defaults",
+        help="A lab's uncertainty defaults (TOML, docs/survey-format.md); default: the file named by "
+        "FLATCHECK_UNCERTAINTY_DEFAULTS, if set.",
+    )
+
+
+def load_lab_defaults(path):
+    """The lab defaults named by the option, else by ``FLATCHECK_UNCERTAINTY_DEFAULTS``, else None."""
+    from ..io import ENV_VAR, read_uncertainty_defaults
+
+    if path is None:
+        env = os.environ.get(ENV_VAR, "").strip()
+        if not env:
+            return None
+        path = env
+    return read_uncertainty_defaults(path)
 
 
 #: Cautions, kept in the core (flatcheck.safety) so that the report uses the same words.

@@ -48,7 +48,7 @@ def reduce_cmd(
     from ..units import um_to
     from ..io import write_heightmap_csv
 
-    refuse_overwriting_inputs({"--map-out": map_out}, [input])
+    refuse_overwriting_inputs({"--map-out": map_out}, [input, uncertainty_defaults])
     loaded = load_input(input, method=method.value)
     mc = None
     if uncertainty:
@@ -67,7 +67,7 @@ def reduce_cmd(
                                       "length_mm": sv.surface.length_mm, "width_mm": sv.surface.width_mm}
         write_x3p(map_out, ev.heightmap, meta={k: v for k, v in meta.items() if v})
     elif map_out is not None:
-        hm = ev.heightmap
+        hm = ev.heightmap_about_ls  # as the header says (a height map's own heights are not), at full precision
         write_heightmap_csv(
             map_out,
             hm,

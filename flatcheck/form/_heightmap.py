@@ -82,6 +82,13 @@ class HeightMap:
         Size of the whole surface in mm when known (the points may be inset).
     label : str
         Short description for reports ("granite plate 1000 x 630 mm").
+    repeat_sd_um : float, optional
+        Repeatability measured from repeat readings of the same positions: pooled standard
+        deviation of one reading in µm (height-map CSV files with repeated positions), else None.
+    repeat_dof : int
+        Degrees of freedom of ``repeat_sd_um`` (readings minus positions; 0 when none).
+    notes : tuple of str
+        What the reader did or noticed (repeats averaged, an implausible extent), for reports.
     """
 
     x_mm: np.ndarray
@@ -91,6 +98,9 @@ class HeightMap:
     length_mm: float | None = None
     width_mm: float | None = None
     label: str = ""
+    repeat_sd_um: float | None = None
+    repeat_dof: int = 0
+    notes: tuple = ()
     _grid: object = field(default=None, repr=False, compare=False)
     _interpolators: dict = field(default_factory=dict, repr=False, compare=False)
 
@@ -120,7 +130,8 @@ class HeightMap:
             if len(names) != x.size:
                 raise InputValueError("one name per point is needed", fix="check the station names")
             object.__setattr__(self, "names", names)
-        object.__setattr__(self, "_grid", regular_grid(x, y))
+        # a reader that already found the grid (row-by-row files) passes it; otherwise detect it
+        object.__setattr__(self, "_grid", regular_grid(x, y) if self._grid is None else self._grid)
 
     # ------------------------------------------------------------------ basics
     @property
@@ -163,6 +174,10 @@ class HeightMap:
             length_mm=self.length_mm,
             width_mm=self.width_mm,
             label=self.label if label is None else label,
+            repeat_sd_um=self.repeat_sd_um,
+            repeat_dof=self.repeat_dof,
+            notes=self.notes,
+            _grid=self._grid,
         )
 
     @property

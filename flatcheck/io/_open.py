@@ -71,15 +71,6 @@ def open_surface(path, *, method: str = "least-squares") -> MeasuredSurface:
 def _check_ranges(hm, path) -> None:
     """Refuse positions and heights outside the ranges of docs/limits.md before any evaluation (a position of
     1e15 mm or a height of 1e300 µm would overflow the arithmetic or ask for terabytes)."""
-    import numpy as np
+    from ..limits import check_points_in_range
 
-    from ..limits import LIMITS, check_range
-
-    for name, values, kind in (("x_mm", hm.x_mm, "position_mm"), ("y_mm", hm.y_mm, "position_mm"),
-                               ("height_um", hm.height_um, "height_um")):
-        lim = LIMITS[kind]
-        bad = np.flatnonzero((values < lim.low) | (values > lim.high))
-        if bad.size:
-            i = int(bad[0])
-            check_range(values[i], kind, name=name,
-                        where=f"{path}, the point at x = {hm.x_mm[i]:.6g} mm, y = {hm.y_mm[i]:.6g} mm, {name}")
+    check_points_in_range(hm.x_mm, hm.y_mm, hm.height_um, where=str(path))

@@ -147,13 +147,19 @@ def _refuse_huge_integers(doc, where: str, text: str, deep: Exception) -> None:
         if isinstance(node, dict):
             stack.extend(((*keys, str(k)), v) for k, v in node.items())
         elif isinstance(node, list):
-            stack.extend(((*keys, f"[{i}]"), v) for i, v in enumerate(node))
+            # a table of an array of tables is named by its name key when it has one: "line 'SW-NE'"
+            stack.extend(((*keys, f"[{v['name']!r}]" if isinstance(v, dict) and isinstance(v.get("name"), str)
+                           else f"[{i}]"), v) for i, v in enumerate(node))
         elif isinstance(node, int) and not isinstance(node, bool):
             try:
                 float(node)
             except OverflowError:
                 key = ".".join(k for k in keys if not k.startswith("[")) or "value"
-                item = "".join(k for k in keys if k.startswith("["))
+                item = "".join(k for k in keys if k.startswith("[") and not k.startswith("['"))
+                named = [k[1:-1] for k in keys if k.startswith("['")]
+                if named:  # "line 'SW-NE' readings": the table by its name, then the key
+                    parts = [k for k in keys if not k.startswith("[") or k.startswith("['")]
+                    key = " ".join(k[1:-1] if k.startswith("['") else k for k in parts)
                 digits = str(abs(node))
                 pos = text.find(digits[:40])
                 line = f", line {text.count(chr(10), 0, pos) + 1}" if pos >= 0 else ""
@@ -162,3 +168,55 @@ def _refuse_huge_integers(doc, where: str, text: str, deep: Exception) -> None:
                     "too large for any measurement", where=f"{where}{line}, {key}",
                     fix="give the value in the unit the file states (docs/limits.md lists the accepted ranges)",
                 ) from None
+
+
+def open_regular(path, *, wanted: str = "a TOML survey or a CSV height map"):
+    """Open a regular file for binary reading after the checks of :func:`read_text`, without reading it.
+
+    For readers that stream a large file (a height-map CSV of millions of points) instead of holding
+    its whole text. The file must be a regular file of at most :data:`MAX_TEXT_BYTES` bytes and not
+    empty; reading it is bounded by the size found here.
+
+    Returns
+    -------
+    (file, int)
+        The open binary file (the caller closes it) and its size in bytes.
+
+    Raises
+    ------
+    InputFormatError
+        Missing file, a folder, a FIFO, device or socket, an empty file or one larger than
+        :data:`MAX_TEXT_BYTES`.
+    """
+    path = Path(path)
+    try:
+        mode = os.stat(path).st_mode
+    except FileNotFoundError:
+        raise InputFormatError("no such file", where=str(path), fix="check the path") from None
+    except OSError as exc:
+        raise InputFormatError(f"cannot read the file ({exc.strerror or exc})", where=str(path),
+                               fix="check the path and permissions") from None
+    if stat.S_ISDIR(mode):
+        raise InputFormatError("this is a folder, not a file", where=str(path), fix="give a file")
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))  # a FIFO must not block the open
+    except OSError as exc:
+        raise InputFormatError(f"cannot read the file ({exc.strerror})", where=str(path), fix="check permissions") from None
+    fh = os.fdopen(fd, "rb")
+    st = os.fstat(fh.fileno())
+    if not stat.S_ISREG(st.st_mode):
+        fh.close()
+        m = st.st_mode
+        kind = ("a named pipe (FIFO)" if stat.S_ISFIFO(m) else "a device" if stat.S_ISCHR(m) or stat.S_ISBLK(m)
+                else "a socket" if stat.S_ISSOCK(m) else "not a regular file")
+        raise InputFormatError(f"this is {kind}, not a regular file: it is not read, because it may never end",
+                               where=str(path), fix=f"save {wanted} to a file and give that")
+    if st.st_size > MAX_TEXT_BYTES:
+        fh.close()
+        raise InputFormatError(
+            f"the file is larger than {MAX_TEXT_BYTES // (1024 * 1024)} MiB, more than any surface flatcheck "
+            "evaluates (docs/limits.md)", where=str(path), fix=f"give {wanted}, or thin the data first")
+    if st.st_size == 0:
+        fh.close()
+        raise InputFormatError("the file is empty", where=str(path), fix=f"give {wanted}")
+    return fh, int(st.st_size)

@@ -73,6 +73,7 @@ Technical Report NOS 65 NGS 1, 1976 (tau test).
 
 from __future__ import annotations
 
+import contextlib
 from dataclasses import dataclass
 
 import numpy as np
@@ -97,7 +98,6 @@ __all__ = [
     "NetworkRank",
     "Reduction",
     "network_rank",
-    "reduce_survey",
 ]
 
 #: Flag limit for standardised residuals: two-sided 0.1 % point of the standard
@@ -120,12 +120,38 @@ _TIE_RTOL = 1e-6
 # At most this many suspect groups are set aside one after the other.
 _SNOOP_MAX_GROUPS = 5
 
-# Above these sizes the dense operator G and the exact redundancy numbers are
-# not formed (a dense inverse of the normal matrix, ~n_unknowns**3 flops).
+# Above these sizes the dense operator G is not formed (a dense inverse of the normal
+# matrix, ~n_unknowns**3 flops); below them it is formed when first asked for (Monte Carlo).
 _OPERATOR_MAX_OBS = 6000
 _OPERATOR_MAX_UNKNOWNS = 1500
-# Up to this many unknowns the rank is also checked by a dense eigen-decomposition.
-_DENSE_RANK_MAX = 1200
+# Up to this many unknowns the exact redundancy numbers (and the full outlier diagnosis) come
+# from the dense inverse during the reduction itself; above it the mean redundancy number is used.
+# The limit sits where the dense path costs at most about 1.5x the sparse one on one thread
+# (measured for 16 x 16 to 45 x 45 grids, docs/performance.md), so the time grows smoothly across
+# it instead of falling by 5-7x at the switch, as it did at 1500 unknowns. (A selected inverse on
+# the sparse factor, Takahashi's recurrence, gave the exact numbers at any size but, written in
+# Python column by column, cost 4x the whole sparse reduction at 38 x 38: not used.)
+_REDUNDANCY_DENSE_MAX = 450
+# Up to this many unknowns the rank is also checked by a dense eigen-decomposition during the
+# reduction (same cost argument); a singular network of up to _NAMING_DENSE_MAX unknowns is
+# analysed densely afterwards to name the stations it cannot see.
+_DENSE_RANK_MAX = 300
+_NAMING_DENSE_MAX = 3000
+
+
+def blas_one_thread():
+    """Context manager: BLAS pinned to one thread for small dense algebra.
+
+    Dense factorisations of a few hundred to a few thousand unknowns gain little from a
+    second thread, and on a busy machine the threads compete (measured: the rank analysis
+    of a 200 x 200 autocollimator grid took 13x longer under load with the default threads).
+    Uses threadpoolctl, imported here; without it, nothing is pinned.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - a declared dependency
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
 # Relative eigenvalue limit (after Jacobi scaling) below which a direction is null.
 _NULL_RTOL = 1e-10
 
@@ -274,15 +300,26 @@ class LinearReduction:
         :func:`flatcheck.survey.observations`) to station heights in µm referred
         to the least-squares plane of the stations. For angle units with an
         instrument zero this is the linearisation at the adjusted solution.
+        It may be formed only when first read (a dense inverse, for larger
+        networks): construct with the array or with a function returning it.
     station_names : tuple of str
         Station order of the rows.
     method : str
         ``"least-squares"`` or ``"moody"``.
     """
 
-    G: np.ndarray
+    _G: object  # ndarray, or a function of no arguments returning it (formed on first use)
     station_names: tuple
     method: str
+
+    @property
+    def G(self) -> np.ndarray:
+        """The operator, ``(n_stations, n_obs)``; formed on first use when built lazily."""
+        G = self._G
+        if callable(G):
+            G = np.asarray(G())
+            object.__setattr__(self, "_G", G)
+        return G
 
     def heights_um(self, value_um) -> np.ndarray:
         """Heights in µm from observations.
@@ -726,7 +763,9 @@ def network_rank(survey: Survey) -> NetworkRank:
     """
     model = _build_model(survey)
     _check_connected(model)
-    _, _, info, _ = _rank_analysis(model)
+    with blas_one_thread():
+        # planning asks once per layout: the exact check is affordable to 1200 unknowns here
+        _, _, info, _ = _rank_analysis(model, dense=model.n + model.p <= 1200)
     return info
 
 
@@ -808,9 +847,20 @@ class _Solver:
         Formed as N^-1 (A^T W) with a dense Cholesky inverse: SuperLU's solve
         with thousands of right-hand sides is far slower than one dense inverse.
         """
-        c = scipy.linalg.cho_factor(self.N.toarray())
-        Ninv = scipy.linalg.cho_solve(c, np.eye(self.N.shape[0]))
-        Kr = np.asarray((self.AtW.T @ Ninv).T)
+        from scipy.linalg import lapack
+
+        with blas_one_thread():
+            # Cholesky factor and inverse from it (LAPACK potrf + potri: n^3 flops, a third of
+            # solving against the identity); potri fills the upper triangle only
+            c, info = lapack.dpotrf(self.N.toarray(), lower=False)
+            if info == 0:
+                Ninv, info = lapack.dpotri(c, lower=False)
+            if info != 0:  # pragma: no cover - N is positive definite once the datum is fixed
+                cf = scipy.linalg.cho_factor(self.N.toarray())
+                Ninv = scipy.linalg.cho_solve(cf, np.eye(self.N.shape[0]))
+            else:
+                Ninv = np.triu(Ninv) + np.triu(Ninv, 1).T
+            Kr = np.asarray((self.AtW.T @ Ninv).T)
         K = np.zeros((self.n_unk, Kr.shape[1]))
         K[self.keep] = Kr
         return K
@@ -1244,7 +1294,22 @@ def _prepare(survey: Survey):
     """Model, datum null basis and plane basis, after every observability check."""
     model = _build_model(survey)
     _check_connected(model)
-    Z, Qp, info, extra_null = _rank_analysis(model)
+    with blas_one_thread():
+        Z, Qp, info, extra_null = _rank_analysis(model)
     if info.unobservable:
         _raise_unobservable(model, info, extra_null)
     return model, Z, Qp, info
+
+
+def _solver(model: _Model, Z: np.ndarray, info: NetworkRank) -> "_Solver":
+    """The sparse solver; a singular network found only here (no dense rank check at this size)
+    is analysed densely, when affordable, so that the error names the stations it cannot see."""
+    try:
+        return _Solver(model, Z)
+    except UnobservableError:
+        if info.exact or model.n + model.p > _NAMING_DENSE_MAX:
+            raise
+        with blas_one_thread():
+            _, _, info2, extra_null = _rank_analysis(model, dense=True)
+        _raise_unobservable(model, info2, extra_null)
+        raise

@@ -244,7 +244,11 @@ def _margin(value, flag: str = "margin_mm", units: str = "mm") -> float:
 #: Most readings one pass of a planned survey may need. A layout beyond this is almost always a typing
 #: slip (a foot spacing in the wrong unit); refusing it early avoids building and printing hundreds of
 #: thousands of stations. A 3000 x 1500 mm plate on a 25 mm grid needs about 14 000 readings; a 200 x 200
-#: station grid from an automated survey about 80 000.
+#: station grid from an automated survey about 80 000. The largest layout within it, about a 350 x 350
+#: station grid read in rows and columns (122 000 stations, 244 000 readings), reduces in about 8 s and
+#: 450 MB on two cores, extrapolated from the 300 x 300 grid measured in tests/benchmarks/
+#: bench_reduction_sizes.py (5.6 s, 355 MB; time grows as stations^1.2, memory as stations^0.6; see
+#: docs/performance.md). A 2000 x 2000 grid would need about 9 minutes and 4 GB.
 MAX_READINGS_PER_PASS = 250_000
 
 
@@ -267,7 +271,9 @@ def _check_readings(n_readings: int, B: float, units: str = "mm") -> None:
         typical = "inches (instrument bases are usually 2-12 in)" if units == "in" else "mm (instrument bases are usually 50-300 mm)"
         raise LayoutError(
             f"a foot spacing of {_len(B, units)} gives {n_readings} readings per pass, more than the "
-            f"{MAX_READINGS_PER_PASS} flatcheck plans",
+            f"{MAX_READINGS_PER_PASS} flatcheck plans: the largest survey it handles is about a 350 x 350 station "
+            "grid read in rows and columns, which reduces in about 8 s and 450 MB (docs/performance.md); "
+            "beyond that time and memory grow past what a bench computer offers",
             where=_key("foot_spacing_mm", units),
             fix=f"check the foot spacing is in {typical}",
         )

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import GeometryError, InputValueError, UnobservableError
+from ..errors import InputValueError
 from ._model import Survey
 from ._network import (
     LinearReduction,
@@ -17,7 +17,9 @@ from ._network import (
     Reduction,
     _OPERATOR_MAX_OBS,
     _OPERATOR_MAX_UNKNOWNS,
-    _Solver,
+    _REDUNDANCY_DENSE_MAX,
+    _solver,
+    blas_one_thread,
     _heightmap,
     _label,
     _line_closures,
@@ -37,7 +39,7 @@ from ._network import (
 
 def _least_squares(survey: Survey) -> Reduction:
     model, Z, Qp, info = _prepare(survey)
-    solver = _Solver(model, Z)
+    solver = _solver(model, Z, info)
     n, p = model.n, model.p
     l = model.obs.value_um
     u = solver.solve(l)
@@ -78,13 +80,22 @@ def _least_squares(survey: Survey) -> Reduction:
     operator = None
     K = None
     n_unk = n + p
-    if m <= _OPERATOR_MAX_OBS and n_unk <= _OPERATOR_MAX_UNKNOWNS:
+    names = tuple(s.name for s in survey.stations)
+    if m <= _OPERATOR_MAX_OBS and n_unk <= _REDUNDANCY_DENSE_MAX:
         K = solver.operator()
         G = K[:n] - Qp @ (Qp.T @ K[:n])
-        operator = LinearReduction(G, tuple(s.name for s in survey.stations), "least-squares")
-        hat = np.asarray(model.A.multiply(K.T).sum(axis=1)).ravel()  # diag(A N^- A^T W)
+        operator = LinearReduction(G, names, "least-squares")
+        Ac = model.A.tocoo()  # diag(A N^- A^T W): each reading's row of A against its column of K
+        hat = np.bincount(Ac.row, weights=Ac.data * K[Ac.col, Ac.row], minlength=m)
         red = np.clip(1.0 - hat, 0.0, 1.0)
     else:
+        if m <= _OPERATOR_MAX_OBS and n_unk <= _OPERATOR_MAX_UNKNOWNS:
+            # formed when first read (the Monte Carlo uncertainty): the reduction itself does not need it
+            def build_G(solver=solver, Qp=Qp, n=n):
+                K = solver.operator()
+                return K[:n] - Qp @ (Qp.T @ K[:n])
+
+            operator = LinearReduction(build_G, names, "least-squares")
         red = np.full(m, dof / m if m else 0.0)
         warnings.append(
             "the network is large: standardised residuals use the mean redundancy number, not each reading's own"
@@ -155,9 +166,7 @@ def reduce_survey(survey: Survey, *, method: str = "least-squares") -> Reduction
     A tilted plane read with a level on a grid: nothing is left about the
     least-squares plane.
 
-    >>> from flatcheck.layout import plan_grid
-    >>> from flatcheck.simulate import simulate_survey
-    >>> from flatcheck.survey import Instrument
+    >>> from flatcheck.survey import Instrument, plan_grid, simulate_survey
     >>> plan = plan_grid(500, 400, 100, margin_mm=50, instrument=Instrument("level", "um/m"))
     >>> s = simulate_survey(plan, lambda x, y: 1.0 + 0.01 * x - 0.02 * y, instrument_zero=4.0)
     >>> red = reduce_survey(s)
@@ -172,4 +181,5 @@ def reduce_survey(survey: Survey, *, method: str = "least-squares") -> Reduction
         from ._moody import moody_reduction
 
         return moody_reduction(survey)
-    return _least_squares(survey)
+    with blas_one_thread():  # small dense algebra throughout: one BLAS thread (see blas_one_thread)
+        return _least_squares(survey)
