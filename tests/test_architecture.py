@@ -156,7 +156,7 @@ FLOORS = {
     "flatcheck.survey": {"flatcheck.form"},
     "flatcheck.evaluation": {"flatcheck.form", "flatcheck.survey"},
     "flatcheck.conformance": {"flatcheck.form"},
-    "flatcheck.bearing": {"flatcheck.form"},
+    "flatcheck.bearing": {"flatcheck.form", "flatcheck.conformance"},  # its verdicts use the ISO 14253-1 rule
     "flatcheck.lapping": {"flatcheck.form", "flatcheck.conformance", "flatcheck.bearing"},
     "flatcheck.optics": {"flatcheck.form", "flatcheck.bearing"},
     "flatcheck.spheres": {"flatcheck.form"},

@@ -1,6 +1,7 @@
 """Air bearings over a surface: pads and carriages, and the air film under them.
 
-Imports :mod:`flatcheck.form`, :mod:`flatcheck.errors` and :mod:`flatcheck.units`.
+Imports :mod:`flatcheck.form`, :mod:`flatcheck.conformance` (the ISO 14253-1 rule of its verdicts),
+:mod:`flatcheck.errors` and :mod:`flatcheck.units`.
 
 Pads and carriages (footprint model)
     Pad, PlacedPad, Carriage, MotionBudget, evaluate_bearing, BearingResult,
@@ -12,6 +13,8 @@ Air film (Reynolds equation)
     ORIFICE_ASSUMPTIONS
 A pad's film as a force law (for carriages that share their load)
     PadFilmModel, FilmResponse
+Uncertainty of the verdicts (the survey's budget carried to the figures under the pads)
+    SurveyErrors, BearingUncertainty, BEARING_TRIALS, bearing_trials, local_uncertainty
 """
 
 from .._lazy import attach as _attach
@@ -66,6 +69,9 @@ __getattr__, __dir__, __all__ = _attach(
         '_bearing_film': (
             'pad_film_mesh',
             'RESOLVED_FILM_UM',
+            'DISC_CELL_FRACTION',
+            'RESOLVED_GAP_FRACTION',
+            'disc_cells_for',
             'DEFAULT_STIFFNESS_CHANGE_LIMIT',
             'PadFilmTravel',
             'BearingFilm',
@@ -82,6 +88,13 @@ __getattr__, __dir__, __all__ = _attach(
         '_response': (
             'FilmResponse',
             'PadFilmModel',
+        ),
+        '_uncertainty': (
+            'SurveyErrors',
+            'BearingUncertainty',
+            'BEARING_TRIALS',
+            'bearing_trials',
+            'local_uncertainty',
         ),
         '_pads': (
             'DEFAULT_GAP_FRACTION',

@@ -13,7 +13,6 @@ from .common import (
     Units,
     check_output,
     emit_json,
-    load_input,
     progress_bar,
     refuse_overwriting_inputs,
     stdout_console,
@@ -245,7 +244,11 @@ def guideway_cmd(
         None, "--plot", metavar="PREFIX",
         help="Write PREFIX-faces.png, PREFIX-thickness.png and, with a carriage, PREFIX-films.png, PREFIX-motions.png.",
     ),
-    png_dir: Path = typer.Option(None, "--png", metavar="DIR", help="Write the pictures into DIR (guideway-*.png)."),
+    png_dir: Path = typer.Option(None, "--png", metavar="DIR",
+                                 help="Write the pictures into DIR (guideway-*.png; with --report also each page)."),
+    report_path: Path = typer.Option(None, "--report", metavar="OUT.pdf",
+                                     help="Write the report pages (identity, faces, thickness, films, motions, "
+                                          "verdict, advice, methods, cautions) as one PDF."),
 ) -> None:
     """Judge a guideway as a body: faces tied together, parallelism, squareness, twist, and a wrap-around carriage."""
     from ..errors import OutputError
@@ -270,9 +273,8 @@ def guideway_cmd(
             raise InputValueError(f"{given[0]} is for the carriage, but no carriage is given", where=given[0],
                                   fix="add --carriage CARRIAGE.toml, or drop the option")
 
-    from ..io._carriage_toml import read_carriage_toml, wrap_carriage
-    from ..io._guideway_toml import read_guideway_toml
-    from ..output._guideway_plots import guideway_png_paths
+    from ..io import read_carriage_toml, read_guideway_toml, wrap_carriage
+    from ..output import guideway_png_paths
 
     outputs = {}
     if plot_prefix is not None or png_dir is not None:
@@ -280,9 +282,12 @@ def guideway_cmd(
         for key, path in guideway_png_paths(prefix=plot_prefix, folder=png_dir,
                                             carriage=carriage_path is not None).items():
             outputs[f"{'--plot' if plot_prefix is not None else '--png'} ({key})"] = path
+    if report_path is not None:
+        check_output(report_path, "--report")
+        outputs["--report"] = report_path
     refuse_overwriting_inputs(outputs, [body_path, carriage_path])
 
-    body = read_guideway_toml(body_path, opener=load_input)
+    body = read_guideway_toml(body_path)
     refuse_overwriting_inputs(outputs, [Path(body_path).parent / f.survey for f in body.faces])
     desc = read_carriage_toml(carriage_path) if carriage_path is not None else None
 
@@ -308,13 +313,21 @@ def guideway_cmd(
         safety = tuple(s for s in safety if "lapping" not in s.lower())
     data = build_json(body_path, carriage_path, body, geometry, result, verdict, advice, safety)
     written = []
-    if outputs:
-        from ..output._guideway_plots import write_guideway_pngs
+    if plot_prefix is not None or png_dir is not None:
+        from ..output import write_guideway_pngs
 
         written = write_guideway_pngs(geometry, result, prefix=plot_prefix, folder=png_dir)
+    if report_path is not None:
+        from ..output import write_guideway_report
+
+        files = write_guideway_report(report_path, body, geometry, result, verdict, advice, safety,
+                                      units=units.value, body_file=body_path, carriage_file=carriage_path,
+                                      png_dir=png_dir)
+        written = [*written, files.pdf, *files.pngs]
     if json_out:
         emit_json(data)
     else:
         render(data, units=units.value)
         for p in written:
-            stdout_console().print(f"picture written to {p}")
+            what = "report" if Path(p).suffix.lower() == ".pdf" else "picture"
+            stdout_console().print(f"{what} written to {p}", markup=False, highlight=False)

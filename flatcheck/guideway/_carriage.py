@@ -820,8 +820,17 @@ def solve_carriage(geometry, carriage: WrapCarriage, *, method: str = "linear", 
         carriage=carriage, x_mm=x, converged=conv, failures=tuple(failures), pads=tuple(pad_results), motion=motion,
         quick_motion=quick, difference=diff, stiffness=stiff, load_n=load, design_load_n=design_load,
         film_solutions=solutions, solutions_per_pad_station=solutions / max(n * k, 1), free_motions=free,
-        mesh_cells=int(carriage.mesh_cells), warnings=tuple(warnings), notes=tuple(notes),
+        mesh_cells=_cells_used(carriage, counter), warnings=tuple(warnings), notes=tuple(notes),
     )
+
+
+def _cells_used(carriage, counter) -> int:
+    """Cells a side of the finest pad mesh: those asked for, or more where a porous disc's resolution rule asked."""
+    from ..bearing import PorousFeed
+
+    if not isinstance(carriage.feed, PorousFeed):
+        return int(carriage.mesh_cells)
+    return max([int(carriage.mesh_cells)] + [int(m.x_edges_mm.size) - 1 for m in counter.meshes])
 
 
 def _differences(motion: WrapMotion, quick: WrapMotion, pads, conv) -> dict:

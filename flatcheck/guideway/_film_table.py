@@ -45,9 +45,10 @@ def pad_mesh(pad, cells: int, feed):
     -------
     flatcheck.bearing.PadMesh
     """
-    from ..bearing import pad_film_mesh
+    from ..bearing import RESOLVED_GAP_FRACTION, pad_film_mesh
 
-    return pad_film_mesh(pad, int(cells), feed)
+    # a porous circular pad's cells resolve its edge down to half its gap (more cells only when needed)
+    return pad_film_mesh(pad, int(cells), feed, least_film_um=RESOLVED_GAP_FRACTION * pad.gap_um)
 
 
 class FilmCounter:
@@ -61,7 +62,7 @@ class FilmCounter:
     def model(self, pad):
         from ..bearing import PadFilmModel
 
-        key = (pad.shape, pad.length_mm, pad.width_mm)
+        key = (pad.shape, pad.length_mm, pad.width_mm, pad.gap_um)
         if key not in self._models:
             self._models[key] = PadFilmModel(pad_mesh(pad, self.cells, self.feed), self.feed)
         return self._models[key]

@@ -170,10 +170,16 @@ def parse_carriage_toml(text: str, *, source: str = "<carriage>") -> CarriageFil
         if name in where:
             raise InputValueError(f"pad name {name!r} is used twice", where=t.where("name"),
                                   fix="give each pad its own name")
+        if "stiffness" in t.data:
+            # the footprint model of flatcheck bearing weights pads by it; here every pad's stiffness comes from
+            # its own film at its own local gap, so a weight would be silently ignored: refuse it instead
+            raise InputValueError(
+                f"pad {name!r}: a stiffness weight is not used by the guideway's carriage (each pad's stiffness "
+                "comes from its own film)", where=t.where("stiffness"),
+                fix="remove stiffness from this pad (it is for flatcheck bearing's footprint estimate only)")
         pad = make_pad(t.text("pad", size), t.number("gap_um", gap, positive=True), t.text("kind", kind), t)
         pads.append(PlacedPad(pad, along_mm=t.number("along_mm", 0.0), across_mm=t.number("across_mm", 0.0),
-                              name=name, face=t.text("face", face),
-                              stiffness=t.number("stiffness", 1.0, positive=True)))
+                              name=name, face=t.text("face", face)))
         where[name] = t.where()
 
     bt = _Table(doc.get("budget", {}), source, lines, "budget")

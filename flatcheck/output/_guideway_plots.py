@@ -5,7 +5,8 @@
 with the tie readings; ``films_figure`` each pad's least film along the travel with its margin and the quick
 estimate; ``motions_figure`` the carriage's error motions (ISO 230-1: vertical and horizontal straightness,
 pitch, yaw, roll), film model and quick estimate. Each returns a matplotlib Figure on the Agg canvas (through
-:func:`flatcheck.output._plots.new_figure`); matplotlib is imported inside the functions only, and nothing is
+:func:`flatcheck.output._plots.new_figure`), or draws into given panels of a report page (``fig``, ``rects``;
+``panel_counts`` says how many each needs); matplotlib is imported inside the functions only, and nothing is
 written except by :func:`write_guideway_pngs`.
 """
 
@@ -15,7 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["faces_figure", "thickness_figure", "films_figure", "motions_figure", "write_guideway_pngs"]
+__all__ = ["faces_figure", "thickness_figure", "films_figure", "motions_figure", "write_guideway_pngs",
+           "guideway_png_paths", "panel_counts"]
 
 _INK = "#1a1a1a"
 _ACCENT = "#b5473a"
@@ -38,7 +40,7 @@ def _stack(n: int, *, width_in: float, panel_in: float, gap_in: float = 0.7, top
     return fig, rects
 
 
-def faces_figure(geometry, *, carriage=None, width_in: float = 11.0):
+def faces_figure(geometry, *, carriage=None, width_in: float = 11.0, fig=None, rects=None):
     """Every face's form (heights about its own least-squares plane), one strip per face.
 
     Parameters
@@ -48,6 +50,8 @@ def faces_figure(geometry, *, carriage=None, width_in: float = 11.0):
         Draws each pad's track on its face (dashed lines at the pad's edges across).
     width_in : float
         Figure width, inches.
+    fig, rects : Figure and sequence of (left, bottom, width, height), optional
+        Draw into these panels of an existing figure (a report page; one per face) instead of a new figure.
 
     Returns
     -------
@@ -57,13 +61,15 @@ def faces_figure(geometry, *, carriage=None, width_in: float = 11.0):
 
     faces = geometry.faces
     n = len(faces)
-    panel_in, gap_in, top_in, bottom_in = 1.45, 0.75, 0.45, 0.55
-    height_in = top_in + bottom_in + n * panel_in + (n - 1) * gap_in
-    fig = new_figure((width_in, height_in))
+    if fig is None:
+        panel_in, gap_in, top_in, bottom_in = 1.45, 0.75, 0.45, 0.55
+        height_in = top_in + bottom_in + n * panel_in + (n - 1) * gap_in
+        fig = new_figure((width_in, height_in))
+        rects = [(0.07, (height_in - top_in - (k + 1) * panel_in - k * gap_in) / height_in, 0.80,
+                  panel_in / height_in) for k in range(n)]
     body = geometry.body
     for k, fg in enumerate(faces):
-        y0 = height_in - top_in - (k + 1) * panel_in - k * gap_in
-        ax = fig.add_axes((0.07, y0 / height_in, 0.80, panel_in / height_in))
+        ax = fig.add_axes(rects[k])
         form = geometry._forms[fg.name]
         x, s, z = form.x, form.s, form.z
         if form.two_d:
@@ -101,7 +107,7 @@ def faces_figure(geometry, *, carriage=None, width_in: float = 11.0):
     return fig
 
 
-def thickness_figure(geometry, *, width_in: float = 11.0):
+def thickness_figure(geometry, *, width_in: float = 11.0, fig=None, rects=None):
     """Distance between opposed faces (minus nominal) along the beam on the tie lines, with the tie readings.
 
     For every pair of faces tied by thickness readings: ``wA + wB`` along x at each across position of the
@@ -120,9 +126,10 @@ def thickness_figure(geometry, *, width_in: float = 11.0):
     for r in geometry.rails:
         pairs.append(("rails",) + tuple(r.faces))
     n = max(1, len(pairs))
-    fig, rects = _stack(n, width_in=width_in, panel_in=2.0)
+    if fig is None:
+        fig, rects = _stack(n, width_in=width_in, panel_in=2.0)
     if not pairs:
-        ax = fig.add_axes((0.08, 0.2, 0.88, 0.6))
+        ax = fig.add_axes(rects[0])
         ax.text(0.5, 0.5, "no thickness or height ties", ha="center", va="center", transform=ax.transAxes)
         ax.set_axis_off()
         return fig
@@ -154,7 +161,7 @@ def thickness_figure(geometry, *, width_in: float = 11.0):
     return fig
 
 
-def films_figure(result, *, width_in: float = 11.0):
+def films_figure(result, *, width_in: float = 11.0, fig=None, rects=None):
     """Each pad's least film along the travel, by face, with its margin and the quick estimate (dotted).
 
     Returns
@@ -166,7 +173,8 @@ def films_figure(result, *, width_in: float = 11.0):
         if p.face not in faces:
             faces.append(p.face)
     n = len(faces)
-    fig, rects = _stack(n, width_in=width_in, panel_in=1.9, width=0.70)
+    if fig is None:
+        fig, rects = _stack(n, width_in=width_in, panel_in=1.9, width=0.70)
     x = result.x_mm
     for k, face in enumerate(faces):
         ax = fig.add_axes(rects[k])
@@ -193,7 +201,7 @@ def films_figure(result, *, width_in: float = 11.0):
     return fig
 
 
-def motions_figure(result, *, width_in: float = 11.0):
+def motions_figure(result, *, width_in: float = 11.0, fig=None, rects=None):
     """The carriage's error motions along the travel: straightness (µm) and angular motions (arcsec).
 
     Solid: the film model; dotted: the quick estimate (pad averaging). Free motions are left out.
@@ -210,7 +218,8 @@ def motions_figure(result, *, width_in: float = 11.0):
             ("roll", "roll_arcsec", "roll (arcsec)", m.roll_range_arcsec, "arcsec")]
     rows = [r for r in rows if r[0] in m.held]
     n = max(1, len(rows))
-    fig, rects = _stack(n, width_in=width_in, panel_in=1.5, left=0.09, width=0.87)
+    if fig is None:
+        fig, rects = _stack(n, width_in=width_in, panel_in=1.5, left=0.09, width=0.87)
     x = m.x_mm
     for k, (name, attr, label, summary, unit) in enumerate(rows):
         ax = fig.add_axes(rects[k])
@@ -226,6 +235,17 @@ def motions_figure(result, *, width_in: float = 11.0):
         if k == n - 1:
             ax.set_xlabel("carriage position x (mm)", fontsize=8)
     return fig
+
+
+def panel_counts(geometry, result=None) -> dict:
+    """How many panels each picture draws: ``{"faces": n, "thickness": n, "films": n, "motions": n}``."""
+    pairs = {tuple(sorted(t.faces)) for t in geometry.body.thickness}
+    out = {"faces": len(geometry.faces), "thickness": max(1, len(pairs) + len(geometry.rails))}
+    if result is not None:
+        out["films"] = len({p.face for p in result.pads})
+        out["motions"] = max(1, sum(1 for r in ("vertical", "horizontal", "pitch", "yaw", "roll")
+                                    if r in result.motion.held))
+    return out
 
 
 def write_guideway_pngs(geometry, result, *, prefix=None, folder=None, dpi: float = 120) -> list:
