@@ -751,7 +751,7 @@ def certificate_cmd(
     issued: str = typer.Option(None, "--issued", help="Day of issue (YYYY-MM-DD; default today)."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
-    """Issue a certificate number for a survey and show the certificate's content (the PDF pages come later)."""
+    """Issue a certificate number for a survey and show the certificate's content (PDF: 'flatcheck report --db')."""
     from ..records import certificate_data, check_prefix
 
     issued = _check_date(issued, "--issued")

@@ -20,7 +20,7 @@ Limits table (lab-editable TOML)
     read_limits, parse_limits, LimitsFile, LimitTable, GradeLimit, text_sha256
 Certificates
     certificate_data, CertificateData, InstrumentEntry, StationHeight, Reading,
-    StateResult, check_prefix
+    StateResult, check_prefix, certified_result, evaluation_note
 Stating results
     round_to_uncertainty
 """
@@ -32,7 +32,9 @@ from ._certificate import (
     StateResult,
     StationHeight,
     certificate_data,
+    certified_result,
     check_prefix,
+    evaluation_note,
 )
 from ._due import DEFAULT_WITHIN_DAYS, DueItem, DueList, FlaggedSurvey, add_interval, due_list, due_status
 from ._entry import STATES, BudgetRow, SurveyEntry, budget_rows, survey_entry
@@ -71,7 +73,7 @@ __all__ = [
     "read_limits", "parse_limits", "LimitsFile", "LimitTable", "GradeLimit", "text_sha256",
     # certificates
     "certificate_data", "CertificateData", "InstrumentEntry", "StationHeight", "Reading", "StateResult",
-    "check_prefix",
+    "check_prefix", "certified_result", "evaluation_note",
     # stating results
     "round_to_uncertainty",
 ]

@@ -26,7 +26,7 @@ from ._due import add_interval
 from ._rounding import round_to_uncertainty
 
 __all__ = ["InstrumentEntry", "StationHeight", "Reading", "StateResult", "CertificateData", "certificate_data",
-           "check_prefix"]
+           "check_prefix", "certified_result", "evaluation_note"]
 
 _PREFIX = re.compile(r"^[A-Za-z0-9][A-Za-z0-9-]{0,15}$")
 
@@ -312,3 +312,37 @@ def certificate_data(register, survey_id: int, *, prefix: str | None = None, iss
         interval=s.interval_text, measured_on=row.measured_on, measured_by=row.operator,
         temperature_c=detail.temperature_c, approved_by=approved_by, notes=tuple(notes),
     )
+
+
+def certified_result(c: CertificateData) -> StateResult:
+    """The result of the survey the certificate is of (its as-left result when that survey is the as-left one)."""
+    if c.as_left is not None and c.as_left.survey_id == c.survey_id:
+        return c.as_left
+    return c.as_found
+
+
+def evaluation_note(c: CertificateData, flatness_um: float, expanded_uncertainty_um: float | None) -> str:
+    """A note when another evaluation of the survey states other numbers than the certificate ("" when equal).
+
+    The certificate states the register's result; a report evaluates the survey again (its Monte Carlo
+    run with the register's trials and seed gives the same numbers). Both are compared as they are
+    stated: rounded to the uncertainty (:func:`round_to_uncertainty`).
+
+    Parameters
+    ----------
+    c : CertificateData
+    flatness_um, expanded_uncertainty_um : float, float or None
+        Minimum-zone flatness and its U from the other evaluation, µm.
+    """
+    res = certified_result(c)
+    ref = res.expanded_uncertainty_um if res.expanded_uncertainty_um is not None else expanded_uncertainty_um
+    mine = round_to_uncertainty(res.flatness_um, ref)[0], res.uncertainty_text
+    other_f = round_to_uncertainty(flatness_um, ref)[0]
+    other_u = "" if expanded_uncertainty_um is None else round_to_uncertainty(flatness_um, expanded_uncertainty_um)[1]
+    if (other_f, other_u) == mine:
+        return ""
+    told = f"{other_f} µm" + (f", U = {other_u} µm" if other_u else " without U")
+    return (f"the report's pages after the certificate evaluate the survey again and state {told}; the certificate "
+            f"states the register's result ({res.flatness_text} µm" +
+            (f", U = {res.uncertainty_text} µm" if res.uncertainty_text else "") + "): other Monte Carlo trials or "
+            "seed, other uncertainty defaults or another reduction were used")

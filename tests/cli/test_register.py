@@ -56,6 +56,24 @@ def test_three_surveys_out_of_order_come_back_in_date_order(cli, tmp_path):
     assert code == 0 and out.index("2024-03-11") < out.index("2024-04-02") < out.index("2024-04-23")
 
 
+def test_history_json_is_the_pinned_list(cli, tmp_path):
+    """Issue 20 pinned `register history --json` as a list of surveys in date order (docs/records.md says so),
+    while every other command prints one object: the list stays a list, with the pinned keys."""
+    db = tmp_path / "reg.sqlite"
+    files = _copy(tmp_path, P3[1], P3[0])
+    assert cli("register", "add", *files, "--db", db, *FAST)[0] == 0
+    code, out, err = cli("register", "history", "KY-P3", "--db", db, "--json")
+    assert code == 0 and err == ""
+    hist = json.loads(out)
+    assert isinstance(hist, list) and len(hist) == 2
+    assert [h["date"] for h in hist] == sorted(h["date"] for h in hist)
+    for h in hist:
+        assert {"date", "flatness_um", "expanded_uncertainty_um"} <= set(h)
+    assert cli("register", "surface", "KY-X1", "--db", db, "--kind", "surface plate")[0] == 0  # no survey yet
+    code, out, err = cli("register", "history", "KY-X1", "--db", db, "--json")
+    assert code == 0 and json.loads(out) == []
+
+
 def test_due_date_follows_from_the_interval(cli, tmp_path):
     db = tmp_path / "reg.sqlite"
     files = _copy(tmp_path, *P3)

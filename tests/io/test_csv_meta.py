@@ -46,3 +46,23 @@ def test_bad_values_name_the_line(lines, message):
     with pytest.raises(InputValueError, match=message) as exc:
         parse_csv_meta(lines, source="pad.csv", first_line=3)
     assert "pad.csv, line" in str(exc.value)
+
+
+def test_the_height_map_reader_takes_size_and_description_from_the_comments(tmp_path):
+    """read_heightmap_csv gives the map the size the comments state, so reports do not say 'size not stated'."""
+    from flatcheck.io import read_heightmap_csv
+
+    p = tmp_path / "pad.csv"
+    p.write_text("# ident = KY-B4\n# description = lapped pad face\n# length_in = 3.15\n# width_mm = 80\n"
+                 "x_mm,y_mm,height_um\n5,5,0.1\n75,5,0.2\n5,75,0.3\n75,75,0.1\n", encoding="utf-8")
+    hm = read_heightmap_csv(p)
+    assert hm.length_mm == pytest.approx(3.15 * 25.4, rel=1e-15)  # 1 in = 25.4 mm exactly (by definition)
+    assert hm.width_mm == 80.0 and hm.label == "lapped pad face"
+    plain = tmp_path / "plain.csv"
+    plain.write_text("# a note\nx_mm,y_mm,height_um\n5,5,0.1\n75,5,0.2\n5,75,0.3\n", encoding="utf-8")
+    hm = read_heightmap_csv(plain)
+    assert (hm.length_mm, hm.width_mm, hm.label) == (None, None, "plain")  # nothing stated: as before
+    bad = tmp_path / "bad.csv"
+    bad.write_text("# date = 15.03.2024\nx_mm,y_mm,height_um\n5,5,0.1\n75,5,0.2\n5,75,0.3\n", encoding="utf-8")
+    with pytest.raises(InputValueError, match="line 1"):
+        read_heightmap_csv(bad)
