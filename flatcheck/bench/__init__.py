@@ -21,7 +21,7 @@ Set-up sheet and supports
     bessel_points, least_bow_points, beam_supports, BeamSupports, AIRY_SPACING_RATIO,
     BESSEL_SPACING_RATIO, THREE_POINT_INSET, SOAK_HOURS_SURFACE, SOAK_HOURS_INSTRUMENT
 Sag of a long beam between its supports
-    check_sag, SagCheck, beam_self_weight_deflection_um
+    check_sag, check_sag_of, SagCheck, beam_self_weight_deflection_um
 """
 
 from ._closure import ClosureCheck, line_closure
@@ -57,7 +57,7 @@ from ._log import (
     parse_log,
 )
 from ._beam import beam_self_weight_deflection_um
-from ._sag import SagCheck, check_sag
+from ._sag import SagCheck, check_sag, check_sag_of
 from ._serial import (
     DEFAULT_READING_PATTERN,
     InstrumentError,
@@ -104,5 +104,5 @@ __all__ = [
     "least_bow_points", "beam_supports", "BeamSupports", "AIRY_SPACING_RATIO", "BESSEL_SPACING_RATIO",
     "THREE_POINT_INSET", "SOAK_HOURS_SURFACE", "SOAK_HOURS_INSTRUMENT",
     # sag
-    "check_sag", "SagCheck", "beam_self_weight_deflection_um",
+    "check_sag", "check_sag_of", "SagCheck", "beam_self_weight_deflection_um",
 ]

@@ -9,7 +9,7 @@ at the supports gives, for ``0 <= x <= L/2`` (mirror image beyond)::
     C = -k [ -L^3/48 + (L/4) (L/2 - a)^2 ],             D = k a^4/24 - C a
 
 with ``<u> = max(u, 0)``; ``y`` is positive up. Supports at the ends (``a = 0``) give the
-textbook mid-span sag ``5 q L^4 / (384 EI) = 5 rho g L^4 / (32 E t^2)`` (REFERENCE.md
+textbook mid-span sag ``5 q L^4 / (384 EI) = 5 rho g L^4 / (32 E t^2)`` (
 section 10, check value 21).
 """
 
@@ -25,9 +25,9 @@ __all__ = ["GRAVITY_M_S2", "GRANITE_DENSITY_KG_M3", "GRANITE_E_GPA", "beam_self_
 
 #: Standard acceleration of gravity, m/s^2: exact by definition (3rd CGPM, 1901).
 GRAVITY_M_S2 = 9.80665
-#: Granite density, kg/m^3: the middle of 2600-2800 (trade data, REFERENCE.md section 9).
+#: Granite density, kg/m^3: the middle of 2600-2800 (trade data of stone suppliers).
 GRANITE_DENSITY_KG_M3 = 2700.0
-#: Young's modulus of granite, GPa: inside the 39.2-64.7 GPa DIN 876 states (REFERENCE.md section 4.1,
+#: Young's modulus of granite, GPa: inside the 39.2-64.7 GPa DIN 876 states (DIN 876-1,
 #: secondary source); an estimate only, a given stone may lie anywhere in that range.
 GRANITE_E_GPA = 50.0
 
@@ -71,7 +71,7 @@ def beam_self_weight_deflection_um(x_mm, length_mm: float, thickness_mm: float, 
 
     Examples
     --------
-    Supports at the ends: the middle sags 5 rho g L^4 / (32 E t^2) (REFERENCE.md check value 21):
+    Supports at the ends: the middle sags 5 rho g L^4 / (32 E t^2) (uniform beam, end supports):
 
     >>> y = beam_self_weight_deflection_um([500.0], 1000.0, 150.0, 0.0)
     >>> round(float(-y[0]), 3)

@@ -7,7 +7,7 @@ autocollimator (re-aimed for every line, so its zero is a slope of its own). The
 already read fix the tie stations' heights up to the plane of the surface. What is left
 once both freedoms are taken out is the *closure*: for the centre line W-E of a Union Jack,
 the height it gives at C minus the height the diagonals give there, after hanging W-E
-between W and E (the classic closure at the centre, REFERENCE.md section 2).
+between W and E (the classic closure at the centre).
 
 Method. One weighted least-squares adjustment of the runs already read and the new run,
 in which the new line gets its own copy of every station (so it floats freely and fits

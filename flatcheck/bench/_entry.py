@@ -70,7 +70,7 @@ FLAG_Z = 3.29
 #: seconds at every line, so they are left to the reduction at the end, which checks every reading.
 MAX_CLOSURE_UNKNOWNS = 600
 #: The coarsest grade of DIN 876 (3: c = 40 µm in t = c (1 + L/1000)), whose tolerance bounds the "jump"
-#: check; REFERENCE.md section 4.1 (as published for the cast-iron edition, secondary source).
+#: check; DIN 876-1 (as published for the cast-iron edition, secondary source).
 _JUMP_GRADE = "3"
 
 

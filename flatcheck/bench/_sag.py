@@ -20,7 +20,7 @@ from ..errors import InputValueError
 from ._beam import GRANITE_DENSITY_KG_M3, GRANITE_E_GPA, beam_self_weight_deflection_um
 from ._setup import airy_points, bessel_points, least_bow_points
 
-__all__ = ["LONG_NARROW_ASPECT", "SYMMETRIC_SHARE", "SagCheck", "check_sag"]
+__all__ = ["LONG_NARROW_ASPECT", "SYMMETRIC_SHARE", "SagCheck", "check_sag", "check_sag_of"]
 
 #: A surface at least this many times longer than wide is "long and narrow" (a beam rather than a plate).
 #: Common practice, no single source.
@@ -168,3 +168,23 @@ def check_sag(x_mm, y_mm, height_um, *, length_mm: float | None = None, width_mm
             )
     return SagCheck(flagged, bool(long_narrow), float(aspect), axis, float(length), middle_minus_ends,
                     float(share), flat, expected, message)
+
+
+def check_sag_of(heightmap, *, thickness_mm: float | None = None, support_from_end_mm: float | None = None) -> SagCheck:
+    """:func:`check_sag` of a height map (a reduced survey or a height-map file), on its stated outline.
+
+    Parameters
+    ----------
+    heightmap : flatcheck.HeightMap
+        Positions mm, heights µm; its ``length_mm`` and ``width_mm`` (when stated) give the outline,
+        else the extent of its points.
+    thickness_mm, support_from_end_mm : float, optional
+        As :func:`check_sag` (the expected self-weight sag on those supports).
+
+    Returns
+    -------
+    SagCheck
+    """
+    hm = heightmap
+    return check_sag(hm.x_mm, hm.y_mm, hm.height_um, length_mm=hm.length_mm or None, width_mm=hm.width_mm or None,
+                     thickness_mm=thickness_mm, support_from_end_mm=support_from_end_mm)

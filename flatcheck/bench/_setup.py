@@ -8,17 +8,17 @@ instrument soak in the room first.
 Supports
 --------
 - A plate stands on **three points** (a three-legged stool never rocks); DIN 876-1 states
-  flatness with the plate on three support points set and marked by its maker (REFERENCE.md
-  section 4.1). Without marks, common practice (no single source) puts them about a fifth
+  flatness with the plate on three support points set and marked by its maker.
+  Without marks, common practice (no single source) puts them about a fifth
   of the length in from the ends and of the width in from the sides: two under one end,
   one under the middle of the other. A beam model puts supports about 0.2 L in from the
   ends and finds the self-weight bow about ten times smaller than on supports at the ends
-  (REFERENCE.md section 9, derived).
+  (thin-plate thermal bending, derived).
 - A **long beam** on two supports (:func:`airy_points`, :func:`bessel_points`,
   :func:`least_bow_points`): the **Airy points**, ``L / sqrt(3) = 0.5774 L`` apart, leave the
   end faces vertical (zero slope at the ends; exact from beam theory, see
   :mod:`flatcheck.bench._beam`); the **Bessel points**, ``0.5594 L`` apart, change the beam's
-  length least (REFERENCE.md section 11, from memory; the test derives 0.55938 L from beam
+  length least (from memory; the test derives 0.55938 L from beam
   theory); supports ``0.2231 L`` from the ends give the least peak-to-valley self-weight bow
   (derived numerically here).
 
@@ -27,9 +27,9 @@ Soak
 Let the surface stand in the room for 24 h after it was moved in or the room's temperature
 changed, and the instrument for an hour, before reading: common practice, no single source.
 DIN 876-1 asks for no one-sided heating or cooling, at most 2 K temperature difference in
-the plate and at least 2 h drying after wet cleaning (REFERENCE.md section 4.1). Why it
+the plate and at least 2 h drying after wet cleaning (DIN 876-1). Why it
 matters: a vertical temperature difference ``dT`` bows a plate of thickness ``t`` by
-``alpha dT L^2 / (8 t)`` over a length ``L`` (REFERENCE.md section 9).
+``alpha dT L^2 / (8 t)`` over a length ``L`` (thin-plate thermal bending).
 """
 
 from __future__ import annotations
@@ -64,20 +64,20 @@ __all__ = [
 ]
 
 #: Airy points: spacing / length = 1/sqrt(3) (zero end slope of a uniform beam on two symmetric
-#: supports; exact from beam theory; REFERENCE.md section 11 quotes 0.5774 L, from memory).
+#: supports; exact from beam theory; 0.5774 L).
 AIRY_SPACING_RATIO = 1.0 / math.sqrt(3.0)
-#: Bessel points: spacing / length = 0.5594 (least change of length; REFERENCE.md section 11, from memory).
+#: Bessel points: spacing / length = 0.5594 (least change of length; from memory).
 BESSEL_SPACING_RATIO = 0.5594
 #: Three-point support without the maker's marks: inset as a fraction of length and width.
-#: Common practice, no single source (REFERENCE.md section 9: supports about 0.2 L in, beam model).
+#: Common practice, no single source (supports about 0.2 L in, beam model).
 THREE_POINT_INSET = 0.2
 #: Soak before reading, h: the surface after it was moved or the room changed; the instrument.
 #: Common practice, no single source.
 SOAK_HOURS_SURFACE = 24.0
 SOAK_HOURS_INSTRUMENT = 1.0
-#: Drying time after wet cleaning, h (DIN 876-1, REFERENCE.md section 4.1).
+#: Drying time after wet cleaning, h (DIN 876-1).
 DRY_HOURS_AFTER_WET_CLEANING = 2.0
-#: Thermal expansion of metrology granite, 1/K: 6e-6, inside the typical 6-8e-6 (trade data, REFERENCE.md section 9).
+#: Thermal expansion of metrology granite, 1/K: 6e-6, inside the typical 6-8e-6 (trade data of stone suppliers).
 GRANITE_CTE_PER_K = 6e-6
 
 _COMPASS = ("east", "north-east", "north", "north-west", "west", "south-west", "south", "south-east")
@@ -317,8 +317,8 @@ def beam_supports(length_mm: float) -> BeamSupports:
     return BeamSupports(
         L, a[0], a[1], b[0], b[1], c[0], c[1],
         (
-            "Airy points L/sqrt(3) apart: zero end slope of a uniform beam (beam theory; REFERENCE.md section 11)",
-            "Bessel points 0.5594 L apart: least change of length (REFERENCE.md section 11, from memory)",
+            "Airy points L/sqrt(3) apart: zero end slope of a uniform beam (beam theory)",
+            "Bessel points 0.5594 L apart: least change of length (from memory)",
             "least self-weight bow about 0.2231 L from the ends (derived from beam theory here)",
         ),
     )
@@ -429,10 +429,10 @@ def setup_sheet(survey, *, runs=("forward", "reverse"), standoff_mm: float = 150
         span = max(L, W)
         bow = GRANITE_CTE_PER_K * 0.1 * (span * 1e-3) ** 2 / (8.0 * t * 1e-3) * 1e6
         vol = L * W * t * 1e-9
-        mass = (2600.0 * vol, 2800.0 * vol)  # granite 2600-2800 kg/m^3 (REFERENCE.md section 9)
+        mass = (2600.0 * vol, 2800.0 * vol)  # granite 2600-2800 kg/m^3 (thin-plate thermal bending)
         notes.append(
             f"A 0.1 K difference between top and bottom bows this surface by about {bow:.2g} µm over its "
-            f"{span:.0f} mm length (alpha {GRANITE_CTE_PER_K:g}/K; REFERENCE.md section 9)."
+            f"{span:.0f} mm length (alpha {GRANITE_CTE_PER_K:g}/K)."
         )
     if beam is not None:
         notes.append(

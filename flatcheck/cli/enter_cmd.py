@@ -60,7 +60,7 @@ class _Session:
 
     def __init__(self, path: Path, reading_sd: float | None):
         from ..bench import entry_limits, plan_entry, start_entry
-        from ..io._survey_fill import read_form
+        from ..io import read_form
 
         self.path = path
         self.form = read_form(path)
@@ -112,7 +112,7 @@ class _Session:
     # -- changes, each saved at once
     def save(self) -> None:
         from ..bench import run_readings
-        from ..io._survey_fill import save_form
+        from ..io import save_form
 
         self.form = save_form(self.form, run_readings(self.state))
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from rich.markup import escape
+
 import sys
 import textwrap
 from pathlib import Path
@@ -14,13 +16,19 @@ from ._app import app
 from .common import (
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
+    auto_trials_option,
+    budget_u,
     check_output,
+    guard_band_option,
     SAFETY_LINES,
     emit_json,
     load_input,
     progress_bar,
     refuse_overwriting_inputs,
+    seed_option,
     stdout_console,
+    u_height_option,
+    uncertainty_defaults_option,
     Units,
     units_option,
 )
@@ -90,6 +98,27 @@ def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str
     }
 
 
+def target_source_text(tgt, units: str) -> str:
+    """Where the plan's target comes from, with its guard band when there is one (display units)."""
+    return tgt.source_text(units)
+
+
+def guard_band_notes(tgt) -> list:
+    """The guard band's source (or why there is none), as notes."""
+    return list(tgt.notes)
+
+
+def target_json(tgt) -> dict:
+    """The target's limit and guard band (JSON keys of lap; ``target_um`` is what the plan aims at)."""
+    return {
+        "target_kind": tgt.kind,
+        "target_limit_um": tgt.limit_um,
+        "guard_band_um": tgt.guard_band_um,
+        "guard_band_source": tgt.guard_band_source,
+        "guard_band_proves_limit": tgt.proven,
+    }
+
+
 def _fmt_time(t: float, unit: str) -> str:
     # two significant figures below 10: a pass of a few seconds must not read "0.0 min"
     if unit == "min":
@@ -100,6 +129,8 @@ def _fmt_time(t: float, unit: str) -> str:
 def _fmt_pass_time(plan: LapPlan, p) -> str:
     """A pass's time for the table: strokes when known, seconds and a "!" mark when too short by hand."""
     t = _fmt_time(p.time, p.time_unit) + (f" ({p.strokes} strokes)" if p.strokes is not None else "")
+    if not getattr(p, "even", True):  # longer in some cells than others: the chart says where
+        t += " (uneven, see chart)"
     if p.order in plan.too_short_by_hand:
         t += f" ({p.time * 60:.0f} s) !" if p.time_unit == "min" else " !"
     return t
@@ -190,6 +221,8 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
     def h(v):
         return format_height(v, units)
 
+    if not plan.passes:  # one sentence, not an empty plan (issue 15, item 13)
+        return already_met_text(plan, label=label, target_source=target_source, units=units) + "\n"
     out = [
         f"Lapping plan for {label}",
         f"Target flatness {h(lr.target_um)} ({target_source}); now {h(lr.flatness_before_um)}",
@@ -223,6 +256,15 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
                      for line in out) + "\n"
 
 
+def already_met_text(plan: LapPlan, *, label: str, target_source: str, units: str) -> str:
+    """The whole plan when the surface is already within the target: one sentence."""
+    from ..units import format_height
+
+    lr = plan.removal
+    return (f"{label} is already within the target {format_height(lr.target_um, units)} ({target_source}): its "
+            f"flatness is {format_height(lr.flatness_before_um, units)}, so no lapping is needed.")
+
+
 def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> None:
     """Human summary on stdout (rich)."""
     from rich.table import Table
@@ -236,12 +278,16 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     def h(v):
         return format_height(v, units)
 
-    con.print(f"[bold]Lapping plan[/bold] for {label}")
-    con.print(f"Target flatness {h(lr.target_um)} ({target_source}); minimum zone now {h(lr.flatness_before_um)}")
+    if not plan.passes:  # one sentence, not an empty plan (issue 15, item 13)
+        con.print(already_met_text(plan, label=label, target_source=target_source, units=units), markup=False)
+        return
+    con.print(f"[bold]Lapping plan[/bold] for {escape(label)}")
+    con.print(f"Target flatness {h(lr.target_um)} ({escape(target_source)}); minimum zone now {h(lr.flatness_before_um)}",
+              markup=True)
     con.print(f"Least removal {lr.removed_volume_mm3:.4g} mm^3, deepest {h(lr.max_depth_um)}")
     for s in lr.high_spots[:5]:
         con.print(f"  high spot at ({s.x_mm:g}, {s.y_mm:g}) mm: {h(s.depth_um)} over {s.nodes} node(s)")
-    con.print(f"Lap: {plan.lap.describe()}")
+    con.print(f"Lap: {escape(plan.lap.describe())}")
     con.print(
         f"Predicted flatness after the plan: [bold]{h(plan.predicted_flatness_um)}[/bold] "
         f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}"
@@ -256,9 +302,9 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     for p in plan.passes:
         t = _fmt_pass_time(plan, p)
         table.add_row(
-            str(p.order), p.zone, f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
+            str(p.order), escape(p.zone), f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
             _fmt_extent(p.extent_mm),
-            format_height(p.depth_um, units, unit=False), t,
+            format_height(p.depth_um, units, unit=False), escape(t),
         )
     if plan.passes:
         con.print(table)
@@ -299,14 +345,23 @@ def lap_cmd(
     plan_out: Path = typer.Option(None, "--plan-out", help="Write the plan and cell chart as a text file for the bench; replaced if it exists."),
     units: Units = units_option(),
     json_out: bool = typer.Option(False, "--json", help="One JSON object on stdout."),
+    guard_band: str = guard_band_option(),
+    trials: int | None = auto_trials_option(),
+    seed: int = seed_option(),
+    u_height_um: float = u_height_option(),
+    uncertainty_defaults: Path = uncertainty_defaults_option(),
 ) -> None:
-    """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness."""
+    """Least-removal map, dwell map and a pass plan to bring the surface within a target flatness.
+
+    A target from a grade or an air gap is a limit the survey after lapping must prove (ISO 14253-1): the plan
+    aims below it by the expected U of that survey, from this survey's uncertainty budget (--guard-band)."""
     from ..lapping import build_lap
     from ..lapping import check_lap_on_surface
     from ..lapping import check_lap_options
     from ..lapping import least_removal
     from ..lapping import plan_lapping
     from ..lapping import resolve_target
+    from ..lapping import guard_banded, needs_budget_u, parse_guard_band, target_kind
 
     from ..io import write_text_atomic
 
@@ -316,12 +371,29 @@ def lap_cmd(
         rate_um_per_pass=rate_um_per_pass, strokes_per_pass=strokes_per_pass, stroke_mm=stroke_mm, step_mm=step_mm,
         cell_mm=cell_mm, levels=levels, smoothing=smoothing, smoothness=smoothness, min_pass_fraction=min_pass_fraction,
     )
+    mode = parse_guard_band(guard_band)
+    if trials is not None:
+        from ..limits import check_range
+
+        check_range(trials, "trials", where="--trials", name="the number of trials")
     refuse_overwriting_inputs({"--removal-csv": removal_csv, "--plan-out": plan_out}, [input])
     check_output(removal_csv, "--removal-csv")
     check_output(plan_out, "--plan-out")
-    hm = load_input(input).heightmap
-    target, source = resolve_target(hm, target_um, target_grade, target_gap_um, gap_fraction)
+    loaded = load_input(input)
+    hm = loaded.heightmap
+    from ..bench import check_sag_of
+
+    sag = check_sag_of(hm)  # a long beam sagging between its supports: said before any lapping advice
+    limit, limit_source = resolve_target(hm, target_um, target_grade, target_gap_um, gap_fraction)
+    kind = target_kind(target_um, target_grade, target_gap_um)
+    u = u_src = None
+    if needs_budget_u(kind, mode):  # the expected U of the survey after lapping: this survey's budget
+        u, u_src = budget_u(loaded, trials=trials, seed=seed, u_height_um=u_height_um,
+                            uncertainty_defaults=uncertainty_defaults, what="this survey")
+    tgt = guard_banded(limit, limit_source, kind, mode, u, u_src)
+    target, source = tgt.aim_um, target_source_text(tgt, units.value)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass, stroke_mm)
+    notes = guard_band_notes(tgt) + notes
     check_lap_on_surface(hm, lap, lap_option="--lap-size-mm" if lap_size_mm is not None else "--lap-diameter-mm",
                          cell_mm=cell_mm)
     with progress_bar("planning", 2, enabled=sys.stderr.isatty() and not json_out) as advance:
@@ -334,9 +406,18 @@ def lap_cmd(
     if removal_csv is not None:
         rows = ["x_mm,y_mm,remove_um"] + [f"{x:.6g},{y:.6g},{r:.4f}" for x, y, r in zip(lr.x_mm, lr.y_mm, lr.remove_um)]
         write_text_atomic(removal_csv, f"# least-removal map for {label}, target {target:g} um\n" + "\n".join(rows) + "\n")
+    first = f"Supports first: {sag.message}." if sag.flagged else ""
     if plan_out is not None:
-        write_text_atomic(plan_out, plan_text(plan, label=label, target_source=source, notes=notes, units=units.value))
+        text = plan_text(plan, label=label, target_source=source, notes=notes, units=units.value)
+        if first:
+            text = textwrap.fill(first, width=96, subsequent_indent="  ") + "\n\n" + text
+        write_text_atomic(plan_out, text)
     if json_out:
-        emit_json(plan_json(plan, input_path=input, label=label, target_source=source, notes=notes, units=units.value))
+        doc = plan_json(plan, input_path=input, label=label, target_source=source, notes=notes, units=units.value)
+        doc.update(target_json(tgt))
+        doc["support_check"] = sag
+        emit_json(doc)
     else:
+        if first:
+            stdout_console().print(first, markup=False, highlight=False, style="bold")
         render_summary(plan, label=label, target_source=source, notes=notes, units=units.value)

@@ -141,12 +141,17 @@ def plan_cmd(
     material: str = typer.Option("", "--material", help="Material, e.g. granite."),
     output: Path = typer.Option(None, "-o", "--output", help="Write the blank survey file here (TOML)."),
     force: bool = typer.Option(False, "--force", help="Overwrite an existing output file."),
+    single_run: bool = typer.Option(
+        False, "--single-run", help="Plan one (forward) run per line instead of a forward and a back run."),
     json_out: bool = typer.Option(False, "--json", help="Print the layout as one JSON object."),
 ) -> None:
-    """Lay out a Union Jack or grid survey, show the reading order and write the blank survey file.
+    """Lay out a Union Jack or grid survey, show the reading order and the set-up sheet, and write the blank
+    survey file.
 
-    Sizes are given in mm (--length-mm...) or in inches (--length-in...); with any size in inches the
-    blank file writes every length in inches (length_in, foot_spacing_in...) and the summary shows inches.
+    Every line is planned with a forward and a back run (--single-run: forward only): the back run lets
+    flatcheck name a mis-keyed reading. Sizes are given in mm (--length-mm...) or in inches (--length-in...);
+    with any size in inches the blank file writes every length in inches (length_in, foot_spacing_in...) and
+    the summary shows inches.
     """
     from ..survey import Instrument
     from ..units import MM_PER_INCH
@@ -200,8 +205,12 @@ def plan_cmd(
             where = f"{where[:-3]}_{units_of[where[:-3]]}"
         raise LayoutError(exc.message, where=_OPTION_OF.get(where, where), fix=exc.fix) from None
     warnings = _layout_warnings(survey)
-    if output is not None:
-        write_survey(output, survey, inches=inches)
+    runs = ("forward",) if single_run else ("forward", "reverse")
+    if output is not None:  # a single run keeps the one-run layout (readings = [] in the [[line]] table)
+        write_survey(output, survey, inches=inches, blank_runs=None if single_run else runs)
+    from ..bench import setup_sheet
+
+    sheet = setup_sheet(survey, runs=runs)
     for w in warnings:  # one line each, like errors, whatever the terminal's width
         sys.stderr.write(f"flatcheck: warning: {w}\n")
     summary = summarize_layout(survey)
@@ -227,6 +236,8 @@ def plan_cmd(
                 "sequence": [
                     {"number": r.number, "line": r.line, "from": r.from_station, "to": r.to_station} for r in seq
                 ],
+                "runs": list(runs),
+                "setup": _setup_json(sheet, survey.surface.material),
                 "output": str(output) if output is not None else None,
                 "file_lengths": "in" if inches else "mm",  # the unit of the blank file's _mm/_in keys
                 "warnings": warnings,
@@ -270,9 +281,13 @@ def plan_cmd(
         base = "-" if inst.reads_heights else fixed(ln.foot_spacing_mm)
         table.add_row(ln.name, ln.stations[0], ln.stations[-1], str(ln.steps), base, str(n_read))
     con.print(table)
+    if single_run:
+        runs_text = "one forward run of each line (--single-run)"
+    else:
+        runs_text = f"a forward and a back run of each line: {sheet.readings} readings in all"
     con.print(
-        f"{summary.n_stations} stations, {summary.n_lines} lines, {summary.readings_per_pass} readings per pass "
-        "(forward and back runs double it)"
+        f"{summary.n_stations} stations, {summary.n_lines} lines, {summary.readings_per_pass} readings per pass; "
+        f"{runs_text}", markup=False, highlight=False,
     )
     con.print("[bold]Reading sequence[/bold]")
     by_line: dict[str, list] = {}
@@ -284,8 +299,119 @@ def plan_cmd(
         else:
             path = " > ".join([steps[0].from_station] + [r.to_station for r in steps])
         con.print(f"  {name}: {path}", markup=False, highlight=False)
+    _render_setup(con, sheet, survey, "in" if inches else "um")
     if output is not None:
-        con.print(f"blank survey written to {output}; fill in readings = [...] for every line")
+        con.print(f"blank survey written to {output}; fill in readings = [...] for every run of every line, or "
+                  f"let flatcheck enter {output} lead you reading by reading", markup=False, highlight=False)
+
+
+def _setup_json(sheet, material: str) -> dict:
+    """The ``setup`` object of ``plan --json`` (lengths mm, times min, masses kg; docs/json-output.md)."""
+    from ..safety import lifting_caution
+
+    beam = sheet.beam
+    return {
+        "lines": [
+            {"order": ln.order, "line": ln.line, "runs": list(ln.runs), "start": ln.start, "end": ln.end,
+             "heading": ln.heading, "length_mm": ln.length_mm, "steps": ln.steps,
+             "foot_spacing_mm": ln.foot_spacing_mm, "readings": ln.readings, "instrument_mm": ln.instrument_mm,
+             "on_surface": ln.on_surface, "distance_mm": ln.distance_mm, "instruction": ln.instruction,
+             "minutes": ln.minutes}
+            for ln in sheet.lines
+        ],
+        "readings": sheet.readings,
+        "minutes": sheet.minutes,
+        "pace": sheet.pace,
+        "three_point_mm": [list(p) for p in sheet.three_point_mm],
+        "beam": None if beam is None else {
+            "airy_from_end_mm": beam.airy_from_end_mm, "airy_spacing_mm": beam.airy_spacing_mm,
+            "bessel_from_end_mm": beam.bessel_from_end_mm, "bessel_spacing_mm": beam.bessel_spacing_mm,
+            "least_bow_from_end_mm": beam.least_bow_from_end_mm, "least_bow_spacing_mm": beam.least_bow_spacing_mm,
+            "sources": list(beam.sources),
+        },
+        "soak_hours_surface": sheet.soak_hours_surface,
+        "soak_hours_instrument": sheet.soak_hours_instrument,
+        "notes": list(sheet.notes),
+        "caution": lifting_caution(material),
+    }
+
+
+def _render_setup(con, sheet, survey, units: str) -> None:
+    """The set-up sheet on the terminal: lines in order with where the instrument stands, time, supports, soak."""
+    from rich.markup import escape
+    from rich.table import Table
+
+    from ..safety import lifting_caution
+    from ..units import format_length
+
+    def pos(v_mm):
+        return format_length(v_mm, units)
+
+    def num(v_mm):
+        return format_length(v_mm, units, unit=False)
+
+    def xy(p):
+        return f"{num(p[0])}, {pos(p[1])}"
+
+    lu = "in" if units == "in" else "mm"
+    kind = survey.instrument.kind
+    con.print()
+    con.print("[bold]Set-up sheet[/bold] (x from the west edge, y from the south edge)")
+    from rich import box
+
+    con.print(f"Lines in the order to read them (lengths in {'inches' if lu == 'in' else 'mm'})", markup=False,
+              highlight=False)
+    table = Table(box=box.SIMPLE_HEAD, pad_edge=False)
+    cols = ["#", "line", "runs", "length"]  # where each line starts and ends: the table of lines above
+    if kind == "autocollimator":
+        cols += ["instrument x, y", "to mirror"]
+    cols.append("min")
+    for col in cols:
+        table.add_column(col, justify="left" if col in ("line", "runs", "instrument x, y") else "right", no_wrap=True)
+    for ln in sheet.lines:
+        runs = " + ".join("back" if r == "reverse" else r for r in ln.runs)
+        row = [str(ln.order), ln.line, runs, num(ln.length_mm)]
+        if kind == "autocollimator":
+            where = "on the surface" if ln.on_surface else "beside"
+            x, y = ln.instrument_mm
+            row += [f"{num(x)}, {num(y)} ({where})", f"{num(ln.distance_mm[0])}-{num(ln.distance_mm[1])}"]
+        row.append(f"{ln.minutes:.0f}")
+        table.add_row(*(escape(c) for c in row))
+    con.print(table)
+    if kind == "autocollimator":
+        con.print("  The autocollimator stands on each line's extension behind its first station (beside: on a "
+                  "stand beside the surface, at its height), aimed along the line; its working range must cover the "
+                  "distances to the mirror.", markup=False, highlight=False)
+    elif kind == "level":
+        con.print("  The level walks each line itself, its feet on successive stations.", markup=False,
+                  highlight=False)
+    elif kind == "differential-level":
+        con.print("  The moving level walks each line; the reference level stays on one spot, off the lines, for "
+                  "the whole survey.", markup=False, highlight=False)
+    else:
+        con.print("  The indicator's stand rides the reference surface; touch each station in turn.", markup=False,
+                  highlight=False)
+    hours, minutes = divmod(int(round(sheet.minutes)), 60)
+    pace = sheet.pace
+    con.print(
+        f"  Time: about {hours} h {minutes:02d} min for {sheet.readings} readings ({pace.seconds_per_reading:g} s "
+        f"a reading, {pace.minutes_per_line:g} min to set up a line, {pace.minutes_per_extra_run:g} min for each "
+        "further run: illustrative figures, common practice, no single source); soak not included.",
+        markup=False, highlight=False,
+    )
+    pts = "; ".join(f"({xy(p)})" for p in sheet.three_point_mm)
+    con.print(f"  {sheet.notes[0]} Three points, x, y: {pts}.", markup=False, highlight=False)
+    b = sheet.beam
+    if b is not None:
+        con.print(
+            f"  Long beam on two supports: least self-weight bow with them {pos(b.least_bow_from_end_mm)} from each "
+            f"end; Airy points {pos(b.airy_from_end_mm)} from each end ({pos(b.airy_spacing_mm)} apart, end faces "
+            f"vertical); Bessel points {pos(b.bessel_from_end_mm)} from each end ({pos(b.bessel_spacing_mm)} apart, "
+            "least change of length). Sources: " + "; ".join(b.sources) + ".",
+            markup=False, highlight=False,
+        )
+    con.print(f"  {sheet.notes[1]}", markup=False, highlight=False)
+    con.print(f"[bold]Caution:[/bold] {escape(lifting_caution(survey.surface.material))}")
 
 
 def _diagram(survey, width: int = 49) -> str:

@@ -31,7 +31,7 @@ reference-level    differential level: the reference level's reading    ``refere
 Thermal bending: a free plate with a temperature difference dT between its top and underside,
 linear through the thickness t, bends into a stress-free sphere of curvature alpha dT / t
 (Timoshenko & Woinowsky-Krieger, Theory of Plates and Shells, thin-plate thermal bending, from
-memory; REFERENCE section 9): sag over a span L is alpha dT L^2 / (8 t), corner to centre of a
+memory; thin-plate thermal bending): sag over a span L is alpha dT L^2 / (8 t), corner to centre of a
 rectangle of diagonal D alpha dT D^2 / (8 t).
 
 Sampling model (stated here because no standard gives one): along each line, three successive
@@ -205,6 +205,10 @@ class UncertaintyBudget:
     notes : tuple of str
     reading_scatter_um : float or None
         The residuals' sigma0 (µm per step of the reference base) when the reading repeatability came from it.
+    trial_errors_um : ndarray, shape (k, n), or None
+        The height errors (µm) of the first ``k`` trials of the whole propagation, every source drawn, one
+        column per station in the order of ``loaded.heightmap`` (kept when asked with ``keep_trials``): for
+        propagating the same budget through other figures (the bearing's local ones).
     """
 
     entries: tuple
@@ -218,6 +222,7 @@ class UncertaintyBudget:
     repeat: RepeatReadings | None = None
     notes: tuple = ()
     reading_scatter_um: float | None = None
+    trial_errors_um: np.ndarray | None = None
 
     @property
     def combined_um(self) -> float:
@@ -651,6 +656,7 @@ def uncertainty_budget(
     u_height_um: float | None = None,
     contribution_trials: int | None = None,
     coverage: float = 0.95,
+    keep_trials: int = 0,
 ) -> UncertaintyBudget:
     """The full uncertainty budget of a surface's flatness (module notes).
 
@@ -673,6 +679,9 @@ def uncertainty_budget(
         Trials of each source alone (default ``min(trials, CONTRIBUTION_TRIALS)``).
     coverage : float
         Coverage probability of the interval.
+    keep_trials : int
+        Keep the height errors of the first ``keep_trials`` trials of the whole propagation
+        (``UncertaintyBudget.trial_errors_um``; at most ``trials``).
 
     Returns
     -------
@@ -709,7 +718,20 @@ def uncertainty_budget(
     tick = None if progress is None else (lambda k: progress(k * trials / total))
     start = solve_minimum_zone(x, y, h0)
     effects = [s.whole or s.effect for s in active]
-    whole = propagate_heights(x, y, h0, effects, trials=trials, seed=seed, progress=tick, start=start)
+    keep = max(0, min(int(keep_trials), trials))
+    whole = propagate_heights(x, y, h0, effects, trials=trials, seed=seed, progress=tick, start=start, keep_heights=keep)
+    errors = None
+    if keep:  # the kept heights are the estimate about its least-squares plane plus each trial's errors
+        A = np.column_stack([np.ones_like(x), x - x.mean(), y - y.mean()])
+        about = h0 - A @ np.linalg.lstsq(A, h0, rcond=None)[0]
+        errors = np.empty((keep, x.size))
+        hm = loaded.heightmap
+        if loaded.survey is None:
+            errors[:] = whole.heights_um - about
+        else:  # back to the height map's station order
+            pos = {nm: i for i, nm in enumerate(hm.names)}  # the order _survey_sources took them in
+            cols = np.array([pos[nm] for nm in loaded.reduction.operator.station_names], dtype=int)
+            errors[:, cols] = whole.heights_um - about
     contrib = {}
     for j, s in enumerate(active):
         sub_seed = int(np.random.SeedSequence([int(seed), j + 1]).generate_state(1)[0])
@@ -740,4 +762,5 @@ def uncertainty_budget(
     scatter = None
     if loaded.survey is not None and reading_dof is not None and entries[0].basis.startswith("from the survey's own"):
         scatter = float(loaded.reduction.sigma0_um)
-    return UncertaintyBudget(entries, mz, ls, rss, trials, ct, int(seed), reading_dof, repeat, tuple(notes), scatter)
+    return UncertaintyBudget(entries, mz, ls, rss, trials, ct, int(seed), reading_dof, repeat, tuple(notes), scatter,
+                             errors)

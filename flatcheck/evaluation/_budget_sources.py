@@ -8,7 +8,7 @@ a built-in default is marked as a default in every output, with its basis.
 
 The built-in defaults are typical figures, not measured ones: each states its basis
 ("common practice, no single source", "from memory" where recalled and not verified, or
-the trade data of REFERENCE section 9). A lab that knows its instruments states its own
+stone suppliers' trade data). A lab that knows its instruments states its own
 values in the survey file or in its defaults file (docs/survey-format.md).
 """
 
@@ -103,8 +103,8 @@ BUILTIN_DEFAULTS = {
               f"vertical stratification ({_FM})"),
     },
     "expansion_coefficient_per_k": {
-        "*": (6e-6, "1/K", "granite: 6-8e-6/K typical for metrology stone, 4.7-9.0e-6/K quoted (trade data, "
-              "REFERENCE section 9); the low end, as used in its check value 19"),
+        "*": (6e-6, "1/K", "granite: 6-8e-6/K typical for metrology stone, 4.7-9.0e-6/K quoted (trade data "
+              "of stone suppliers); the low end of the typical range"),
     },
 }
 

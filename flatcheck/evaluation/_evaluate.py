@@ -149,6 +149,7 @@ def survey_uncertainty(
     progress=None,
     lab_defaults=None,
     contribution_trials: int | None = None,
+    keep_trials: int = 0,
 ) -> SurveyUncertainty:
     """The uncertainty of a surface's flatness from its whole budget (:func:`uncertainty_budget`).
 
@@ -175,6 +176,9 @@ def survey_uncertainty(
         A lab's own defaults (:func:`flatcheck.io.read_uncertainty_defaults`).
     contribution_trials : int, optional
         Trials of each source alone (default ``min(trials, 10 000)``).
+    keep_trials : int
+        Keep the height errors of this many trials (``budget.trial_errors_um``), e.g. for the bearing's
+        local figures.
 
     Raises
     ------
@@ -185,7 +189,8 @@ def survey_uncertainty(
     from ._budget import uncertainty_budget
 
     budget = uncertainty_budget(loaded, trials=trials, seed=seed, progress=progress, lab_defaults=lab_defaults,
-                                u_height_um=u_height_um, contribution_trials=contribution_trials)
+                                u_height_um=u_height_um, contribution_trials=contribution_trials,
+                                keep_trials=keep_trials)
     return SurveyUncertainty(budget.minimum_zone, budget.least_squares, _basis_line(budget), budget.notes,
                              budget.reading_dof, budget)
 

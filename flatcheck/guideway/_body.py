@@ -53,10 +53,10 @@ NORMALS = {"+z": ("z", 1), "-z": ("z", -1), "+y": ("y", 1), "-y": ("y", -1)}
 #: indicator reading across a granite beam (common practice, no single source).
 DEFAULT_U_LENGTH_UM = 0.5
 #: Standard uncertainty of a squareness tie when the file states none, µrad: about 0.5 arcsec, the size of a
-#: published autocollimator-and-optical-square figure (REFERENCE section 11, an instrument user's guide).
+#: published autocollimator-and-optical-square figure (an autocollimator maker's user guide).
 DEFAULT_U_SQUARENESS_URAD = 2.5
 #: Standard uncertainty of one twist reading when the file states none, µrad: the sensitivity of about
-#: 1 µm/m of electronic levels in differential mode (REFERENCE section 11, a level maker's manual).
+#: 1 µm/m of electronic levels in differential mode (an electronic-level maker's manual).
 DEFAULT_U_TWIST_URAD = 1.0
 
 

@@ -2,7 +2,10 @@
 
 Everything is written to a temporary file in the destination's folder and moved
 over the destination with :func:`os.replace`, which is atomic on POSIX and
-Windows when both paths are on the same file system.
+Windows when both paths are on the same file system. The temporary file's data is
+flushed to the disk (:func:`os.fsync`) before the move, and on POSIX the folder
+after it, so that a power cut just after the move cannot leave a renamed but
+empty file (a file system may write the rename before the data).
 """
 
 from __future__ import annotations
@@ -54,11 +57,38 @@ def atomic_path(path, *, suffix: str | None = None):
         os.chmod(tmp, 0o666 & ~umask)
     try:
         yield Path(tmp)
+        _fsync_file(tmp)
         os.replace(tmp, path)
+        _fsync_folder(folder)
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
+
+
+def _fsync_file(path) -> None:
+    """Flush a written file's data and size to the disk before it is renamed."""
+    fd = os.open(path, os.O_RDWR | getattr(os, "O_BINARY", 0))
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def _fsync_folder(folder) -> None:
+    """Flush a folder's entries (the rename) to the disk; POSIX only (Windows cannot open a folder so)."""
+    if os.name != "posix":
+        return
+    try:
+        fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:  # some file systems (network, FUSE) refuse fsync on a folder; the file itself is flushed
+        pass
+    finally:
+        os.close(fd)
 
 
 def write_text_atomic(path, text: str) -> None:

@@ -16,7 +16,7 @@ Minimum zone (MZ)
     accepted only when the exact zone shrinks. It stops when the linear program finds no
     improvement beyond 1e-7 µm about the exact distances: a first-order stationary (Chebyshev)
     point, and for the small form errors of balls and seats the minimum (the problem is then
-    nearly linear; REFERENCE note [D]).
+    nearly linear; derived).
 Minimum circumscribed (MC)
     The smallest sphere holding every point, ``min max r_i`` (convex, so its minimum is unique),
     by the same iterated linear program. ISO 3290-1 measures a ball's deviation from spherical

@@ -20,7 +20,7 @@ Grid stations are named like a chess board: column letter (``A`` = west,
 appears once.
 
 Each line of a Union Jack has an EVEN number of steps so that its midpoint is a
-station (common practice, no single source; see REFERENCE.md section 2); the
+station (common practice, no single source); the
 diagonals get their own foot spacing ``D / n_d`` so that they close exactly on
 the corners.
 """
@@ -52,7 +52,7 @@ __all__ = [
 
 #: Default inset of the surveyed rectangle from the edges, mm. Common practice
 #: keeps the lines 25-38 mm (1.0-1.5 in) in from the edges: the edge band that
-#: GGG-P-463c excludes from flatness (via Sandia SAND2008-2571C, REFERENCE.md s. 2).
+#: GGG-P-463c excludes from flatness (via Sandia SAND2008-2571C).
 DEFAULT_MARGIN_MM = 30.0
 
 #: Union Jack lines in walking order: (name, first station, last station, direction).
@@ -481,7 +481,7 @@ def plan_grid(
     only (each station is read once).
 
     Rows and columns alone cannot see twist (``x*y``) with an instrument re-aimed
-    per line (REFERENCE.md section 2): add the diagonals (``diagonals=True``) or
+    per line: add the diagonals (``diagonals=True``) or
     use a level. Diagonals run corner to corner through the grid stations, which
     needs a square grid (``n_x == n_y``); their foot spacing is ``B * sqrt(2)``.
 

@@ -12,7 +12,7 @@ Model of one reading (slope instruments), in the survey's sign convention
 
 with ``u`` the exact inverse of :func:`flatcheck.units.rise_um` (``atan`` for
 angle units, a plain ratio for slope units), ``g = 2`` for an autocollimator that
-reports beam deviation (twice the mirror tilt, REFERENCE.md section 1) and 1
+reports beam deviation (twice the mirror tilt) and 1
 otherwise. The zero is per line for an autocollimator (re-aimed for every line)
 and one for all lines for levels (gravity is the common reference); it is the
 same for every run of a line. An indicator reads ``height + datum + noise`` at

@@ -29,19 +29,23 @@ def _bowl(x, y):
 
 @pytest.fixture
 def planned(cli, tmp_path):
-    """A blank Union Jack written by `flatcheck plan` (1000 x 630 mm, 100 mm base, autocollimator)."""
+    """A blank Union Jack written by `flatcheck plan --single-run` (1000 x 630 mm, 100 mm base, autocollimator)."""
     path = tmp_path / "plate.toml"
-    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", path)
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--single-run",
+                         "-o", path)
     assert code == 0, err
+    assert path.read_text().count(OLD) == 8  # one run per line, in its [[line]] table
     return path
 
 
-def _forward_and_back(path):
-    """Turn a blank plan into one with a forward and a back run of every line (what phase 2's plan writes)."""
+@pytest.fixture
+def planned_both(cli, tmp_path):
+    """The same plate planned as `flatcheck plan` does by default: a forward and a back run of every line."""
+    path = tmp_path / "plate.toml"
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", path)
+    assert code == 0, err
     text = path.read_text()
-    assert text.count(OLD) == 8
-    path.write_text(text.replace(OLD, '[[line.run]]\nreadings = []\norder = "forward"\n'
-                                      '[[line.run]]\nreadings = []\norder = "reverse"'))
+    assert text.count("[[line.run]]") == 16 and text.count('order = "reverse"') == 8
     return path
 
 
@@ -90,7 +94,8 @@ def test_piped_stopped_halfway_and_resumed_reduces_like_the_typed_file(cli, monk
     assert code == 0, err
     assert "All 52 readings are in" in out and "flatness (minimum zone)" in out
     blank = tmp_path / "blank.toml"
-    code, _, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", blank)
+    code, _, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--single-run",
+                       "-o", blank)
     assert code == 0, err
     typed = _typed_in(blank, runs, tmp_path / "typed.toml")
     a, b = _heights(cli, planned), _heights(cli, typed)
@@ -113,7 +118,7 @@ def test_a_log_with_the_same_readings_gives_the_same_heights(cli, planned, tmp_p
     assert code == 0, err
     assert "52 readings taken from column 'tilt_arcsec'" in out and "All 52 readings are in" in out
     blank = tmp_path / "blank.toml"
-    cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", blank)
+    cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--single-run", "-o", blank)
     typed = _typed_in(blank, runs, tmp_path / "typed.toml")
     a, b = _heights(cli, planned), _heights(cli, typed)
     assert all(a[k] == pytest.approx(b[k], abs=1e-9) for k in a)
@@ -137,8 +142,8 @@ def test_a_log_with_a_missing_reading_is_refused_with_the_gap(cli, planned, tmp_
     assert planned.read_text() == before  # nothing written
 
 
-def test_a_planted_slip_is_named_during_piped_entry(cli, monkeypatch, planned):
-    _forward_and_back(planned)
+def test_a_planted_slip_is_named_during_piped_entry(cli, monkeypatch, planned_both):
+    planned = planned_both
     runs = _readings(planned, runs=("forward", "reverse"), decimals=1)
     # the back run of SW-SE (runs[5]) read 1.4 arcsec at its 4th reading, keyed as 4.1 (a constant
     # offset of the line's readings is the instrument's zero: it changes no height)
@@ -272,8 +277,8 @@ class _Terminal:
         raise AssertionError("the command did not end")
 
 
-def test_interactive_flow_in_a_pseudo_terminal(planned):
-    _forward_and_back(planned)
+def test_interactive_flow_in_a_pseudo_terminal(planned_both):
+    planned = planned_both
     runs = _readings(planned, runs=("forward", "reverse"), decimals=1)
     flat = [v for r in runs for v in r]
 

@@ -1,4 +1,5 @@
-"""docs/json-output.md names every key the commands print with --json (reduce, grade, bearing, lap, compare, report)."""
+"""docs/json-output.md names every key the commands print with --json (reduce, grade, bearing, plan, lap, compare,
+report)."""
 
 import json
 import re
@@ -48,6 +49,12 @@ RUNS["lap"] = [
     (SAMPLES / "plate-KY-P7-grid.toml", "--target-um", "0.3", "--lap-diameter-mm", "60", "--rate-um-per-min", "0.2"),
     (SAMPLES / "pad-KY-B4-heights.csv", "--target-um", "0.2", "--lap-diameter-mm", "20", "--units", "in"),
 ]
+RUNS["plan"] = [
+    ("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100),  # autocollimator, forward and back runs
+    ("--pattern", "grid", "--length-mm", 2000, "--width-mm", 400, "--foot-spacing-mm", 100, "--instrument", "level",
+     "--single-run"),  # a long beam: its two-point supports
+    ("--length-in", 48, "--width-in", 36, "--foot-spacing-in", 4, "--instrument", "indicator"),
+]
 RUNS["compare"] = [
     (SAMPLES / "plate-KY-P3-2024-03-11.toml", SAMPLES / "plate-KY-P3-after-lap-1.toml", "--dwell-min", "40",
      "--target-um", "1.5", "--lap-diameter-mm", "150"),
@@ -61,6 +68,7 @@ PINNED = {
               "tolerance_um", "verdict"),
     "bearing": ("limit_um", "local_flatness_max_um", "verdict", "motion", "stations"),
     "lap": ("removal", "removed_volume_mm3", "predicted_flatness_um", "passes"),
+    "plan": ("stations", "lines", "sequence"),
     "compare": (),
     "report": (),
 }

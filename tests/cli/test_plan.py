@@ -210,6 +210,7 @@ def _surface_um(x, y):
     [
         ("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100),
         ("--length-in", 40, "--width-in", 24, "--foot-spacing-in", 4),
+        ("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--single-run"),
     ],
 )
 def test_plan_fill_reduce_gives_the_surface_back(cli, tmp_path, sizes):
@@ -222,13 +223,17 @@ def test_plan_fill_reduce_gives_the_surface_back(cli, tmp_path, sizes):
     assert code == 0, err
     from flatcheck.survey import simulate_survey
 
-    sim = simulate_survey(read_survey(blank), _surface_um)
+    runs = ("forward",) if "--single-run" in sizes else ("forward", "reverse")  # what plan writes
+    sim = simulate_survey(read_survey(blank), _surface_um, runs=runs)
     text = blank.read_text()
-    for ln in sim.lines:  # fill in the blank file line by line, as a user would
-        m = re.search(rf'name = "{re.escape(ln.name)}"\n(?:.*\n)*?readings = \[\]', text)
-        values = ", ".join(repr(float(r)) for r in ln.runs[0].readings)
-        text = text[: m.start()] + m.group(0).replace("readings = []", f"readings = [{values}]") + text[m.end():]
+    for ln in sim.lines:  # fill in the blank file line by line, run by run, as a user would
+        at = text.index(f'name = "{ln.name}"')
+        for run in ln.runs:
+            at = text.index("readings = []", at)
+            values = ", ".join(repr(float(r)) for r in run.readings)
+            text = text[:at] + f"readings = [{values}]" + text[at + len("readings = []"):]
     assert "readings = []" not in text
+    assert text.count('order = "reverse"') == (8 if len(runs) == 2 else 0)
     filled = tmp_path / "filled.toml"
     filled.write_text(text)
     code, out, err = cli("reduce", filled, "--json")
@@ -242,3 +247,133 @@ def test_plan_fill_reduce_gives_the_surface_back(cli, tmp_path, sizes):
     truth = truth - A @ np.linalg.lstsq(A, truth, rcond=None)[0]
     assert len(nodes) == len(sim.stations) and np.ptp(truth) > 0.5  # a shape well above the tolerance
     assert np.max(np.abs(z - truth)) < 1e-6
+
+
+def _inch_plate_um(x, y):
+    """An invented 48 x 36 in plate (µm; x, y in mm): a shallow bowl with a twist, about 1 µm deep."""
+    return 2e-6 * (x - 610) ** 2 + 1.5e-6 * (y - 457) ** 2 + 1e-6 * (x - 610) * (y - 457)
+
+
+def _fill_with_a_slip(blank, runs, dest):
+    """Readings of the invented plate (0.1 arcsec noise, shown to 0.1 arcsec), with line SW-SE's 5th step
+    read as 1.4 arcsec keyed as 4.1 in its first run; returns the filled file."""
+    from flatcheck.survey import simulate_survey
+
+    sim = simulate_survey(read_survey(blank), _inch_plate_um, noise_sd=0.1, rng=1234, runs=runs)
+    names = [ln.name for ln in sim.lines for _ in ln.runs]
+    values = [[round(v, 1) for v in r.readings] for ln in sim.lines for r in ln.runs]
+    first = names.index("SW-SE")
+    # an offset common to every reading of a line is the autocollimator's zero for that line: it changes no
+    # height, and it makes the 5th step read exactly 1.4 arcsec (a forward run lists its steps from SW)
+    shift = 1.4 - values[first][4]
+    for k, n in enumerate(names):
+        if n == "SW-SE":
+            values[k] = [round(v + shift, 1) for v in values[k]]
+    assert values[first][4] == 1.4
+    values[first][4] = 4.1  # the digits swapped as they were keyed
+    text = blank.read_text()
+    for r in values:  # each empty run in file order: line by line, run by run
+        text = text.replace("readings = []", "readings = [" + ", ".join(repr(float(v)) for v in r) + "]", 1)
+    assert "readings = []" not in text
+    dest.write_text(text)
+    return dest
+
+
+def test_forward_and_back_runs_let_the_residuals_name_a_mis_keyed_reading(cli, tmp_path):
+    # Regression (issue 19, item 2): on a 48 x 36 in plate read in single runs, 4.1 arcsec keyed for 1.4 was
+    # not flagged; plan now writes a forward and a back run of every line, and the reduction's residual
+    # check (data snooping, |w| > 3.29, the two-sided 0.1 % point of the normal distribution) names it.
+    sizes = ("--length-in", 48, "--width-in", 36, "--foot-spacing-in", 4)
+    both, one = tmp_path / "both.toml", tmp_path / "one.toml"
+    assert cli("plan", *sizes, "-o", both)[0] == 0
+    assert cli("plan", *sizes, "--single-run", "-o", one)[0] == 0
+    assert both.read_text().count('order = "reverse"') == 8 and 'order = "reverse"' not in one.read_text()
+
+    filled = _fill_with_a_slip(both, ("forward", "reverse"), tmp_path / "both-filled.toml")
+    code, out, err = cli("reduce", filled, "--json")
+    assert code == 0, err
+    suspects = [o for o in json.loads(out)["residuals"]["outliers"] if o["group"] is not None and o["group"] >= 1]
+    assert [(o["line"], o["run"], o["step"], o["reading"]) for o in suspects] == [("SW-SE", 1, 5, 4.1)]
+    assert abs(suspects[0]["w"]) > 3.29
+    code, out, err = cli("reduce", filled)
+    out = " ".join(out.split())  # as one paragraph, whatever the terminal's width
+    assert code == 0 and "suspect reading: line 'SW-SE', run 1, step 5" in out and "reading 4.1" in out
+
+    # the same slip in single runs: nothing to compare it with, and the residuals stay quiet
+    filled = _fill_with_a_slip(one, ("forward",), tmp_path / "one-filled.toml")
+    code, out, err = cli("reduce", filled, "--json")
+    assert code == 0, err
+    assert not [o for o in json.loads(out)["residuals"]["outliers"] if o["reading"] == 4.1]
+
+
+def test_plan_json_keeps_the_pinned_layout_and_adds_the_setup_sheet(cli):
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--json")
+    assert code == 0, err
+    data = json.loads(out)
+    # pinned (issue 19): stations with name, x_mm, y_mm; lines with name, steps, foot_spacing_mm and their
+    # stations in order from the line's first station; the reading sequence
+    pos = {s["name"]: (s["x_mm"], s["y_mm"]) for s in data["stations"]}
+    assert len(pos) == data["n_stations"] == 45
+    for ln in data["lines"]:
+        assert {"name", "steps", "foot_spacing_mm", "stations"} <= set(ln)
+        assert len(ln["stations"]) == ln["steps"] + 1
+        steps = [r for r in data["sequence"] if r["line"] == ln["name"]]
+        assert [r["from"] for r in steps] == ln["stations"][:-1] and [r["to"] for r in steps] == ln["stations"][1:]
+        # consecutive stations one foot spacing apart (Pythagoras)
+        gaps = [math.dist(pos[a], pos[b]) for a, b in zip(ln["stations"], ln["stations"][1:])]
+        assert gaps == pytest.approx([ln["foot_spacing_mm"]] * ln["steps"])
+    assert data["runs"] == ["forward", "reverse"]
+    setup = data["setup"]
+    assert [s["line"] for s in setup["lines"]] == [ln["name"] for ln in data["lines"]]  # the file's order
+    assert all(s["runs"] == ["forward", "reverse"] for s in setup["lines"])
+    sw_se = next(s for s in setup["lines"] if s["line"] == "SW-SE")
+    # the autocollimator 150 mm behind SW on the line's extension (margin 30 mm: SW at x 100, y 115);
+    # the mirror's centre is half a base past each station: 150 + 50 = 200 mm, 150 + 800 - 50 = 900 mm
+    assert sw_se["instrument_mm"] == pytest.approx([100 - 150, 115]) and sw_se["on_surface"] is False
+    assert sw_se["distance_mm"] == pytest.approx([200, 900])
+    # time at the stated pace (30 s a reading, 5 min a line, 2 min a further run): 104 readings -> 52 min,
+    # 8 lines -> 40 min, 8 back runs -> 16 min
+    assert setup["readings"] == 104 and setup["minutes"] == pytest.approx(52 + 40 + 16)
+    # three supports a fifth of the length and width in (common practice, no single source)
+    assert [v for p in setup["three_point_mm"] for v in p] == pytest.approx([200, 126, 200, 504, 800, 315])
+    assert setup["beam"] is None  # a plate, not a beam
+    assert "lifting gear" in setup["caution"] and "common practice" in setup["notes"][1]
+
+
+def test_plan_prints_the_setup_sheet(cli, monkeypatch):
+    monkeypatch.delenv("COLUMNS", raising=False)  # as written to a file: no wrapping inside the table's cells
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100)
+    assert code == 0, err
+    assert "Set-up sheet" in out and "forward + back" in out and "104 readings in all" in out
+    assert "lengths in mm" in out and "-50, 115 (beside)" in out and "200-900" in out
+    assert "about 1 h 48 min for 104 readings" in out and "common practice, no single source" in out
+    assert "(200, 126 mm); (200, 504 mm); (800, 315 mm)" in out
+    assert "Soak:" in out and "24 h" in out and "Caution:" in out and "lifting gear" in out
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--single-run")
+    assert code == 0 and "one forward run of each line (--single-run)" in out and "forward + back" not in out
+    assert "about 1 h 06 min for 52 readings" in out  # 26 + 40 + 0 min
+
+
+def test_plan_setup_sheet_of_a_long_beam_gives_airy_and_bessel_points(cli, monkeypatch):
+    monkeypatch.delenv("COLUMNS", raising=False)
+    args = ("plan", "--pattern", "grid", "--length-mm", 2000, "--width-mm", 400, "--foot-spacing-mm", 100,
+            "--instrument", "level")
+    code, out, err = cli(*args, "--json")
+    assert code == 0, err
+    beam = json.loads(out)["setup"]["beam"]
+    # Airy points L/sqrt(3) apart (zero end slope of a uniform beam on two supports; G.B. Airy 1845, beam
+    # theory); Bessel points 0.5594 L apart (from memory)
+    assert beam["airy_spacing_mm"] == pytest.approx(2000 / math.sqrt(3))
+    assert beam["airy_from_end_mm"] == pytest.approx((2000 - 2000 / math.sqrt(3)) / 2)
+    assert beam["bessel_spacing_mm"] == pytest.approx(0.5594 * 2000, abs=0.5)
+    assert any("Airy" in s for s in beam["sources"]) and any("Bessel" in s for s in beam["sources"])
+    code, out, err = cli(*args)
+    assert code == 0 and "Airy points 423 mm from each end (1155 mm apart" in out and "Bessel points 441 mm" in out
+
+
+def test_plan_setup_sheet_speaks_inches(cli, monkeypatch):
+    monkeypatch.delenv("COLUMNS", raising=False)
+    code, out, err = cli("plan", "--length-in", 48, "--width-in", 36, "--foot-spacing-in", 4)
+    assert code == 0, err
+    sheet = out[out.index("Set-up sheet"):]
+    assert " mm" not in sheet and "(9.60, 7.20 in)" in sheet  # 0.2 x 48 in, 0.2 x 36 in

@@ -102,3 +102,24 @@ def test_a_file_changed_on_disk_is_not_overwritten(tmp_path):
         save_form(form, [(1.0,)] + [()] * 7)
     assert p.read_text().endswith("# edited elsewhere\n")
     assert [q.name for q in tmp_path.iterdir()] == ["plan.toml"]  # no temporary file left behind
+
+
+def test_format_survey_writes_blank_forward_and_back_runs():
+    # what `flatcheck plan` writes by default (issue 19, item 2): one [[line.run]] per planned run, each with
+    # readings = [] and its order; the survey reader sees a blank plan, the entry sees 16 runs in file order
+    from flatcheck.io import parse_survey
+
+    survey = flatcheck.plan_union_jack(1000.0, 630.0, 100.0)
+    text = flatcheck.format_survey(survey, blank_runs=("forward", "reverse"))
+    assert text.count("[[line.run]]") == 16 and text.count('order = "reverse"') == 8
+    assert all(not ln.runs for ln in parse_survey(text).lines)
+    form = parse_form(text, source="p.toml")
+    assert [(r.line, r.order) for r in form.runs] == [(ln.name, o) for ln in survey.lines for o in ("forward", "reverse")]
+    # the readings typed into the text read back as the survey's runs, the back run as walked
+    filled = fill_text(form, [[0.5] * 8 if r.line not in ("SW-NW", "SE-NE", "S-N") else [0.5] * 4 for r in form.runs])
+    assert [len(ln.runs) for ln in parse_survey(filled).lines] == [2] * 8
+    # without blank_runs, the one-run layout of before
+    assert "[[line.run]]" not in flatcheck.format_survey(survey)
+    for bad in ((), ("backward",)):
+        with pytest.raises(InputValueError):
+            flatcheck.format_survey(survey, blank_runs=bad)
