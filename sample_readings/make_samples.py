@@ -138,7 +138,7 @@ def pad_face(rng):
     z = np.zeros(len(sim.stations))
     for ln in sim.lines:
         for name, r in zip(ln.stations, ln.runs[0].readings):
-            z[idx[name]] = r - 12.0
+            z[idx[name]] = round(r - 12.0, 2)  # to the indicator's 0.01 µm: no float residue in the file
     hm = HeightMap(sim.x_mm, sim.y_mm, z, length_mm=80.0, width_mm=80.0, label="graphite air-bearing pad face KY-B4")
     comment = (
         "Kestrel Yard tool room (fictional): lapped graphite air-bearing pad face KY-B4, 80 x 80 mm\n"
@@ -165,8 +165,8 @@ def plate_p7(rng):
     sim = _rounded(sim, 0.1)
     note = (
         "Kestrel Yard tool room (fictional). Rows and columns at 75 mm; the differential pair references gravity, "
-        "so twist is seen without diagonals. Simulated: dished 1.1 µm, twist, a high spot near (150, 300) mm; "
-        "reading noise 0.2 µm/m."
+        "so twist is seen without diagonals. Simulated: crowned (centre high) by 1.1 µm, twist, a high spot near "
+        "(150, 300) mm; reading noise 0.2 µm/m."
     )
     return dataclasses.replace(sim, date="2024-03-18", temperature_c=20.2, operator="R.T. (inspector)", notes=note)
 

@@ -17,6 +17,8 @@ Guideways and carriages (TOML)
     read_guideway_toml, parse_guideway_toml; read_carriage_toml, parse_carriage_toml, wrap_carriage, CarriageFile
 Lapping logs (CSV)
     read_lap_log
+Pictures (fringe photographs: PNG, JPEG, TIFF)
+    read_picture, GreyPicture
 Exchange
     read_x3p, write_x3p (ISO 25178-72 X3P); write_export_csv (spreadsheet tables); read_csv_meta
 Lab uncertainty defaults (TOML)
@@ -43,6 +45,7 @@ __getattr__, __dir__, __all__ = _attach(
         "_bearing_toml": ("read_bearing_toml", "parse_bearing_toml", "BearingDescription"),
         "_guideway_toml": ("read_guideway_toml", "parse_guideway_toml"),
         "_carriage_toml": ("read_carriage_toml", "parse_carriage_toml", "wrap_carriage", "CarriageFile"),
+        "_image": ("read_picture", "GreyPicture"),
         "_lap_log": ("read_lap_log", "LOG_HEADER"),
         "_x3p": ("read_x3p", "write_x3p", "format_x3p", "read_x3p_contents", "X3pContents"),
         "_export_csv": ("write_export_csv", "format_export_csv"),

@@ -99,6 +99,11 @@ def _check_keys(table: dict, allowed: set, where: str) -> None:
         )
 
 
+#: The range (flatcheck.limits) each number of a bearing file is checked against, by key.
+_KINDS = {"gap_um": "gap_um", "along_mm": "position_mm", "across_mm": "position_mm", "y_mm": "position_mm",
+          "travel_start_mm": "position_mm", "travel_end_mm": "position_mm", "step_mm": "length_mm"}
+
+
 def _number(
     table: dict, key: str, where: str, default=None, *, positive: bool = False, at_most: float | None = None, what: str = ""
 ):
@@ -115,6 +120,10 @@ def _number(
         raise InputValueError(f"{what or key} must be positive, got {v:g}", where=here, fix=f"give {key} > 0")
     if at_most is not None and v > at_most:
         raise InputValueError(f"{key} must be at most {at_most:g}, got {v:g}", where=here, fix="give a fraction such as 0.25")
+    if key in _KINDS:
+        from ..limits import check_range
+
+        check_range(v, _KINDS[key], where=here, name=what or key)
     return v
 
 

@@ -18,6 +18,7 @@ from pathlib import Path
 
 from ..errors import InputFormatError, InputValueError
 from ..lapping import DwellLog
+from ..limits import check_range
 from ._text import read_text
 
 __all__ = ["LOG_HEADER", "read_lap_log"]
@@ -58,6 +59,8 @@ def read_lap_log(path) -> DwellLog:
         vals = []
         for name, f in zip(LOG_HEADER, fields):
             try:
+                if "_" in f:  # Python reads "1_000" as 1000; a log written by hand means something else
+                    raise ValueError
                 v = float(f)
             except ValueError:
                 raise InputValueError(f"{name} {f!r} is not a number", where=f"{path}, line {no}", fix="write a plain decimal number") from None
@@ -66,6 +69,9 @@ def read_lap_log(path) -> DwellLog:
             vals.append(v)
         if vals[2] < 0:
             raise InputValueError(f"negative time {fields[2]}", where=f"{path}, line {no}", fix="give the minutes spent (>= 0)")
+        for kind, name, v in (("position_mm", "x_mm", vals[0]), ("position_mm", "y_mm", vals[1]),
+                              ("minutes", "minutes", vals[2])):
+            check_range(v, kind, where=f"{path}, line {no}, {name}", name=name)
         xs.append(vals[0])
         ys.append(vals[1])
         ts.append(vals[2])

@@ -7,6 +7,8 @@ Plans
     preston_rate_um_per_min, deconvolve_dwell, removal_from_dwell, default_cell_mm
 Sessions
     compare_surveys, Progress, DwellLog, match_nodes
+Targets that must be proven (ISO 14253-1 guard band)
+    LapTarget, guard_banded, parse_guard_band, target_kind, needs_budget_u
 """
 
 from .._lazy import attach as _attach
@@ -37,6 +39,8 @@ __getattr__, __dir__, __all__ = _attach(
             'HAND_MIN_PASS_MIN',
             'MAX_CHART_CELLS',
             'default_cell_mm',
+            'MAX_OVERHANG_FRACTION',
+            'lap_centre_allowed',
             'chart_edges',
         ),
         '_targets': (
@@ -48,6 +52,14 @@ __getattr__, __dir__, __all__ = _attach(
             'check_lap_options',
             'check_lap_on_surface',
             'build_lap',
+        ),
+        '_guard_band': (
+            'GUARD_BAND_MODES',
+            'LapTarget',
+            'target_kind',
+            'parse_guard_band',
+            'needs_budget_u',
+            'guard_banded',
         ),
         '_sessions': (
             'DEFAULT_MATCH_TOL_MM',

@@ -58,6 +58,8 @@ __all__ = [
     "default_cell_mm",
     "MAX_CHART_CELLS",
     "HAND_MIN_PASS_MIN",
+    "MAX_OVERHANG_FRACTION",
+    "lap_centre_allowed",
 ]
 
 #: Depth below which a node counts as untouched, µm (1 pm: far below any measurement).
@@ -627,7 +629,7 @@ def grid_interpolation_matrix(xs_mm, ys_mm, x_mm, y_mm):
 
 
 def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None, smoothness: float = 0.0,
-                     start=None, points=None, points_weight: float = 1.0) -> np.ndarray:
+                     start=None, points=None, points_weight: float = 1.0, allowed=None) -> np.ndarray:
     """Non-negative dwell map whose convolution with ``kernel`` best reproduces ``removal_um``.
 
     Solves ``min ||M (A t - r)||^2 + lam^2 ||t||^2 + mu^2 ||D t||^2`` subject to ``t >= 0`` (``A`` is the
@@ -660,6 +662,9 @@ def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None, s
         and ``r_points`` shape (m,) in µm. Their rows ``points_weight * (P A t - r_points)`` join the fit.
     points_weight : float
         Weight of each point's row relative to a grid node's (dimensionless, >= 0).
+    allowed : ndarray of bool, shape (ny, nx), optional
+        Nodes where the lap's centre may dwell (elsewhere the dwell is 0), e.g. away from the edges where
+        the lap would overhang (:func:`lap_centre_allowed`). Default: every node.
 
     Returns
     -------
@@ -706,15 +711,66 @@ def deconvolve_dwell(removal_um, kernel, *, smoothing: float = 0.0, mask=None, s
     if mu > 0:
         reg.append(mu * _difference_matrix(r.shape))
     R = vstack(reg, format="csr") if reg else None
-    if n <= _NNLS_MAX_NODES:
+    free = np.ones(n, bool) if allowed is None else np.asarray(allowed, bool).reshape(r.shape).ravel()
+    if not free.any():
+        return np.zeros(r.shape)
+    A = A.tocsc()[:, free].tocsr()
+    if R is not None:
+        R = R.tocsc()[:, free].tocsr()
+    k = int(free.sum())
+    if k <= _NNLS_MAX_NODES:
         if R is not None:
             A = vstack([A, R], format="csr")
             b = np.concatenate([b, np.zeros(R.shape[0])])
-        t, _ = nnls(A.toarray(), b, maxiter=50 * n)
+        t_free, _ = nnls(A.toarray(), b, maxiter=50 * k)
     else:
-        t0 = None if start is None else np.maximum(np.asarray(start, float).ravel(), 0.0)
-        t = _projected_gradient(A.tocsr(), b, lam, R=R, start=t0)
+        t0 = None if start is None else np.maximum(np.asarray(start, float).ravel()[free], 0.0)
+        t_free = _projected_gradient(A.tocsr(), b, lam, R=R, start=t0)
+    t = np.zeros(n)
+    t[free] = t_free
     return np.maximum(t, 0.0).reshape(r.shape)
+
+
+#: How far the lap may hang over an edge of the surface, as a fraction of its size along that direction:
+#: a lap hanging over by more than about a quarter tips on the edge and rounds it off (common practice, no
+#: single source). The lap's centre is kept at least (1/2 - 1/4) of its size inside the surveyed area.
+MAX_OVERHANG_FRACTION = 0.25
+
+
+def lap_centre_allowed(xs_mm, ys_mm, lap: "LapModel", box_mm=None) -> np.ndarray:
+    """Grid nodes where the lap's centre may dwell without hanging over an edge by more than
+    :data:`MAX_OVERHANG_FRACTION` of its size.
+
+    Parameters
+    ----------
+    xs_mm, ys_mm : ndarray, shapes (nx,), (ny,)
+        The dwell grid (mm).
+    lap : LapModel
+    box_mm : (xmin, xmax, ymin, ymax), optional
+        The surface's edges (mm): its stated outline, which may lie beyond the outer stations. Default: the
+        grid's extent.
+
+    Returns
+    -------
+    ndarray of bool, shape (ny, nx)
+        Along a direction in which the surface is too narrow for any such position, the node(s) nearest the
+        middle are allowed (the lap then spans the surface that way).
+    """
+    xs = np.asarray(xs_mm, float)
+    ys = np.asarray(ys_mm, float)
+    hx, hy = lap.half_size_mm
+    x0, x1, y0, y1 = (xs[0], xs[-1], ys[0], ys[-1]) if box_mm is None else box_mm
+
+    def band(v, half, lo, hi):
+        inset = half - MAX_OVERHANG_FRACTION * 2.0 * half  # centre to edge, at the largest overhang
+        ok = (v >= lo + inset - 1e-9) & (v <= hi - inset + 1e-9)
+        if not ok.any():
+            mid = 0.5 * (v[0] + v[-1])
+            d = np.abs(v - mid)
+            ok = d <= d.min() + 1e-9
+        return ok
+
+    return band(ys, hy, y0, y1)[:, None] & band(xs, hx, x0, x1)[None, :]
 
 
 #: Largest problem solved by the exact active-set nnls (it is O(n^3): 0.05 s at 400 nodes, 0.8 s at 900,
@@ -808,6 +864,10 @@ class Pass:
         ``"min"`` or ``"pass"``.
     strokes : int or None
         ``time`` in strokes when the lap's rate is per pass of known strokes.
+    even : bool
+        The lap is worked evenly over the zone (True), or longer in some of its cells than in others, as the
+        bench chart shows (False: two layers of the dwell map over the same cells and travel, which the pass
+        table could not tell apart, worked as one pass).
     """
 
     order: int
@@ -821,6 +881,7 @@ class Pass:
     time: float
     time_unit: str
     strokes: int | None
+    even: bool = True
 
 
 @dataclass(frozen=True, eq=False)
@@ -1190,6 +1251,9 @@ def plan_lapping(
         to_nodes = grid_interpolation_matrix(xs, ys, hm.x_mm, hm.y_mm)
         fit = dict(points=(to_nodes, removal.remove_um),
                    points_weight=math.sqrt(STATION_WEIGHT * int(mask.sum()) / hm.n))
+    # the lap's centre stays where the lap hangs over no edge by more than MAX_OVERHANG_FRACTION of its size
+    outline = (0.0, float(hm.length_mm), 0.0, float(hm.width_mm)) if hm.length_mm and hm.width_mm else None
+    fit["allowed"] = lap_centre_allowed(xs, ys, lap, outline)
 
     def _at_nodes(grid_vals):
         if index is not None:
@@ -1207,7 +1271,7 @@ def plan_lapping(
     def _plan_of(ls):
         out = np.zeros_like(target)
         for layer in ls:
-            out += layer.region * layer.per_node
+            out += layer.dwell
         return out
 
     def _cut(dwell_map, n_levels=levels):
@@ -1255,6 +1319,9 @@ def plan_lapping(
         if best is None or key < best[0]:
             best = (key, mu_c, dwell_c, flat_c, final, merges_c, t_min_c, len(layers_c), unmerged_flat_c)
     _, mu, dwell, dwell_flat, layers, merges, t_min, unmerged, unmerged_flat = best
+    layers, repeat_merges = _no_repeats(
+        layers, conv, hm, lap, xs, ys, cell_mm, lambda ls: _flatness_after(_plan_of(ls)), limit, slack)
+    merges = list(merges) + repeat_merges
     plan_dwell = _plan_of(layers)
     achieved = (conv @ plan_dwell.ravel()).reshape(plan_dwell.shape)
     predicted = hm.height_um - _at_nodes(achieved)
@@ -1274,10 +1341,13 @@ def plan_lapping(
         if "rounding" in shortfall.causes:
             shortfall = _suggest_levels(shortfall, lambda n: _cut(dwell, n)[1], slack)
     chart = _chart(hm, lap, xs, ys, plan_dwell, cell_mm)
-    depth = [float((conv @ (layer.region * layer.per_node).ravel()).max()) for layer in layers]
-    order = sorted(range(len(layers)), key=lambda i: (-layers[i].level, -depth[i]))
+    depth = [float((conv @ layer.dwell.ravel()).max()) for layer in layers]
+    order = range(len(layers))  # _no_repeats ordered them: top layer first, no zone twice running
     passes = tuple(_make_pass(k + 1, layers[i], depth[i], xs, ys, lap, chart) for k, i in enumerate(order))
-    regions = tuple(layers[i].region for i in order)
+    # an even pass's region (bool); an uneven one's dwell per node (float, proportional to its time there):
+    # either way region * time / region.sum() is the pass's time at each node
+    regions = tuple(layers[i].region if layers[i].per_node is None or not np.ndim(layers[i].per_node)
+                    else layers[i].dwell for i in order)
     # passes too short to work by hand, and what skipping them all would cost
     by_hand = tuple(p.order for p in passes if _too_short_by_hand(p, lap))
     skip_flat = None
@@ -1441,12 +1511,19 @@ class _Layer:
 
     level: int
     region: np.ndarray
-    per_node: float
+    per_node: object  # float: the same time at every node of the region; or an array on the grid (uneven pass)
     keep: bool = False
 
     @property
     def time(self) -> float:
+        if np.ndim(self.per_node):
+            return float(np.where(self.region, self.per_node, 0.0).sum())
         return self.per_node * int(self.region.sum())
+
+    @property
+    def dwell(self) -> np.ndarray:
+        """Time at each grid node (zero outside the region)."""
+        return np.where(self.region, self.per_node, 0.0)
 
 
 def _layer_regions(xs, ys, steps, levels, lap):
@@ -1527,6 +1604,83 @@ def _resolve_short(layers, t_min, flatness_of, limit_um, xs, ys):
         layers = chosen[1]
 
 
+def _no_repeats(layers, conv, hm, lap, xs, ys, cell_mm, flatness_of, limit_um, slack_um):
+    """Order the layers top first (deepest first within a level) with no place worked twice running.
+
+    Layers on exactly the same nodes are one pass (their times add; the plan is unchanged). Two passes in
+    a row over the same place (the same chart cells and the same travel of the lap's centre: all the pass
+    table prints) are joined into one pass over both regions, their summed time spread evenly, when that
+    costs no predicted flatness; otherwise the second is moved after the next pass in another place, if there
+    is one; and else the two are worked as one uneven pass that keeps each node's summed time (``Pass.even``
+    False; the bench chart shows the time in each cell). The predicted flatness never changes. Returns the
+    ordered layers and a description of each change (``limit_um`` and ``slack_um`` are not used: no change
+    made here costs flatness).
+    """
+    log = []
+    by_region = {}
+    for layer in layers:  # identical regions: one pass, its time the sum
+        key = layer.region.tobytes()
+        if key in by_region:
+            o = by_region[key]
+            by_region[key] = _Layer(max(o.level, layer.level), o.region, o.per_node + layer.per_node, o.keep or layer.keep)
+        else:
+            by_region[key] = layer
+    if len(by_region) < len(layers):
+        log.append(f"{len(layers) - len(by_region)} pass(es) on the same nodes as another joined to it")
+    layers = list(by_region.values())
+    if len(layers) < 2:
+        return layers, log
+    X, Y = np.meshgrid(xs, ys)
+    xe, ye = chart_edges(hm, lap, cell_mm)
+
+    def zone(layer):
+        """The place as the pass table prints it: the chart cells and the lap centre's travel (whole mm)."""
+        xr, yr = X[layer.region], Y[layer.region]
+        i = np.clip(np.searchsorted(xe, xr, side="right") - 1, 0, xe.size - 2)
+        j = np.clip(np.searchsorted(ye, yr, side="right") - 1, 0, ye.size - 2)
+        travel = tuple(round(float(v)) for v in (xr.min(), xr.max(), yr.min(), yr.max()))
+        return (int(i.min()), int(i.max()), int(j.min()), int(j.max())), travel  # the printed range "B2:D4"
+
+    def ordered(ls):
+        depth = [float((conv @ la.dwell.ravel()).max()) for la in ls]
+        return [ls[i] for i in sorted(range(len(ls)), key=lambda i: (-ls[i].level, -depth[i]))]
+
+    layers = ordered(layers)
+    baseline = None
+    k = 0
+    while k < len(layers) - 1:
+        a, b = layers[k], layers[k + 1]
+        if zone(a) != zone(b):
+            k += 1
+            continue
+        union = a.region | b.region
+        # one pass over both regions, its time their sum spread evenly (how the pass table is worked)
+        joined = _Layer(max(a.level, b.level), union, (a.time + b.time) / int(union.sum()), a.keep or b.keep)
+        trial = layers[:k] + [joined] + layers[k + 2:]
+        if baseline is None:  # the plan as it came: an even join is taken only when it costs no flatness
+            baseline = flatness_of(layers)
+        if flatness_of(trial) <= baseline * (1 + 1e-9) + 1e-12:
+            layers = trial
+            log.append(f"two passes in a row over the same cells and travel (x {X[union].mean():.0f}, "
+                       f"y {Y[union].mean():.0f} mm) joined into one")
+            k = max(k - 1, 0)
+            continue
+        later = next((m for m in range(k + 2, len(layers)) if zone(layers[m]) != zone(b)), None)
+        if later is not None:  # work somewhere else in between: the same plan in another order
+            layers = layers[:k + 1] + [layers[later]] + [la for m, la in enumerate(layers[k + 1:], start=k + 1)
+                                                          if m != later]
+            log.append("a pass moved so that the same place is not worked twice running")
+            k += 1
+            continue
+        # neither: one pass, uneven, keeping each node's summed time (the plan does not change; the bench chart
+        # shows how long in each cell)
+        layers = layers[:k] + [_Layer(max(a.level, b.level), union, a.dwell + b.dwell, a.keep or b.keep)] + layers[k + 2:]
+        log.append(f"two passes in a row over the same cells and travel (x {X[union].mean():.0f}, "
+                   f"y {Y[union].mean():.0f} mm) worked as one, longer where the bench chart says")
+        k = max(k - 1, 0)
+    return layers, log
+
+
 def _make_pass(order, layer, depth, xs, ys, lap, chart) -> Pass:
     X, Y = np.meshgrid(xs, ys)
     reg = layer.region
@@ -1554,6 +1708,7 @@ def _make_pass(order, layer, depth, xs, ys, lap, chart) -> Pass:
         time=float(time),
         time_unit=lap.time_unit,
         strokes=strokes,
+        even=not np.ndim(layer.per_node),
     )
 
 

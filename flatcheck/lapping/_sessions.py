@@ -178,6 +178,12 @@ class Progress:
         areas read about 0 (small positive values are survey noise), lapped areas negative; it equals
         ``-removed_um`` wherever it is negative. The same change, only another plane: the one a user
         reads "how much came off where" from.
+    u_after_um : float or None
+        Expanded uncertainty of the after survey's flatness (µm), when it was given.
+    met_within_uncertainty : bool
+        The target is not met by the flatness as measured, but the gain still wanted (after flatness minus
+        target) is no larger than ``u_after_um``: more lapping cannot be shown to be needed, so the remaining
+        time is not a prediction worth acting on (ISO 14253-1: the measurement cannot tell the two apart).
     """
 
     x_mm: np.ndarray
@@ -199,6 +205,8 @@ class Progress:
     change_referred_um: np.ndarray | None = None
     sessions_fraction: float | None = None
     minutes_to_target: float | None = None
+    u_after_um: float | None = None
+    met_within_uncertainty: bool = False
 
 
 def _lowest_supporting_removal(x, y, u, w) -> tuple[np.ndarray, np.ndarray]:
@@ -226,6 +234,7 @@ def compare_surveys(
     lap: LapModel | None = None,
     log: DwellLog | None = None,
     target_um: float | None = None,
+    u_after_um: float | None = None,
 ) -> Progress:
     """Compare two surveys of one surface made before and after a lapping session.
 
@@ -244,6 +253,9 @@ def compare_surveys(
         Where and how long the lap worked; its total replaces ``dwell_min``.
     target_um : float, optional
         Target flatness (µm) for the estimate of the sessions still needed.
+    u_after_um : float, optional
+        Expanded uncertainty of the after survey's minimum-zone flatness (µm, >= 0): a remaining gain no larger
+        than it is stated as "met within the uncertainty" (``Progress.met_within_uncertainty``).
 
     Returns
     -------
@@ -308,6 +320,11 @@ def compare_surveys(
             sessions = int(math.ceil(fraction - 1e-9))
             if vrate is not None:
                 minutes = remaining / vrate
+    within = False
+    if u_after_um is not None:
+        if not (np.isfinite(u_after_um) and u_after_um >= 0):
+            raise InputValueError(f"uncertainty {u_after_um} µm must be >= 0")
+        within = bool(target_um is not None and sessions != 0 and f_after - target_um <= u_after_um)
     for a in (change, change_referred, removed):
         a.setflags(write=False)
     return Progress(
@@ -330,6 +347,8 @@ def compare_surveys(
         sessions_to_target=sessions,
         sessions_fraction=fraction,
         minutes_to_target=minutes,
+        u_after_um=None if u_after_um is None else float(u_after_um),
+        met_within_uncertainty=within,
     )
 
 

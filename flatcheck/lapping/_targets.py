@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 
 from ..errors import InputValueError
+from ..limits import check_range
 from ._plan import LapModel
 
 __all__ = [
@@ -60,6 +61,7 @@ def resolve_target(
         from ..bearing import DEFAULT_GAP_FRACTION
 
         check_option(target_gap_um, "--target-gap-um", what="an air gap in µm")
+        check_range(target_gap_um, "gap_um", where="--target-gap-um", name="the air gap")
         fraction = DEFAULT_GAP_FRACTION if gap_fraction is None else gap_fraction
         check_option(fraction, "--gap-fraction", what="a fraction of the gap")
         if fraction >= 1:
@@ -71,7 +73,12 @@ def resolve_target(
     if target_um is not None:
         if not (math.isfinite(target_um) and target_um >= 0):
             raise InputValueError(f"target {target_um} µm must be >= 0", where="--target-um", fix="give a flatness in µm")
-        return float(target_um), "given"
+        if target_um == 0:
+            raise InputValueError(
+                "a target flatness of 0 µm cannot be reached: every lapped surface keeps some form, and no "
+                "measurement could prove zero", where="--target-um",
+                fix="give the flatness you need, e.g. the tolerance of the grade (--target-grade din-876:00)")
+        return check_range(target_um, "target_um", where="--target-um", name="the target flatness"), "given"
     from ..conformance import plate_size, tolerance
 
     std, sep, grade = target_grade.partition(":")
@@ -102,6 +109,8 @@ def parse_lap_size(text: str) -> tuple[float, float]:
         raise InputValueError(
             f"lap size {text!r} must be two positive lengths", where="--lap-size-mm", fix="e.g. 200x100 (mm)"
         )
+    for v in (length, width):
+        check_range(v, "lap_size_mm", where="--lap-size-mm", name="a side of the lap")
     return length, width
 
 
@@ -169,6 +178,8 @@ def check_lap_options(
     if strokes_per_pass is not None and rate_um_per_pass is None:
         raise InputValueError("strokes per pass go with a rate per pass", where="--strokes-per-pass", fix="add --rate-um-per-pass")
     check_option(lap_diameter_mm, "--lap-diameter-mm", what="a diameter in mm")
+    if lap_diameter_mm is not None:
+        check_range(lap_diameter_mm, "lap_size_mm", where="--lap-diameter-mm", name="the lap diameter")
     if lap_size_mm is not None:
         parse_lap_size(lap_size_mm)
     check_option(rate_um_per_min, "--rate-um-per-min", what="a removal rate in µm/min")
@@ -178,6 +189,11 @@ def check_lap_options(
     check_option(step_mm, "--step-mm", what="a grid pitch in mm")
     check_option(cell_mm, "--cell-mm", what="a cell size in mm")
     check_option(levels, "--levels", minimum=1, strict=False, what="a whole number of levels")
+    if levels is not None:
+        check_range(levels, "levels", where="--levels", name="the number of time levels")
+    for value, option, what in ((step_mm, "--step-mm", "the grid pitch"), (cell_mm, "--cell-mm", "the chart cell")):
+        if value is not None:  # a sub-millimetre pitch or cell would take billions of grid points
+            check_range(value, "window_mm", where=option, name=what)
     check_option(smoothing, "--smoothing", strict=False, what="a regularisation weight")
     check_option(smoothness, "--smoothness", strict=False, what="a gradient penalty")
     check_option(min_pass_fraction, "--min-pass-fraction", strict=False, what="a fraction (at most 1)")
@@ -208,16 +224,17 @@ def check_lap_on_surface(hm, lap: LapModel, *, lap_option: str, cell_mm: float |
         if (a.size - 1) * (b.size - 1) <= MAX_CHART_CELLS:
             break
     what = f"{ncol} x {nrow} chart cells of {size:g} mm" + ("" if cell_mm is not None else " (the lap's size)")
-    if cell_option is not None:
+    if cell_option is not None and cell_mm is not None:  # name the option the person gave, never one they did not
         raise InputValueError(
             f"{what} are too many to print (at most {MAX_CHART_CELLS})",
             where=cell_option,
             fix=f"give {cell_option} {math.ceil(need):g} or more" + ("" if cell_mm is not None else ", or check the lap size"),
         )
     raise InputValueError(
-        f"{what} are too many to print (at most {MAX_CHART_CELLS})",
+        f"a lap this small makes {what}, too many to print (at most {MAX_CHART_CELLS})",
         where=lap_option,
-        fix=f"check the lap size: the chart needs cells of at least {math.ceil(need):g} mm",
+        fix=f"check the lap size: the chart needs cells of at least {math.ceil(need):g} mm"
+            + (f" (or give {cell_option} {math.ceil(need):g} for larger chart cells)" if cell_option else ""),
     )
 
 

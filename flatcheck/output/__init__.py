@@ -44,6 +44,22 @@ __getattr__, __dir__, __all__ = _attach(
             'flow_table_height_in',
             'text_block_height_in',
             'bearing_motion',
+            'support_plan',
+        ),
+        '_guideway_plots': (
+            'faces_figure',
+            'thickness_figure',
+            'films_figure',
+            'motions_figure',
+            'write_guideway_pngs',
+            'guideway_png_paths',
+            'panel_counts',
+        ),
+        '_guideway_pages': (
+            'write_guideway_report',
+            'guideway_report_data',
+            'GuidewayReportFiles',
+            'GUIDEWAY_METHODS',
         ),
         '_report': (
             'SCOPE_STATEMENT',

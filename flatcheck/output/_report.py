@@ -39,6 +39,10 @@ __all__ = [
     "page_titles",
 ]
 
+#: The one plane every height the report (and the terminal, and --map-out) shows is referred to; named on
+#: every page. The flatness itself is the minimum zone, stated about its own planes.
+HEIGHT_REFERENCE = "least-squares plane of all points"
+
 #: Statement printed on every report (the scope of the results).
 SCOPE_STATEMENT = (
     "These results describe the surface only as it was when and where it was measured, supported as stated, "
@@ -96,6 +100,7 @@ class GradeRow:
     tolerance_um: float
     verdict: str
     note: str = ""
+    status: str = "verified"
 
 
 @dataclass(frozen=True)
@@ -141,6 +146,11 @@ class ReportContent:
         Safety cautions that apply (worded for the surface's material when it is known).
     local_missing : str
         Why there is no local flatness, with the fix, when there is none (empty otherwise).
+    setup : SetupSheet or None
+        For a survey: its set-up sheet (:func:`flatcheck.bench.setup_sheet`, with the runs it was read in).
+    support_check : SagCheck or None
+        With a lapping plan: whether the surface is a long beam sagging between its supports
+        (:func:`flatcheck.bench.check_sag`), said before any lapping advice.
     """
 
     evaluation: object
@@ -163,6 +173,9 @@ class ReportContent:
     sources: tuple = ()
     cautions: tuple = ()
     local_missing: str = ""
+    setup: object | None = None
+    support_check: object | None = None
+    certificate: object | None = None  # flatcheck.records.CertificateData: the certificate's pages (report --db)
 
     @property
     def heightmap(self) -> HeightMap:
@@ -387,13 +400,28 @@ def analyse(
             kw["gap_fraction"] = gap_fraction
         if marginal_from is not None:
             kw["marginal_from"] = marginal_from
+        u = evaluation.uncertainty
+        kept = None if u is None or u.budget is None else getattr(u.budget, "trial_errors_um", None)
+        if kept is not None:  # the checks decided with U from the budget, as 'flatcheck bearing' does
+            from ..bearing import SurveyErrors
+
+            kw["uncertainty"] = SurveyErrors.from_budget(u.budget)
         bearing = evaluate_bearing(hm, carriage, budget=budget, **kw)
-    lapping = None
+    lapping = support_check = None
     if target_um is not None:
+        from ..bench import check_sag_of
+
+        support_check = check_sag_of(hm)  # a beam sagging between its supports: said before any lapping advice
         say("lapping plan: least removal, dwell map and passes")
         from ..lapping import least_removal, plan_lapping
 
         lapping = plan_lapping(hm, least_removal(hm, float(target_um)), lap)
+    setup = None
+    if survey is not None:
+        from ..bench import setup_sheet
+
+        runs = {ln.name: tuple(r.order for r in ln.runs) or ("forward",) for ln in survey.lines}
+        setup = setup_sheet(survey, runs=runs, thickness_mm=(survey.meta or {}).get("thickness_mm"))
     issued = (today or _dt.date.today()).isoformat()
     date = survey.date if survey is not None and survey.date else "not stated"
     return ReportContent(
@@ -417,6 +445,8 @@ def analyse(
         sources=_sources_used(evaluation, grades, bearing, lapping),
         cautions=_cautions(hm, survey, bearing),
         local_missing=_local_missing(evaluation, window),
+        setup=setup,
+        support_check=support_check,
     )
 
 
@@ -464,13 +494,19 @@ def uncertainty_text(content: ReportContent, units: str = "um") -> str:
     if unc is None:
         return content.uncertainty_missing
     mz = unc.minimum_zone
-    lo, hi = mz.interval_um
+    corrected = getattr(mz, "corrected_interval_um", None)
+    lo, hi = corrected if corrected is not None else mz.interval_um
     basis = unc.basis
     basis = _in_units(basis, units)  # the basis may quote a scatter in µm or a reading in um/m
-    return (f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {basis}. "
-            f"U is twice the standard deviation of the simulated flatness (k = 2 equivalent); "
-            f"95 % interval of the minimum zone {_h(lo, units)} to {_h(hi, units)} "
-            f"(simulated mean {_h(mz.mean_um, units)}).")
+    if corrected is None:
+        return (f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {basis}. "
+                f"U is twice the standard deviation of the simulated flatness (k = 2 equivalent); "
+                f"95 % interval of the minimum zone {_h(lo, units)} to {_h(hi, units)} "
+                f"(simulated mean {_h(mz.mean_um, units)}).")
+    return (f"Monte Carlo propagation of the whole uncertainty budget (JCGM 101:2008), {mz.trials} trials, seed "
+            f"{mz.seed}; {basis}. U is at least twice the standard deviation of the simulated flatness and reaches "
+            f"both ends of the 95 % interval of the minimum zone, {_h(lo, units)} to {_h(hi, units)}, which is "
+            f"corrected for the noise bias (simulated mean {_h(mz.mean_um, units)}; see the uncertainty budget page).")
 
 
 def _line_rms(survey, reduction) -> dict:
@@ -501,14 +537,39 @@ def _grades(hm, standard, flatness_um, u_um, rule):
     rows = []
     for v in verdicts:
         t = v.tolerance
+        # where a limit comes from (recalled, inferred, a secondary table) is said once, in the methods section
+        # (issue 15, item 10): a certificate's table carries the limit, not doubts beside it
+        notes = [n for n in t.notes if not _is_provenance_note(n)]
         rows.append(GradeRow(std.title, t.grade, t.tolerance_um, v.decision.verdict.replace("-", " "),
-                             "; ".join(t.notes)))
+                             "; ".join(notes), getattr(t, "status", "verified")))
     size_note = {"option": "as given", "surface": "as stated for the surface",
                  "point-extent": "extent of the measured points (the plate itself may be larger)"}[size.source]
     rule_text = (verdicts[0].decision.statement.rstrip(". ") + ". " if verdicts else "") + (
         f"Plate size used: {size.length_mm:g} x {size.width_mm:g} mm, {size_note}. Flatness decided: minimum zone."
     )
     return tuple(rows), rule_text
+
+
+def _is_provenance_note(note: str) -> bool:
+    """A tolerance note that says where the value comes from rather than how it applies."""
+    n = note.lower()
+    return "from memory" in n or "inferred" in n or "secondary" in n or "not verified" in n
+
+
+def limits_provenance_text(grades) -> str:
+    """One sentence for the methods section naming the limits not checked against the standard's own text."""
+    doubtful = [g for g in grades if g.status != "verified"]
+    if not doubtful:
+        return ""
+    by_status = {}
+    for g in doubtful:
+        by_status.setdefault(g.status, []).append(g.grade)
+    words = {"from memory": "recalled", "inferred": "computed from a formula inferred from makers' tables",
+             "secondary source": "taken from a secondary reproduction of the standard's table"}
+    parts = [f"grade{'s' if len(v) > 1 else ''} {', '.join(v)}: {words.get(k, k)}" for k, v in by_status.items()]
+    return (f"Limits of {doubtful[0].standard} not checked against the standard's own text ({'; '.join(parts)}). "
+            "Where a decision depends on one of them, state the limit from your copy of the standard "
+            "(flatcheck grade --tolerance-um T) and decide on that.")
 
 
 def _size_text(length_mm, width_mm, units: str = "um") -> str:
@@ -691,11 +752,15 @@ def _page_plan(content):
                      lambda fig, c, u, together=together: _page_layout(fig, c, u, histogram=together)))
         if not together and content.residual_um is not None and np.size(content.residual_um):
             plan.append(("Survey layout and closure (continued)", _page_residuals))
+    if content.setup is not None:
+        plan.append(("Set-up sheet", _page_setup))
+    if getattr(content.uncertainty, "budget", None) is not None:
+        plan.append(("Uncertainty budget", _page_uncertainty))
     if content.grades:
         plan.append(("Grades and decision rule", _page_grades))
     if content.bearing is not None:
         plan.append(("Air bearing: fitness and carriage motion", _page_bearing))
-    if content.lapping is not None:
+    if content.lapping is not None and content.lapping.passes:  # target met: one sentence on the summary
         together = _chart_fits_on_lapping_page(content)
         plan.append(("Lapping plan", lambda fig, c, u, together=together: _page_lapping(fig, c, u, chart=together)))
         if not together:
@@ -706,7 +771,9 @@ def _page_plan(content):
             plan.append((title, lambda fig, c, u, start=start, stop=stop, last=last:
                          _page_passes(fig, c, u, start, stop, last)))
     plan.append(("Methods, sources and cautions", _page_sources))
-    return plan
+    from ._certificate_pages import certificate_plan  # with a certificate: its pages first, raw readings last
+
+    return certificate_plan(content, plan, statement=SCOPE_STATEMENT)
 
 
 def _frame(fig, content, title, page, pages):
@@ -718,11 +785,13 @@ def _frame(fig, content, title, page, pages):
     head = hm.label if not ident or ident == "not stated" else f"{hm.label} · {ident}"
     plot.page_frame(
         fig,
-        left_head="FLATNESS REPORT",
+        left_head="FLATNESS REPORT" if content.certificate is None else
+        f"CALIBRATION CERTIFICATE {content.certificate.number}",
         right_head=head,
         title=title,
         footer=(
-            "Results apply to the surface as measured; see the statement on page 1.",
+            f"Heights are referred to the {HEIGHT_REFERENCE}. Results apply to the surface as measured; see the "
+            "statement on page 1.",
             f"measurement date: {content.date} · report issued {content.issued} · flatcheck",
         ),
         page_text=f"page {page} of {pages}",
@@ -733,6 +802,28 @@ def _h(v_um, units):
     from ..units import format_height
 
     return format_height(v_um, units)
+
+
+def _closure(v_um, units) -> str:
+    """A closure error at the precision a flatness instrument gives (issue 15, item 8): 0.01 µm (an
+    autocollimator's 0.1 arcsec over a 100 mm base is 0.05 µm), or whole µin; never nanometres."""
+    from ..units import height_unit_label, um_to
+
+    x = um_to(v_um, units)
+    text = f"{x:.0f}" if units == "in" else f"{x:.2f}"
+    return f"{text.lstrip('-') if float(text) == 0 else text} {height_unit_label(units)}"
+
+
+def _tolerance(v_um, units) -> str:
+    """A limit at the precision its source gives it: one decimal for 0.1 µm steps, else 0.01 µm; whole µin."""
+    from ..units import height_unit_label, um_to
+
+    x = um_to(v_um, units)
+    if units == "in":
+        text = f"{x:.0f}" if abs(x - round(x)) < 0.05 else f"{x:.1f}"
+    else:
+        text = f"{x:.1f}" if abs(x * 10 - round(x * 10)) < 1e-6 else f"{x:.2f}"
+    return f"{text} {height_unit_label(units)}"
 
 
 def _pos(v_mm, units):
@@ -767,6 +858,7 @@ _REFERENCE_NAMES = {
 
 def _page_summary(fig, c, units):
     from . import _plots as plot
+    from ..units import format_with_uncertainty
 
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.86])
     identity, method = _identity_rows(c.heightmap, c.survey, c.evaluation.loaded.reduction, units)
@@ -780,9 +872,11 @@ def _page_summary(fig, c, units):
         if p is None:
             continue
         unc = u.get(p.reference)
-        rows.append((_REFERENCE_NAMES.get(p.reference, p.reference), _h(p.fltt_um, units), _h(p.fltp_um, units),
-                     _h(p.fltv_um, units), _h(p.fltq_um, units),
-                     "" if p.reference not in u else "not evaluated" if unc is None else _h(unc, units)))
+        # with its U: U to two significant digits and the flatness to the same decimal place (JCGM 100:2008, 7.2.6)
+        f_txt, u_txt = (_h(p.fltt_um, units), "" if p.reference not in u else "not evaluated") if unc is None else \
+            format_with_uncertainty(p.fltt_um, unc, units)
+        rows.append((_REFERENCE_NAMES.get(p.reference, p.reference), f_txt, _h(p.fltp_um, units),
+                     _h(p.fltv_um, units), _h(p.fltq_um, units), u_txt))
     y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.25, 0.41, 0.55, 0.69, 0.83),
                         col_labels=("reference plane", "flatness FLTt", "peak FLTp", "valley FLTv", "RMS FLTq", "U"),
                         title="Flatness about each reference plane", bold_cols=(1,), fontsize=8)
@@ -797,7 +891,7 @@ def _page_summary(fig, c, units):
         text.append((_in_units(c.local_missing, units), "s"))
     y = plot.text_block(ax, text, y0=y, wrap_chars=110)
     if c.grades:
-        rows = [(g.grade, _h(g.tolerance_um, units), g.verdict) for g in c.grades]
+        rows = [(g.grade, _tolerance(g.tolerance_um, units), g.verdict) for g in c.grades]
         y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.3, 0.55), col_labels=("grade", "tolerance", "verdict"),
                             title=f"Grades: {c.grades[0].standard}", bold_cols=(2,))
         y = plot.text_block(ax, [("Decision rule and details: see the grades page.", "s")], y0=y, wrap_chars=110)
@@ -806,6 +900,9 @@ def _page_summary(fig, c, units):
         y = plot.flow_table(ax, y, [("verdict", b.verdict), ("largest local flatness under a pad",
                                                             f"{_h(b.local_flatness_max_um, units)} (limit {_h(b.limit_um, units)})")],
                             col_x=(0.0, 0.45), title="Air bearing", bold_cols=(1,))
+    if c.lapping is not None:
+        lines = [("Lapping", "h")] + _support_first(c, units, style="") + [(lapping_summary(c, units), "")]
+        y = plot.text_block(ax, lines, y0=y, fontsize=8.5, wrap_chars=110)
     lines = [("Note: " + _in_units(n, units), "s") for n in c.notes]
     lines += [("Statement", "h"), SCOPE_STATEMENT]
     plot.text_block(ax, lines, y0=y, fontsize=8.5, wrap_chars=110)
@@ -822,12 +919,13 @@ def _page_map(fig, c, units):
     note_in = plot.text_block_height_in(note, fontsize=8.5, wrap_chars=105) if note else 0.0
     fh = fig.get_figheight()
     (ax,), bottom = plot.plan_panels(fig, 1, 1, ratio, (_PLAN_RECT_LEFT, _BOTTOM, 0.94, _TOP), max_height_in=4.6)
-    plot.contour_map(ax, hm, reference=c.mz, units=units,
-                     title="deviation from the minimum-zone plane (open circles: stations)")
+    # one reference for every height shown, as in the terminal and in --map-out: the least-squares plane
+    plot.contour_map(ax, hm, reference=c.ls, reference_name="least-squares plane", units=units,
+                     title=f"heights about the {HEIGHT_REFERENCE} (open circles: stations)")
     low = _BOTTOM + (note_in + 0.15) / fh if note else _BOTTOM
     top3 = bottom - 0.035  # the 3-D view's title sits below the map's x label
     ax3 = fig.add_axes([0.06, low, 0.88, top3 - low], projection="3d")
-    plot.surface_view(ax3, hm, reference=c.mz, units=units,
+    plot.surface_view(ax3, hm, reference=c.ls, units=units, reference_name="LS plane",
                       title="the same surface in three dimensions (heights exaggerated)")
     if note:
         tax = fig.add_axes([0.06, _BOTTOM, 0.88, note_in / fh])
@@ -844,20 +942,69 @@ def _local_grid(lf):
     return xs, ys, grid
 
 
+def local_cover(lf, win, hm, n_long: int = 90):
+    """The worst local flatness of any window that holds each point of the surveyed area.
+
+    The scan gives one value per window centre, and centres keep half a window from the edges; this spreads
+    each value over its whole window, so that the map covers the surveyed area and each point shows the
+    largest local flatness of a window around it.
+
+    Parameters
+    ----------
+    lf : LocalFlatness
+        Window centres (mm) and their local flatness (µm).
+    win : Window
+        The window's shape and size (mm).
+    hm : HeightMap
+        The surface (its point extent is the surveyed area).
+    n_long : int
+        Grid points along the longer side.
+
+    Returns
+    -------
+    xs, ys : ndarray, shapes (nx,), (ny,)
+        Grid positions (mm).
+    grid : ndarray, shape (ny, nx)
+        µm; NaN where no window reaches.
+    """
+    x0, x1, y0, y1 = hm.extent_mm
+    lx, ly = max(x1 - x0, 1e-9), max(y1 - y0, 1e-9)
+    nx = n_long if lx >= ly else max(8, int(round(n_long * lx / ly)))
+    ny = n_long if ly > lx else max(8, int(round(n_long * ly / lx)))
+    xs, ys = np.linspace(x0, x1, nx), np.linspace(y0, y1, ny)
+    cx, cy = np.asarray(lf.centre_x_mm, float), np.asarray(lf.centre_y_mm, float)
+    val = np.asarray(lf.flatness_um, float)
+    grid = np.full((ny, nx), -np.inf)
+    tol = 1e-9 * max(lx, ly)
+    for start in range(0, cx.size, 256):  # blocks of centres: memory stays (ny, nx, 256)
+        bx, by, bv = cx[start:start + 256], cy[start:start + 256], val[start:start + 256]
+        dx = xs[None, :, None] - bx[None, None, :]
+        dy = ys[:, None, None] - by[None, None, :]
+        if win.shape == "circle":
+            inside = dx * dx + dy * dy <= (win.length_mm / 2.0 + tol) ** 2
+        else:
+            inside = (np.abs(dx) <= win.length_mm / 2.0 + tol) & (np.abs(dy) <= win.width_mm / 2.0 + tol)
+        grid = np.maximum(grid, np.where(inside, bv[None, None, :], -np.inf).max(axis=2))
+    grid[~np.isfinite(grid)] = np.nan
+    return xs, ys, grid
+
+
 def _page_local(fig, c, units):
     from . import _plots as plot
 
     lf, win = c.local, c.window
     hm = c.heightmap
     xs, ys, grid = _local_grid(lf)
-    title = f"local flatness of a {_window_text(win, units)} window, by the position of its centre"
     box = plot.plan_box(hm)
     fh = fig.get_figheight()
     if xs.size >= 2 and ys.size >= 2:
+        title = f"worst local flatness of a {_window_text(win, units)} window holding each point"
         (ax,), bottom = plot.plan_panels(fig, 1, 1, plot.plan_ratio(box), (_PLAN_RECT_LEFT, _BOTTOM, 0.94, _TOP),
                                          max_height_in=4.6)
-        plot.local_flatness_map(ax, xs, ys, grid, window_mm=win.length_mm, units=units, title=title, box_mm=box)
+        cxs, cys, cover = local_cover(lf, win, hm)
+        plot.local_flatness_map(ax, cxs, cys, cover, window_mm=win.length_mm, units=units, title=title, box_mm=box)
     else:  # one row or column of positions: a profile along it
+        title = f"local flatness of a {_window_text(win, units)} window, by the position of its centre"
         ax = fig.add_axes([_PLAN_RECT_LEFT, _TOP - 3.3 / fh, 0.80, 2.8 / fh])
         bottom = _TOP - 3.8 / fh
         plot.local_flatness_profile(ax, xs if xs.size > 1 else ys, grid.ravel(), along="x" if xs.size > 1 else "y",
@@ -878,10 +1025,11 @@ def _page_local(fig, c, units):
     ]
     y = plot.flow_table(tax, 1.0, rows, col_x=(0.0, 0.35), title="Local flatness", bold_cols=(1,),
                         wrap_chars=(None, 75), fontsize=_TEXT_FS)
-    text = ["Each value is the minimum-zone flatness of the surface inside the window centred there (the window "
-            "lies wholly inside the surveyed area, so the map covers only the centres such a window can take; "
-            "the outline is the surface). The outlined window is the worst one. ISO 8512-2 states a "
-            "local tolerance over any 250 x 250 mm area; its values are not built in here."]
+    text = ["The window is moved over the surveyed area (always wholly inside it) and the minimum-zone flatness "
+            "of the surface inside it found at each position; the map shows at each point the largest of these "
+            "for the windows that hold the point, so it covers the whole surveyed area (the outline is the "
+            "surface). The outlined window is the worst one. ISO 8512-2 states a local tolerance over any "
+            "250 x 250 mm area; its values are not built in here."]
     text += [_in_units(n, units) for n in lf.notes]
     plot.text_block(tax, [(_in_units(t, units), "s") for t in text], y0=y, fontsize=_TEXT_FS, wrap_chars=110)
     return [("local-flatness", [ax])]
@@ -899,7 +1047,8 @@ def _page_profiles(fig, c, units, chunk):
         plot.LineProfile(ln.name, ln.s_mm, ln.height_um, ln.straightness_um, ln.ref_offset_um, ln.ref_slope_um_per_mm)
         for ln in chunk
     ]
-    axes = plot.line_profiles(fig, profs, units=units, rect=(0.1, 0.08, 0.94, 0.90))
+    # top at 0.86: room above for the caption of the picture written alone (--png), within the page's body
+    axes = plot.line_profiles(fig, profs, units=units, rect=(0.1, 0.08, 0.94, 0.86))
     first = c.lines.index(chunk[0]) + 1
     return [(f"line-profiles-{first}-{first + len(chunk) - 1}", axes)]
 
@@ -907,7 +1056,7 @@ def _page_profiles(fig, c, units, chunk):
 def _layout_rows(c, units):
     rows = []
     for ln in c.lines:
-        closure = "" if ln.closure_um is None else _h(ln.closure_um, units) + (
+        closure = "" if ln.closure_um is None else _closure(ln.closure_um, units) + (
             f" at {ln.closure_station}" if ln.closure_station else "")
         rows.append((ln.name, _pos(ln.s_mm[-1], units), f"{len(ln.s_mm) - 1}",
                      "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units),
@@ -967,10 +1116,11 @@ def _page_layout(fig, c, units, histogram=None):
     sv = c.survey
     index = {s.name: i for i, s in enumerate(sv.stations)}
     lines = [(ln.name, np.array([index[s] for s in ln.stations])) for ln in sv.lines]
-    notes = {ln.name: f"closure {_h(ln.closure_um, units)}" for ln in c.lines if ln.closure_um is not None}
+    notes = {ln.name: f"closure {_closure(ln.closure_um, units)}" for ln in c.lines if ln.closure_um is not None}
     ax, bottom = _layout_plan_bottom(c, fig)
     plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, length_mm=sv.surface.length_mm,
                        width_mm=sv.surface.width_mm, line_notes=notes, units=units,
+                       station_names=[st.name for st in sv.stations],
                        title="lines walked (arrow: towards the line's last station)")
     fh = fig.get_figheight()
     tax = fig.add_axes([0.06, _BOTTOM, 0.88, bottom - 0.02 - _BOTTOM])
@@ -997,6 +1147,161 @@ def _page_residuals(fig, c, units):
     return [("reduction-residuals", [hax])]
 
 
+def _support_first(c, units, style: str = "b") -> list:
+    """The sag check's message, stated before any lapping advice (empty when the supports are not in question)."""
+    s = c.support_check
+    if s is None or not s.flagged:
+        return []
+    return [("Supports first: " + _in_units(s.message, units) + ".", style)]
+
+
+#: Columns of the set-up table: with the autocollimator's place and distances, and without (an instrument that walks).
+_SETUP_COLS = dict(col_x=(0.0, 0.04, 0.12, 0.255, 0.35, 0.47, 0.77, 0.95), fontsize=_TEXT_FS,
+                   wrap_chars=(None, None, None, 12, None, 40, None, None))
+_SETUP_COLS_WALKING = dict(col_x=(0.0, 0.05, 0.17, 0.32, 0.62, 0.78), fontsize=_TEXT_FS)
+
+
+def _setup_rows(c, units):
+    """One row per line of the set-up sheet, in the order to read them."""
+    rows = []
+    for ln in c.setup.lines:
+        runs = " + ".join("back" if r == "reverse" else r for r in ln.runs)
+        at = dist = "-"
+        if ln.instrument_mm is not None:
+            at = (f"{_num(ln.instrument_mm[0], units)}, {_num(ln.instrument_mm[1], units)} "
+                  f"({'on the surface' if ln.on_surface else 'on a stand beside it'})")
+            dist = f"{_num(ln.distance_mm[0], units)} to {_num(ln.distance_mm[1], units)}"
+        row = (str(ln.order), ln.line, runs, f"{ln.start} to {ln.end}", _num(ln.length_mm, units), at, dist,
+               f"{ln.minutes:.0f}")
+        rows.append(row if c.setup.instrument == "autocollimator" else row[:5] + row[7:])
+    return rows
+
+
+def _setup_text(c, units) -> list:
+    """The set-up sheet's notes: the instrument, the time, the supports, the soak and the lifting caution."""
+    from ..safety import lifting_caution
+
+    s = c.setup
+    kind = s.instrument
+    lines = []
+    if kind == "autocollimator":
+        first = s.lines[0]
+        behind = first.distance_mm[0] - first.foot_spacing_mm / 2.0  # the mirror's centre is half a base on
+        lines.append(f"The autocollimator stands on each line's extension, {_pos(behind, units)} behind its first "
+                     "station (squares on the plan), aimed along the line; its working range must cover the distances "
+                     "to the mirror.")
+    elif kind == "level":
+        lines.append("The level walks each line itself, its feet on successive stations.")
+    elif kind == "differential-level":
+        lines.append("The moving level walks each line; the reference level stays on one spot, off the lines, for the "
+                     "whole survey.")
+    else:
+        lines.append("The indicator's stand rides the reference surface; touch each station in turn.")
+    hours, minutes = divmod(int(round(s.minutes)), 60)
+    lines.append(f"Time: about {hours} h {minutes:02d} min for {s.readings} readings ({s.pace.seconds_per_reading:g} s "
+                 f"a reading, {s.pace.minutes_per_line:g} min to set up a line, {s.pace.minutes_per_extra_run:g} min "
+                 "for each further run: illustrative figures, common practice, no single source); soak not included.")
+    pts = "; ".join(f"({_num(x, units)}, {_num(y, units)})" for x, y in s.three_point_mm)
+    lines.append(f"{s.notes[0]} Three points, x, y (triangles 1-3 on the plan): {pts}.")
+    b = s.beam
+    if b is not None:
+        lines.append(
+            f"Long beam on two supports: least self-weight bow with them {_pos(b.least_bow_from_end_mm, units)} from "
+            f"each end; Airy points {_pos(b.airy_from_end_mm, units)} from each end ({_pos(b.airy_spacing_mm, units)} "
+            f"apart, end faces vertical); Bessel points {_pos(b.bessel_from_end_mm, units)} from each end "
+            f"({_pos(b.bessel_spacing_mm, units)} apart, least change of length). Sources: " + "; ".join(b.sources) + ".")
+    lines += [_in_units(n, units) for n in s.notes[1:] if not n.startswith("Long beam")]
+    if s.mass_kg is not None:
+        lines.append(f"Mass of the surface as granite (2600-2800 kg/m³): {s.mass_kg[0]:.0f}-{s.mass_kg[1]:.0f} kg.")
+    material = c.survey.surface.material if c.survey is not None else ""
+    return [(t, "s") for t in lines] + [("Caution", "h"), (lifting_caution(material), "b")]
+
+
+def _page_setup(fig, c, units):
+    """The set-up sheet of the survey: supports and instrument places on the outline, the lines in order, the notes."""
+    from . import _plots as plot
+
+    s = c.setup
+    sv = c.survey
+    L, W = float(sv.surface.length_mm), float(sv.surface.width_mm)
+    fh = fig.get_figheight()
+    intro = [("How this survey is set up, line by line, for the next survey of this surface as for this one: where "
+              "the surface stands, where the instrument stands, in what order the lines are read and how long it "
+              "takes. x from the west edge, y from the south edge.", "s")]
+    intro_in = plot.text_block_height_in(intro, fontsize=_TEXT_FS, wrap_chars=110)
+    tax = fig.add_axes([0.06, _TOP - intro_in / fh, 0.88, intro_in / fh])
+    plot.text_block(tax, intro, fontsize=_TEXT_FS, wrap_chars=110)
+    instruments = [(ln.line, ln.instrument_mm[0], ln.instrument_mm[1]) for ln in s.lines
+                   if ln.instrument_mm is not None]
+    xs = [0.0, L] + [x for _, x, _ in instruments]
+    ys = [0.0, W] + [y for _, _, y in instruments]
+    box = (min(xs), max(xs), min(ys), max(ys))
+    (ax,), bottom = plot.plan_panels(fig, 1, 1, plot.plan_ratio(box),
+                                     (_PLAN_RECT_LEFT, _BOTTOM, 0.94, _TOP - intro_in / fh - 0.005),
+                                     max_height_in=3.4, right_in=0.3, top_in=0.35)
+    plot.support_plan(ax, L, W, three_point_mm=s.three_point_mm, beam=s.beam,
+                      stations_xy_mm=np.column_stack([sv.x_mm, sv.y_mm]), instruments=instruments, units=units,
+                      title="supports (triangles), " + ("instrument places (squares) and " if instruments else "")
+                      + "stations")
+    pu = "in" if units == "in" else "mm"
+    yax = fig.add_axes([0.06, _BOTTOM, 0.88, bottom - 0.02 - _BOTTOM])
+    if instruments:
+        cols = dict(_SETUP_COLS, col_labels=("#", "line", "runs", "walk", f"length ({pu})",
+                                             f"instrument at x, y ({pu})", f"to the mirror ({pu})", "min"))
+    else:
+        cols = dict(_SETUP_COLS_WALKING, col_labels=("#", "line", "runs", "walk", f"length ({pu})", "min"))
+    y = plot.flow_table(yax, 1.0, _setup_rows(c, units), title="Lines in the order to read them", **cols)
+    plot.text_block(yax, _setup_text(c, units), y0=y, fontsize=_TEXT_FS, wrap_chars=110)
+    return [("setup-supports", [ax])]
+
+
+def _page_uncertainty(fig, c, units):
+    """The uncertainty budget: one row per source (value, distribution, basis, contribution), then u, U, and a
+    bar chart of the contributions."""
+    from . import _plots as plot
+    from ..units import format_with_uncertainty
+
+    b = c.uncertainty.budget
+    mz = b.minimum_zone
+    tax = fig.add_axes([0.06, 0.27, 0.88, 0.65])
+    rows = []
+    for e in b.entries:
+        if not e.applies:
+            value = "-"
+        elif e.unit == "relative":
+            value = f"{e.value * 100:.3g} %"
+        elif e.unit in ("µm", "um"):
+            value = _h(e.value, units)
+        else:
+            value = f"{e.value:.3g} {e.unit}"
+        contrib = format_with_uncertainty(e.standard_uncertainty_um, b.combined_um or 1.0, units)[0]
+        rows.append((e.name + (" (default)" if e.default and e.applies else ""), value,
+                     e.distribution.split(";")[0], _in_units(e.basis, units), contrib))
+    y = plot.flow_table(tax, 1.0, rows, col_x=(0.0, 0.2, 0.33, 0.5, 0.9),
+                        col_labels=("source", "input", "distribution", "basis", "u"), title="Sources and contributions",
+                        wrap_chars=(26, 18, 26, 64, None), fontsize=6.3)
+    v_txt, U_txt = format_with_uncertainty(mz.estimate_um, b.expanded_um, units)
+    lo, hi = b.interval_um
+    lo_txt, _ = format_with_uncertainty(lo, b.expanded_um, units)
+    hi_txt, _ = format_with_uncertainty(hi, b.expanded_um, units)
+    _, uc_txt = format_with_uncertainty(mz.estimate_um, b.combined_um, units)
+    summary = [("minimum-zone flatness F", v_txt), ("combined standard uncertainty u", uc_txt),
+               ("expanded uncertainty U", f"{U_txt} (coverage factor {b.coverage_factor:.2f})"),
+               ("95 % coverage interval", f"{lo_txt} to {hi_txt}, corrected for the noise bias "
+                f"({format_with_uncertainty(mz.bias_um, b.combined_um or 1.0, units)[0]} estimated)"),
+               ("Monte Carlo", f"{mz.trials} trials together, {b.contribution_trials} per source alone, seed {mz.seed}")]
+    y = plot.flow_table(tax, y, summary, col_x=(0.0, 0.35), bold_cols=(1,), fontsize=6.8)
+    notes = ["Each contribution is the standard deviation of the minimum zone with that source alone propagated "
+             "through the reduction (JCGM 101:2008); u comes from all sources together. Rows marked (default) rest "
+             "on values the survey file does not state: state them (docs/survey-format.md) for a firmer U."]
+    notes += [_in_units(n, units) for n in b.notes]
+    plot.text_block(tax, [(t, "s") for t in notes], y0=y, fontsize=6.5, wrap_chars=150)
+    ax = fig.add_axes([0.30, 0.12, 0.62, 0.22])
+    plot.budget_bars(ax, [e.name for e in b.entries], [e.standard_uncertainty_um for e in b.entries],
+                     [e.default and e.applies for e in b.entries], combined_um=b.combined_um, units=units)
+    return [("uncertainty-budget", [ax])]
+
+
 def _page_grades(fig, c, units):
     from . import _plots as plot
 
@@ -1004,7 +1309,7 @@ def _page_grades(fig, c, units):
     rows = [("minimum-zone flatness F", _h(c.mz.flatness_um, units)),
             ("expanded uncertainty U", "not evaluated" if c.u_mz_um is None else _h(c.u_mz_um, units))]
     y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45), title="Result decided", bold_cols=(1,))
-    rows = [(g.grade, _h(g.tolerance_um, units), g.verdict, _in_units(g.note or "", units)) for g in c.grades]
+    rows = [(g.grade, _tolerance(g.tolerance_um, units), g.verdict, _in_units(g.note or "", units)) for g in c.grades]
     y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.1, 0.27, 0.47), col_labels=("grade", "tolerance", "verdict", "note"),
                         title=c.grades[0].standard, bold_cols=(2,), wrap_chars=(None, None, None, 55))
     lines = [("Decision rule", "h"), _in_units(c.decision_rule, units),
@@ -1025,6 +1330,12 @@ def _page_bearing(fig, c, units):
     for ch in b.checks:
         val = _h(ch.value, units) if ch.unit == "um" else f"{ch.value:.2f} arcsec"
         lim = _h(ch.limit, units) if ch.unit == "um" else f"{ch.limit:.2f} arcsec"
+        u = getattr(ch, "expanded_uncertainty", None)
+        if u is not None and ch.unit == "um":  # U to two significant digits, the value to the same place
+            from ..units import format_with_uncertainty
+
+            v_txt, u_txt = format_with_uncertainty(ch.value, u, units)
+            val = f"{v_txt}, U {u_txt}"
         rows.append((_in_units(ch.name, units), val, lim, ch.status))
     y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45, 0.62, 0.8), col_labels=("check", "value", "limit", "status"),
                         title=f"Verdict: {b.verdict}", bold_cols=(3,), wrap_chars=(60, None, None, None))
@@ -1038,11 +1349,24 @@ def _page_bearing(fig, c, units):
     return [("carriage-motion", list(axes))]
 
 
+def lapping_summary(c, units: str = "um") -> str:
+    """The lapping plan in one sentence (the whole of it when the target is already met)."""
+    p = c.lapping
+    rm = p.removal
+    if not p.passes:
+        return (f"The surface is already within the target {_h(rm.target_um, units)} "
+                f"({_in_units(c.lapping_target, units)}): its flatness is {_h(rm.flatness_before_um, units)}, "
+                "so no lapping is needed.")
+    unit = "min" if p.lap.time_unit == "min" else "passes"
+    return (f"Target {_h(rm.target_um, units)}: {len(p.passes)} passes, {p.total_time:.1f} {unit} in all, "
+            f"{_h(p.predicted_flatness_um, units)} predicted; see the lapping pages.")
+
+
 def _lapping_text(c, units):
     p = c.lapping
     rm = p.removal
     unit = "min" if p.lap.time_unit == "min" else "passes"
-    text = [(f"Target {_h(rm.target_um, units)} ({_in_units(c.lapping_target, units)}). Flatness now "
+    text = _support_first(c, units) + [(f"Target {_h(rm.target_um, units)} ({_in_units(c.lapping_target, units)}). Flatness now "
              f"{_h(rm.flatness_before_um, units)}; after the plan {_h(p.predicted_flatness_um, units)} predicted "
              f"(best this lap can do: {_h(p.dwell_flatness_um, units)}). {len(p.passes)} passes, total "
              f"{p.total_time:.1f} {unit}: see the passes page. Lap: {_in_units(p.lap.describe(), units)}.", "")]
@@ -1204,6 +1528,8 @@ def _pass_rows(c, units):
         t = f"{q.time:.2f} {'min' if q.time_unit == 'min' else 'passes'}"
         if q.strokes is not None:
             t += f" ({q.strokes} strokes)"
+        if not getattr(q, "even", True):
+            t += " (uneven)"
         rows.append((f"{q.order}", q.zone, f"{_num(q.centre_x_mm, units)}, {_num(q.centre_y_mm, units)}",
                      f"{_num(x0, units)} to {_num(x1, units)}, {_num(y0, units)} to {_num(y1, units)}",
                      _h(q.depth_um, units), t))
@@ -1214,12 +1540,13 @@ def _pass_cols(units):
     pu = "in" if units == "in" else "mm"
     return dict(col_x=(0.0, 0.07, 0.22, 0.40, 0.70, 0.84), fontsize=_TEXT_FS,
                 col_labels=("pass", "cells", f"centre x, y ({pu})", f"lap centre travels x, y ({pu})", "depth",
-                            "time"), wrap_chars=(None, 14, None, None, None, None))
+                            "time"), wrap_chars=(None, 14, None, None, None, 13))
 
 
 def _pass_intro():
     return [("Passes, highest first: work the lap evenly over the zone, its centre travelling within the extent "
-             "given, for the time given. Cells as on the bench chart.", "s")]
+             "given, for the time given ('uneven': longer in some cells than in others, as the bench chart "
+             "shows). Cells as on the bench chart.", "s")]
 
 
 def _passes_foot(c, units):
@@ -1283,6 +1610,9 @@ def _page_sources(fig, c, units):
 
     lines = [("Sources of the methods used in this report", "h")]
     lines += [f"• {s}" for s in c.sources]
+    provenance = limits_provenance_text(c.grades)
+    if provenance:
+        lines.append(f"• {provenance}")
     lines.append(("Cautions", "h"))
     lines += [f"• {v}" for v in c.cautions]
     lines.append("• flatcheck's numbers do not make handling, lapping or air work safe: local codes, the "
@@ -1292,6 +1622,23 @@ def _page_sources(fig, c, units):
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.86])
     plot.text_block(ax, lines, fontsize=8.5, wrap_chars=105)
     return []
+
+
+def picture_caption(content, what: str) -> tuple:
+    """The lines a picture written on its own carries: the surface, its identity, the dates and what it shows."""
+    ident = dict(content.identity).get("identity", "")
+    surface = content.heightmap.label or dict(content.identity).get("surface", "") or "surface"
+    who = surface if not ident or ident == "not stated" else f"{surface} · {ident}"
+    return (who, f"measured {content.date} · pictured {content.issued} by flatcheck · {what}")
+
+
+def _picture_what(name: str, axes, page_title: str) -> str:
+    """What a picture shows, in words: its first axes' title, else the page's title."""
+    for ax in axes:
+        title = ax.get_title(loc="left") or ax.get_title()
+        if title:
+            return title
+    return page_title.lower() if page_title else name.replace("-", " ")
 
 
 def _slug(text: str) -> str:
@@ -1314,7 +1661,7 @@ def write_report(path, content: ReportContent, *, units: str = "um", png_dir=Non
     units : {"um", "in"}
         Display units (µm and mm, or µin and inches).
     png_dir : str or Path, optional
-        An existing folder for the pictures as PNG files, each figure alone without the page's header,
+        A folder for the pictures as PNG files (created, with its parents, when missing), each figure alone without the page's header,
         footer, tables or text (``NN-<picture>.png``, NN the page); text-only pages give none.
     on_page : callable, optional
         Called with no argument after each page is drawn (progress).
@@ -1333,11 +1680,16 @@ def write_report(path, content: ReportContent, *, units: str = "um", png_dir=Non
     if units not in ("um", "in"):
         raise InputValueError(f"unknown display units {units!r}", fix="use 'um' or 'in'")
     path = Path(path)
-    if png_dir is not None:
+    if png_dir is not None:  # created as needed, as demo --out does (issue 15, item 11)
         png_dir = Path(png_dir)
-        if not png_dir.is_dir():
-            raise OutputError(f"cannot write pictures in {png_dir}: no such folder",
-                              fix="create the folder first or choose another")
+        if png_dir.exists() and not png_dir.is_dir():
+            raise OutputError(f"cannot write pictures in {png_dir}: it is a file, not a folder",
+                              fix="choose a folder for the pictures")
+        try:
+            png_dir.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise OutputError(f"cannot create the folder {png_dir}: {exc.strerror or exc}",
+                              fix="choose a folder you can write to") from None
     plan = _page_plan(content)
     pngs = []
     title = f"Flatness report: {content.heightmap.label}"
@@ -1345,11 +1697,13 @@ def write_report(path, content: ReportContent, *, units: str = "um", png_dir=Non
         for k, (page_title, draw) in enumerate(plan, start=1):
             fig = plot.new_figure()
             pictures = draw(fig, content, units) or []
+            if png_dir is not None:  # before the page's head and foot are drawn: the caption sits above the picture
+                for name, axes in pictures:
+                    caption = picture_caption(content, _picture_what(name, axes, page_title))
+                    pngs.append(plot.save_png(fig, png_dir / f"{k:02d}-{_slug(name)}.png", dpi=png_dpi, axes=axes,
+                                              caption=caption))
             _frame(fig, content, page_title, k, len(plan))
             book.add(fig)
-            if png_dir is not None:
-                for name, axes in pictures:
-                    pngs.append(plot.save_png(fig, png_dir / f"{k:02d}-{_slug(name)}.png", dpi=png_dpi, axes=axes))
             if on_page is not None:
                 on_page()
     return ReportFiles(path, len(plan), tuple(pngs))

@@ -59,7 +59,7 @@ def test_report_human_summary(cli, plate_csv, tmp_path):
     [
         ("-o", "report.txt"),  # not a PDF name
         ("-o", "missing-folder/r.pdf"),
-        ("-o", "r.pdf", "--png", "no-such-folder"),
+        ("-o", "r.pdf", "--png", "crown.csv"),  # a file where the picture folder would be (a missing one is made)
         ("-o", "r.pdf", "--trials", "0"),
         ("-o", "r.pdf", "--standard", "no-such-standard"),
         ("-o", "r.pdf", "--pad", "80x40"),  # a pad without its gap
@@ -205,18 +205,19 @@ def test_sample_reports_render_with_content_on_every_page(cli, tmp_path, name, a
 def test_report_names_its_slow_steps_on_a_status_line(cli, tmp_path, monkeypatch):
     # About two seconds passed between the Monte Carlo bar and the page bar with nothing shown: the air
     # bearing, the lapping plan and loading the plotting library now each say so while they run.
-    from flatcheck.cli import report_cmd
+    from flatcheck.cli import _report_job
 
     said = []
 
-    class Recorder(report_cmd.StatusLine):
+    class Recorder(_report_job.StatusLine):
         def __init__(self, enabled=True):
             super().__init__(False)
 
         def say(self, text):
             said.append(text)
 
-    monkeypatch.setattr(report_cmd, "StatusLine", Recorder)
+    # report_cmd imports StatusLine from _report_job when it runs (the command modules load little at start-up)
+    monkeypatch.setattr(_report_job, "StatusLine", Recorder)
     code, out, err = cli("report", SAMPLES / "guideway-KY-G1.toml", "-o", tmp_path / "r.pdf", "--trials", "100",
                          "--pad", "120x80", "--gap-um", "8", "--target-um", "2", "--lap-diameter-mm", "80")
     assert code == 0, err
@@ -260,3 +261,89 @@ def test_report_never_writes_over_its_input(cli, plate_csv, tmp_path):
     code, out, err = cli("report", src, "-o", tmp_path / "r.pdf", "--png", pics, "--no-uncertainty")
     _one_line_error(code, err)
     assert err.startswith("flatcheck: error: --png:") and src.read_bytes() == plate_csv.read_bytes()
+
+
+# ---------------------------------------------------------------- issue 19: set-up sheet page, supports before lapping
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_readings"
+
+
+def _page_index(text, title):
+    """Index of the first page whose title (the line after the running head, drawn last) is ``title``."""
+    for k, page in enumerate(text.split("\f")):
+        lines = [ln.strip() for ln in page.splitlines() if ln.strip()]
+        head = next(i for i, ln in enumerate(lines) if ln.startswith("FLATNESS REPORT"))
+        if lines[head + 1] == title:
+            return k
+    raise AssertionError(f"no page {title!r}")
+
+
+def _page(text, title):
+    """The text of the first page titled ``title``."""
+    return text.split("\f")[_page_index(text, title)]
+
+
+def test_a_survey_report_has_a_setup_sheet_page(cli, tmp_path, pdf_tools):
+    render, text_of = pdf_tools
+    blank = tmp_path / "plate.toml"
+    code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "--material",
+                         "granite", "-o", blank)
+    assert code == 0, err
+    from flatcheck.io import read_survey
+    from flatcheck.survey import simulate_survey
+
+    def bowl(x, y):  # invented: a 2 µm bowl
+        return 8e-6 * (x - 500.0) ** 2 + 6e-6 * (y - 315.0) ** 2
+
+    sim = simulate_survey(read_survey(blank), bowl, noise_sd=0.05, rng=1234, runs=("forward", "reverse"))
+    text = blank.read_text()
+    for r in (r for ln in sim.lines for r in ln.runs):  # each run in file order, as `flatcheck enter` fills them
+        text = text.replace("readings = []", "readings = [" + ", ".join(f"{v:.2f}" for v in r.readings) + "]", 1)
+    blank.write_text(text)
+    pdf = tmp_path / "r.pdf"
+    code, out, err = cli("report", blank, "-o", pdf, "--no-uncertainty")
+    assert code == 0, err
+    page = " ".join(_page(text_of(pdf), "Set-up sheet").split())  # wrapped lines joined
+    # every line read forward and back, in the order of the file; the autocollimator 150 mm behind each line's
+    # first station (SW at x 100, y 115 mm: -50, 115) with the mirror 150 + 50 = 200 to 150 + 800 - 50 = 900 mm away
+    assert page.count("forward + back") == 8
+    assert "-50, 115 (on a stand beside it)" in page and "200 to 900" in page
+    # three supports a fifth of the length and width in (common practice, no single source); soak; the caution
+    assert "(200, 126); (200, 504); (800, 315)" in page and "common practice, no single source" in page
+    assert "Soak" in page and "24 h" in page and "lifting gear" in page and "Granite plates" in page
+    assert "Airy" not in page  # a plate, not a long beam
+    # the page is drawn: the supports on the outline take up ink
+    pages = render(pdf)
+    k = _page_index(text_of(pdf), "Set-up sheet")
+    assert (pages[k][..., :3].mean(axis=2) < 128).mean() > 0.01
+
+
+def test_a_height_map_report_has_no_setup_sheet(cli, plate_csv, tmp_path, pdf_tools):
+    _, text_of = pdf_tools
+    code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf")
+    assert code == 0, err
+    assert "Set-up sheet" not in text_of(tmp_path / "r.pdf")
+
+
+def test_the_lapping_page_of_a_sagging_beam_says_supports_first(cli, tmp_path, pdf_tools):
+    # the sample guideway (2000 x 200 mm, invented) bows symmetrically along its length, the middle low: check the
+    # supports before any lapping (issue 19, item 6); its set-up sheet gives the Airy and Bessel points
+    _, text_of = pdf_tools
+    pdf = tmp_path / "g.pdf"
+    code, out, err = cli("report", SAMPLES / "guideway-KY-G1.toml", "-o", pdf, "--no-uncertainty", "--target-um", "2",
+                         "--lap-diameter-mm", "80")
+    assert code == 0, err
+    text = text_of(pdf)
+    lapping = _page(text, "Lapping plan")
+    assert "Supports first: a symmetric bow" in lapping and "the middle low" in lapping
+    assert lapping.index("Supports first") < lapping.index("Target 2.000 µm")
+    summary = _page(text, "Summary")
+    assert summary.index("Supports first") < summary.index("Target 2.000 µm")
+    setup = " ".join(_page(text, "Set-up sheet").split())
+    # Airy points L/sqrt(3) apart (beam theory): (2000 - 1154.7) / 2 = 423 mm from each end; Bessel 0.5594 L apart
+    # (from memory): 441 mm from each end
+    assert "Airy points 423 mm from each end (1155 mm apart" in setup and "Bessel points 441 mm" in setup
+    # a plate lapped to a target: no such message
+    code, out, err = cli("report", SAMPLES / "plate-KY-P3-2024-03-11.toml", "-o", tmp_path / "p.pdf",
+                         "--no-uncertainty", "--target-um", "1", "--lap-diameter-mm", "150")
+    assert code == 0, err
+    assert "Supports first" not in text_of(tmp_path / "p.pdf")
