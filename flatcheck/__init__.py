@@ -19,6 +19,8 @@ Flatness
     FlatnessParameters, evaluate_straightness, StraightnessReport, local_flatness,
     LocalFlatness, monte_carlo_flatness, FlatnessUncertainty, evaluate_surface,
     SurfaceEvaluation, survey_uncertainty
+Uncertainty budget
+    uncertainty_budget, UncertaintyBudget, LabDefaults, read_uncertainty_defaults
 Grades
     get_standard, tolerance, tolerances, plate_size, repeat_reading, Tolerance,
     Standard, RepeatReading, decide, assess_grades, Decision
@@ -56,6 +58,7 @@ __getattr__, __dir__, __all__ = _attach(
             'write_heightmap_csv',
             'read_bearing_toml',
             'open_surface',
+            'read_uncertainty_defaults',
         ),
         'survey': (
             'Survey',
@@ -103,6 +106,9 @@ __getattr__, __dir__, __all__ = _attach(
             'SurfaceEvaluation',
             'survey_uncertainty',
             'MeasuredSurface',
+            'uncertainty_budget',
+            'UncertaintyBudget',
+            'LabDefaults',
         ),
         'conformance': (
             'get_standard',
@@ -160,6 +166,7 @@ __getattr__, __dir__, __all__ = _attach(
             'DwellLog',
             'match_nodes',
         ),
+        'records': ('Register', 'register_path', 'surface_history', 'due_list', 'certificate_data', 'CertificateData'),
         'errors': (
             'FlatcheckError',
             'InputFormatError',

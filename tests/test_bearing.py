@@ -442,3 +442,54 @@ def test_carriage_errors_name_the_carriage_field():
     with pytest.raises(InputValueError, match="beyond its last position") as exc:
         station_positions(surf, Carriage.single(Pad.rect(100, 50, 8), travel_start_mm=900))
     assert "50 to 450 mm" in exc.value.fix
+
+
+# ---------------------------------------------------------------- issue 15, item 5: what a pad layout determines
+def _tilted_guideway():
+    """A 1000 x 300 mm surface that rises across (y) by 0.3 µm/100 mm more and more along x: a twist.
+
+    Analytic: z = 1e-6 x y (µm, x and y in mm), so the cross slope at x is dz/dy = 1e-6 x µm/mm.
+    """
+    x, y = np.meshgrid(np.linspace(0, 1000, 51), np.linspace(0, 300, 16))
+    return HeightMap(x.ravel(), y.ravel(), (1e-6 * x * y).ravel())
+
+
+def test_two_pads_in_line_along_the_travel_do_not_determine_roll():
+    hm = _tilted_guideway()
+    pad = Pad("rect", 120, 80, 8.0)
+    inline = Carriage((PlacedPad(pad, along_mm=150, name="front"), PlacedPad(pad, along_mm=-150, name="rear")))
+    r = evaluate_bearing(hm, inline, budget=MotionBudget(roll_arcsec=1.0))
+    # Two pads on one line along x, each free to pivot in its film: nothing holds the carriage about that line
+    # (a rigid body on two points has a free rotation about the line through them; statics, no single source)
+    assert r.motion.roll_determined is False and r.motion.pitch_determined is True
+    assert math.isnan(r.motion.roll_arcsec) and np.isnan(r.motion.roll_path_arcsec).all()
+    assert all(c.name != "carriage roll" for c in r.checks)  # no budget check on a figure that is not there
+    assert any("Roll is not determined" in n and "roll budget is not checked" in n for n in r.notes)
+    assert math.isfinite(r.motion.pitch_arcsec)
+
+
+def test_four_pads_determine_roll_from_the_surface_and_two_diagonal_pads_do_not():
+    hm = _tilted_guideway()
+    pad = Pad("rect", 60, 40, 8.0)
+    diagonal = Carriage((PlacedPad(pad, along_mm=100, across_mm=60, name="a"),
+                         PlacedPad(pad, along_mm=-100, across_mm=-60, name="b")))
+    r = evaluate_bearing(hm, diagonal)  # a rotation about the line through the two pads is free: both angles
+    assert r.motion.roll_determined is False and r.motion.pitch_determined is False
+    wide = Carriage(tuple(PlacedPad(pad, along_mm=a, across_mm=c, name=f"{a},{c}")
+                          for a in (-100, 100) for c in (-60, 60)))
+    r = evaluate_bearing(hm, wide)
+    assert r.motion.roll_determined is True and not any("not determined" in n for n in r.notes)
+    # Analytic: z = 1e-6 x y is bilinear, so the mean under each rectangular pad is its value at the pad centre,
+    # and the least-squares plane through (X +- 100, Y +- 60) has the cross slope 1e-6 X µm/mm (the mean of the
+    # two x). Roll in arcsec = slope (µm/mm = mrad) x 206.265 arcsec/mrad (1 rad = 648000/pi arcsec, exact).
+    m = r.motion
+    assert m.roll_path_arcsec == pytest.approx(1e-6 * m.x_mm * 206.264806, rel=1e-6, abs=1e-9)
+
+
+def test_a_bottom_face_carriage_says_which_face_the_surface_must_be():
+    hm = _tilted_guideway()
+    pad = Pad("rect", 60, 40, 8.0)
+    c = Carriage((PlacedPad(pad, along_mm=100, face="bottom", name="a"),
+                  PlacedPad(pad, along_mm=-100, face="bottom", name="b")), face="bottom")
+    r = evaluate_bearing(hm, c)
+    assert any("face 'bottom'" in n and "top face" in n for n in r.notes)

@@ -592,3 +592,68 @@ def test_passes_under_ten_seconds_are_flagged_with_the_cost_of_skipping_them():
     # a plan whose passes are all long enough flags none (the same plan at a tenth of the rate: ten times longer)
     slow = plan_lapping(hm, least_removal(hm, 0.2), LapModel("round", diameter_mm=20.0, rate_um=0.1))
     assert slow.too_short_by_hand == () and slow.flatness_skipping_short_um is None
+
+
+# ---------------------------------------------------------------- issue 15, item 13: plans a person can follow
+def test_lap_centre_never_dwells_where_the_lap_would_hang_over_an_edge(rng):
+    from flatcheck.lapping import MAX_OVERHANG_FRACTION, lap_centre_allowed
+
+    hm = _bumpy(rng)
+    lap = LapModel("round", diameter_mm=200.0, rate_um=1.0)
+    plan = plan_lapping(hm, least_removal(hm, 0.8), lap)
+    # the lap (radius 100 mm) may hang over by at most a quarter of its size (50 mm): its centre stays at least
+    # 50 mm inside the 1000 x 630 mm outline (common practice, no single source: an overhanging lap tips)
+    inset = 100.0 - MAX_OVERHANG_FRACTION * 200.0
+    X, Y = np.meshgrid(plan.xs_mm, plan.ys_mm)
+    near_edge = (X < inset - 1e-9) | (X > 1000.0 - inset + 1e-9) | (Y < inset - 1e-9) | (Y > 630.0 - inset + 1e-9)
+    assert near_edge.any()  # the dwell grid reaches the edges; the dwell does not
+    assert not plan.dwell[near_edge].any() and not plan.plan_dwell[near_edge].any()
+    for p in plan.passes:
+        x0, x1, y0, y1 = p.extent_mm
+        assert x0 >= inset - 1e-6 and x1 <= 1000.0 - inset + 1e-6 and y0 >= inset - 1e-6 and y1 <= 630 - inset + 1e-6
+    # a surface narrower than the allowed band: the middle line only
+    allowed = lap_centre_allowed(np.linspace(0, 300, 7), np.linspace(0, 40, 5), lap)
+    assert allowed.any(axis=1).sum() == 1 and allowed[2].any()
+
+
+def test_no_pass_in_the_same_place_twice_running():
+    # the pad sample's case (a 20 mm lap on an 80 mm pad face, target 0.2 µm): two layers of the dwell map
+    # covered the same cells with the same travel and were printed as two passes in a row
+    from pathlib import Path
+
+    from flatcheck.io import read_heightmap_csv
+
+    hm = read_heightmap_csv(Path(__file__).resolve().parents[1] / "sample_readings" / "pad-KY-B4-heights.csv")
+    for d in (16.0, 18.0, 20.0, 30.0):
+        plan = plan_lapping(hm, least_removal(hm, 0.2), LapModel("round", diameter_mm=d, rate_um=1.0))
+        places = [(p.zone, tuple(round(v) for v in p.extent_mm)) for p in plan.passes]
+        assert all(a != b for a, b in zip(places, places[1:])), (d, places)
+        # the passes as printed add up to the plan (Preston: removal = rate x dwell, additive)
+        assert sum(p.time for p in plan.passes) == pytest.approx(plan.total_time, rel=1e-9)
+
+
+def test_a_surface_already_within_the_target_gets_no_passes(rng):
+    hm = _bumpy(rng, noise=0.0)
+    flat = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um).flatness_um
+    plan = plan_lapping(hm, least_removal(hm, flat * 1.01), LapModel("round", diameter_mm=150.0, rate_um=1.0))
+    assert plan.passes == () and plan.total_time == 0.0
+
+
+def test_remaining_gain_inside_the_uncertainty_is_met_within_it():
+    from flatcheck.lapping import compare_surveys
+
+    x, y = _grid(7, 5)
+    # before: a 2 µm dome; after: the same dome lowered to 1.1 µm (invented). Target 1.0 µm, U of the after
+    # flatness 0.15 µm: the 0.1 µm still wanted is inside U (ISO 14253-1: the measurement cannot tell them apart)
+    dome = np.exp(-((x - 500) ** 2 + (y - 315) ** 2) / (2 * 200.0**2))
+    before = HeightMap(x, y, 2.0 * dome, length_mm=1000.0, width_mm=630.0)
+    after = HeightMap(x, y, 1.1 * dome, length_mm=1000.0, width_mm=630.0)
+    f_after = minimum_zone(x, y, 1.1 * dome).flatness_um
+    pr = compare_surveys(before, after, dwell_min=30.0, target_um=f_after - 0.1, u_after_um=0.15)
+    assert pr.sessions_to_target != 0 and pr.met_within_uncertainty is True
+    pr = compare_surveys(before, after, dwell_min=30.0, target_um=f_after - 0.1, u_after_um=0.05)
+    assert pr.met_within_uncertainty is False
+    pr = compare_surveys(before, after, dwell_min=30.0, target_um=f_after + 0.1, u_after_um=0.15)
+    assert pr.sessions_to_target == 0 and pr.met_within_uncertainty is False  # met outright, not "within U"
+    with pytest.raises(InputValueError):
+        compare_surveys(before, after, target_um=1.0, u_after_um=float("nan"))

@@ -365,3 +365,88 @@ def test_map_markers_at_the_edge_are_drawn_whole_and_the_colour_bar_matches_the_
             assert box.x0 <= b.x0 and b.x1 <= box.x1 and box.y0 <= b.y0 and b.y1 <= box.y1
         (cax,) = ax.child_axes
         assert cax.get_window_extent(r).height == pytest.approx(box.height, rel=0.01)
+
+
+# ---------------------------------------------------------------- issue 15, item 14: pictures that stand alone
+def test_plot_modules_are_split_by_what_they_draw():
+    from pathlib import Path
+
+    folder = Path(plot.__file__).parent
+    modules = sorted(p.name for p in folder.glob("_*.py"))
+    assert {"_maps.py", "_survey_plots.py", "_bearing_plots.py", "_lapping_plots.py"} <= set(modules)
+    for p in folder.glob("*.py"):  # STYLE.md: split a module that passes about 800 lines
+        assert len(p.read_text(encoding="utf-8").splitlines()) < 800, p.name
+    for name in plot.__all__:  # the old module's public names are still importable from flatcheck.output._plots
+        assert hasattr(plot, name), name
+
+
+def test_union_jack_arrowheads_do_not_meet_at_the_corners_and_stations_are_named():
+    xy, lines, L, W = _union_jack()
+    names = ["SW", "S", "SE", "W", "C", "E", "NW", "N", "NE"]
+    fig = plot.new_figure((6.9, 4.4))
+    ax = fig.add_axes([0.12, 0.12, 0.84, 0.78])
+    plot.survey_layout(ax, xy, lines, length_mm=L, width_mm=W, station_names=names)
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    heads = [t for t in ax.texts if t.get_gid() == "direction"]
+    assert len(heads) == len(lines)
+    tips = np.array([h.xy for h in heads])
+    # no arrowhead sits on a station (where several lines meet), and no two share a place
+    d_station = np.min(np.hypot(*(tips[:, None, :] - xy[None, :, :]).transpose(2, 0, 1)), axis=1)
+    assert d_station.min() > 20.0  # mm on a 1000 x 600 mm plate
+    d_tips = np.hypot(*(tips[:, None, :] - tips[None, :, :]).transpose(2, 0, 1)) + np.eye(len(tips)) * 1e9
+    assert d_tips.min() > 20.0
+    # each head points along its line towards the line's last station
+    for h, (name, idx) in zip(heads, lines):
+        direction = xy[idx[-1]] - xy[idx[0]]
+        assert np.dot(np.asarray(h.xy) - np.asarray(h.xyann), direction) > 0, name
+    named = [t for t in ax.texts if t.get_gid() == "station-name"]
+    assert {t.get_text() for t in named} <= set(names) and len(named) >= 6  # most fit; none overlaps a label
+    assert not _overlaps([(t.get_text(), t.get_window_extent(r)) for t in ax.texts
+                          if t.get_gid() in ("station-name", "line-label")])
+
+
+def test_residual_histogram_explains_its_lines():
+    fig = plot.new_figure((5, 3))
+    ax = fig.add_axes([0.15, 0.2, 0.8, 0.7])
+    r = np.random.default_rng(1234).normal(0, 0.05, 80)
+    plot.residual_histogram(ax, r)
+    legend = ax.get_legend()
+    assert legend is not None and "RMS" in legend.get_texts()[0].get_text()
+    # the dashed lines stand at -RMS and +RMS (numpy as the reference)
+    rms = float(np.sqrt(np.mean(r**2)))
+    xs = sorted(line.get_xdata()[0] for line in ax.lines)
+    assert xs == pytest.approx([-rms, rms])
+
+
+def test_a_picture_written_alone_keeps_its_second_axis_and_carries_its_caption(tmp_path):
+    fig = plot.new_figure((8, 5))
+    t = np.linspace(0, 1000, 51)
+    axes = plot.carriage_path(fig, t, np.sin(t / 200), np.sin(t / 200) * 0.8, pitch=np.cos(t / 200),
+                              local_um=np.abs(np.sin(t / 100)), local_limit_um=1.0, title="carriage")
+    bare = plot.save_png(fig, tmp_path / "bare.png", dpi=60, axes=axes[:1])
+    fig.canvas.draw()
+    twin = [a for a in fig.axes if a not in axes][0]
+    assert "pitch" in twin.get_ylabel()
+    r = fig.canvas.get_renderer()
+    # the crop holds the pitch axis's label: the picture reaches past the right spine by at least its width
+    right_in = (twin.yaxis.label.get_window_extent(r).x1 - axes[0].get_window_extent(r).x1) / fig.dpi
+    assert imread(bare).shape[1] / 60 > axes[0].get_window_extent(r).width / fig.dpi + right_in * 0.9
+    captioned = plot.save_png(fig, tmp_path / "cap.png", dpi=60, axes=axes[:1], caption=("plate KY-0", "measured"))
+    a, b = imread(bare), imread(captioned)
+    assert b.shape[0] > a.shape[0]  # the caption adds lines above the picture
+    assert not any(t.get_gid() == "caption" for t in fig.texts)  # and leaves the figure as it was
+
+
+def test_compare_change_map_labels_one_spot_with_one_depth_when_referred():
+    x, y = np.meshgrid(np.linspace(0, 1000, 11), np.linspace(0, 630, 7))
+    x, y = x.ravel(), y.ravel()
+    dip = 2.0 * np.exp(-((x - 400) ** 2 + (y - 300) ** 2) / (2 * 120.0**2))
+    before = 0.001 * x
+    after = before - dip
+    axes = plot.compare_change_map(None, x, y, before, after, dip, change_um=-dip)
+    texts = {t.get_gid(): t.get_text() for ax in axes for t in ax.texts if t.get_gid() in ("lowest", "deepest")}
+    # the removal is the dip itself; referred to the least removal's plane the change is -dip: same spot, same
+    # depth, told as a lowering and as a removal
+    assert texts["lowest"] == f"most lowered {-dip.max():+.2f} µm"
+    assert texts["deepest"] == f"deepest removal {dip.max():.2f} µm"

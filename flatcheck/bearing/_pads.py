@@ -24,8 +24,10 @@ Conventions
   so the two peaks are added (a bound that is reached when the peaks meet).
 - Pitch is positive when the carriage's front (larger x) rises; roll is positive when its +y side rises.
 - Gap-derived limit: ``gap_fraction * gap``; no published ratio exists, the default 1/4 is common practice.
-- Verdict: each check gives a ratio ``value / limit``; *unfit* if any ratio exceeds 1, *marginal* if the
-  largest ratio lies in ``[marginal_from, 1]`` (default 0.8, i.e. within 80-100 % of a limit), else *fit*.
+- Verdict: each check gives a ratio ``value / limit`` and an ISO 14253-1:2017 decision with the U of its figure
+  from the survey's budget (:mod:`flatcheck.bearing._uncertainty`; simple acceptance without one): *unfit* when
+  non-conformity is proven (value - U above the limit), *marginal* when undecided or when the ratio lies in
+  ``[marginal_from, 1]`` (default 0.8, i.e. within 80-100 % of a limit), else *fit*.
 
 References
 ----------
@@ -719,6 +721,14 @@ class Check:
         (for checks over the whole travel: the positions of its extremes).
     basis : str
         Where the limit comes from.
+    expanded_uncertainty : float or None
+        U of ``value`` in ``unit`` (coverage about 95 %) from the survey's budget; None when not known.
+    decision : {"conforms", "undecided", "does-not-conform"} or None
+        ISO 14253-1:2017 default rule with U (:func:`flatcheck.conformance.decide`), or simple acceptance
+        when U is not known; ``status`` follows it: does not conform -> unfit, undecided -> marginal,
+        conforms -> fit (marginal from ``marginal_from`` of the limit). None for checks judged otherwise.
+    rule : {"iso14253-1", "simple-acceptance"} or None
+        The rule applied.
     """
 
     name: str
@@ -729,6 +739,9 @@ class Check:
     status: str
     where: tuple
     basis: str
+    expanded_uncertainty: float | None = None
+    decision: str | None = None
+    rule: str | None = None
 
 
 @dataclass(frozen=True)
@@ -772,6 +785,8 @@ class BearingResult:
     warnings : tuple of str
         Cautions about this input: a surface longer across than along the travel, a survey too coarse to
         see the form under a pad, a pad-face map of another size than the pad.
+    uncertainty : BearingUncertainty or None
+        Which U the checks used and where it came from (:mod:`flatcheck.bearing._uncertainty`).
     """
 
     carriage: Carriage
@@ -791,6 +806,7 @@ class BearingResult:
     step_mm: float
     notes: tuple = field(default=())
     warnings: tuple = field(default=())
+    uncertainty: object = None
 
 
 def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarray, float, float]:
@@ -953,14 +969,6 @@ def _ranges(x_mm: np.ndarray, flags: np.ndarray) -> tuple:
     return tuple(out)
 
 
-def _status(ratio: float, marginal_from: float) -> str:
-    if ratio > 1.0:
-        return "unfit"
-    if ratio >= marginal_from:
-        return "marginal"
-    return "fit"
-
-
 def evaluate_bearing(
     surface: HeightMap,
     carriage: Carriage,
@@ -972,6 +980,7 @@ def evaluate_bearing(
     sample_pitch_mm: float | None = None,
     method: str = "linear",
     progress=None,
+    uncertainty=None,
 ) -> BearingResult:
     """Judge a measured surface for an air-bearing carriage and compute the carriage motion.
 
@@ -997,6 +1006,10 @@ def evaluate_bearing(
         Interpolation of the surface between its stations.
     progress : callable, optional
         Called with 1 after each carriage position (for a progress bar); never prints itself.
+    uncertainty : SurveyErrors, optional
+        Monte Carlo height errors of ``surface``'s stations from its uncertainty budget: each check of the
+        surface is then judged with the ISO 14253-1 default rule and the U the budget gives that figure
+        (:mod:`flatcheck.bearing._uncertainty`); without it, simple acceptance (said in the notes).
 
     Returns
     -------
@@ -1091,40 +1104,50 @@ def evaluate_bearing(
     limits = {p.name: gap_fraction * p.pad.gap_um for p in pads}
     gaps = {p.name: p.pad.gap_um for p in pads}
     basis_gap = f"{gap_fraction:g} of the air gap (common practice, no published ratio)"
+    # U of each figure from the survey's budget (ISO 14253-1 rule), or none (simple acceptance)
+    unc_info, u_of = _check_uncertainties(surface, pads, fps, x_ok, y0, uncertainty, method, limits, gaps,
+                                          pitch_fixed, roll_fixed)
     checks = []
     lf_ratio = np.array([max(ps.local_flatness_um / limits[ps.name] for ps in s.pads) for s in stations])
     worst = int(np.argmax(lf_ratio))
     worst_pad = max(stations[worst].pads, key=lambda ps: ps.local_flatness_um / limits[ps.name])
+    lim = limits[worst_pad.name]
     checks.append(
         _make_check(
-            "local flatness under pads", worst_pad.local_flatness_um, limits[worst_pad.name], "um",
+            "local flatness under pads", worst_pad.local_flatness_um, lim, "um",
             float(lf_ratio[worst]), marginal_from, x_ok, lf_ratio, basis_gap,
+            u=None if u_of.get("local_ratio") is None else u_of["local_ratio"] * lim,
         )
     )
     # clearance: the surface peak (plus pad-face peak) consumes part of the gap; contact at ratio > 1
     cl_ratio = np.array([max((gaps[ps.name] - ps.clearance_um) / gaps[ps.name] for ps in s.pads) for s in stations])
     worst = int(np.argmax(cl_ratio))
     worst_pad = min(stations[worst].pads, key=lambda ps: ps.clearance_um / gaps[ps.name])
+    gap = gaps[worst_pad.name]
     checks.append(
         _make_check(
-            "form under pads against the gap (clearance)", gaps[worst_pad.name] - worst_pad.clearance_um,
-            gaps[worst_pad.name], "um", float(cl_ratio[worst]), marginal_from, x_ok, cl_ratio,
+            "form under pads against the gap (clearance)", gap - worst_pad.clearance_um,
+            gap, "um", float(cl_ratio[worst]), marginal_from, x_ok, cl_ratio,
             "the nominal gap: at or above it the pad touches",
+            u=None if u_of.get("clearance_ratio") is None else u_of["clearance_ratio"] * gap,
         )
     )
-    if face is not None:
+    if face is not None:  # a pad-face map states no uncertainty: simple acceptance
         lim = min(limits.values())
         r = face.flatness_um / lim
-        checks.append(Check("pad face flatness", face.flatness_um, lim, "um", r, _status(r, marginal_from), (), basis_gap))
-    for name, value, lim, unit, series in (
-        ("carriage straightness", motion.straightness_um, budget.straightness_um, "um", None),
-        ("carriage pitch", motion.pitch_arcsec, budget.pitch_arcsec, "arcsec", pitch),
-        ("carriage roll", motion.roll_arcsec, budget.roll_arcsec, "arcsec", roll),
+        status, dec = _judge(face.flatness_um, lim, None, r, marginal_from)
+        checks.append(Check("pad face flatness", face.flatness_um, lim, "um", r, status, (), basis_gap, None,
+                            dec.verdict, dec.rule))
+    for name, value, lim, unit, series, key in (
+        ("carriage straightness", motion.straightness_um, budget.straightness_um, "um", None, "straightness_um"),
+        ("carriage pitch", motion.pitch_arcsec, budget.pitch_arcsec, "arcsec", pitch, "pitch_arcsec"),
+        ("carriage roll", motion.roll_arcsec, budget.roll_arcsec, "arcsec", roll, "roll_arcsec"),
     ):
         if lim is None or not math.isfinite(value):  # an angle the pads do not determine: said in the notes
             continue
         r = value / lim
-        status = _status(r, marginal_from)
+        u = u_of.get(key)
+        status, dec = _judge(value, lim, u, r, marginal_from)
         if status == "fit":
             where = ()
         elif series is None:
@@ -1132,14 +1155,16 @@ def evaluate_bearing(
         else:
             lo_x, hi_x = float(x_ok[int(np.argmin(series))]), float(x_ok[int(np.argmax(series))])
             where = ((lo_x, lo_x), (hi_x, hi_x))  # positions of the lowest and highest value
-        checks.append(Check(name, value, lim, unit, r, status, where, "motion budget (user)"))
+        checks.append(Check(name, value, lim, unit, r, status, where, "motion budget (user)", u, dec.verdict,
+                            dec.rule))
     order = {"fit": 0, "marginal": 1, "unfit": 2}
     verdict = max((c.status for c in checks), key=order.__getitem__)
 
     notes = (
         f"Limit: local form under a pad <= {gap_fraction:g} x gap; no standard publishes this ratio, the default "
         "1/4 is common practice.",
-        f"Marginal: a result within {marginal_from * 100:.0f}-100 % of its limit.",
+        f"Marginal: a result within {marginal_from * 100:.0f}-100 % of its limit, or undecided (within U of it).",
+        _rule_note(unc_info),
         "Pad plane: the pad face rests parallel to the least-squares plane of the surface under its footprint, "
         "the nominal gap above it; clearance = gap - highest point above that plane"
         + (" - pad face's highest point above its own least-squares plane." if face is not None else "."),
@@ -1173,6 +1198,7 @@ def evaluate_bearing(
         step_mm=step,
         notes=notes,
         warnings=warnings,
+        uncertainty=unc_info,
     )
 
 
@@ -1291,7 +1317,65 @@ def _input_warnings(surface: HeightMap, pads, xs: np.ndarray, y0: float, pad_fac
     return tuple(out)
 
 
-def _make_check(name, value, limit, unit, ratio, marginal_from, x_mm, ratios, basis) -> Check:
-    status = _status(ratio, marginal_from)
-    flags = ratios > 1.0 if status == "unfit" else ratios >= marginal_from
-    return Check(name, float(value), float(limit), unit, float(ratio), status, _ranges(x_mm, flags), basis)
+def _judge(value: float, limit: float, u: float | None, ratio: float, marginal_from: float):
+    """Status of one check and its ISO 14253-1 decision (:func:`flatcheck.conformance.decide`).
+
+    Does not conform (value - U above the limit) -> unfit; undecided -> marginal; conforms (value + U within
+    the limit) -> fit, or marginal from ``marginal_from`` of the limit. Without U, simple acceptance (the
+    decision says so); with U = 0 this is the status of the value alone.
+    """
+    from ..conformance import CONFORMS, DOES_NOT_CONFORM, decide
+
+    dec = decide(max(float(value), 0.0), float(limit), None if u is None else max(float(u), 0.0))
+    if dec.verdict == DOES_NOT_CONFORM:
+        return "unfit", dec
+    if dec.verdict == CONFORMS and ratio < marginal_from:
+        return "fit", dec
+    return "marginal", dec
+
+
+def _make_check(name, value, limit, unit, ratio, marginal_from, x_mm, ratios, basis, *, u=None) -> Check:
+    status, dec = _judge(value, limit, u, ratio, marginal_from)
+    du = 0.0 if u is None else float(u) / float(limit)  # U as a fraction of the limit, at every position
+    if status == "unfit":
+        flags = ratios - du > 1.0  # non-conformity proven there
+    else:
+        flags = (ratios + du > 1.0) | (ratios >= marginal_from)  # not proven fit there
+    return Check(name, float(value), float(limit), unit, float(ratio), status, _ranges(x_mm, flags), basis,
+                 None if u is None else float(u), dec.verdict, dec.rule)
+
+
+def _check_uncertainties(surface, pads, fps, x_ok, y0, uncertainty, method, limits, gaps, pitch_fixed, roll_fixed):
+    """(BearingUncertainty, {figure: U}) from the survey's Monte Carlo height errors, or simple acceptance."""
+    from ._uncertainty import MODEL_TEXT, NO_U_TEXT, BearingUncertainty, bearing_trials, local_uncertainty
+
+    if uncertainty is None:
+        return BearingUncertainty("simple-acceptance", NO_U_TEXT, "-"), {}
+    E = np.asarray(uncertainty.errors_um, dtype=float)
+    per_trial = x_ok.size * sum(fp.u_mm.size for fp in fps)
+    k = bearing_trials(E.shape[0], per_trial)
+    u = local_uncertainty(surface, pads, fps, x_ok, y0, E[:k], method=method,
+                          limits_um=[limits[p.name] for p in pads], gaps_um=[gaps[p.name] for p in pads],
+                          pitch_fixed=pitch_fixed, roll_fixed=roll_fixed)
+    lim = min(limits.values())
+    gap = min(gaps.values())
+    shown = {"local flatness under pads": u["local_ratio"] * lim,
+             "form under pads against the gap (clearance)": u["clearance_ratio"] * gap,
+             "carriage straightness": u["straightness_um"]}
+    for name, key in (("carriage pitch", "pitch_arcsec"), ("carriage roll", "roll_arcsec")):
+        if u[key] is not None:
+            shown[name] = u[key]
+    info = BearingUncertainty("iso14253-1", uncertainty.source, MODEL_TEXT, int(u["trials"]),
+                              surface_u_um=uncertainty.surface_u_um, seed=uncertainty.seed,
+                              budget_trials=uncertainty.budget_trials, expanded_uncertainty=shown)
+    return info, u
+
+
+def _rule_note(info) -> str:
+    """The decision rule of the checks, in a sentence."""
+    if info.rule != "iso14253-1":
+        return f"Decision rule: {info.source}."
+    return (f"Decision rule: ISO 14253-1:2017 default: fit only when value + U is within the limit, unfit only "
+            f"when value - U is beyond it, otherwise marginal; U (95 %) of each figure from {info.source}, "
+            f"{info.trials} trials carried to the figures under the pads (docs/methods.md); the pad-face map "
+            "and the film checks state no uncertainty and are judged by simple acceptance.")

@@ -28,6 +28,18 @@ def _fmt(v, units):
     return text[1:] if text.startswith("-") and float(text) == 0 else text
 
 
+def _closure(v, units):
+    """A closure error at the precision a flatness instrument gives (issue 15, item 8): 0.01 µm (10 nm; an
+    autocollimator's 0.1 arcsec over a 100 mm base is 0.05 µm) or whole µin, not nanometres."""
+    if not _finite(v):
+        return "-"
+    from ..units import um_to
+
+    x = um_to(v, units)
+    text = f"{x:.0f}" if units == "in" else f"{x:.2f}"
+    return text.lstrip("-") if float(text) == 0 else text
+
+
 def _window_text(lf: dict, units: str) -> str:
     """The local-flatness window in the display unit (the option takes mm)."""
     if units != "in":
@@ -54,11 +66,13 @@ def render_reduction(ev, doc, units, map_out) -> None:
     con = stdout_console()
     hu = height_unit_label(units)
     f = doc["flatness"]
-    con.print(f"[bold]{doc['surface']['description'] or 'Surface'}[/bold]  {doc['surface'].get('ident') or ''}")
-    con.print(f"  input: {doc['input']} ({doc['kind']})")
+    con.print(f"[bold]{escape(doc['surface']['description'] or 'Surface')}[/bold]  "
+              f"{escape(doc['surface'].get('ident') or '')}")
+    con.print(f"  input: {escape(str(doc['input']))} ({doc['kind']})")
     if doc.get("instrument"):
         ins = doc["instrument"]
-        con.print(f"  instrument: {ins['kind']}, readings in {ins['unit']}; pattern {doc.get('pattern')}")
+        con.print(f"  instrument: {escape(str(ins['kind']))}, readings in {escape(str(ins['unit']))}; "
+                  f"pattern {escape(str(doc.get('pattern')))}")
     con.print(f"  method: {ev.method_text}")
     con.print(
         f"  {ev.heightmap.n} {'stations' if ev.loaded.survey is not None else 'points'}"
@@ -76,19 +90,19 @@ def render_reduction(ev, doc, units, map_out) -> None:
     con.print(t)
     line = f"  flatness (minimum zone): [bold]{_fmt(f['minimum_zone_um'], units)} {hu}[/bold]"
     if f.get("expanded_uncertainty_um") is not None:
-        lo, hi = f["coverage_interval_um"]
-        line += (
-            f"  U = {_fmt(f['expanded_uncertainty_um'], units)} {hu} (k = 2 equivalent); 95 % interval "
-            f"{_fmt(lo, units)} to {_fmt(hi, units)} {hu}"
+        from ..units import format_with_uncertainty
+
+        U = f["expanded_uncertainty_um"]
+        v_txt, u_txt = format_with_uncertainty(f["minimum_zone_um"], U, units)
+        lo_txt, _ = format_with_uncertainty(f["coverage_interval_um"][0], U, units, unit=False)
+        hi_txt, _ = format_with_uncertainty(f["coverage_interval_um"][1], U, units, unit=False)
+        line = (
+            f"  flatness (minimum zone): [bold]{v_txt}[/bold], U = {u_txt}; 95 % interval {lo_txt} to {hi_txt} {hu} "
+            "(corrected for the noise bias)"
         )
     con.print(line)
     if ev.uncertainty is not None:
-        mz = ev.uncertainty.minimum_zone
-        con.print(
-            f"  [dim]Monte Carlo (JCGM 101), {mz.trials} trials, seed {mz.seed}: {ev.uncertainty.basis}; "
-            f"U = 2 x standard deviation; simulated mean {_fmt(mz.mean_um, units)} {hu} "
-            f"(random errors inflate a zone)[/dim]"
-        )
+        render_budget(con, ev, units)
     lf = doc.get("local_flatness")
     if lf:
         con.print(
@@ -112,11 +126,12 @@ def render_reduction(ev, doc, units, map_out) -> None:
             t.add_column("straightness (MZ)", justify="right")
             t.add_column("runs spread", justify="right")
             for ln in lines:
-                t.add_row(ln["name"], _fmt(ln["closure_um"], units), ln.get("closure_station") or "", _fmt(ln.get("straightness_um"), units), _fmt(ln.get("run_spread_um"), units))
+                t.add_row(escape(ln["name"]), _closure(ln["closure_um"], units), escape(ln.get("closure_station") or ""),
+                          _fmt(ln.get("straightness_um"), units), _fmt(ln.get("run_spread_um"), units))
             con.print(t)
             meaning = {ln["meaning"] for ln in lines if ln.get("meaning")}
             for m in meaning:
-                con.print(f"  [dim]closure: {m}[/dim]")
+                con.print(f"  [dim]closure: {escape(m)}[/dim]")
         # One line per suspect group (its text names the group); readings flagged only through a
         # suspect's error (group 0) are counted in the warnings, not listed.
         shown_groups = set()
@@ -137,11 +152,11 @@ def render_reduction(ev, doc, units, map_out) -> None:
         con.print(f"  [yellow]note:[/yellow] {escape(w)}")
     _render_map(con, ev, units)
     if map_out is not None:
-        con.print(f"  height map written to {map_out}")
+        con.print(f"  height map written to {escape(str(map_out))} (heights about the least-squares plane)")
 
 
 def _render_map(con, ev, units) -> None:
-    hm = ev.heightmap
+    hm = ev.heightmap_about_ls  # the plane the titles below name, for surveys and height maps alike
     hu = height_unit_label(units)
     if hm.grid is not None:
         xs, ys, index = hm.grid
@@ -184,7 +199,7 @@ def _render_map(con, ev, units) -> None:
             t.add_column("y in" if units == "in" else "y mm", justify="right")
             t.add_column(hu, justify="right")
         cells = [
-            (n, format_length(x, units, unit=False), format_length(y, units, unit=False), _fmt(z, units))
+            (escape(n), format_length(x, units, unit=False), format_length(y, units, unit=False), _fmt(z, units))
             for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
         ]
         half = (len(cells) + 1) // 2
@@ -192,3 +207,74 @@ def _render_map(con, ev, units) -> None:
             row = list(cells[i]) + (list(cells[i + half]) if i + half < len(cells) else [""] * 4)
             t.add_row(*row)
         con.print(t)
+
+
+def render_budget(con, ev, units) -> None:
+    """The uncertainty budget as a table: each source, its value and basis, its contribution; then u, U."""
+    from ..units import format_with_uncertainty
+
+    u = ev.uncertainty
+    b = u.budget
+    mz = u.minimum_zone
+    hu = height_unit_label(units)
+    if b is None:
+        return
+    t = Table(title=f"Uncertainty budget of the minimum-zone flatness ({hu})", title_justify="left")
+    t.add_column("source", no_wrap=True)
+    t.add_column("input", justify="right")
+    t.add_column("distribution")
+    t.add_column("basis")
+    t.add_column(f"u ({hu})", justify="right")
+    for e in b.entries:
+        if not e.applies:
+            value = "-"
+        elif e.unit == "relative":
+            value = f"{e.value * 100:.3g} %"
+        else:
+            value = f"{e.value:.3g} {e.unit}"
+        contrib = format_with_uncertainty(e.standard_uncertainty_um, b.combined_um or 1.0, units, unit=False)[0] \
+            if e.applies else "0"
+        t.add_row(escape(e.name), escape(value), escape(e.distribution.split(",")[0].split(";")[0]),
+                  escape(_short_basis(e)), contrib)
+    con.print(t)
+    con.print("  [dim]each source's full basis: --json (flatness.uncertainty_budget) or the report's uncertainty "
+              "page[/dim]")
+    _, uc = format_with_uncertainty(mz.estimate_um, b.combined_um, units)
+    _, U = format_with_uncertainty(mz.estimate_um, b.expanded_um, units)
+    con.print(
+        f"  combined standard uncertainty u = {uc} (root sum of squares of the rows "
+        f"{format_with_uncertainty(b.rss_um, b.combined_um or 1.0, units)[0]}); U = {U}, coverage factor "
+        f"{b.coverage_factor:.2f}; estimated noise bias {format_with_uncertainty(mz.bias_um, b.combined_um or 1.0, units)[0]}"
+    )
+    con.print(
+        f"  [dim]Monte Carlo (JCGM 101), {mz.trials} trials (each source alone {b.contribution_trials}), "
+        f"seed {mz.seed}; U reaches both ends of the bias-corrected 95 % interval and is at least 2 u[/dim]"
+    )
+    for n in b.notes:
+        con.print(f"  [dim]{escape(n)}[/dim]")
+    if b.repeat is not None:
+        r = b.repeat
+        verdict = f"; range {r.range_:.3g} {r.unit} against tolerance {r.tolerance:g} {r.unit}: {r.verdict}" \
+            if r.tolerance is not None else ""
+        con.print(f"  repeat readings ({r.kind}): {escape(r.note)}{verdict}")
+
+
+def _short_basis(e) -> str:
+    """A budget row's basis in a few words (the full text is in the JSON and the report)."""
+    b = e.basis
+    if not e.applies:
+        return "does not apply" if b.startswith("does not apply") else "in the residuals"
+    if b.startswith("stated"):
+        return "stated"
+    if b.startswith("from the survey's own residuals"):
+        return "residuals"
+    if b.startswith("measured repeat readings"):
+        return "repeat readings"
+    if b.startswith("model"):
+        return "DEFAULT: model"
+    if b.startswith("lab default"):
+        return "DEFAULT: lab file"
+    for tag in ("from memory", "common practice", "trade data"):
+        if tag in b:
+            return f"DEFAULT: {tag}"
+    return "DEFAULT" if e.default else "stated"

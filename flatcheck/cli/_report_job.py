@@ -65,8 +65,8 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
     if not folder.is_dir():
         raise OutputError(f"cannot write {output}: folder {folder} does not exist", where="-o",
                           fix="create the folder or choose another path")
-    if png is not None and not png.is_dir():
-        raise OutputError(f"{png} is not an existing folder", where="--png", fix="create the folder first")
+    if png is not None and png.exists() and not png.is_dir():  # a missing folder is made, as demo --out makes its own
+        raise OutputError(f"{png} exists and is not a folder", where="--png", fix="choose a folder for the pictures")
     if standard is not None:
         from ..conformance import get_standard
 
@@ -95,7 +95,8 @@ def refuse_pictures_over_inputs(png: Path | None, inputs) -> None:
 
 
 def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, seed: int | None,
-                        u_height_um: float | None, show_progress: bool = True, status: StatusLine | None = None):
+                        u_height_um: float | None, show_progress: bool = True, status: StatusLine | None = None,
+                        lab_defaults=None):
     """The shared evaluation, with Monte Carlo uncertainty when it can be had.
 
     Returns ``(evaluation, why_not)``: ``why_not`` says why there is no uncertainty (or is None).
@@ -113,7 +114,10 @@ def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, 
     if loaded.survey is None and u_height_um is None:
         return evaluate_surface(loaded, window=window), (
             "not evaluated: a height map carries no reading uncertainty (give --u-height-um)")
-    mc = dict(trials=trials, seed=seed, u_height_um=u_height_um)
+    from ..bearing import BEARING_TRIALS
+
+    # the first trials' errors are kept for the bearing page's U (flatcheck.bearing._uncertainty)
+    mc = dict(trials=trials, seed=seed, u_height_um=u_height_um, lab_defaults=lab_defaults, keep_trials=BEARING_TRIALS)
     try:
         with progress_bar("Monte Carlo", trials, enabled=show_progress) as advance:
             def step(n=1):
@@ -125,7 +129,70 @@ def evaluate_for_report(loaded, *, window: str, uncertainty: bool, trials: int, 
         return evaluate_surface(loaded, window=window), f"not evaluated: {exc.message}"
 
 
-def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_progress: bool, **analysis):
+def certificate_for_report(db: Path | None, input: Path, *, prefix: str | None, standard: str | None, method: str,
+                           trials: int | None, seed: int | None):
+    """``report --db``: the certificate of the survey in ``input``, found in the register by the hash of its text.
+
+    Returns ``(certificate, trials, seed)``: the :class:`~flatcheck.records.CertificateData` (its number
+    issued now, or the one issued before) or None without ``db``, and the Monte Carlo trials and seed
+    to evaluate with: the register's, unless given, so that the report's pages state the certificate's U.
+
+    Raises
+    ------
+    InputValueError
+        ``--prefix`` without ``--db``; ``--standard`` with it (the grades come from the register's limits
+        table); a survey that is not in the register; another reduction than the register's.
+    RegisterError
+        A file that is not a register, or a damaged one (refused unchanged).
+    """
+    if db is None:
+        if prefix is not None:
+            raise InputValueError("--prefix numbers a certificate, and certificates come from the register",
+                                  where="--prefix", fix="add --db REGISTER, or leave out --prefix")
+        return None, trials, seed
+    if standard is not None:
+        raise InputValueError("with --db the grades come from the register's limits table", where="--standard",
+                              fix="leave out --standard; set the grade sought with 'flatcheck register surface IDENT "
+                              "--standard ... --grade ...'")
+    from ..records import Register, certificate_data, check_prefix, text_sha256
+
+    if prefix is not None:
+        prefix = check_prefix(prefix)
+    try:
+        row_hash = text_sha256(input.read_bytes().decode("utf-8-sig"))
+    except (OSError, UnicodeDecodeError):
+        row_hash = None  # not text (an X3P file): the register holds no such survey
+    with Register.open(db) as reg:  # checked before anything is written; a missing register is named
+        row = None if row_hash is None else reg.find_hash(row_hash)
+        if row is None:
+            raise InputValueError(f"this survey is not in the register {db}", where=str(input),
+                                  fix=f"add it first with 'flatcheck register add {input} --db {db}'")
+        if row.kind == "survey" and row.method != method:
+            raise InputValueError(f"the register holds this survey reduced by the {row.method} method",
+                                  where="--method",
+                                  fix=f"give --method {row.method} (the report then states the certificate's numbers)")
+        if prefix is not None and reg.setting("certificate_prefix") != prefix:
+            reg.set_setting("certificate_prefix", prefix)
+        detail = reg.survey_detail(row.survey_id)
+        cert = certificate_data(reg, row.survey_id, prefix=prefix)
+    return cert, detail.trials if trials is None else trials, detail.seed if seed is None else seed
+
+
+def _with_certificate(content, certificate):
+    """The report's content with the certificate's pages; a note on them if the report's numbers differ."""
+    import dataclasses
+
+    from ..records import evaluation_note
+
+    note = evaluation_note(certificate, content.flatness.mzpl.fltt_um, content.u_mz_um)
+    if note:
+        certificate = dataclasses.replace(certificate, notes=certificate.notes + (note,))
+    date = content.date if content.date != "not stated" else certificate.measured_on  # a CSV's '# date = ...'
+    return dataclasses.replace(content, certificate=certificate, date=date)
+
+
+def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_progress: bool, certificate=None,
+                **analysis):
     """Gather and write the report, with a status line and a progress bar on stderr; returns (content, files).
 
     The steps between the Monte Carlo bar and the page bar (grades, the air bearing, the lapping plan,
@@ -135,6 +202,8 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
 
     with StatusLine(show_progress) as status:
         content = analyse(evaluation, progress=status.say, **analysis)
+        if certificate is not None:  # report --db: the certificate's pages, from the register
+            content = _with_certificate(content, certificate)
         status.say("loading the plotting library")
         from ..output import _plots as plot  # noqa: F401  (the first import takes a second or so: say so)
 
@@ -146,7 +215,8 @@ def make_report(evaluation, *, output: Path, png: Path | None, units: str, show_
 
 
 def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_size_mm, rate_um_per_min,
-                         rate_um_per_pass, strokes_per_pass, stroke_mm) -> dict:
+                         rate_um_per_pass, strokes_per_pass, stroke_mm, target_gap_um=None,
+                         gap_fraction=None) -> dict:
     """Target, lap and notes of the lapping page, parsed and checked as ``flatcheck lap`` does (empty: no page).
 
     The lap's numbers are checked by :func:`~flatcheck.cli.lap_cmd.build_lap`; ``report_cmd`` also
@@ -160,14 +230,20 @@ def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_si
     """
     lap_given = any(v is not None for v in (lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass,
                                             strokes_per_pass)) or stroke_mm
-    if target_um is None and target_grade is None:
+    if target_um is None and target_grade is None and target_gap_um is None:
+        if gap_fraction is not None:  # the same words as lap and compare
+            from ..lapping import resolve_target
+
+            resolve_target(hm, None, None, None, gap_fraction)
         if lap_given:
-            raise InputValueError("lap options without a target", where="--target-um/--target-grade",
-                                  fix="add --target-um T or --target-grade STANDARD:GRADE for the lapping page")
+            raise InputValueError("lap options without a target", where="--target-um/--target-grade/--target-gap-um",
+                                  fix="add --target-um T, --target-grade STANDARD:GRADE or --target-gap-um GAP for "
+                                      "the lapping page")
         return {}
     from ..lapping import build_lap, check_lap_on_surface, resolve_target
 
-    target, source = resolve_target(hm, target_um, target_grade)
+    # the same targets as lap and compare: a number, a grade, or the limit an air gap allows (issue 15, item 11)
+    target, source = resolve_target(hm, target_um, target_grade, target_gap_um, gap_fraction)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass,
                            stroke_mm or 0.0)
     # as flatcheck lap: the lap must not cover the whole surface, and its chart cells must be few enough to print
@@ -175,6 +251,40 @@ def lapping_from_options(hm, *, target_um, target_grade, lap_diameter_mm, lap_si
                          cell_option=None)
     return dict(target_um=target, target_source=source, lap=lap, lap_notes=tuple(notes),
                 lap_rate_assumed=rate_um_per_min is None and rate_um_per_pass is None)
+
+
+def guard_band_lapping(lapping: dict, ev, why_not, *, target_um, target_grade, target_gap_um, guard_band,
+                       units: str) -> dict:
+    """The lapping page's target with its ISO 14253-1 guard band, as ``flatcheck lap`` sets it.
+
+    The guard band is the U of the report's own evaluation (the survey's budget), taken as the estimate of the
+    survey after lapping; a target from a grade or a gap is aimed below by it, a ``--target-um`` only with
+    ``--guard-band``.
+
+    Raises
+    ------
+    InputValueError
+        A guard band as large as the limit, or ``--guard-band budget`` with no U (naming ``--guard-band``).
+    """
+    from ..lapping import guard_banded, needs_budget_u, parse_guard_band, target_kind
+
+    if not lapping:
+        return lapping
+    mode = parse_guard_band(guard_band)
+    kind = target_kind(target_um, target_grade, target_gap_um)
+    u = u_src = None
+    if needs_budget_u(kind, mode):
+        unc = ev.uncertainty
+        if unc is not None:
+            mz = unc.minimum_zone
+            u = float(mz.expanded_um)
+            u_src = (f"U of this survey's uncertainty budget as the estimate of the next survey's (Monte Carlo, "
+                     f"JCGM 101:2008, {mz.trials} trials, seed {mz.seed})")
+        else:
+            u_src = f"U {why_not}" if why_not else None
+    tgt = guard_banded(lapping["target_um"], lapping["target_source"], kind, mode, u, u_src)
+    return dict(lapping, target_um=tgt.aim_um, target_source=tgt.source_text(units),
+                lap_notes=tuple(tgt.notes) + tuple(lapping.get("lap_notes", ())))
 
 
 def report_json(content, files, input_path) -> dict:
@@ -202,6 +312,7 @@ def report_json(content, files, input_path) -> dict:
                   for ln in content.lines],
         "grades": [{"grade": g.grade, "tolerance_um": g.tolerance_um, "verdict": g.verdict} for g in content.grades],
         "bearing_verdict": None if content.bearing is None else content.bearing.verdict,
+        "certificate": None if content.certificate is None else content.certificate.number,
         "lapping": None if content.lapping is None else {
             "target_um": content.lapping.removal.target_um,
             "lap": content.lapping.lap.describe(),

@@ -16,11 +16,17 @@ from typing import TYPE_CHECKING
 from ._app import app
 from .common import (
     SAFETY_LINES,
+    auto_trials_option,
+    default_auto_trials,
     emit_json,
     load_input,
+    load_lab_defaults,
     progress_bar,
     refuse_overwriting_inputs,
+    seed_option,
     stdout_console,
+    u_height_option,
+    uncertainty_defaults_option,
     Units,
     units_option,
 )
@@ -59,6 +65,7 @@ def result_json(result: BearingResult, *, input_path: Path, label: str, units: s
         "clearance_min_um": result.clearance_min_um,
         "verdict": result.verdict,
         "checks": result.checks,
+        "uncertainty": _uncertainty_json(result),
         "motion": {
             "straightness_um": m.straightness_um,
             "pitch_arcsec": m.pitch_arcsec,
@@ -69,6 +76,9 @@ def result_json(result: BearingResult, *, input_path: Path, label: str, units: s
             "pitch_path_arcsec": m.pitch_path_arcsec,
             "roll_path_arcsec": m.roll_path_arcsec,
             "raw_profile_um": m.raw_profile_um,
+            # false: the pads stand on one line and do not fix that angle (its figures are then null)
+            "pitch_determined": getattr(m, "pitch_determined", True),
+            "roll_determined": getattr(m, "roll_determined", True),
         },
         "stations": result.stations,
         "excluded": [{"x_mm": x, "reason": why} for x, why in result.excluded],
@@ -151,7 +161,7 @@ def _fmt_where(where) -> str:
 def render_summary(result: BearingResult, *, label: str, units: str) -> None:
     """Human summary on standard output (rich)."""
     from rich.table import Table
-    from ..units import format_height
+    from ..units import format_height, format_with_uncertainty, round_to_uncertainty
 
     con = stdout_console()
 
@@ -160,11 +170,14 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
 
     colour = {"fit": "green", "marginal": "yellow", "unfit": "red"}[result.verdict]
     pads = result.carriage.active_pads
-    con.print(f"[bold]Air-bearing fitness[/bold]  {label}")
+    from rich.markup import escape
+
+    con.print(f"[bold]Air-bearing fitness[/bold]  {escape(label)}")
     for p in pads:
-        con.print(f"  {p.name}: {p.pad.describe()}, at {p.along_mm:g} / {p.across_mm:g} mm (along / across)")
+        con.print(f"  {escape(p.name)}: {escape(p.pad.describe())}, at {p.along_mm:g} / {p.across_mm:g} mm "
+                  "(along / across)")
     if result.skipped_pads:
-        con.print(f"  not evaluated (other face): {', '.join(result.skipped_pads)}")
+        con.print(f"  not evaluated (other face): {escape(', '.join(result.skipped_pads))}")
     m = result.motion
     con.print(
         f"  {len(result.stations)} positions x = {m.x_mm[0]:.1f}–{m.x_mm[-1]:.1f} mm, step {result.step_mm:.2f} mm; "
@@ -177,24 +190,45 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
             f"x = {min(xs):.1f}–{max(xs):.1f} mm[/yellow]"
         )
     for w in result.warnings:
-        con.print(f"[yellow]Warning:[/yellow] {w}")
+        con.print(f"[yellow]Warning:[/yellow] {escape(w)}")
     table = Table(title="Checks", title_justify="left")
-    for col in ("check", "result", "limit", "of limit", "status", "where"):
+    for col in ("check", "result", "U (95 %)", "limit", "of limit", "status", "decision", "where"):
         table.add_column(col)
     for c in result.checks:
+        u = getattr(c, "expanded_uncertainty", None)
+        u_txt = "-"
         if c.unit == "um":
             val, lim = h(c.value), h(c.limit)
+            if u is not None:  # U to two significant digits, the value to the same decimal place
+                val, u_txt = format_with_uncertainty(c.value, u, units)
         elif c.unit == "%":
             val, lim = f"{c.value:.1f} %", f"{c.limit:.1f} %"
         else:
             val, lim = f"{c.value:.2f} arcsec", f"{c.limit:.2f} arcsec"
+            if u is not None:
+                _, _, dec = round_to_uncertainty(c.value, u)
+                val, u_txt = f"{c.value:.{max(dec, 0)}f} arcsec", f"{u:.{max(dec, 0)}f} arcsec"
         st = {"fit": "green", "marginal": "yellow", "unfit": "red"}[c.status]
-        table.add_row(c.name, val, lim, f"{100 * c.ratio:.0f} %", f"[{st}]{c.status}[/{st}]", _fmt_where(c.where))
+        dec_txt = "-" if getattr(c, "decision", None) is None else (
+            c.decision + (" (simple acceptance)" if c.rule == "simple-acceptance" else ""))
+        table.add_row(escape(c.name), val, u_txt, lim, f"{100 * c.ratio:.0f} %", f"[{st}]{c.status}[/{st}]",
+                      dec_txt, _fmt_where(c.where))
     con.print(table)
+    info = getattr(result, "uncertainty", None)
+    if info is not None:
+        if info.rule == "iso14253-1":
+            whole = ("" if info.surface_u_um is None else
+                     f" (U of the whole surface's flatness {format_with_uncertainty(info.surface_u_um, info.surface_u_um, units)[1]})")
+            con.print(f"Uncertainty: ISO 14253-1 decisions with U of each figure from {escape(info.source)}{whole}; "
+                      f"{info.trials} trials carried to the figures under the pads (bound model, docs/methods.md)")
     raw = "n/a" if not (m.raw_straightness_um == m.raw_straightness_um) else h(m.raw_straightness_um)
+    def angle(value, determined):  # an angle the pads cannot fix is said so, not given a number (issue 15, item 5)
+        return f"{value:.2f} arcsec" if determined else "not determined by this carriage (its pads stand on one line)"
+
     con.print(
         f"Carriage motion: straightness {h(m.straightness_um)} (minimum zone; raw surface on the centre line {raw}), "
-        f"pitch {m.pitch_arcsec:.2f} arcsec, roll {m.roll_arcsec:.2f} arcsec (peak-to-valley)"
+        f"pitch {angle(m.pitch_arcsec, getattr(m, 'pitch_determined', True))}, "
+        f"roll {angle(m.roll_arcsec, getattr(m, 'roll_determined', True))} (peak-to-valley)"
     )
     con.print(
         f"Local flatness under the pads: max {h(result.local_flatness_max_um)}; least clearance "
@@ -202,7 +236,7 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
     )
     con.print(f"Verdict: [bold {colour}]{result.verdict.upper()}[/bold {colour}]")
     for note in result.notes:
-        con.print(f"[dim]{note}[/dim]")
+        con.print(f"[dim]{escape(note)}[/dim]")
     con.print(f"[bold]Caution:[/bold] {SAFETY_LINES['air']}")
 
 
@@ -252,8 +286,19 @@ def bearing_cmd(
     plot_out: Path = typer.Option(
         None, "--plot", help="Write a PNG of the carriage path, rail profile, pitch and local flatness along the travel."
     ),
+    no_uncertainty: bool = typer.Option(
+        False, "--no-uncertainty",
+        help="Do not evaluate U: the checks are then judged by simple acceptance (value against limit).",
+    ),
+    trials: int | None = auto_trials_option(),
+    seed: int = seed_option(),
+    u_height_um: float = u_height_option(),
+    uncertainty_defaults: Path = uncertainty_defaults_option(),
 ) -> None:
-    """Judge the surface for air-bearing pads: local flatness against the gap, clearance, carriage motion."""
+    """Judge the surface for air-bearing pads: local flatness against the gap, clearance, carriage motion.
+
+    Each check of the surface is decided by the ISO 14253-1 rule with U from the survey's uncertainty budget
+    (as 'flatcheck grade'), carried to the figures under the pads."""
     from ..bearing import MotionBudget
     from ..bearing import carriage_from_options
     from ..bearing import evaluate_bearing
@@ -276,6 +321,13 @@ def bearing_cmd(
         travel=(travel_start_mm, travel_end_mm),
     )
     _check_mesh(film_mesh)
+    from ..limits import check_range
+
+    for opt, v, limit_kind in (("--y-mm", y_mm, "position_mm"), ("--travel-start-mm", travel_start_mm, "position_mm"),
+                               ("--travel-end-mm", travel_end_mm, "position_mm"), ("--gap-um", gap_um, "gap_um")):
+        if v is not None:  # named as given, before any file is read (docs/limits.md)
+            check_range(v, limit_kind, where=opt, name={"--gap-um": "the air gap", "--y-mm": "the carriage position"}
+                        .get(opt, opt.lstrip("-").replace("-", " ")))
     refuse_overwriting_inputs({"--plot": plot_out}, [input, bearing, pad_face])
     carriage, fraction, marginal, budget = carriage_from_options(
         None if bearing is None else read_bearing_toml(bearing),
@@ -294,7 +346,10 @@ def bearing_cmd(
     )
     fraction = gap_fraction if gap_fraction is not None else (fraction if fraction is not None else DEFAULT_GAP_FRACTION)
     marginal = marginal_from if marginal_from is not None else (marginal if marginal is not None else DEFAULT_MARGINAL_FROM)
-    surface = load_input(input).heightmap
+    if trials is not None:
+        check_range(trials, "trials", where="--trials", name="the number of trials")
+    loaded = load_input(input)
+    surface = loaded.heightmap
     face = read_heightmap_csv(pad_face) if pad_face is not None else None
     try:
         n = len(station_positions(surface, carriage)[0])
@@ -303,6 +358,8 @@ def bearing_cmd(
             exc.message, where=_origin(exc.where, carriage, bearing, step_mm, travel_start_mm, travel_end_mm),
             fix=exc.fix,
         ) from None
+    errors, u_note = _survey_errors(loaded, no_uncertainty=no_uncertainty, trials=trials, seed=seed,
+                                    u_height_um=u_height_um, uncertainty_defaults=uncertainty_defaults)
     with progress_bar("bearing positions", n, enabled=n * len(carriage.active_pads) > 200) as advance:
         result = evaluate_bearing(
             surface,
@@ -314,7 +371,12 @@ def bearing_cmd(
             sample_pitch_mm=sample_pitch_mm,
             method=interp.value,
             progress=advance,
+            uncertainty=errors,
         )
+    if u_note:
+        import dataclasses
+
+        result = dataclasses.replace(result, notes=tuple(result.notes) + (u_note,))
     film = None
     orifice_opts = {"--orifice-mm": orifice_mm, "--cd": cd, "--orifices": orifices, "--pocket-mm": pocket_mm,
                     "--pocket-depth-um": pocket_depth_um}
@@ -328,7 +390,9 @@ def bearing_cmd(
 
         fig = plot.new_figure((11.0, 7.0))
         plot.bearing_motion(fig, result, units=units.value)
-        plot.save_png(fig, plot_out, dpi=120)
+        plot.save_png(fig, plot_out, dpi=120, caption=(
+            label, f"{input.name} · pictured by flatcheck · air-bearing carriage over its travel: path, surface, "
+            "pitch and local flatness under the pads"))
     if json_out:
         data = result_json(result, input_path=input, label=label, units=units.value)
         if film is not None:
@@ -340,6 +404,47 @@ def bearing_cmd(
             _render_film(film, units=units.value)
         if plot_out is not None:
             stdout_console().print(f"picture written to {plot_out}")
+
+
+def _survey_errors(loaded, *, no_uncertainty, trials, seed, u_height_um, uncertainty_defaults):
+    """The survey's Monte Carlo height errors from its uncertainty budget (``SurveyErrors``), and a note when
+    none could be had (then the checks are judged by simple acceptance, which the result says)."""
+    from ..bearing import BEARING_TRIALS, SurveyErrors
+    from ..evaluation import survey_uncertainty
+
+    if no_uncertainty:
+        return None, "U not evaluated (--no-uncertainty): simple acceptance."
+    if loaded.survey is None and u_height_um is None:
+        return None, ("U not evaluated: a height map carries no reading uncertainty (give --u-height-um for U "
+                      "from a budget): simple acceptance.")
+    n = loaded.heightmap.x_mm.size
+    total = default_auto_trials(n) if trials is None else trials
+    try:
+        with progress_bar("Monte Carlo", total) as advance:
+            mc = survey_uncertainty(loaded, trials=total, seed=seed, u_height_um=u_height_um, progress=advance,
+                                    lab_defaults=load_lab_defaults(uncertainty_defaults), keep_trials=BEARING_TRIALS)
+    except InputValueError as exc:
+        if exc.where and str(exc.where).startswith("--"):  # an option of this command: the person's to fix
+            raise
+        return None, f"U not evaluated: {exc.message}: simple acceptance."
+    return SurveyErrors.from_budget(mc.budget), None
+
+
+def _uncertainty_json(result) -> dict | None:
+    """Which U the checks used and where it came from (each check carries its own U)."""
+    info = getattr(result, "uncertainty", None)
+    if info is None:
+        return None
+    return {
+        "rule": info.rule,
+        "source": info.source,
+        "model": info.model,
+        "trials": info.trials,
+        "coverage": info.coverage,
+        "surface_expanded_uncertainty_um": info.surface_u_um,
+        "seed": info.seed,
+        "budget_trials": info.budget_trials,
+    }
 
 
 def _film(surface, carriage, result, feed, load_n, pivot, mesh, method):
@@ -359,6 +464,7 @@ def _add_film_json(data: dict, film) -> None:
     from .common import jsonable
 
     from ..bearing import KG_S_TO_MG_S, OrificeFeed, orifice_notes
+    from ..units import normal_litres_per_min
 
     c = film.curve
     f = film.feed
@@ -386,7 +492,8 @@ def _add_film_json(data: dict, film) -> None:
             "layer_mm": f.layer_mm,
         }
     curve = [
-        {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q, "mass_flow_mg_per_s": m * KG_S_TO_MG_S}
+        {"gap_um": g, "load_n": w, "stiffness_n_per_um": k, "flow_l_per_min": q,
+         "flow_nl_per_min": float(normal_litres_per_min(m)), "mass_flow_mg_per_s": m * KG_S_TO_MG_S}
         for g, w, k, q, m in zip(c.gap_um, c.load_n, c.stiffness_n_per_um, c.flow_l_per_min, c.mass_flow_kg_s)
     ]
     if orifice:
@@ -437,7 +544,11 @@ def _curve_table(film, *, units: str, orifice: bool) -> Table:
     rows, nominal, peak = curve_table_rows(c, gap)
     whose = "" if len(film.pads) == 1 else f" (pad {film.curve_pad!r})"
     table = Table(title=f"Flat guide, uniform gap{whose}", title_justify="left")
-    cols = [f"gap ({height_unit_label(units)})", "load (N)", "stiffness (N/µm)", "flow (l/min)", "mass (mg/s)"]
+    from ..units import normal_litres_per_min
+
+    # air flow in normal litres per minute: litres at 0 °C and 101.325 kPa (DIN 1343), whatever the day's
+    # pressure and temperature (issue 15, item 7); the mass flow beside it
+    cols = [f"gap ({height_unit_label(units)})", "load (N)", "stiffness (N/µm)", "flow (NL/min)", "mass (mg/s)"]
     if orifice:
         cols.append("pr/ps")
     for col in cols:
@@ -447,7 +558,7 @@ def _curve_table(film, *, units: str, orifice: bool) -> Table:
         mark = ", ".join(m for m, ok in (("nominal gap", i == nominal), ("peak stiffness", i == peak)) if ok)
         cells = [
             format_height(float(c.gap_um[i]), units, unit=False),
-            f"{c.load_n[i]:.1f}", f"{c.stiffness_n_per_um[i]:.2f}", _sig3(c.flow_l_per_min[i]),
+            f"{c.load_n[i]:.1f}", f"{c.stiffness_n_per_um[i]:.2f}", _sig3(float(normal_litres_per_min(c.mass_flow_kg_s[i]))),
             _sig3(c.mass_flow_kg_s[i] * KG_S_TO_MG_S),
         ]
         if orifice:

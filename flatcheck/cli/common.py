@@ -77,12 +77,12 @@ NO_TERMINAL_WIDTH = 10_000
 def stdout_console() -> Console:
     """Console on standard output (summaries).
 
-    On a terminal (or with ``COLUMNS`` set), text wraps at that width. Written to a pipe or a file, nothing is
-    wrapped: long lines stay whole and tables take the width their contents need.
+    On a terminal, text wraps at the terminal's width. Written to a pipe or a file, nothing is wrapped (whatever
+    ``COLUMNS`` says): long lines stay whole and tables take the width their contents need.
     """
     from rich.console import Console
 
-    if _is_terminal(sys.stdout) or os.environ.get("COLUMNS", "").strip().isdigit():  # a terminal, or a width asked for
+    if _is_terminal(sys.stdout):
         return Console(file=sys.stdout, highlight=False, soft_wrap=False)
     return Console(file=sys.stdout, highlight=False, soft_wrap=True, width=NO_TERMINAL_WIDTH)
 
@@ -383,6 +383,53 @@ def load_lab_defaults(path):
             return None
         path = env
     return read_uncertainty_defaults(path)
+
+
+def guard_band_option():
+    """The ``--guard-band`` option of the lapping targets (lap, compare)."""
+    import typer
+
+    return typer.Option(
+        None, "--guard-band",
+        help="Aim below the target by the expected U of the survey after lapping (ISO 14253-1): auto (default: U "
+        "from the survey's budget for --target-grade and --target-gap-um, none for --target-um), budget (for any "
+        "target), none, or U in µm.",
+    )
+
+
+def budget_u(loaded, *, trials=None, seed=None, u_height_um=None, uncertainty_defaults=None,
+             what: str = "this survey"):
+    """U of a surface's minimum-zone flatness from its uncertainty budget, and where it came from.
+
+    Returns
+    -------
+    (float or None, str)
+        U in µm and a sentence naming the budget (trials, seed, largest contribution); None and the reason
+        when the input gives no budget (a height map without ``--u-height-um``). An error of an option
+        (``--seed``...) is raised.
+    """
+    from ..errors import InputValueError
+    from ..evaluation import survey_uncertainty
+
+    if loaded.survey is None and u_height_um is None:
+        return None, "a height map carries no reading uncertainty"
+    total = default_auto_trials(loaded.heightmap.x_mm.size) if trials is None else trials
+    try:
+        with progress_bar("Monte Carlo", total) as advance:
+            mc = survey_uncertainty(loaded, trials=total, seed=seed, u_height_um=u_height_um, progress=advance,
+                                    lab_defaults=load_lab_defaults(uncertainty_defaults))
+    except InputValueError as exc:
+        if exc.where and str(exc.where).startswith("--"):
+            raise
+        return None, exc.message
+    b = mc.budget
+    top = max(b.entries, key=lambda e: e.standard_uncertainty_um) if b is not None and b.entries else None
+    big = "" if top is None or top.standard_uncertainty_um <= 0 else (
+        f"; largest contribution {top.name} {top.standard_uncertainty_um:.2g} µm" + (" (a default)" if top.default
+                                                                                     else ""))
+    return float(mc.minimum_zone.expanded_um), (
+        f"U of {what}'s uncertainty budget as the estimate of the next survey's (Monte Carlo, JCGM 101:2008, "
+        f"{mc.minimum_zone.trials} trials, seed {mc.minimum_zone.seed}{big})")
 
 
 #: Cautions, kept in the core (flatcheck.safety) so that the report uses the same words.

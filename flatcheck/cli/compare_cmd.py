@@ -14,6 +14,12 @@ from ._app import app
 from .common import (
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
+    auto_trials_option,
+    budget_u,
+    guard_band_option,
+    seed_option,
+    u_height_option,
+    uncertainty_defaults_option,
     check_output,
     SAFETY_LINES,
     emit_json,
@@ -79,6 +85,8 @@ def progress_json(pr: Progress, *, before: Path, after: Path, lap: LapModel | No
         "sessions_to_target": pr.sessions_to_target,
         "sessions_to_target_fraction": pr.sessions_fraction,
         "minutes_to_target": pr.minutes_to_target,
+        "u_after_um": pr.u_after_um,
+        "target_met_within_uncertainty": pr.met_within_uncertainty,
         "notes": cautions(pr) + [
             "each survey is referred to its own least-squares plane; the removal is the least consistent with the "
             "change (untouched areas read zero) and is a lower bound if the whole surface was lapped",
@@ -168,9 +176,37 @@ def sessions_text(pr: Progress) -> str:
     return f"{left}, about {f:.1f} more sessions like this one{when}"
 
 
-def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str) -> None:
-    """Human summary on stdout."""
-    from ..units import format_height
+def change_table(pr: Progress, names, units: str):
+    """The change at each station by name (a layout that is not a regular grid, e.g. a Union Jack), or None.
+
+    The change is after minus before referred to the plane of the least removal (untouched areas read about 0),
+    with the least removal beside it.
+    """
+    from rich.markup import escape
+    from rich.table import Table
+
+    from ..units import format_height, format_length, height_unit_label
+
+    if names is None or len(names) != pr.x_mm.size:
+        return None
+    hu = height_unit_label(units)
+    lu = "in" if units == "in" else "mm"
+    t = Table(title=f"Change at each station, after - before ({hu}; untouched areas read 0)", title_justify="left")
+    for col, right in (("station", False), (f"x {lu}", True), (f"y {lu}", True), (f"change {hu}", True),
+                       (f"removed {hu}", True)):
+        t.add_column(col, justify="right" if right else "left", no_wrap=True)
+    for n, x, y, c, r in zip(names, pr.x_mm, pr.y_mm, pr.change_referred_um, pr.removed_um):
+        text = format_height(c, units, unit=False)
+        t.add_row(escape(str(n)), format_length(x, units, unit=False), format_length(y, units, unit=False),
+                  "0" if float(text) == 0 else text, format_height(r, units, unit=False))
+    return t
+
+
+def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str, names=None, target=None,
+                   decision=None) -> None:
+    """Human summary on stdout; ``names`` are the stations' names (in the order of ``pr``'s nodes), if any;
+    ``target`` (a ``LapTarget``) and ``decision`` (the after survey against its limit) for a limit to prove."""
+    from ..units import format_height, format_with_uncertainty
 
     con = stdout_console()
 
@@ -182,8 +218,11 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
     con.print(f"Removed {pr.removed_volume_mm3:.4g} mm^3, deepest {h(pr.max_removed_um)}")
     grid = _change_grid(pr)
     text = change_grid_text(pr, units, con.width, grid)
+    table = None if text is not None else change_table(pr, names, units)
     if text is not None:
         con.print(text, markup=False)
+    elif table is not None:  # not a grid (a Union Jack): the change by station name (issue 15, item 12)
+        con.print(table)
     else:
         deepest = int(pr.removed_um.argmax())
         where = (
@@ -218,9 +257,30 @@ def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: 
         con.print(f"  use it as: flatcheck lap SURVEY --rate-um-per-min {pr.rate_um_per_min:.4g} ...", markup=False)
     elif pr.dwell_min is not None:
         con.print("Give the lap size (--lap-diameter-mm or --lap-size-mm) to turn this into a depth rate.")
-    if pr.target_um is not None:
+    if target is not None and decision is not None:  # a limit to prove (ISO 14253-1)
+        v_txt, u_txt = format_with_uncertainty(pr.flatness_after_um, target.guard_band_um, units)
+        verdict = {"conforms": "met and proven", "undecided": "not proven (undecided)",
+                   "does-not-conform": "not met (non-conformity proven)"}[decision.verdict]
+        con.print(f"Limit {h(target.limit_um)} ({target_source}): {verdict} by the after survey, {v_txt} with "
+                  f"U = {u_txt} ({target.guard_band_source}); ISO 14253-1:2017: proven only when F + U is within "
+                  "the limit.", markup=False)
+        if pr.sessions_to_target not in (0, None):
+            con.print(f"To prove it, aim at {h(target.aim_um)} (the limit less U): {sessions_text(pr)}", markup=False)
+        elif pr.sessions_to_target is None:
+            con.print(f"To prove it, aim at {h(target.aim_um)}: still {pr.remaining_volume_mm3:.4g} mm^3 to remove; "
+                      "nothing was removed this session, so no estimate.", markup=False)
+    elif target is not None and not target.proven and target.kind != "given":
+        con.print(f"Note: guard band: {target.guard_band_source}", markup=False)
+    if pr.target_um is not None and decision is None:
         if pr.sessions_to_target == 0:
-            con.print(f"Target {h(pr.target_um)} ({target_source}) is met.")
+            con.print(f"Target {h(pr.target_um)} ({target_source}) is met.", markup=False)
+        elif pr.met_within_uncertainty:
+            con.print(
+                f"Target {h(pr.target_um)} ({target_source}): the target is met within the uncertainty: the after "
+                f"survey's flatness {h(pr.flatness_after_um)} exceeds it by less than its expanded uncertainty "
+                f"U = {h(pr.u_after_um)}, so more lapping cannot be shown to be needed (survey again to decide).",
+                markup=False,
+            )
         elif pr.sessions_to_target is None:
             con.print(f"Target {h(pr.target_um)}: still {pr.remaining_volume_mm3:.4g} mm^3 to remove; nothing was removed this session, so no estimate.")
         else:
@@ -273,14 +333,23 @@ def compare_cmd(
     plot_out: Path = typer.Option(
         None, "--plot", help="Write a PNG of the change map: before, after, change and least removal."
     ),
+    guard_band: str = guard_band_option(),
+    trials: int | None = auto_trials_option(),
+    seed: int = seed_option(),
+    u_height_um: float = u_height_option(),
+    uncertainty_defaults: Path = uncertainty_defaults_option(),
 ) -> None:
-    """Change map, removed volume, flatness before/after, calibrated rate and sessions to the target."""
+    """Change map, removed volume, flatness before/after, calibrated rate and sessions to the target.
+
+    A target from a grade or an air gap is a limit to prove (ISO 14253-1): the after survey is decided against it
+    with its own U, and the sessions still needed aim below it by that U (--guard-band)."""
     from ..lapping import LapModel
     from ..lapping import check_option
     from ..lapping import compare_surveys
     from ..lapping import match_nodes
     from ..lapping import parse_lap_size
     from ..lapping import resolve_target
+    from ..lapping import guard_banded, needs_budget_u, parse_guard_band, target_kind
 
     if dwell_min is not None and log is not None:
         raise InputValueError("give --dwell-min or --log, not both", where="--dwell-min/--log")
@@ -292,6 +361,11 @@ def compare_cmd(
     check_option(match_tol_mm, "--match-tol-mm", what="a distance in mm")
     if lap_size_mm is not None:
         parse_lap_size(lap_size_mm)
+    mode = parse_guard_band(guard_band)
+    if trials is not None:
+        from ..limits import check_range
+
+        check_range(trials, "trials", where="--trials", name="the number of trials")
     refuse_overwriting_inputs({"--plot": plot_out}, [before, after, log])
     check_output(plot_out, "--plot")
     lb = load_input(before)
@@ -315,19 +389,80 @@ def compare_cmd(
         dlog = read_lap_log(log)
         if lap is None:
             raise InputValueError("a lapping log needs the lap's size", where="--log", fix="add --lap-diameter-mm or --lap-size-mm")
-    target = source = None
+    target = source = tgt = decision = None
     if any(v is not None for v in (target_um, target_grade, target_gap_um, gap_fraction)):
-        target, source = resolve_target(hb, target_um, target_grade, target_gap_um, gap_fraction)
-    pr = compare_surveys(hb, ha, tol_mm=match_tol_mm, dwell_min=dwell_min, lap=lap, log=dlog, target_um=target)
+        limit, limit_source = resolve_target(hb, target_um, target_grade, target_gap_um, gap_fraction)
+        kind = target_kind(target_um, target_grade, target_gap_um)
+        u = u_src = None
+        if needs_budget_u(kind, mode):  # the after survey's own U, also the estimate of the next survey's
+            u, u_src = budget_u(la, trials=trials, seed=seed, u_height_um=u_height_um,
+                                uncertainty_defaults=uncertainty_defaults, what="the after survey")
+        tgt = guard_banded(limit, limit_source, kind, mode, u, u_src)
+        target, source = tgt.aim_um, limit_source
+    if tgt is not None and tgt.proven:
+        # a limit to prove: the after survey decided by ISO 14253-1 with its U; the sessions aim at limit - U, so
+        # "met within the uncertainty" (a gain inside U) does not apply: the guard band already holds U
+        from ..conformance import decide
+        from ..form import minimum_zone
+
+        decision = decide(minimum_zone(ha.x_mm, ha.y_mm, ha.height_um).flatness_um, tgt.limit_um, tgt.guard_band_um)
+        u_after = None
+    else:
+        u_after = _after_uncertainty(la, hb, ha, idx, target)
+    pr = compare_surveys(hb, ha, tol_mm=match_tol_mm, dwell_min=dwell_min, lap=lap, log=dlog, target_um=target,
+                         u_after_um=u_after)
     if plot_out is not None:
         from ..output import _plots as plot
 
+        # the change referred to the plane of the least removal: the change and removal views label one spot
+        # with one depth (issue 15, item 14)
         axes = plot.compare_change_map(None, pr.x_mm, pr.y_mm, hb.height_um, ha.height_um[idx], pr.removed_um,
-                                       units=units.value, length_mm=hb.length_mm, width_mm=hb.width_mm)
-        plot.save_png(axes[0].figure, plot_out, dpi=120)
+                                       units=units.value, length_mm=hb.length_mm, width_mm=hb.width_mm,
+                                       change_um=pr.change_referred_um)
+        plot.save_png(axes[0].figure, plot_out, dpi=120, caption=_plot_caption(lb, la, before, after))
     if json_out:
-        emit_json(progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value))
+        doc = progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value)
+        if tgt is not None:
+            doc.update(target_kind=tgt.kind, target_limit_um=tgt.limit_um, guard_band_um=tgt.guard_band_um,
+                       guard_band_source=tgt.guard_band_source, guard_band_proves_limit=tgt.proven,
+                       target_decision=None if decision is None else decision.verdict,
+                       target_decision_rule=None if decision is None else decision.statement)
+        emit_json(doc)
     else:
-        render_summary(pr, lap=lap, target_source=source, units=units.value)
+        render_summary(pr, lap=lap, target_source=source, units=units.value, names=hb.names, target=tgt,
+                       decision=decision)
         if plot_out is not None:
             stdout_console().print(f"picture written to {plot_out}", markup=False)
+
+
+def _after_uncertainty(la, hb, ha, idx, target):
+    """Expanded uncertainty (µm) of the after survey's flatness when a target is given and not met as
+    measured, from its own readings (Monte Carlo, few trials, fixed seed); None when it cannot be had."""
+    if target is None or la.survey is None:
+        return None
+    from ..errors import FlatcheckError
+    from ..evaluation import survey_uncertainty
+    from ..form import minimum_zone
+
+    if minimum_zone(ha.x_mm, ha.y_mm, ha.height_um).flatness_um <= target:
+        return None
+    try:  # 2000 trials give U to a few per cent (JCGM 101 adaptive scheme, from memory): enough to say "within U"
+        return float(survey_uncertainty(la, trials=2000, seed=1).minimum_zone.expanded_um)
+    except FlatcheckError:
+        return None
+
+
+def _plot_caption(lb, la, before: Path, after: Path) -> tuple:
+    """Lines above the change picture: the surface, the two surveys' dates and what the picture shows."""
+    def ident(loaded, path):
+        sv = loaded.survey
+        if sv is None:
+            return loaded.heightmap.label or path.stem
+        return " · ".join(v for v in (sv.surface.description, sv.surface.ident) if v) or path.stem
+
+    def date(loaded):
+        return (loaded.survey.date if loaded.survey is not None else "") or "date not stated"
+
+    return (ident(lb, before),
+            f"surveys of {date(lb)} ({before.name}) and {date(la)} ({after.name}) · pictured by flatcheck · "
+            "before, after, the change between them and the least removal consistent with it")

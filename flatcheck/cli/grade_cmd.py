@@ -26,6 +26,8 @@ from .common import (
     progress_bar,
     seed_option,
     u_height_option,
+    uncertainty_defaults_option,
+    load_lab_defaults,
     Units,
     units_option,
 )
@@ -105,6 +107,7 @@ def grade_cmd(
     trials: int | None = auto_trials_option(),
     seed: int = seed_option(),
     u_height_um: float = u_height_option(),
+    uncertainty_defaults: Path = uncertainty_defaults_option(),
 ) -> None:
     """Grade the surface's flatness against a standard, with an ISO 14253-1 decision rule."""
     from ._grade_view import _add_uin
@@ -124,6 +127,16 @@ def grade_cmd(
         )
     _check_positive({"--length-mm": length_mm, "--width-mm": width_mm,
                      "--repeat-radius-mm": repeat_foot_radius_mm, "--repeat-tolerance-um": repeat_tolerance_um})
+    from ..limits import check_range
+
+    for opt, v in (("--length-mm", length_mm), ("--width-mm", width_mm)):  # docs/limits.md, before any work
+        if v is not None:
+            check_range(v, "length_mm", where=opt, name="the plate's size")
+    for opt, v in (("--uncertainty-um", unc), ("--u-height-um", u_height_um)):
+        if v is not None:
+            check_range(v, "uncertainty_um", where=opt, name="the uncertainty")
+    if trials is not None:
+        check_range(trials, "trials", where="--trials", name="the number of trials")
     loaded = load_input(input)
     hm = loaded.heightmap
     mc_note = None
@@ -136,7 +149,8 @@ def grade_cmd(
             if trials is None:
                 trials = default_auto_trials(hm.x_mm.size)
             with progress_bar("Monte Carlo", trials) as advance:
-                mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance)
+                mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance,
+                                        lab_defaults=load_lab_defaults(uncertainty_defaults))
         except InputValueError as exc:
             if monte_carlo:
                 raise
@@ -160,6 +174,10 @@ def grade_cmd(
         repeat_tolerance_um=repeat_tolerance_um,
     )
     report["input"] = str(input)
+    if length_basis is not None and length_basis.value == "diagonal" and standard and standard.lower().startswith("asme"):
+        report.setdefault("notes", []).append(
+            "--length-basis diagonal changes nothing for ASME B89.3.7: its tolerance formula is defined on the "
+            "plate's diagonal anyway (the option chooses the length for DIN 876 only)")
     if mc_note is None and unc is None:
         mc_note = ("U not evaluated (--no-uncertainty)" if no_uncertainty else
                    "U not evaluated: a height map carries no reading uncertainty (give --u-height-um or --uncertainty-um)")

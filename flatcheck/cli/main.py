@@ -9,6 +9,7 @@ bug and prints a one-line hint (the traceback only with ``--traceback``).
 from __future__ import annotations
 
 import sys
+import warnings
 
 import typer
 
@@ -49,7 +50,11 @@ def run(argv: list[str] | None = None) -> int:
     argv = [a for a in argv if a != "--traceback"]
     command = typer.main.get_command(app)
     try:
-        rv = command.main(args=argv, prog_name="flatcheck", standalone_mode=False)
+        with warnings.catch_warnings():
+            # numpy's floating-point warnings (overflow, invalid value) are never shown as extra stderr lines:
+            # inputs are range-checked first (docs/limits.md), and anything they would flag is an error below
+            warnings.simplefilter("ignore", RuntimeWarning)
+            rv = command.main(args=argv, prog_name="flatcheck", standalone_mode=False)
         return int(rv) if isinstance(rv, int) else int(ExitStatus.OK)
     except FlatcheckError as exc:
         _error(exc.one_line())
@@ -61,6 +66,11 @@ def run(argv: list[str] | None = None) -> int:
         return 130  # 128 + SIGINT, the shell convention
     except _cx.UsageError as exc:
         if type(exc).__name__ == "NoArgsIsHelpError":  # help was shown for a bare command
+            where = "flatcheck" if exc.ctx is None or exc.ctx.parent is None else exc.ctx.command_path
+            if exc.ctx is not None:  # the commands to choose from, on standard output; the error, one line, on stderr
+                sys.stdout.write(exc.ctx.get_help() + "\n")
+                sys.stdout.flush()
+            _error(f"no command given; choose one of the commands listed by '{where} --help'")
             return int(ExitStatus.BAD_INPUT)
         hint = ""
         if exc.ctx is not None:

@@ -51,7 +51,8 @@ def test_film_json_contract_on_flat_guide(cli, flat_csv):
     curve = film["curve"]
     assert len(curve) >= 10
     for row in curve:
-        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "mass_flow_mg_per_s"}
+        assert set(row) == {"gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "mass_flow_mg_per_s",
+                            "flow_nl_per_min"}  # normal litres per minute, added by issue 15 (item 7)
     gaps = [r["gap_um"] for r in curve]
     assert gaps[0] < 0.5 * 5 and gaps[-1] > 2 * 5  # from well below to well above G
     assert all(np.diff([r["load_n"] for r in curve]) < 0)
@@ -143,7 +144,8 @@ def test_orifice_film_json_on_flat_guide(cli, flat_csv):
     assert film["kind"] == "orifice" and film["orifice_mm"] == 0.2 and film["cd"] == 0.8
     for row in film["curve"]:
         assert set(row) == {
-            "gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "mass_flow_mg_per_s", "feed_pressure_ratio"
+            "gap_um", "load_n", "stiffness_n_per_um", "flow_l_per_min", "mass_flow_mg_per_s", "feed_pressure_ratio",
+            "flow_nl_per_min",
         }
     at = min(film["curve"], key=lambda r: abs(r["gap_um"] - 10.0))
     # Source: exact radial solution P = pr² + (pa² - pr²) ln(r/r0)/ln(R/r0) with the orifice formula of

@@ -17,7 +17,8 @@ def test_demo_prints_the_results_and_writes_its_report(cli, tmp_path, monkeypatc
     (tmp_path / "flatcheck-demo").mkdir()
     mine = tmp_path / "flatcheck-demo" / "notes.txt"
     mine.write_text("user's own file")
-    (tmp_path / "flatcheck-demo" / DEMO_FILES[0]).write_bytes(b"earlier demo")
+    # an earlier demo's report (a PDF flatcheck made: the demo replaces only those without --force)
+    (tmp_path / "flatcheck-demo" / DEMO_FILES[0]).write_bytes(b"%PDF-1.4 earlier demo /Creator (flatcheck)")
     code, out, err = cli("demo")
     assert code == 0 and "Traceback" not in err
     pdf = tmp_path / "flatcheck-demo" / DEMO_FILES[0]
@@ -42,13 +43,51 @@ def test_demo_prints_the_results_and_writes_its_report(cli, tmp_path, monkeypatc
     A = np.column_stack([np.ones(n), hm.x_mm, hm.y_mm])
     res = linprog([0, 0, 0, 1], A_ub=np.vstack([np.column_stack([A, np.zeros(n)]), np.column_stack([-A, -np.ones(n)])]),
                   b_ub=np.concatenate([hm.height_um, -hm.height_um]), bounds=[(None, None)] * 4, method="highs")
-    assert f"flatness (minimum zone): {res.x[3]:.3f} µm" in out
+    # stated with its U: U to two significant digits, the value to the same place (JCGM 100 7.2.6)
+    from flatcheck.units import format_with_uncertainty
+
+    value_text, _ = format_with_uncertainty(res.x[3], _expanded_u(copy))
+    assert f"flatness (minimum zone): {value_text}, U = " in out
     assert mine.read_text() == "user's own file"  # never touches other files
     assert "replaced" in out and DEMO_FILES[0] in out  # and says when it replaces its own
+    # then the bundled guideway, with the verdict and reason 'flatcheck guideway' gives for the same files and mesh
+    import json
+
+    from flatcheck.cli.demo_cmd import DEMO_FILM_MESH, DEMO_FRINGE_OPTIONS, DEMO_FRINGES, DEMO_GUIDEWAY
+
+    body, carriage = (sample_path(DEMO_GUIDEWAY[0], name) for name in DEMO_GUIDEWAY[1:])
+    code, gw, err = cli("guideway", body, "--carriage", carriage, "--film-mesh", DEMO_FILM_MESH, "--json")
+    assert code == 0, err
+    gw = json.loads(gw)
+    flat = " ".join(out.split())
+    assert f"{gw['verdict'].upper()} — {gw['reason']}" in flat
+    assert flat.index(gw["reason"]) > flat.index("report ")
+    # and the pad face's photograph, with the minimum zone 'flatcheck fringes' states for it
+    o = DEMO_FRINGE_OPTIONS
+    code, fr, err = cli("fringes", sample_path(DEMO_FRINGES), "--wavelength-nm", o["wavelength_nm"], "--pixel-mm",
+                        o["pixel_mm"], "--contact-edge", o["contact_edge"], "--json")
+    assert code == 0, err
+    mz = json.loads(fr)["flatness"]["minimum_zone_nm"]
+    assert f"flatness {mz:.0f} nm = " in flat and flat.index(f"flatness {mz:.0f} nm") > flat.index(gw["reason"])
 
 
 def _expanded_u(path):
     return survey_uncertainty(load_input(path), trials=DEMO_TRIALS, seed=DEMO_SEED).minimum_zone.expanded_um
+
+
+def test_bundled_guideway_and_photograph_are_the_repository_samples():
+    # the demo's copies in flatcheck/data/ must not drift from sample_readings/ (file for file, byte for byte)
+    from flatcheck.cli.demo_cmd import DEMO_FRINGES, DEMO_GUIDEWAY
+
+    repo = Path(__file__).resolve().parents[2] / "sample_readings"
+    folder = repo / DEMO_GUIDEWAY[0]
+    names = sorted(p.name for p in folder.iterdir() if p.is_file())
+    assert {"body.toml", "carriage.toml"} <= set(names)
+    for name in names:
+        assert sample_path(DEMO_GUIDEWAY[0], name).read_bytes() == (folder / name).read_bytes(), name
+    copies = sorted(p.name for p in sample_path(DEMO_GUIDEWAY[0], "body.toml").parent.iterdir() if p.is_file())
+    assert copies == names  # nothing extra in the copy either
+    assert sample_path(DEMO_FRINGES).read_bytes() == (repo / DEMO_FRINGES).read_bytes()
 
 
 def test_demo_refuses_a_file_as_folder(cli, tmp_path):

@@ -263,6 +263,10 @@ def test_grid_height_map_is_printed_whole_and_matches_the_nodes(cli, monkeypatch
 
 
 def test_map_too_wide_for_the_terminal_is_said_not_truncated(cli, monkeypatch):
+    # an 80-column terminal (written to a pipe nothing is wrapped or refused: issue 15, item 9)
+    from flatcheck.cli import common
+
+    monkeypatch.setattr(common, "_is_terminal", lambda stream: True)
     monkeypatch.setenv("COLUMNS", "80")
     code, out, err = cli("reduce", PAD)
     assert code == 0, err
