@@ -264,3 +264,26 @@ def test_batched_zones_agree_with_highs(kind):
     t = _zones(X, Y, Z)
     ref = np.array([_lp_zone(X[k, :s], Y[k, :s], Z[k, :s]) for k, s in enumerate(sizes)])
     np.testing.assert_allclose(t, ref, atol=1e-7 * max(1.0, float(np.abs(ref).max())))
+
+
+def test_progress_is_told_the_number_of_positions_first_and_the_steps_add_up_to_it():
+    # a bar on long scans: start(total) before the first step, then steps that sum to the total
+    # (the total is the number of window positions returned)
+    import numpy as np
+
+    from flatcheck.form import HeightMap, local_flatness
+
+    x, y = np.meshgrid(np.arange(0, 401, 10.0), np.arange(0, 301, 10.0))
+    hm = HeightMap(x.ravel(), y.ravel(), np.sin(x.ravel() / 100) * np.cos(y.ravel() / 70))
+    seen = []
+
+    class Bar:
+        def start(self, total):
+            seen.append(("start", total))
+
+        def __call__(self, k):
+            seen.append(("step", k))
+
+    lf = local_flatness(hm, size_mm=50, progress=Bar())
+    assert seen[0] == ("start", lf.flatness_um.size)
+    assert sum(k for what, k in seen[1:] if what == "step") == lf.flatness_um.size

@@ -190,6 +190,33 @@ def progress_bar(description: str, total: int, *, enabled: bool = True):
             prog.stop()
 
 
+class ScanProgress:
+    """A progress bar for a scan whose size the core finds out (``start(total)``, then ``advance(k)`` calls).
+
+    Shown only on a terminal and only for scans of at least ``least`` steps, so quick scans leave no trace;
+    ``close()`` clears it (also when the scan fails).
+    """
+
+    def __init__(self, description: str, *, least: int = 5000):
+        self.description, self.least = description, int(least)
+        self._cm = None
+        self._advance = None
+
+    def start(self, total: int) -> None:
+        if total >= self.least and sys.stderr.isatty():
+            self._cm = progress_bar(self.description, int(total))
+            self._advance = self._cm.__enter__()
+
+    def __call__(self, k: int = 1) -> None:
+        if self._advance is not None:
+            self._advance(k)
+
+    def close(self) -> None:
+        if self._cm is not None:
+            self._cm.__exit__(None, None, None)
+            self._cm = self._advance = None
+
+
 #: Library wording -> the command line's, in the fixes of errors raised by the core.
 _CLI_WORDS = {"method 'least-squares'": "--method least-squares", "method 'moody'": "--method moody"}
 

@@ -8,6 +8,7 @@ import typer
 
 from ._app import app
 from .common import (
+    ScanProgress,
     Method,
     emit_json,
     load_input,
@@ -57,7 +58,11 @@ def reduce_cmd(
                       lab_defaults=load_lab_defaults(uncertainty_defaults))
             ev = evaluate_surface(loaded, window=window, monte_carlo=mc)
     else:
-        ev = evaluate_surface(loaded, window=window)
+        scan = ScanProgress("local flatness")  # a bar on long scans (a fine window over a dense map)
+        try:
+            ev = evaluate_surface(loaded, window=window, local_progress=scan)
+        finally:
+            scan.close()
     if map_out is not None and map_out.suffix.lower() == ".x3p":  # ISO 25178-72, for other surface software
         from ..io import write_x3p
 

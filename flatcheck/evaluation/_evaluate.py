@@ -465,6 +465,7 @@ def evaluate_surface(
     *,
     window: str | Window | None = "auto",
     monte_carlo: dict | None = None,
+    local_progress=None,
 ) -> SurfaceEvaluation:
     """Evaluate a loaded surface: flatness, lines, local flatness and (optionally) uncertainty.
 
@@ -478,6 +479,8 @@ def evaluate_surface(
         Keyword arguments of :func:`survey_uncertainty` (trials, seed, u_height_um, progress,
         lab_defaults, contribution_trials);
         None for no uncertainty evaluation.
+    local_progress : callable, optional
+        Progress of the local-flatness scan, as :func:`flatcheck.form.local_flatness` takes it.
     """
     hm = loaded.heightmap
     notes = list(getattr(hm, "notes", ()))  # what the reader noticed (repeats averaged, an implausible extent)
@@ -491,7 +494,7 @@ def evaluate_surface(
         fits = win.length_mm <= xmax - xmin + 1e-9 and win.width_mm <= ymax - ymin + 1e-9
         if fits:
             try:
-                local = _local(hm, win)
+                local = _local(hm, win, progress=local_progress)
             except InputValueError as exc:  # the default window is below the station spacing
                 if not auto:
                     raise
@@ -543,8 +546,8 @@ def _line_results(loaded: MeasuredSurface) -> list:
     return out
 
 
-def _local(hm: HeightMap, win: Window):
+def _local(hm: HeightMap, win: Window, progress=None):
     from ..form import local_flatness
 
     size = win.length_mm if win.shape == "circle" else (win.length_mm, win.width_mm)
-    return local_flatness(hm, size_mm=size, shape=win.shape)
+    return local_flatness(hm, size_mm=size, shape=win.shape, progress=progress)

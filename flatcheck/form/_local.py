@@ -266,7 +266,8 @@ def local_flatness(
         Interpolation between stations (see the module notes).
     progress : callable, optional
         Called as ``progress(k)`` each time ``k`` more window positions are done
-        (for a progress bar); the calls add up to the number of positions.
+        (for a progress bar); the calls add up to the number of positions. If it has a
+        ``start`` method, ``start(total)`` is called first with the number of positions.
 
     Returns
     -------
@@ -348,6 +349,9 @@ def local_flatness(
     cxs, cys = _centres(xmin, xmax, w, step), _centres(ymin, ymax, h, step)
     tol = 1e-9 * max(xmax - xmin, ymax - ymin)
     report = progress if progress is not None else (lambda k: None)
+    start = getattr(progress, "start", None)
+    if start is not None:  # a bar that wants the number of positions before the first one is done
+        start(int(cxs.size * cys.size))
     if hm.grid is not None:
         flat = _scan_grid(hm, cxs, cys, w, h, shape, tol, report)
     else:
