@@ -247,7 +247,7 @@ def test_deconvolution_recovers_known_2d_dwell_and_matches_numpy_convolution(rng
 def test_large_solver_agrees_with_scipy_nnls(rng):
     # 21 x 21 = 441 nodes takes the projected-gradient path; reference: scipy.optimize.nnls on the
     # same stacked (Tikhonov) system
-    from flatcheck.lapping._plan import _conv_matrix
+    from flatcheck.lapping._dwell import _conv_matrix
 
     k = lap_kernel(LapModel(diameter_mm=50.0), 10.0, 10.0)
     yy, xx = np.mgrid[0:21, 0:21]
@@ -424,7 +424,7 @@ def test_gradient_penalty_matches_scipy_nnls(rng):
     yy, xx = np.mgrid[0:12, 0:14]
     r = np.maximum(0.0, 2 * np.exp(-((xx - 6) ** 2 + (yy - 5) ** 2) / 10.0) - 0.3) + rng.normal(0, 0.02, xx.shape)
     r = np.maximum(r, 0)
-    from flatcheck.lapping._plan import _conv_matrix
+    from flatcheck.lapping._dwell import _conv_matrix
 
     mu = 0.3 * np.sqrt((k**2).sum())
     A = _conv_matrix(r.shape, k).toarray()
@@ -445,7 +445,7 @@ def test_gradient_penalty_matches_scipy_nnls(rng):
     r2 = np.maximum(0.0, 2 * np.exp(-((xx - 8) ** 2 + (yy - 12) ** 2) / 20.0) - 0.4)
     t2 = deconvolve_dwell(r2, k, smoothness=0.3)
     A2 = _conv_matrix(r2.shape, k)
-    from flatcheck.lapping._plan import _difference_matrix
+    from flatcheck.lapping._dwell import _difference_matrix
 
     D2 = _difference_matrix(r2.shape)
     t2_ref, _ = nnls(np.vstack([A2.toarray(), mu * D2.toarray()]), np.r_[r2.ravel(), np.zeros(D2.shape[0])],
@@ -532,7 +532,7 @@ def test_interpolation_matrix_matches_scipy(rng):
 
 def test_points_in_the_fit_match_scipy_nnls(rng):
     # reference: scipy.optimize.nnls on the stacked system [A; w P A] written out densely
-    from flatcheck.lapping._plan import _conv_matrix, grid_interpolation_matrix
+    from flatcheck.lapping._dwell import _conv_matrix, grid_interpolation_matrix
 
     k = lap_kernel(LapModel(diameter_mm=40.0), 10.0, 10.0)
     yy, xx = np.mgrid[0:9, 0:11]

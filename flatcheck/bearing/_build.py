@@ -7,7 +7,7 @@ import math
 import re
 
 from ..errors import InputValueError
-from ._pads import Carriage, MotionBudget, Pad
+from ._carriage import Carriage, MotionBudget, Pad
 
 __all__ = ["parse_pad_size", "carriage_from_options", "film_feed"]
 

@@ -16,32 +16,40 @@ from .._lazy import attach as _attach
 __getattr__, __dir__, __all__ = _attach(
     __name__,
     {
-        '_plan': (
+        '_removal': (
             'node_area_weights',
             'HighSpot',
             'LeastRemoval',
             'least_removal',
+        ),
+        '_dwell': (
             'preston_rate_um_per_min',
             'LapModel',
             'lap_kernel',
             'removal_from_dwell',
             'grid_interpolation_matrix',
             'deconvolve_dwell',
+            'MAX_OVERHANG_FRACTION',
+            'lap_centre_allowed',
+        ),
+        '_chart': (
             'cell_column_name',
-            'Pass',
             'CellChart',
+            'MAX_CHART_CELLS',
+            'default_cell_mm',
+            'chart_edges',
+        ),
+        '_passes': (
+            'Pass',
+            'HAND_MIN_PASS_MIN',
+        ),
+        '_plan': (
             'Shortfall',
             'LapPlan',
             'STATION_WEIGHT',
             'DEFAULT_ALLOWANCE',
             'DEFAULT_MIN_PASS_FRACTION',
             'plan_lapping',
-            'HAND_MIN_PASS_MIN',
-            'MAX_CHART_CELLS',
-            'default_cell_mm',
-            'MAX_OVERHANG_FRACTION',
-            'lap_centre_allowed',
-            'chart_edges',
         ),
         '_targets': (
             'ASSUMED_RATE_UM_PER_MIN',

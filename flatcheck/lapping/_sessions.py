@@ -24,7 +24,8 @@ import numpy as np
 from ..errors import GeometryError, InputValueError
 from ..form import least_squares_plane, minimum_zone
 from ..form import HeightMap
-from ._plan import LapModel, least_removal, node_area_weights
+from ._dwell import LapModel
+from ._removal import least_removal, node_area_weights
 
 __all__ = ["DwellLog", "Progress", "match_nodes", "compare_surveys"]
 

@@ -11,7 +11,7 @@ import math
 
 from ..errors import InputValueError
 from ..limits import check_range
-from ._plan import LapModel
+from ._dwell import LapModel
 
 __all__ = [
     "ASSUMED_RATE_UM_PER_MIN",
@@ -209,7 +209,7 @@ def check_lap_on_surface(hm, lap: LapModel, *, lap_option: str, cell_mm: float |
     cells (``cell_mm``, default the lap's size) must be few enough to print. ``cell_option`` is None for a
     command without a cell option: the error then names ``lap_option``.
     """
-    from ._plan import MAX_CHART_CELLS, chart_edges, default_cell_mm
+    from ._chart import MAX_CHART_CELLS, chart_edges, default_cell_mm
 
     check_lap_fits(hm, lap, lap_option)
     xe, ye = chart_edges(hm, lap, cell_mm)
