@@ -13,6 +13,8 @@ from matplotlib.image import imread
 from scipy.optimize import linprog, minimize_scalar
 
 from flatcheck.output import _report as report
+from flatcheck.output import _report_content as report_content
+from flatcheck.output import _report_pages as report_pages
 from flatcheck.bearing import Carriage, Pad
 from flatcheck.errors import InputValueError, OutputError
 from flatcheck.evaluation import MeasuredSurface, evaluate_surface
@@ -67,7 +69,7 @@ def _loaded(path=SAMPLE):
 
 
 def _map_report(hm, **kw):
-    return report.analyse(evaluate_surface(MeasuredSurface("map.csv", hm), window="none"), **kw)
+    return report_content.analyse(evaluate_surface(MeasuredSurface("map.csv", hm), window="none"), **kw)
 
 
 @pytest.fixture(scope="module")
@@ -76,8 +78,8 @@ def sample_report(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("report")
     ev = evaluate_surface(_loaded(), monte_carlo=dict(trials=2000, seed=7))
     carriage = Carriage.single(Pad("rect", 80.0, 40.0, 8.0))
-    content = report.analyse(ev, standard="din-876", carriage=carriage, target_um=1.5,
-                             lap=LapModel("round", diameter_mm=120.0, rate_um=1.0), lap_rate_assumed=True)
+    content = report_content.analyse(ev, standard="din-876", carriage=carriage, target_um=1.5,
+                                     lap=LapModel("round", diameter_mm=120.0, rate_um=1.0), lap_rate_assumed=True)
     pngs = tmp / "png"
     pngs.mkdir()
     files = report.write_report(tmp / "sample.pdf", content, png_dir=pngs, png_dpi=40)
@@ -207,7 +209,7 @@ def test_local_flatness_page_states_the_worst_window_checked_by_linear_programs(
     x, y = np.meshgrid(np.arange(0.0, 601.0, 50.0), np.arange(0.0, 401.0, 50.0))
     z = rng.normal(0.0, 0.5, x.shape)
     hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), label="bumpy map")
-    content = report.analyse(evaluate_surface(MeasuredSurface("m.csv", hm), window="200x200"))
+    content = report_content.analyse(evaluate_surface(MeasuredSurface("m.csv", hm), window="200x200"))
     best, where = -1.0, None
     for cx in np.arange(100.0, 501.0, 50.0):
         for cy in np.arange(100.0, 301.0, 50.0):
@@ -218,7 +220,7 @@ def test_local_flatness_page_states_the_worst_window_checked_by_linear_programs(
     assert content.local.worst_um == pytest.approx(best, abs=1e-6)
     assert (content.local.worst_x_mm, content.local.worst_y_mm) == pytest.approx(where)
     assert "Local flatness" in report.page_titles(content)
-    text = _page_text(report._page_local, content, "um")
+    text = _page_text(report_pages._page_local, content, "um")
     assert f"{best:.3f} µm" in text and "200 x 200 mm" in text
     assert f"x = {where[0]:.0f} mm, y = {where[1]:.0f} mm" in text
 
@@ -229,15 +231,15 @@ def test_uncertainty_note_follows_the_display_units(tmp_path):
     path = tmp_path / "no-u.toml"
     path.write_text(src)
     ev = evaluate_surface(_loaded(path), monte_carlo=dict(trials=500, seed=3))
-    content = report.analyse(ev)
-    um, uin = report.uncertainty_text(content, "um"), report.uncertainty_text(content, "in")
+    content = report_content.analyse(ev)
+    um, uin = report_content.uncertainty_text(content, "um"), report_content.uncertainty_text(content, "in")
     lo, hi = ev.uncertainty.minimum_zone.corrected_interval_um  # the bias-corrected 95 % interval (issue 16)
     s0 = ev.loaded.reduction.sigma0_um
     # 1 µin = 0.0254 µm exactly (international inch, 1959)
     assert f"{lo / 0.0254:.1f} µin to {hi / 0.0254:.1f} µin" in uin
     assert f"{s0 / 0.0254:.1f} µin" in uin and "µm" not in uin
     assert f"{lo:.3f} µm to {hi:.3f} µm" in um and f"{s0:.3f} µm" in um
-    text = _page_text(report._page_summary, content, "in")
+    text = _page_text(report_pages._page_summary, content, "in")
     assert f"{lo / 0.0254:.1f} µin" in text and f"{s0:.3f} µm" not in text
 
 
@@ -278,7 +280,7 @@ def test_map_page_x_label_clear_of_the_3d_title(size_mm):
     hm = HeightMap(x.ravel(), y.ravel(), z.ravel(), length_mm=L, width_mm=W, label="cone")
     content = _map_report(hm)
     fig = plot.new_figure()
-    report._page_map(fig, content, "um")
+    report_pages._page_map(fig, content, "um")
     fig.canvas.draw()
     r = fig.canvas.get_renderer()
     ax_map, ax3 = [a for a in fig.axes if a.name != "3d" and a.get_xlabel()][0], [a for a in fig.axes if a.name == "3d"][0]
@@ -319,7 +321,7 @@ def _sample_content(name):
     lapping = lapping_from_options(loaded.heightmap, **lap)
     carriage = carriage_from_options(*bearing)[0]
     ev = evaluate_surface(loaded, window=window)
-    return report.analyse(ev, standard=standard, carriage=carriage, window=window, **lapping), units
+    return report_content.analyse(ev, standard=standard, carriage=carriage, window=window, **lapping), units
 
 
 @pytest.fixture(scope="module")
@@ -539,7 +541,7 @@ def test_map_shows_heights_about_the_least_squares_plane_as_the_terminal_does():
     from flatcheck.output import _plots as plot
 
     fig = plot.new_figure()
-    report._page_map(fig, content, "um")
+    report_pages._page_map(fig, content, "um")
     A = np.column_stack([np.ones(hm.n), hm.x_mm, hm.y_mm])
     r = hm.height_um - A @ np.linalg.lstsq(A, hm.height_um, rcond=None)[0]
     texts = [t for ax in fig.axes for t in ax.texts if t.get_gid() in ("high", "low")]
@@ -568,15 +570,15 @@ def test_a_target_already_met_is_one_sentence_not_lapping_pages():
     content = _map_report(hm, target_um=5.0, lap=LapModel("round", diameter_mm=100.0, rate_um=1.0))
     assert content.lapping is not None and content.lapping.passes == ()
     assert not any(t.startswith("Lapping") for t in report.page_titles(content))
-    sentence = report.lapping_summary(content)
+    sentence = report_pages.lapping_summary(content)
     assert sentence.startswith("The surface is already within the target 5.000 µm") and "no lapping" in sentence
-    assert sentence in " ".join(_page_text(report._page_summary, content, "um").split())
+    assert sentence in " ".join(_page_text(report_pages._page_summary, content, "um").split())
 
 
 def test_local_flatness_map_covers_the_surveyed_area(sample_report):
     content, _, _ = sample_report
     lf, win, hm = content.local, content.window, content.heightmap
-    xs, ys, cover = report.local_cover(lf, win, hm)
+    xs, ys, cover = report_pages.local_cover(lf, win, hm)
     # every point of the surveyed area lies in some 250 x 250 mm window of the scan (centres 50 mm apart, the
     # windows reaching the edges), so the map has a value everywhere, not only between the window centres
     assert np.isfinite(cover).all()

@@ -92,7 +92,7 @@ def _layout_warnings(survey) -> list[str]:
     import numpy as np
 
     from ..errors import FlatcheckError
-    from ..survey._network import _article, network_rank
+    from ..survey._rank import _article, network_rank
     from ..survey import simulate_survey
 
     filled = simulate_survey(survey, lambda x, y: np.zeros_like(x))

@@ -61,14 +61,16 @@ __getattr__, __dir__, __all__ = _attach(
             'GuidewayReportFiles',
             'GUIDEWAY_METHODS',
         ),
-        '_report': (
+        '_report_content': (
             'SCOPE_STATEMENT',
             'LineResult',
             'GradeRow',
             'ReportContent',
-            'ReportFiles',
             'analyse',
             'uncertainty_text',
+        ),
+        '_report': (
+            'ReportFiles',
             'page_titles',
             'write_report',
         ),

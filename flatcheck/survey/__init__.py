@@ -1,8 +1,9 @@
 """Surveys: the model, planning, simulation and reduction to a height map.
 
 Imports :mod:`flatcheck.form`, :mod:`flatcheck.errors` and :mod:`flatcheck.units`.
-The observation network both reductions share (model, datum, rank analysis,
-diagnostics) is the private ``_network``; :func:`reduce_survey` is the one entry.
+The observation network both reductions share is private: its model and results
+(``_network``), datum and rank analysis (``_rank``) and diagnostics (``_diagnostics``);
+:func:`reduce_survey` is the one entry.
 
 Survey model
     Survey, Station, SurveyLine, Run, Instrument, Surface, observations, Observations,
@@ -22,6 +23,10 @@ from .._lazy import attach as _attach
 __getattr__, __dir__, __all__ = _attach(
     __name__,
     {
+        '_diagnostics': (
+            'OUTLIER_THRESHOLD',
+            'WEAK_REDUNDANCY',
+        ),
         '_model': (
             'INSTRUMENT_KINDS',
             'PATTERNS',
@@ -42,16 +47,13 @@ __getattr__, __dir__, __all__ = _attach(
             'moody_reduce',
         ),
         '_network': (
-            'OUTLIER_THRESHOLD',
             'METHODS',
-            'WEAK_REDUNDANCY',
             'LineClosure',
             'InstrumentZero',
             'Outlier',
             'LinearReduction',
             'NetworkRank',
             'Reduction',
-            'network_rank',
         ),
         '_planning': (
             'DEFAULT_MARGIN_MM',
@@ -65,6 +67,9 @@ __getattr__, __dir__, __all__ = _attach(
             'plan_lines',
             'reading_sequence',
             'summarize_layout',
+        ),
+        '_rank': (
+            'network_rank',
         ),
         '_reduce': (
             'reduce_survey',

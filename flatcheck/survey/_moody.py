@@ -39,22 +39,18 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import LayoutError
+from ._diagnostics import _clean_zero, _sigma0
 from ._network import (
     LineClosure,
     LinearReduction,
     Reduction,
     _build_model,
-    _check_connected,
-    _clean_zero,
     _heightmap,
     _label,
     _linearised_values,
-    _plane_basis,
-    _plane_removed,
-    _rank_analysis,
-    _sigma0,
     _zero_records,
 )
+from ._rank import _check_connected, _plane_basis, _plane_removed, _rank_analysis
 from ._model import Survey
 
 __all__ = ["MoodyResult", "moody_reduce", "moody_reduction"]

@@ -1,8 +1,9 @@
 """The one entry to survey reduction: least squares over the observation network, or the Moody worksheet.
 
 The observation model, the datum and rank analysis and the diagnostics both
-reductions share live in :mod:`flatcheck.survey._network`; the classic Union Jack
-worksheet in :mod:`flatcheck.survey._moody`.
+reductions share live in :mod:`flatcheck.survey._network`, :mod:`flatcheck.survey._rank`
+and :mod:`flatcheck.survey._diagnostics`; the classic Union Jack worksheet in
+:mod:`flatcheck.survey._moody`.
 """
 
 from __future__ import annotations
@@ -11,6 +12,16 @@ import numpy as np
 
 from ..errors import InputValueError
 from ._model import Survey
+from ._diagnostics import (
+    _line_closures,
+    _obs_sigma,
+    _outlier_warnings,
+    _outliers,
+    _sigma0,
+    _snoop,
+    _standardize,
+    _weak_lines,
+)
 from ._network import (
     LinearReduction,
     METHODS,
@@ -18,23 +29,13 @@ from ._network import (
     _OPERATOR_MAX_OBS,
     _OPERATOR_MAX_UNKNOWNS,
     _REDUNDANCY_DENSE_MAX,
-    _solver,
     blas_one_thread,
     _heightmap,
     _label,
-    _line_closures,
     _linearised_values,
-    _obs_sigma,
-    _outlier_warnings,
-    _outliers,
-    _plane_removed,
-    _prepare,
-    _sigma0,
-    _snoop,
-    _standardize,
-    _weak_lines,
     _zero_records,
 )
+from ._rank import _plane_removed, _prepare, _solver
 
 
 def _least_squares(survey: Survey) -> Reduction:
