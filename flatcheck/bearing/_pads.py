@@ -2,7 +2,7 @@
 
 An air-bearing pad floats on a film a few micrometres thick, so the guide surface under any pad footprint
 must be flat to a small fraction of that gap, and the carriage carried by the pads follows the surface
-*averaged* over each footprint. This module takes a measured surface (a :class:`~flatcheck.heightmap.HeightMap`)
+*averaged* over each footprint. This module takes a measured surface (a :class:`~flatcheck.HeightMap`)
 and a pad or a carriage of pads and computes, for each position of the carriage along its travel:
 
 - per pad: the mean surface height under the footprint, the least-squares tilt of the footprint, the local

@@ -73,7 +73,7 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
         get_standard(standard)  # an unknown name fails here
 
 
-#: The pictures --png writes: NN-<picture>.png (see flatcheck.report.write_report).
+#: The pictures --png writes: NN-<picture>.png (see flatcheck.output.write_report).
 _PICTURE_NAME = re.compile(r"^\d\d-[a-z0-9-]+\.png$")
 
 

@@ -52,26 +52,15 @@ def _check_options(values: dict) -> None:
 
 def build_json(body_path, carriage_path, body, geometry, result, verdict, advice, safety) -> dict:
     """The JSON object of ``flatcheck guideway`` (µm, mm, arcsec, µrad as the keys say; pinned keys in docs)."""
-    from ..guideway import advice_summary, body_summary, carriage_summary, verdict_summary
+    from ..guideway import guideway_summary
 
     data = {
         "command": "guideway",
         "input": str(body_path),
         "carriage_file": None if carriage_path is None else str(carriage_path),
         "json_units": "heights um, positions mm, angles arcsec or urad as each key says",
-        "guideway": {"ident": body.ident, "description": body.description, "length_mm": body.length_mm,
-                     "material": body.material, "datum": body.datum},
     }
-    data.update(body_summary(geometry))
-    data["carriage"] = None if result is None else carriage_summary(result)
-    if verdict is None:
-        data.update({"verdict": None, "reason": "no carriage given: the body's geometry only", "checks": []})
-    else:
-        data.update(verdict_summary(verdict))
-    data["advice"] = advice_summary(advice)
-    data["warnings"] = list(body.notes) + list(geometry.warnings)
-    data["notes"] = list(geometry.notes)
-    data["safety"] = list(safety)
+    data.update(guideway_summary(body, geometry, result, verdict, advice, safety))
     return data
 
 

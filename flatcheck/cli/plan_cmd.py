@@ -85,7 +85,7 @@ def _layout_warnings(survey) -> list[str]:
     """What ``flatcheck reduce`` will refuse in this layout once it is read, with the fix as options.
 
     The layout is filled with exact zero readings and put through the reduction's own rank check
-    (:func:`flatcheck.reduction.network_rank`), so plan and reduce can never disagree.
+    (:func:`flatcheck.network_rank`), so plan and reduce can never disagree.
     """
     if survey.instrument.reads_heights:
         return []  # an indicator reads every height from one datum: nothing but the plane is hidden

@@ -108,7 +108,7 @@ class Decision:
 
 @dataclass(frozen=True)
 class GradeVerdict:
-    """One grade's tolerance (a :class:`flatcheck.tolerance.Tolerance`) and its decision."""
+    """One grade's tolerance (a :class:`flatcheck.Tolerance`) and its decision."""
 
     tolerance: object
     decision: Decision

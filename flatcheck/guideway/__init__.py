@@ -56,6 +56,6 @@ __getattr__, __dir__, __all__ = _attach(
         "_film_table": ("DEFAULT_FILM_MESH",),
         "_verdict": ("judge", "GuidewayVerdict", "GuidewayCheck"),
         "_advice": ("lapping_advice", "LappingAdvice"),
-        "_summary": ("body_summary", "carriage_summary", "verdict_summary", "advice_summary"),
+        "_summary": ("body_summary", "carriage_summary", "verdict_summary", "advice_summary", "guideway_summary"),
     },
 )

@@ -10,7 +10,7 @@ import numpy as np
 
 from ..units import URAD_TO_ARCSEC
 
-__all__ = ["body_summary", "carriage_summary", "verdict_summary", "advice_summary"]
+__all__ = ["body_summary", "carriage_summary", "verdict_summary", "advice_summary", "guideway_summary"]
 
 
 def _f(v) -> float:
@@ -153,3 +153,24 @@ def verdict_summary(verdict) -> dict:
 def advice_summary(advice) -> list:
     return [{"face": a.face, "reason": a.reason, "against": a.against, "remove_um": a.remove_um, "where": a.where,
              "text": a.text} for a in advice]
+
+
+def guideway_summary(body, geometry, result=None, verdict=None, advice=(), safety=()) -> dict:
+    """Everything stated about a guideway, JSON-ready: the body, its geometry, the carriage, verdict and advice.
+
+    The one summary that ``flatcheck guideway --json`` prints and the guideway report draws from
+    (heights µm, positions mm, angles arcsec or µrad as each key says).
+    """
+    data = {"guideway": {"ident": body.ident, "description": body.description, "length_mm": body.length_mm,
+                         "material": body.material, "datum": body.datum}}
+    data.update(body_summary(geometry))
+    data["carriage"] = None if result is None else carriage_summary(result)
+    if verdict is None:
+        data.update({"verdict": None, "reason": "no carriage given: the body's geometry only", "checks": []})
+    else:
+        data.update(verdict_summary(verdict))
+    data["advice"] = advice_summary(advice)
+    data["warnings"] = list(body.notes) + list(geometry.warnings)
+    data["notes"] = list(geometry.notes)
+    data["safety"] = list(safety)
+    return data

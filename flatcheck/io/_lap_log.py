@@ -27,7 +27,7 @@ LOG_HEADER = ("x_mm", "y_mm", "minutes")
 
 
 def read_lap_log(path) -> DwellLog:
-    """Read a lapping log into a :class:`~flatcheck.progress.DwellLog`.
+    """Read a lapping log into a :class:`~flatcheck.DwellLog`.
 
     Raises
     ------

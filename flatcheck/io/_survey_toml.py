@@ -13,7 +13,7 @@ The format is described in ``docs/survey-format.md``. In short::
     [[line]]        name, readings, order, flip_sign   (or several [[line.run]])
 
 The stations are not listed in the file: they are rebuilt from ``[layout]``
-with :mod:`flatcheck.layout`, so a file cannot disagree with its own layout.
+with :mod:`flatcheck.survey`, so a file cannot disagree with its own layout.
 Every problem is reported as a :class:`~flatcheck.errors.FlatcheckError` naming
 the file, the TOML line and the field, with a way to fix it.
 """

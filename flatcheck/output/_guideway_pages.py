@@ -398,21 +398,9 @@ def _page_methods(pages, data):
 
 def guideway_report_data(body, geometry, result=None, verdict=None, advice=(), safety=()) -> dict:
     """The plain summaries the pages draw from (those of ``flatcheck guideway --json``)."""
-    from ..guideway import advice_summary, body_summary, carriage_summary, verdict_summary
+    from ..guideway import guideway_summary
 
-    data = {"guideway": {"ident": body.ident, "description": body.description, "length_mm": body.length_mm,
-                         "material": body.material, "datum": body.datum}}
-    data.update(body_summary(geometry))
-    data["carriage"] = None if result is None else carriage_summary(result)
-    if verdict is None:
-        data.update({"verdict": None, "reason": "no carriage given: the body's geometry only", "checks": []})
-    else:
-        data.update(verdict_summary(verdict))
-    data["advice"] = advice_summary(advice)
-    data["warnings"] = list(body.notes) + list(geometry.warnings)
-    data["notes"] = list(geometry.notes)
-    data["safety"] = list(safety)
-    return data
+    return guideway_summary(body, geometry, result, verdict, advice, safety)
 
 
 def write_guideway_report(path, body, geometry, result=None, verdict=None, advice=(), safety=(), *,

@@ -8,7 +8,7 @@ Two steps, so that the numbers can be checked without drawing anything:
    plan); it returns a frozen :class:`ReportContent` with every number the
    report states.
 2. :func:`write_report` draws the pages from that content (through
-   :mod:`flatcheck.plot`, the only module that imports matplotlib) and writes
+   :mod:`flatcheck.output`, the only module that imports matplotlib) and writes
    the PDF atomically, optionally with each picture as a PNG file.
 
 This module holds the page plan (which pages a report has, in order: :func:`page_titles`), the

@@ -180,7 +180,7 @@ class ReportContent:
 
     @property
     def flatness(self):
-        """The :class:`flatcheck.flatness.FlatnessReport` (every reference plane), µm."""
+        """The :class:`flatcheck.FlatnessReport` (every reference plane), µm."""
         return self.evaluation.flatness
 
     @property
@@ -202,7 +202,7 @@ class ReportContent:
 
     @property
     def local(self):
-        """The :class:`flatcheck.local_flatness.LocalFlatness` of the evaluation's window, or None."""
+        """The :class:`flatcheck.LocalFlatness` of the evaluation's window, or None."""
         return self.evaluation.local
 
     @property
@@ -219,7 +219,7 @@ class ReportContent:
 
 # =============================================================================== analysis
 def _survey_lines(evaluation) -> list:
-    """Survey lines with their straightness zone (flatcheck.straightness) and the evaluation's closures."""
+    """Survey lines with their straightness zone (flatcheck.form) and the evaluation's closures."""
     from ..form import evaluate_straightness
 
     loaded = evaluation.loaded

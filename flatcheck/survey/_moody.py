@@ -318,7 +318,7 @@ def _moody_values(model, G: np.ndarray, Qp: np.ndarray) -> np.ndarray:
 
 
 def moody_reduction(survey: Survey) -> Reduction:
-    """:func:`moody_reduce` packed as a :class:`flatcheck.reduction.Reduction`.
+    """:func:`moody_reduce` packed as a :class:`flatcheck.Reduction`.
 
     Residuals are the observations minus the rises of the Moody map with each
     zero fitted to it; ``sigma0`` uses the network's redundancy. Outliers are not

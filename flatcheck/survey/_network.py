@@ -349,7 +349,7 @@ class Reduction:
     standardized_residual : ndarray, shape (n_obs,)
         ``w`` of every observation (NaN where it cannot be tested).
     moody : object or None
-        The :class:`flatcheck.moody.MoodyResult` for ``method="moody"``.
+        The :class:`flatcheck.MoodyResult` for ``method="moody"``.
     standardized_residual_after : ndarray, shape (n_obs,), or None
         ``w`` of every observation once the suspect readings found by iterated
         data snooping are set aside (NaN for the suspects and where it cannot be

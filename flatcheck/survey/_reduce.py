@@ -143,7 +143,7 @@ def reduce_survey(survey: Survey, *, method: str = "least-squares") -> Reduction
     method : {"least-squares", "moody"}
         ``"least-squares"``: network adjustment over every line of any layout
         (see the module notes). ``"moody"``: the classic Union Jack worksheet
-        (:func:`flatcheck.moody.moody_reduce`), Union Jack surveys only.
+        (:func:`flatcheck.moody_reduce`), Union Jack surveys only.
 
     Returns
     -------

@@ -64,7 +64,7 @@ def simulate_survey(
     Parameters
     ----------
     plan : Survey
-        A planned survey (from :mod:`flatcheck.layout`); existing runs are replaced.
+        A planned survey (from :mod:`flatcheck.survey`); existing runs are replaced.
     height_fn : callable
         ``height_fn(x_mm, y_mm) -> height_um``, vectorised over arrays of shape (n,).
     instrument_zero : None, float, "random", sequence or mapping

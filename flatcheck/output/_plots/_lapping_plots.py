@@ -180,7 +180,7 @@ def cell_chart(ax, chart, *, units: str = "um", title: str | None = None, box_mm
 
 
 def _own_ls_deviation(x, y, z):
-    """Heights about their own least-squares plane (µm), as :mod:`flatcheck.progress` refers each survey."""
+    """Heights about their own least-squares plane (µm), as :mod:`flatcheck.lapping` refers each survey."""
     from ...form import least_squares_plane
 
     p = least_squares_plane(x, y, z)
@@ -208,7 +208,7 @@ def compare_change_map(
     matched nodes marked as open circles:
 
     1. *before* and 2. *after*: each survey about its own least-squares plane (the reference
-       :func:`flatcheck.progress.compare_surveys` uses), drawn on one shared colour scale so they compare;
+       :func:`flatcheck.compare_surveys` uses), drawn on one shared colour scale so they compare;
     3. *change = after - before* (µm; negative = lower now), its zero contour drawn thick and the
        most-lowered node labelled (``gid`` "lowest");
     4. the *least removal* consistent with the change (µm, >= 0; ``Progress.removed_um``), its
@@ -227,7 +227,7 @@ def compare_change_map(
         Positions of the matched nodes (mm), e.g. ``Progress.x_mm``, ``Progress.y_mm``.
     before_um, after_um : ndarray, shape (n,)
         Heights of the two surveys at those nodes (µm), in the same order (the after survey's
-        heights re-ordered by :func:`flatcheck.progress.match_nodes`).
+        heights re-ordered by :func:`flatcheck.match_nodes`).
     removed_um : ndarray, shape (n,)
         Least removal consistent with the change (µm), e.g. ``Progress.removed_um``.
     units : {"um", "in"}

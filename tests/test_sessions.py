@@ -1,4 +1,4 @@
-"""Tests of flatcheck.progress: matching surveys, change map, removed volume, rate and sessions."""
+"""Tests of session-to-session progress (flatcheck.lapping: match_nodes, compare_surveys): change map, removed volume, rate and sessions."""
 
 import numpy as np
 import pytest

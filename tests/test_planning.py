@@ -1,4 +1,4 @@
-"""Tests of survey planning (flatcheck.layout)."""
+"""Tests of survey planning (flatcheck.survey: plan_union_jack, plan_grid, plan_lines, reading_sequence)."""
 
 import math
 
