@@ -4,10 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ...errors import InputValueError
-from ._common import (
-    _ACCENT, _INK, _fmt_abs, _height_scale, _pos_scale,
-)
+from ._common import _ACCENT, _INK, _height_scale, _pos_scale
 
 
 # ---------------------------------------------------------------------------- carriage
@@ -96,26 +93,6 @@ def carriage_path(
     if title:
         axes[0].set_title(title, fontsize=10, loc="left")
     return list(axes)
-
-
-def residual_histogram(ax, residual_um, *, units: str = "um", title: str | None = "reduction residuals"):
-    """Histogram of the reduction's residuals (µm) with their RMS marked."""
-    hs, hu = _height_scale(units)
-    r = np.asarray(residual_um, float).ravel() * hs
-    r = r[np.isfinite(r)]
-    if r.size == 0:
-        raise InputValueError("no residuals to draw", fix="reduce a survey with redundant readings")
-    rms = float(np.sqrt(np.mean(r**2)))
-    ax.hist(r, bins=max(5, min(30, r.size // 3)), color="0.6", ec=_INK, lw=0.5)
-    for s in (-rms, rms):
-        ax.axvline(s, color=_ACCENT, lw=1.0, ls="--")
-    ax.set_xlabel(f"residual ({hu})")
-    ax.set_ylabel("readings")
-    ax.text(0.98, 0.95, f"RMS {_fmt_abs(rms, hu)}\n{r.size} readings", transform=ax.transAxes, ha="right",
-            va="top", fontsize=7)
-    if title:
-        ax.set_title(title, fontsize=10, loc="left")
-    return ax
 
 
 def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92)):
