@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING
 
 from ._app import app
 from .common import (
+    Interp,
     SAFETY_LINES,
     auto_trials_option,
     default_auto_trials,
@@ -40,11 +41,6 @@ if TYPE_CHECKING:  # annotations only
 class PadKind(str, Enum):
     porous = "porous"
     orifice = "orifice"
-
-
-class Interp(str, Enum):
-    linear = "linear"
-    cubic = "cubic"
 
 
 def result_json(result: BearingResult, *, input_path: Path, label: str, units: str) -> dict:

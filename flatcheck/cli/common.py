@@ -18,6 +18,9 @@ from ..safety import SAFETY_LINES as _SAFETY_LINES
 
 __all__ = [
     "Units",
+    "Interp",
+    "Method",
+    "Rule",
     "stdout_console",
     "stderr_console",
     "emit_json",
@@ -56,6 +59,13 @@ class Rule(str, Enum):
 #: Help of the air-bearing target options, shared by the commands that take a target (lap, compare, report).
 TARGET_GAP_HELP = "Target: the air-bearing limit for this gap in µm (a fraction of it, see --gap-fraction)."
 GAP_FRACTION_HELP = "With --target-gap-um: the fraction of the gap (default 0.25, common practice)."
+
+
+class Interp(str, Enum):
+    """Interpolation between surveyed stations (``--interp``)."""
+
+    linear = "linear"
+    cubic = "cubic"
 
 
 class Units(str, Enum):

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-from enum import Enum
 from pathlib import Path
 
 import typer
@@ -10,6 +9,7 @@ import typer
 from ..errors import InputValueError
 from ._app import app
 from .common import (
+    Interp,
     Units,
     check_output,
     emit_json,
@@ -18,11 +18,6 @@ from .common import (
     stdout_console,
     units_option,
 )
-
-
-class Interp(str, Enum):
-    linear = "linear"
-    cubic = "cubic"
 
 
 def _x(v) -> str:

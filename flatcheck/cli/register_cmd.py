@@ -21,6 +21,7 @@ from rich.text import Text
 from ..errors import FlatcheckError, InputFormatError, InputValueError
 from ._app import app
 from .common import (
+    Method,
     check_output,
     default_auto_trials,
     emit_json,
@@ -88,11 +89,6 @@ def _plain(text) -> Text:
 class State(str, Enum):
     as_found = "as-found"
     as_left = "as-left"
-
-
-class Method(str, Enum):
-    least_squares = "least-squares"
-    moody = "moody"
 
 
 def _expand(paths: list[Path]) -> list[Path]:
