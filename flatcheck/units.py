@@ -212,14 +212,64 @@ def height_unit_label(units: str) -> str:
     return "µm" if units == "um" else "µin"
 
 
-def format_height(v_um: float, units: str, *, unit: bool = True) -> str:
-    """A height (µm) as displayed: µm to the nm, µin to 0.1 µin (about 2.5 nm), with its unit symbol.
+#: Finest and coarsest decimals a height is printed with, in µm (1 nm .. 1 µm) and µin (0.1 .. 1 µin).
+_HEIGHT_DECIMALS = {"um": (0, 3), "in": (0, 1)}
 
-    No more digits in µin than the µm figure carries. ``unit=False`` gives the number alone (table
+
+def height_decimals(step_um: float | None, units: str) -> int:
+    """Decimals for heights resolved to ``step_um`` (µm), in the display system ``"um"`` or ``"in"``.
+
+    The one rule for a height printed without an uncertainty: its last digit is the power of ten
+    nearest (on a log scale) to the height step the measurement resolves, so that no digit is finer
+    than about a third of that step and none coarser than about three steps; µm to between 1 µm and
+    1 nm, µin to between 1 µin and 0.1 µin. ``None`` (no instrument known) gives the finest. A value
+    with an uncertainty follows :func:`round_to_uncertainty` instead.
+
+    Examples
+    --------
+    An autocollimator's 0.05 arcsec over 100 mm (0.024 µm) prints to 0.01 µm, or to 1 µin:
+
+    >>> height_decimals(0.024, "um"), height_decimals(0.024, "in")
+    (2, 0)
+    >>> height_decimals(0.1, "um"), height_decimals(None, "um")
+    (1, 3)
+    """
+    lo, hi = _HEIGHT_DECIMALS["in" if units == "in" else "um"]
+    if step_um is None or not math.isfinite(step_um) or step_um <= 0.0:
+        return hi
+    step = step_um / UM_PER_UIN if units == "in" else step_um
+    return int(min(max(-round(math.log10(step)), lo), hi))
+
+
+def format_height(v_um: float, units: str, *, unit: bool = True, step_um: float | None = None) -> str:
+    """A height (µm) as displayed, with its unit symbol, to the decimals that fit ``step_um``.
+
+    ``step_um`` is the height step the measurement resolves
+    (:meth:`flatcheck.evaluation.MeasuredSurface.height_step_um`); see :func:`height_decimals`.
+    Without it, µm to the nm and µin to 0.1 µin. ``unit=False`` gives the number alone (table
     columns that name the unit in their header).
+
+    Examples
+    --------
+    >>> format_height(2.48624, "um", step_um=0.024), format_height(2.48624, "um")
+    ('2.49 µm', '2.486 µm')
     """
     v = um_to(v_um, units)
-    text = f"{v:.3f}" if units == "um" else f"{v:.1f}"
+    text = f"{v:.{height_decimals(step_um, units)}f}"
+    return f"{text} {height_unit_label(units)}" if unit else text
+
+
+def format_limit(v_um: float, units: str, *, unit: bool = True) -> str:
+    """A limit or tolerance (µm) as it is stated, not measured: no trailing zeros, µm to at most 1 nm and
+    µin to at most 0.1 µin.
+
+    Examples
+    --------
+    >>> format_limit(4.0, "um"), format_limit(2.5, "um"), format_limit(4.0, "in")
+    ('4 µm', '2.5 µm', '157.5 µin')
+    """
+    v = um_to(v_um, units)
+    text = f"{round(v, 1 if units == 'in' else 3):g}"
     return f"{text} {height_unit_label(units)}" if unit else text
 
 

@@ -4,6 +4,7 @@ pypdfium2 is a Python package of the ``test`` extra (``pip install ".[test]"``),
 Python (issue 15, item 1); the ``pdf_tools`` fixture in ``tests/conftest.py`` wraps it.
 """
 
+import math
 import re
 from pathlib import Path
 
@@ -134,7 +135,9 @@ def test_report_states_the_flatness_computed_independently(sample_report, pdf):
     mz = _mz_reference(hm.x_mm, hm.y_mm, hm.height_um)
     A = np.column_stack([np.ones(hm.n), hm.x_mm, hm.y_mm])
     r = hm.height_um - A @ np.linalg.lstsq(A, hm.height_um, rcond=None)[0]
-    assert f"{mz:.3f} µm" in text
+    # stated with its U (two significant digits), to U's decimal place (JCGM 100:2008, 7.2.6)
+    u_mz = float(f"{content.u_mz_um:.2g}")
+    assert f"{mz:.{max(0, 1 - int(np.floor(np.log10(u_mz))))}f} µm" in text
     # the summary states each flatness with its U: U to two significant digits and the value to the same decimal
     # place (JCGM 100:2008, 7.2.6; issue 16 item 6; before that change the least-squares value had three decimals)
     u_ls = float(f"{content.u_ls_um:.2g}")
@@ -235,12 +238,18 @@ def test_uncertainty_note_follows_the_display_units(tmp_path):
     um, uin = report_content.uncertainty_text(content, "um"), report_content.uncertainty_text(content, "in")
     lo, hi = ev.uncertainty.minimum_zone.corrected_interval_um  # the bias-corrected 95 % interval (issue 16)
     s0 = ev.loaded.reduction.sigma0_um
+    U = ev.uncertainty.minimum_zone.expanded_um
+
+    def to_u(x, u):  # the interval's ends to the decimal place of U's second significant digit (JCGM 100, 7.2.6)
+        d = max(1 - math.floor(math.log10(u)), 0)
+        return f"{x:.{d}f}"
+
     # 1 µin = 0.0254 µm exactly (international inch, 1959)
-    assert f"{lo / 0.0254:.1f} µin to {hi / 0.0254:.1f} µin" in uin
+    assert f"{to_u(lo / 0.0254, U / 0.0254)} µin to {to_u(hi / 0.0254, U / 0.0254)} µin" in uin
     assert f"{s0 / 0.0254:.1f} µin" in uin and "µm" not in uin
-    assert f"{lo:.3f} µm to {hi:.3f} µm" in um and f"{s0:.3f} µm" in um
+    assert f"{to_u(lo, U)} µm to {to_u(hi, U)} µm" in um and f"{s0:.3f} µm" in um
     text = _page_text(report_pages._page_summary, content, "in")
-    assert f"{lo / 0.0254:.1f} µin" in text and f"{s0:.3f} µm" not in text
+    assert f"{to_u(lo / 0.0254, U / 0.0254)} µin" in text and f"{s0:.3f} µm" not in text
 
 
 def test_a_lapping_target_needs_a_lap():

@@ -42,7 +42,7 @@ def render_grades(report: dict, units: str) -> None:
     hu = height_unit_label(units)
 
     def h(v):
-        return "-" if v is None else format_height(v, units, unit=False)
+        return "-" if v is None else format_height(v, units, unit=False, step_um=report.get("height_step_um"))
 
     def tol(v):
         """A limit at the precision its source gives it (issue 15, item 8): 0.1 µm steps show as one decimal,

@@ -19,25 +19,14 @@ def _finite(v) -> bool:
         return False
 
 
-def _fmt(v, units):
-    """A height (µm) in the display unit: 3 decimals of µm or 1 of µin; '-' when there is none."""
+def _fmt(v, units, step_um=None):
+    """A height (µm) in the display unit, to the decimals that fit the measurement's height step
+    (:func:`flatcheck.units.height_decimals`); '-' when there is none."""
     if not _finite(v):
         return "-"
-    text = format_height(v, units, unit=False)
+    text = format_height(v, units, unit=False, step_um=step_um)
     # a tiny negative number rounds to "-0.000": no sign on a zero
     return text[1:] if text.startswith("-") and float(text) == 0 else text
-
-
-def _closure(v, units):
-    """A closure error at the precision a flatness instrument gives (issue 15, item 8): 0.01 µm (10 nm; an
-    autocollimator's 0.1 arcsec over a 100 mm base is 0.05 µm) or whole µin, not nanometres."""
-    if not _finite(v):
-        return "-"
-    from ..units import um_to
-
-    x = um_to(v, units)
-    text = f"{x:.0f}" if units == "in" else f"{x:.2f}"
-    return text.lstrip("-") if float(text) == 0 else text
 
 
 def _window_text(lf: dict, units: str) -> str:
@@ -50,12 +39,32 @@ def _window_text(lf: dict, units: str) -> str:
     return f"{a:.2f} x {b:.2f} in ({lf['window']})"
 
 
+def _precision_text(ev, units) -> str:
+    """Which step heights without an uncertainty are printed to, and why (one rule: units.height_decimals)."""
+    from ..units import height_decimals, um_to
+
+    hu = height_unit_label(units)
+    d = height_decimals(ev.height_step_um, units)
+    quantum = f"{10.0 ** -d:.{d}f} {hu}"
+    if ev.loaded.survey is None:
+        return f"heights to {quantum} (a height map states no instrument resolution)"
+    return (f"heights to {quantum}: one reading resolves {um_to(ev.height_step_um, units):.2g} {hu} "
+            "(instrument resolution over the shortest foot spacing)")
+
+
+def _sd(v, units) -> str:
+    """A standard deviation (µm) in the display unit, to two significant digits, as an uncertainty is."""
+    from ..units import format_with_uncertainty
+
+    return format_with_uncertainty(v, v, units, unit=False)[1]
+
+
 def _scatter_text(res: dict, units: str, reading_unit: str) -> str:
     """One reading's standard deviation, or why there is none (no redundancy: sigma0 is NaN or missing)."""
     s0 = res.get("sigma0_um")
     if not _finite(s0) or not res.get("redundancy"):
         return "no redundancy: no scatter estimate"
-    text = f"{_fmt(s0, units)} {height_unit_label(units)}"
+    text = f"{_sd(s0, units)} {height_unit_label(units)}"
     s0r = res.get("sigma0_reading")
     if _finite(s0r):
         text += f" ({s0r:.3g} {reading_unit})"
@@ -64,6 +73,7 @@ def _scatter_text(res: dict, units: str, reading_unit: str) -> str:
 
 def render_reduction(ev, doc, units, map_out) -> None:
     con = stdout_console()
+    step = ev.height_step_um  # heights without an uncertainty print to the step the measurement resolves
     hu = height_unit_label(units)
     f = doc["flatness"]
     con.print(f"[bold]{escape(doc['surface']['description'] or 'Surface')}[/bold]  "
@@ -74,6 +84,7 @@ def render_reduction(ev, doc, units, map_out) -> None:
         con.print(f"  instrument: {escape(str(ins['kind']))}, readings in {escape(str(ins['unit']))}; "
                   f"pattern {escape(str(doc.get('pattern')))}")
     con.print(f"  method: {ev.method_text}")
+    con.print(f"  {_precision_text(ev, units)}")
     con.print(
         f"  {ev.heightmap.n} {'stations' if ev.loaded.survey is not None else 'points'}"
         + (f", {doc['residuals']['observations']} readings" if doc.get("residuals") else "")
@@ -86,9 +97,9 @@ def render_reduction(ev, doc, units, map_out) -> None:
     t.add_column("valley (FLTv)", justify="right")
     t.add_column("RMS (FLTq)", justify="right")
     for row in doc["flatness"]["references"]:
-        t.add_row(row["reference"], _fmt(row["fltt_um"], units), _fmt(row["fltp_um"], units), _fmt(row["fltv_um"], units), _fmt(row["fltq_um"], units))
+        t.add_row(row["reference"], _fmt(row["fltt_um"], units, step), _fmt(row["fltp_um"], units, step), _fmt(row["fltv_um"], units, step), _fmt(row["fltq_um"], units, step))
     con.print(t)
-    line = f"  flatness (minimum zone): [bold]{_fmt(f['minimum_zone_um'], units)} {hu}[/bold]"
+    line = f"  flatness (minimum zone): [bold]{_fmt(f['minimum_zone_um'], units, step)} {hu}[/bold]"
     if f.get("expanded_uncertainty_um") is not None:
         from ..units import format_with_uncertainty
 
@@ -106,7 +117,7 @@ def render_reduction(ev, doc, units, map_out) -> None:
     lf = doc.get("local_flatness")
     if lf:
         con.print(
-            f"  local flatness over {_window_text(lf, units)}: {_fmt(lf['max_um'], units)} {hu} at "
+            f"  local flatness over {_window_text(lf, units)}: {_fmt(lf['max_um'], units, step)} {hu} at "
             f"x = {format_length(lf['x_mm'], units)}, y = {format_length(lf['y_mm'], units)}"
         )
     res = doc.get("residuals")
@@ -126,8 +137,8 @@ def render_reduction(ev, doc, units, map_out) -> None:
             t.add_column("straightness (MZ)", justify="right")
             t.add_column("runs spread", justify="right")
             for ln in lines:
-                t.add_row(escape(ln["name"]), _closure(ln["closure_um"], units), escape(ln.get("closure_station") or ""),
-                          _fmt(ln.get("straightness_um"), units), _fmt(ln.get("run_spread_um"), units))
+                t.add_row(escape(ln["name"]), _fmt(ln["closure_um"], units, step), escape(ln.get("closure_station") or ""),
+                          _fmt(ln.get("straightness_um"), units, step), _fmt(ln.get("run_spread_um"), units, step))
             con.print(t)
             meaning = {ln["meaning"] for ln in lines if ln.get("meaning")}
             for m in meaning:
@@ -157,13 +168,14 @@ def render_reduction(ev, doc, units, map_out) -> None:
 
 def _render_map(con, ev, units) -> None:
     hm = ev.heightmap_about_ls  # the plane the titles below name, for surveys and height maps alike
+    step = ev.height_step_um
     hu = height_unit_label(units)
     if hm.grid is not None:
         xs, ys, index = hm.grid
         if xs.size > 16 or ys.size > 30:
             return
         Z = hm.grid_heights_um()
-        cells = [[_fmt(z, units) for z in Z[j]] for j in range(ys.size - 1, -1, -1)]
+        cells = [[_fmt(z, units, step) for z in Z[j]] for j in range(ys.size - 1, -1, -1)]
         lu = "in" if units == "in" else "mm"
         if units == "in":
             ylab = [format_length(y, units, unit=False) for y in ys[::-1]]
@@ -199,7 +211,7 @@ def _render_map(con, ev, units) -> None:
             t.add_column("y in" if units == "in" else "y mm", justify="right")
             t.add_column(hu, justify="right")
         cells = [
-            (escape(n), format_length(x, units, unit=False), format_length(y, units, unit=False), _fmt(z, units))
+            (escape(n), format_length(x, units, unit=False), format_length(y, units, unit=False), _fmt(z, units, step))
             for n, x, y, z in zip(hm.names, hm.x_mm, hm.y_mm, hm.height_um)
         ]
         half = (len(cells) + 1) // 2

@@ -154,15 +154,16 @@ def _fmt_where(where) -> str:
     return "x = " + ", ".join(parts) + " mm" + more
 
 
-def render_summary(result: BearingResult, *, label: str, units: str) -> None:
-    """Human summary on standard output (rich)."""
+def render_summary(result: BearingResult, *, label: str, units: str, step_um: float | None = None) -> None:
+    """Human summary on standard output (rich); heights without an uncertainty to ``step_um``, the step the
+    surface's survey resolves, and limits as stated."""
     from rich.table import Table
-    from ..units import format_height, format_with_uncertainty, round_to_uncertainty
+    from ..units import format_height, format_limit, format_with_uncertainty, round_to_uncertainty
 
     con = stdout_console()
 
     def h(v):
-        return format_height(v, units)
+        return format_height(v, units, step_um=step_um)
 
     colour = {"fit": "green", "marginal": "yellow", "unfit": "red"}[result.verdict]
     pads = result.carriage.active_pads
@@ -194,7 +195,7 @@ def render_summary(result: BearingResult, *, label: str, units: str) -> None:
         u = getattr(c, "expanded_uncertainty", None)
         u_txt = "-"
         if c.unit == "um":
-            val, lim = h(c.value), h(c.limit)
+            val, lim = h(c.value), format_limit(c.limit, units)
             if u is not None:  # U to two significant digits, the value to the same decimal place
                 val, u_txt = format_with_uncertainty(c.value, u, units)
         elif c.unit == "%":
@@ -395,7 +396,7 @@ def bearing_cmd(
             _add_film_json(data, film)
         emit_json(data)
     else:
-        render_summary(result, label=label, units=units.value)
+        render_summary(result, label=label, units=units.value, step_um=loaded.height_step_um())
         if film is not None:
             _render_film(film, units=units.value)
         if plot_out is not None:

@@ -108,7 +108,7 @@ def _change_grid(pr: Progress):
     return HeightMap(pr.x_mm, pr.y_mm, pr.change_referred_um).grid
 
 
-def change_grid_text(pr: Progress, units: str, width: int, grid=None) -> str | None:
+def change_grid_text(pr: Progress, units: str, width: int, grid=None, step_um: float | None = None) -> str | None:
     """The change on a grid of nodes as plain text rows (north at the top), or None if it does not fit.
 
     The values are after minus before referred to the plane of the least removal, so untouched areas read
@@ -127,7 +127,7 @@ def change_grid_text(pr: Progress, units: str, width: int, grid=None) -> str | N
         return None
 
     def cell(v_um):
-        s = format_height(v_um, units, unit=False)
+        s = format_height(v_um, units, unit=False, step_um=step_um)
         return "0" if float(s) == 0 else s  # no "-0.000"
 
     ylab = [f"{y:g}" for y in ys]
@@ -176,7 +176,7 @@ def sessions_text(pr: Progress) -> str:
     return f"{left}, about {f:.1f} more sessions like this one{when}"
 
 
-def change_table(pr: Progress, names, units: str):
+def change_table(pr: Progress, names, units: str, step_um: float | None = None):
     """The change at each station by name (a layout that is not a regular grid, e.g. a Union Jack), or None.
 
     The change is after minus before referred to the plane of the least removal (untouched areas read about 0),
@@ -196,29 +196,30 @@ def change_table(pr: Progress, names, units: str):
                        (f"removed {hu}", True)):
         t.add_column(col, justify="right" if right else "left", no_wrap=True)
     for n, x, y, c, r in zip(names, pr.x_mm, pr.y_mm, pr.change_referred_um, pr.removed_um):
-        text = format_height(c, units, unit=False)
+        text = format_height(c, units, unit=False, step_um=step_um)
         t.add_row(escape(str(n)), format_length(x, units, unit=False), format_length(y, units, unit=False),
-                  "0" if float(text) == 0 else text, format_height(r, units, unit=False))
+                  "0" if float(text) == 0 else text, format_height(r, units, unit=False, step_um=step_um))
     return t
 
 
 def render_summary(pr: Progress, *, lap: LapModel | None, target_source, units: str, names=None, target=None,
-                   decision=None) -> None:
+                   decision=None, step_um: float | None = None) -> None:
     """Human summary on stdout; ``names`` are the stations' names (in the order of ``pr``'s nodes), if any;
-    ``target`` (a ``LapTarget``) and ``decision`` (the after survey against its limit) for a limit to prove."""
+    ``target`` (a ``LapTarget``) and ``decision`` (the after survey against its limit) for a limit to prove;
+    heights without an uncertainty to ``step_um``, the coarser of the two surveys' height steps."""
     from ..units import format_height, format_with_uncertainty
 
     con = stdout_console()
 
     def h(v):
-        return format_height(v, units)
+        return format_height(v, units, step_um=step_um)
 
     con.print(f"[bold]Progress[/bold] over {pr.x_mm.size} matched nodes (tolerance {pr.tol_mm:g} mm)")
     con.print(f"Flatness (minimum zone): before {h(pr.flatness_before_um)}, after {h(pr.flatness_after_um)}")
     con.print(f"Removed {pr.removed_volume_mm3:.4g} mm^3, deepest {h(pr.max_removed_um)}")
     grid = _change_grid(pr)
-    text = change_grid_text(pr, units, con.width, grid)
-    table = None if text is not None else change_table(pr, names, units)
+    text = change_grid_text(pr, units, con.width, grid, step_um)
+    table = None if text is not None else change_table(pr, names, units, step_um)
     if text is not None:
         con.print(text, markup=False)
     elif table is not None:  # not a grid (a Union Jack): the change by station name (issue 15, item 12)
@@ -429,8 +430,10 @@ def compare_cmd(
                        target_decision_rule=None if decision is None else decision.statement)
         emit_json(doc)
     else:
+        # a change is known no finer than the coarser of the two surveys resolves
+        step = max(lb.height_step_um(), la.height_step_um())
         render_summary(pr, lap=lap, target_source=source, units=units.value, names=hb.names, target=tgt,
-                       decision=decision)
+                       decision=decision, step_um=step)
         if plot_out is not None:
             stdout_console().print(f"picture written to {plot_out}", markup=False)
 

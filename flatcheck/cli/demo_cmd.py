@@ -80,12 +80,12 @@ def _show_guideway(con, units: str) -> None:
               soft_wrap=True)
     con.print(f"guideway   {escape(body.ident)}" + (f": {escape(body.description)}" if body.description else ""),
               soft_wrap=True)
-    con.print("faces      " + "; ".join(f"{escape(f.name)} flatness {format_height(f.flatness_um, units)}"
+    con.print("faces      " + "; ".join(f"{escape(f.name)} flatness {format_height(f.flatness_um, units, step_um=body.height_step_um)}"
                                         for f in geometry.faces), soft_wrap=True)
     par = [p for p in geometry.parallelism if not p.reverse and p.value_um == p.value_um]
     if par:
         con.print("parallel   " + "; ".join(f"{escape(p.faces[0])} to {escape(p.faces[1])} "
-                                            f"{format_height(p.value_um, units)}" for p in par), soft_wrap=True)
+                                            f"{format_height(p.value_um, units, step_um=body.height_step_um)}" for p in par), soft_wrap=True)
     m = result.motion
     con.print(f"carriage   {len(result.pads)} pads; pitch {m.pitch_range_arcsec:.2f}, yaw {m.yaw_range_arcsec:.2f}, "
               f"roll {m.roll_range_arcsec:.2f} arcsec over the travel", soft_wrap=True)
@@ -171,7 +171,7 @@ def demo_cmd(
     grading = grade_surface(
         loaded.heightmap, standard=DEMO_STANDARD, grade=None, tolerance_um=None, rule="iso14253",
         expanded_uncertainty_um=ev.uncertainty.minimum_zone.expanded_um, length_mm=None, width_mm=None,
-        length_basis=None, basis="formula", asme_form="inch",
+        length_basis=None, basis="formula", asme_form="inch", height_step_um=ev.height_step_um,
     )
     grading["input"] = str(survey_copy)
     render_grades(grading, units.value)

@@ -243,12 +243,18 @@ def _finish(session: _Session) -> None:
     hm, red = loaded.heightmap, loaded.reduction
     fr = evaluate_flatness(hm.x_mm, hm.y_mm, hm.height_um)
     mz, ls = fr.mzpl.fltt_um, fr.lspl.fltt_um
-    inch = session.inches
-    tail = (lambda v: f" ({v / 0.0254:.1f} µin)") if inch else (lambda v: "")  # 1 µin = 0.0254 µm exactly
+    from ..units import format_height
+
+    step = loaded.height_step_um()  # heights to the step the instrument resolves over the foot spacing
+
+    def both(v):
+        text = format_height(v, "um", step_um=step)
+        return f"{text} ({format_height(v, 'in', step_um=step)})" if session.inches else text
+
     con.print(f"Reduced by least squares: {hm.n} stations, {red.rank.n_observations} readings, "
               f"redundancy {red.redundancy}.", markup=False, highlight=False)
-    con.print(f"  flatness (minimum zone):          {mz:.3f} µm{tail(mz)}", markup=False, highlight=False)
-    con.print(f"  about the least-squares plane:    {ls:.3f} µm{tail(ls)}", markup=False, highlight=False)
+    con.print(f"  flatness (minimum zone):          {both(mz)}", markup=False, highlight=False)
+    con.print(f"  about the least-squares plane:    {both(ls)}", markup=False, highlight=False)
     shown = set()
     for o in red.outliers:
         if o.group == 0 or (o.group is not None and o.group in shown):

@@ -367,8 +367,12 @@ def _render(doc: dict, units: str, map_out) -> None:
                   f"{loc['max_nm']:.0f} nm at x = {loc['x_mm']:.1f}, y = {loc['y_mm']:.1f} mm")
     pad = doc.get("pad_face")
     if pad:
-        con.print(f"  pad face against a {pad['gap_um']:g} µm film: {pad['flatness_um']:.3f} µm of a "
-                  f"{pad['limit_um']:.3f} µm limit ({pad['fraction']:g} of the gap): [bold]{pad['verdict']}[/bold]")
+        from ..units import format_limit
+
+        # the flatness in whole nm as the rest of this summary states it, the limit as stated
+        con.print(f"  pad face against a {pad['gap_um']:g} µm film: {1000.0 * pad['flatness_um']:.0f} nm of a "
+                  f"{format_limit(pad['limit_um'], 'um')} limit ({pad['fraction']:g} of the gap): "
+                  f"[bold]{pad['verdict']}[/bold]")
     for key, word in (("assumptions", "assumed"), ("cannot_tell", "cannot tell")):
         for t in doc.get(key) or []:
             con.print(f"  [yellow]{word}:[/yellow] {escape(t)}")

@@ -172,6 +172,7 @@ def grade_cmd(
         asme_form=asme_form.value,
         repeat_foot_radius_mm=repeat_foot_radius_mm,
         repeat_tolerance_um=repeat_tolerance_um,
+        height_step_um=loaded.height_step_um(lab=load_lab_defaults(uncertainty_defaults)),
     )
     report["input"] = str(input)
     if length_basis is not None and length_basis.value == "diagonal" and standard and standard.lower().startswith("asme"):

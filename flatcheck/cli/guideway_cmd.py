@@ -67,9 +67,10 @@ def render(data: dict, *, units: str) -> None:
     from ..units import format_height, height_unit_label
 
     con = stdout_console()
+    step = data.get("height_step_um")
 
     def h(v):
-        return "–" if v is None or v != v else format_height(v, units)
+        return "–" if v is None or v != v else format_height(v, units, step_um=step)
 
     g = data["guideway"]
     title = f"[bold]Guideway[/bold] {escape(g['ident'])}"
@@ -79,7 +80,7 @@ def render(data: dict, *, units: str) -> None:
     hu = height_unit_label(units)
 
     def hn(v):
-        return "–" if v is None or v != v else format_height(v, units, unit=False)
+        return "–" if v is None or v != v else format_height(v, units, unit=False, step_um=step)
 
     t = Table(title="Faces (heights outward; offset and tilts: where the ties put each face)", title_justify="left")
     for col in ("face", "normal", f"flatness {hu}", f"straightness {hu}", f"offset {hu}", "tilt along µrad",

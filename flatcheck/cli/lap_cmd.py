@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 from ._app import app
 from .common import (
+    load_lab_defaults,
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
     auto_trials_option,
@@ -37,7 +38,8 @@ if TYPE_CHECKING:  # annotations only
     from ..lapping import LapPlan
 
 
-def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str, notes: list, units: str) -> dict:
+def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str, notes: list, units: str,
+              step_um: float | None = None) -> dict:
     """The pinned JSON object of ``flatcheck lap``."""
     lr = plan.removal
     return {
@@ -83,7 +85,7 @@ def plan_json(plan: LapPlan, *, input_path: Path, label: str, target_source: str
             "levels": plan.shortfall.levels,
             "levels_suggested": plan.shortfall.levels_suggested,
             "levels_suggested_flatness_um": plan.shortfall.levels_suggested_um,
-            "text": plan.shortfall.text(units),
+            "text": plan.shortfall.text(units, step_um),
         },
         "chart": {
             "columns": plan.chart.columns,
@@ -136,7 +138,7 @@ def _fmt_pass_time(plan: LapPlan, p) -> str:
     return t
 
 
-def short_by_hand_line(plan: LapPlan, units: str) -> str:
+def short_by_hand_line(plan: LapPlan, units: str, step_um: float | None = None) -> str:
     """The footnote of the passes marked "!" (empty when there are none)."""
     from ..units import format_height
 
@@ -148,7 +150,8 @@ def short_by_hand_line(plan: LapPlan, units: str) -> str:
     return (
         f"! pass{'es' if n > 1 else ''} {orders}: {what}, too short to work evenly by hand; add the time to the "
         f"pass before or skip it (skipping {'all ' + str(n) if n > 1 else 'it'}: predicted "
-        f"{format_height(plan.flatness_skipping_short_um, units)} instead of {format_height(plan.predicted_flatness_um, units)})"
+        f"{format_height(plan.flatness_skipping_short_um, units, step_um=step_um)} instead of "
+        f"{format_height(plan.predicted_flatness_um, units, step_um=step_um)})"
     )
 
 
@@ -212,17 +215,18 @@ def chart_text(plan: LapPlan, max_width: int = 96) -> str:
     return "\n".join(lines)
 
 
-def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> str:
+def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str,
+              step_um: float | None = None) -> str:
     """The whole plan as plain text: summary, passes, chart, caution."""
     from ..units import format_height
 
     lr = plan.removal
 
     def h(v):
-        return format_height(v, units)
+        return format_height(v, units, step_um=step_um)
 
     if not plan.passes:  # one sentence, not an empty plan (issue 15, item 13)
-        return already_met_text(plan, label=label, target_source=target_source, units=units) + "\n"
+        return already_met_text(plan, label=label, target_source=target_source, units=units, step_um=step_um) + "\n"
     out = [
         f"Lapping plan for {label}",
         f"Target flatness {h(lr.target_um)} ({target_source}); now {h(lr.flatness_before_um)}",
@@ -231,7 +235,7 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
         f"Predicted flatness after the plan: {h(plan.predicted_flatness_um)} "
         f"(unrounded dwell {h(plan.dwell_flatness_um)}); total {_fmt_time(plan.total_time, plan.lap.time_unit)}",
         tidy_line(plan),
-        *([plan.shortfall.text(units)] if plan.shortfall is not None else []),
+        *([plan.shortfall.text(units, step_um)] if plan.shortfall is not None else []),
         "",
         "Passes, highest first (work the lap evenly over the zone for the time given):",
         f"{'#':>3}  {'zone':<10} {'centre x, y (mm)':<18} {'extent x, y (mm)':<26} {'depth':>12}  time",
@@ -246,7 +250,7 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
         out.append("  none: the surface is already within the target")
     else:
         if plan.too_short_by_hand:
-            out.append(short_by_hand_line(plan, units))
+            out.append(short_by_hand_line(plan, units, step_um))
         out += ["", chart_text(plan)]
     out.append("")
     out += [f"Note: {n}" for n in notes]
@@ -256,16 +260,19 @@ def plan_text(plan: LapPlan, *, label: str, target_source: str, notes: list, uni
                      for line in out) + "\n"
 
 
-def already_met_text(plan: LapPlan, *, label: str, target_source: str, units: str) -> str:
+def already_met_text(plan: LapPlan, *, label: str, target_source: str, units: str,
+                     step_um: float | None = None) -> str:
     """The whole plan when the surface is already within the target: one sentence."""
     from ..units import format_height
 
     lr = plan.removal
-    return (f"{label} is already within the target {format_height(lr.target_um, units)} ({target_source}): its "
-            f"flatness is {format_height(lr.flatness_before_um, units)}, so no lapping is needed.")
+    return (f"{label} is already within the target {format_height(lr.target_um, units, step_um=step_um)} "
+            f"({target_source}): its flatness is {format_height(lr.flatness_before_um, units, step_um=step_um)}, so no "
+            "lapping is needed.")
 
 
-def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str) -> None:
+def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list, units: str,
+                   step_um: float | None = None) -> None:
     """Human summary on stdout (rich)."""
     from rich.table import Table
     from ..units import format_height
@@ -276,10 +283,11 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     hu = height_unit_label(units)
 
     def h(v):
-        return format_height(v, units)
+        return format_height(v, units, step_um=step_um)
 
     if not plan.passes:  # one sentence, not an empty plan (issue 15, item 13)
-        con.print(already_met_text(plan, label=label, target_source=target_source, units=units), markup=False)
+        con.print(already_met_text(plan, label=label, target_source=target_source, units=units, step_um=step_um),
+                  markup=False)
         return
     con.print(f"[bold]Lapping plan[/bold] for {escape(label)}")
     con.print(f"Target flatness {h(lr.target_um)} ({escape(target_source)}); minimum zone now {h(lr.flatness_before_um)}",
@@ -295,7 +303,7 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
     if plan.passes:
         con.print(tidy_line(plan), markup=False)
     if plan.shortfall is not None:
-        con.print(plan.shortfall.text(units), markup=False)
+        con.print(plan.shortfall.text(units, step_um), markup=False)
     table = Table(title="Passes, highest first", title_justify="left")
     for col in ("#", "zone", "centre (mm)", "extent x, y (mm)", f"depth ({hu})", "time"):
         table.add_column(col)
@@ -304,12 +312,12 @@ def render_summary(plan: LapPlan, *, label: str, target_source: str, notes: list
         table.add_row(
             str(p.order), escape(p.zone), f"{p.centre_x_mm:.0f}, {p.centre_y_mm:.0f}",
             _fmt_extent(p.extent_mm),
-            format_height(p.depth_um, units, unit=False), escape(t),
+            format_height(p.depth_um, units, unit=False, step_um=step_um), escape(t),
         )
     if plan.passes:
         con.print(table)
         if plan.too_short_by_hand:
-            con.print(short_by_hand_line(plan, units), markup=False)
+            con.print(short_by_hand_line(plan, units, step_um), markup=False)
         con.print(chart_text(plan, max_width=max(40, con.width)), markup=False)
     else:
         con.print("No passes: the surface is already within the target.")
@@ -391,6 +399,7 @@ def lap_cmd(
         u, u_src = budget_u(loaded, trials=trials, seed=seed, u_height_um=u_height_um,
                             uncertainty_defaults=uncertainty_defaults, what="this survey")
     tgt = guard_banded(limit, limit_source, kind, mode, u, u_src)
+    step = loaded.height_step_um(lab=load_lab_defaults(uncertainty_defaults))  # printed heights' step
     target, source = tgt.aim_um, target_source_text(tgt, units.value)
     lap, notes = build_lap(hm, lap_diameter_mm, lap_size_mm, rate_um_per_min, rate_um_per_pass, strokes_per_pass, stroke_mm)
     notes = guard_band_notes(tgt) + notes
@@ -408,16 +417,17 @@ def lap_cmd(
         write_text_atomic(removal_csv, f"# least-removal map for {label}, target {target:g} um\n" + "\n".join(rows) + "\n")
     first = f"Supports first: {sag.message}." if sag.flagged else ""
     if plan_out is not None:
-        text = plan_text(plan, label=label, target_source=source, notes=notes, units=units.value)
+        text = plan_text(plan, label=label, target_source=source, notes=notes, units=units.value, step_um=step)
         if first:
             text = textwrap.fill(first, width=96, subsequent_indent="  ") + "\n\n" + text
         write_text_atomic(plan_out, text)
     if json_out:
-        doc = plan_json(plan, input_path=input, label=label, target_source=source, notes=notes, units=units.value)
+        doc = plan_json(plan, input_path=input, label=label, target_source=source, notes=notes, units=units.value,
+                        step_um=step)
         doc.update(target_json(tgt))
         doc["support_check"] = sag
         emit_json(doc)
     else:
         if first:
             stdout_console().print(first, markup=False, highlight=False, style="bold")
-        render_summary(plan, label=label, target_source=source, notes=notes, units=units.value)
+        render_summary(plan, label=label, target_source=source, notes=notes, units=units.value, step_um=step)

@@ -411,13 +411,24 @@ def wear_cmd(
     plot: Path = typer.Option(None, "--plot", help="Write a PNG of the change map."),
 ) -> None:
     """Where a surface wears: the change of each station's height between two surveys, and the rate."""
-    from ..records import register_path, surface_history, survey_wear
+    from ..records import register_path, surface_history, survey_height_step_um, survey_wear
+    from ..units import format_height
 
     refuse_overwriting_inputs({"--plot": plot}, [register_path(db)])
     check_output(plot, "--plot")
     with _open(db, write=False) as reg:
         w = survey_wear(reg, ident, before, after)
         h = surface_history(reg, ident)
+        # a change is known no finer than the coarser of the two surveys resolves
+        steps = [survey_height_step_um(reg, i) for i in (w.before_id, w.after_id)]
+    step = max((s for s in steps if s is not None), default=None)
+
+    def hn(v):
+        return format_height(v, "um", unit=False, step_um=step)
+
+    def signed(v):
+        text = hn(v)
+        return text if text.startswith("-") else "+" + text
     if plot is not None:
         from ..output._history_plot import save_figure_png, wear_figure
 
@@ -460,8 +471,8 @@ def wear_cmd(
     con = stdout_console()
     con.print(_plain(f"{ident}: change of height from survey {w.before_id} ({w.before_date}) to survey {w.after_id} "
                      f"({w.after_date}), {w.years:.2f} years; stations paired by {w.matched_by}"))
-    con.print(_plain(f"  about the plane of the change: range {w.range_um:.3f} µm, RMS {w.rms_um:.3f} µm"))
-    con.print(_plain(f"  most worn: {w.label(worst)}, {w.change_um[worst]:+.3f} µm"
+    con.print(_plain(f"  about the plane of the change: range {hn(w.range_um)} µm, RMS {hn(w.rms_um)} µm"))
+    con.print(_plain(f"  most worn: {w.label(worst)}, {signed(w.change_um[worst])} µm"
                      + (f" ({per_year:+.2g} µm/year)" if per_year is not None else "")))
     t = Table(title="Stations that went down most (µm)", title_justify="left")
     for col, just in (("station", "left"), ("x mm", "right"), ("y mm", "right"), ("change", "right")):
@@ -470,7 +481,7 @@ def wear_cmd(
 
     for i in np.argsort(w.change_um)[:10]:
         t.add_row(_plain("-" if w.names is None else w.names[i]), f"{w.x_mm[i]:g}", f"{w.y_mm[i]:g}",
-                  f"{w.change_um[i]:+.3f}")
+                  signed(w.change_um[i]))
     con.print(t)
     if h.rate is not None:
         con.print(_plain(f"  flatness rate: {h.rate.rate_um_per_year:+.2g} µm/year over {h.rate.n} surveys"))

@@ -25,6 +25,7 @@ def grade_surface(
     asme_form: str,
     repeat_foot_radius_mm: float | None = None,
     repeat_tolerance_um: float | None = None,
+    height_step_um: float | None = None,
 ) -> dict:
     """Grade a surface: its minimum-zone flatness against a standard's grades or a given tolerance.
 
@@ -50,6 +51,9 @@ def grade_surface(
         How the tolerance is computed (see :func:`flatcheck.conformance.tolerance`).
     repeat_foot_radius_mm, repeat_tolerance_um : float or None
         A simulated repeat-reading gage over the map and its tolerance.
+    height_step_um : float or None
+        The height step the measurement resolves (:meth:`flatcheck.MeasuredSurface.height_step_um`),
+        carried into the result for the summary's digits.
 
     Returns
     -------
@@ -163,6 +167,9 @@ def grade_surface(
         "flatness_um": flatness_um,
         "flatness_method": "minimum zone (vertical, linear program)",
         "points": hm.n,
+        # the height step the measurement resolves (MeasuredSurface.height_step_um): the summary prints
+        # heights without an uncertainty to it; None when not known (printed to 1 nm)
+        "height_step_um": height_step_um,
         "expanded_uncertainty_um": first.expanded_uncertainty_um,
         "rule": first.rule,
         "rule_requested": first.rule_requested,

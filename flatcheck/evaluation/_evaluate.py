@@ -213,6 +213,9 @@ class SurfaceEvaluation:
     window : Window or None
     uncertainty : SurveyUncertainty or None
     notes : tuple of str
+    height_step_um : float
+        The height step the measurement resolves (µm, :meth:`MeasuredSurface.height_step_um`):
+        heights printed without an uncertainty are rounded to it.
     """
 
     loaded: MeasuredSurface
@@ -222,6 +225,7 @@ class SurfaceEvaluation:
     window: Window | None
     uncertainty: SurveyUncertainty | None
     notes: tuple
+    height_step_um: float = 0.001
 
     @property
     def heightmap(self) -> HeightMap:
@@ -323,6 +327,8 @@ class SurfaceEvaluation:
             "kind": self.loaded.kind,
             "method": self.method,
             "units": "um",
+            # the height step the measurement resolves: printed heights are rounded to it
+            "height_step_um": self.height_step_um,
             "surface": surface,
             "nodes": node_list,
             "flatness": flat,
@@ -512,7 +518,8 @@ def evaluate_surface(
     if monte_carlo is not None:
         unc = survey_uncertainty(loaded, **monte_carlo)
         notes.extend(unc.notes)
-    return SurfaceEvaluation(loaded, flat, tuple(lines), local, win, unc, tuple(notes))
+    step = loaded.height_step_um(lab=(monte_carlo or {}).get("lab_defaults"))
+    return SurfaceEvaluation(loaded, flat, tuple(lines), local, win, unc, tuple(notes), step)
 
 
 def _line_results(loaded: MeasuredSurface) -> list:

@@ -79,6 +79,9 @@ class Face:
         Body across coordinate of the face's centre line, mm (body y for ±z faces, body z for ±y faces).
     line : int or None
         Line of the face's ``[[face]]`` table in the body file (for messages).
+    height_step_um : float
+        The height step the face's measurement resolves
+        (:meth:`flatcheck.MeasuredSurface.height_step_um`; 1 nm for a height map).
     """
 
     name: str
@@ -87,6 +90,7 @@ class Face:
     survey: str = ""
     centre_mm: float = 0.0
     line: int | None = None
+    height_step_um: float = 0.001
 
     def __post_init__(self):
         if self.normal not in NORMALS:
@@ -308,6 +312,12 @@ class GuidewayBody:
             if f.name == name:
                 return f
         raise KeyError(name)
+
+    @property
+    def height_step_um(self) -> float:
+        """The height step of the body's figures: the coarsest of its faces' (a figure that combines faces
+        is known no finer than its coarsest face)."""
+        return max((f.height_step_um for f in self.faces), default=0.001)
 
     @property
     def face_names(self) -> tuple:

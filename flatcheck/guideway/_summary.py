@@ -163,6 +163,8 @@ def guideway_summary(body, geometry, result=None, verdict=None, advice=(), safet
     """
     data = {"guideway": {"ident": body.ident, "description": body.description, "length_mm": body.length_mm,
                          "material": body.material, "datum": body.datum}}
+    # the height step the coarsest face resolves: summaries print heights without an uncertainty to it
+    data["height_step_um"] = body.height_step_um
     data.update(body_summary(geometry))
     data["carriage"] = None if result is None else carriage_summary(result)
     if verdict is None:

@@ -377,7 +377,7 @@ def parse_guideway_toml(text: str, *, source: str = "<guideway>", folder=None, o
                 f"face {name!r}: its survey reaches x = {xmin:g} to {xmax:g} mm, beyond the body's 0 to {length:g} mm: "
                 "check that every face's file measures x from the same origin"
             )
-        faces[name] = Face(name, normal, hm, rel, centre, t.start)
+        faces[name] = Face(name, normal, hm, rel, centre, t.start, loaded.height_step_um())
     if datum is not None and datum not in faces:
         raise InputValueError(
             f"the datum {datum!r} is not a face (the faces are {', '.join(repr(f) for f in faces)})",

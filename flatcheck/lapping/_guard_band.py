@@ -57,13 +57,14 @@ class LapTarget:
     proven: bool
 
     def source_text(self, units: str = "um") -> str:
-        """Where the plan's target comes from, with the guard band when there is one (display units)."""
-        from ..units import format_height, format_with_uncertainty
+        """Where the plan's target comes from, with the guard band when there is one (display units; the limit
+        as stated, :func:`flatcheck.units.format_limit`)."""
+        from ..units import format_limit, format_with_uncertainty
 
         if self.guard_band_um <= 0:
             return self.source
         short = self.guard_band_source.split(" (Monte Carlo")[0]  # the run's details go in the notes and JSON
-        return (f"limit {format_height(self.limit_um, units)}: {self.source}; less the guard band U = "
+        return (f"limit {format_limit(self.limit_um, units)}: {self.source}; less the guard band U = "
                 f"{format_with_uncertainty(self.guard_band_um, self.guard_band_um, units)[1]} ({short}), so that the "
                 "survey after lapping can prove the limit (ISO 14253-1)")
 

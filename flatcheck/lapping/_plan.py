@@ -118,11 +118,12 @@ class Shortfall:
         named = [k for k, v in sorted(loss.items(), key=lambda kv: -kv[1]) if v >= 0.2 * total]
         return tuple(named)
 
-    def text(self, units: str = "um") -> str:
-        """The shortfall and its remedies in one or two sentences (heights in ``units``: "um" or "in")."""
+    def text(self, units: str = "um", step_um: float | None = None) -> str:
+        """The shortfall and its remedies in one or two sentences (heights in ``units``: "um" or "in", to the
+        height step ``step_um`` the survey resolves)."""
 
         def h(v):
-            return format_height(v, units)
+            return format_height(v, units, step_um=step_um)
 
         loss = self.losses_um
         unit = "min" if self.time_unit == "min" else "passes"

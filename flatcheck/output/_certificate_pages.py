@@ -195,17 +195,18 @@ def _draw_blocks(fig, blocks, bottom_in: float = 0.0):
 
 
 # =============================================================================== formatting
-def _height(v_um, units: str) -> str:
+def _height(v_um, units: str, step_um: float | None = None) -> str:
+    """A height with its unit, to the step the survey resolves (:func:`flatcheck.units.height_decimals`)."""
     from ..units import format_height
 
-    return format_height(v_um, units)
+    return format_height(v_um, units, step_um=step_um)
 
 
-def _height_number(v_um, units: str) -> str:
-    """A station height without its unit, as printed in the table: µm to 0.001, µin to 0.1; never "-0.000"."""
+def _height_number(v_um, units: str, step_um: float | None = None) -> str:
+    """A station height without its unit, as printed in the table, to the step the survey resolves; never "-0.00"."""
     from ..units import format_height
 
-    text = format_height(v_um, units, unit=False)
+    text = format_height(v_um, units, unit=False, step_um=step_um)
     return text[1:] if text.startswith("-") and not text.strip("-0.") else text
 
 
@@ -226,21 +227,19 @@ def _length_unit(units: str) -> str:
 
 def _limit(v_um, units: str) -> str:
     """A limit as the limits table gives it: no trailing zeros (8 µm, 2.5 µm)."""
-    from ..units import um_to
+    from ..units import format_limit
 
-    if units == "in":  # to 0.1 µin, as heights (1 µin = 0.0254 µm exactly)
-        return _height(v_um, units)
-    return f"{um_to(v_um, units):.6g} {_height_unit(units)}"
+    return format_limit(v_um, units)
 
 
-def _stated(res, units: str) -> tuple[str, str]:
+def _stated(res, units: str, step_um: float | None = None) -> tuple[str, str]:
     """Flatness and U of a result as certificates state them (U to two significant digits, the value to its place)."""
     if units == "um":
         return f"{res.flatness_text} µm", (f"{res.uncertainty_text} µm" if res.uncertainty_text else "not evaluated")
     from ..units import format_with_uncertainty
 
     if res.expanded_uncertainty_um is None:
-        return _height(res.flatness_um, units), "not evaluated"
+        return _height(res.flatness_um, units, step_um), "not evaluated"
     return format_with_uncertainty(res.flatness_um, res.expanded_uncertainty_um, units)
 
 
@@ -348,7 +347,7 @@ def _results_blocks(c, units: str) -> list:
                     "no adjustment recorded: the surface was left as found")
             rows.append((label, "-", "-", "-", "-", text))
             continue
-        f_txt, u_txt = _stated(res, units)
+        f_txt, u_txt = _stated(res, units, c.height_step_um)
         v = res.verdict
         verdict = "no grade sought" if v is None else f"{v.verdict} (limit {_limit(v.limit_um, units)})"
         rows.append((label, res.date, str(res.survey_id), f_txt, u_txt, verdict))
@@ -459,7 +458,7 @@ def _station_pages(c, units: str) -> list:
 
     When the table fits on one page its rows are shared evenly between the two columns.
     """
-    rows = [(s.name or str(k), _position(s.x_mm, units), _position(s.y_mm, units), _height_number(s.height_um, units))
+    rows = [(s.name or str(k), _position(s.x_mm, units), _position(s.y_mm, units), _height_number(s.height_um, units, c.height_step_um))
             for k, s in enumerate(c.stations, start=1)]
     per_col = _rows_per_column(_station_intro(c, units))
     per_col_rest = _rows_per_column(_station_intro(c, units, short=True))
@@ -596,7 +595,7 @@ def _appendix_blocks(c, units: str, n_pages_hint: str = "") -> list:
             hu = _height_unit(units)
             rows = []
             for r in c.readings:
-                res = "" if r.residual_um is None else _height_number(r.residual_um, units)
+                res = "" if r.residual_um is None else _height_number(r.residual_um, units, c.height_step_um)
                 rows.append((r.line, str(r.run), str(r.step), r.from_station, r.to_station, _reading(r.reading), res))
             blocks.append(_Table(tuple(rows), widths=(0.16, 0.07, 0.07, 0.18, 0.18, 0.16, 0.18),
                                  labels=("line", "run", "step", "from", "to", f"reading ({_or(c.reading_unit, '-')})",

@@ -81,14 +81,20 @@ def _plain(fig):
         t.set_parse_math(False)
 
 
-def _h(v, units):
+def _h(v, units, step_um=None):
+    """A height with its unit, to the step the body's faces resolve (the summary's ``height_step_um``)."""
     from ..units import format_height
 
     try:
         v = float(v)
     except (TypeError, ValueError):
         return "–"
-    return "–" if v != v else format_height(v, units)
+    return "–" if v != v else format_height(v, units, step_um=step_um)
+
+
+def _step(data: dict):
+    """The height step the body's faces resolve (None: 1 nm)."""
+    return data.get("height_step_um")
 
 
 def _n(v, digits=2):
@@ -221,7 +227,7 @@ def _page_summary(pages, data, units, body_file, carriage_file, issued):
         rows = []
         for ch in data["checks"]:
             if ch["unit"] == "um":
-                val, lim = _h(ch["value"], units), _h(ch["limit"], units)
+                val, lim = _h(ch["value"], units, _step(data)), _h(ch["limit"], units, _step(data))
             else:
                 val, lim = f"{_n(ch['value'])} arcsec", f"{_n(ch['limit'])} arcsec"
             ratio = "–" if ch["ratio"] is None or ch["ratio"] != ch["ratio"] or ch["ratio"] == float("inf") \
@@ -278,7 +284,7 @@ def _pages_thickness(pages, geometry, data, units):
         rows = []
         for p in data["parallelism"]:
             zone = p["zone"] + (f" at {p['across_mm']:g} mm across" if p["zone"] == "line" else "")
-            rows.append((p["faces"][0], p["faces"][1], _h(p["value_um"], units), zone))
+            rows.append((p["faces"][0], p["faces"][1], _h(p["value_um"], units, _step(data)), zone))
         flow.table(rows, col_x=(0.0, 0.25, 0.5, 0.68), col_labels=("face", "datum", "zone width", "zone"),
                    title="Parallelism (ISO 1101; datum: minimum-zone plane of the datum face)")
     if data["squareness"]:
@@ -287,7 +293,7 @@ def _pages_thickness(pages, geometry, data, units):
             if s["determined"]:
                 u = s["u_urad"] * 0.206265 if s["u_urad"] == s["u_urad"] else None  # µrad -> arcsec
                 rows.append((s["faces"][0], s["faces"][1], f"{_n(s['angle_arcsec'])} arcsec", f"{_n(u)} arcsec",
-                             _h(s["value_um"], units)))
+                             _h(s["value_um"], units, _step(data))))
             else:
                 rows.append((s["faces"][0], s["faces"][1], "free (no tie fixes it)", "", ""))
         flow.table(rows, col_x=(0.0, 0.22, 0.44, 0.64, 0.78),
@@ -299,8 +305,8 @@ def _pages_thickness(pages, geometry, data, units):
         flow.table(rows, col_x=(0.0, 0.3, 0.55, 0.77), col_labels=("faces", "from", "over the travel", "within 1 m"),
                    title="Twist (change of the across slope along the travel)")
     if data["rails"]:
-        rows = [(f"{r['faces'][0]} / {r['faces'][1]}", f"{_h(r['height_difference_min_um'], units)} to "
-                 f"{_h(r['height_difference_max_um'], units)}", f"{_n(r['twist_urad'], 1)} µrad")
+        rows = [(f"{r['faces'][0]} / {r['faces'][1]}", f"{_h(r['height_difference_min_um'], units, _step(data))} to "
+                 f"{_h(r['height_difference_max_um'], units, _step(data))}", f"{_n(r['twist_urad'], 1)} µrad")
                 for r in data["rails"]]
         flow.table(rows, col_x=(0.0, 0.4, 0.72), col_labels=("rails", "height difference", "twist between them"),
                    title="Rails")
@@ -326,11 +332,11 @@ def _pages_films(pages, result, data, units):
     flow.gap(0.1)
     rows = []
     for p in c["pads"]:
-        least = "touches" if p["touches_at_mm"] else _h(p["min_film_um"], units)
+        least = "touches" if p["touches_at_mm"] else _h(p["min_film_um"], units, _step(data))
         at = "–" if p["min_film_x_mm"] != p["min_film_x_mm"] else f"{p['min_film_x_mm']:.0f}"
-        rows.append((p["name"], p["face"], _h(p["gap_um"], units), least, at, _h(p["margin_um"], units),
-                     _h(p["quick_min_film_um"], units), f"{_n(p['load_min_n'], 0)}–{_n(p['load_max_n'], 0)}",
-                     _h(p["local_flatness_max_um"], units)))
+        rows.append((p["name"], p["face"], _h(p["gap_um"], units, _step(data)), least, at, _h(p["margin_um"], units, _step(data)),
+                     _h(p["quick_min_film_um"], units, _step(data)), f"{_n(p['load_min_n'], 0)}–{_n(p['load_max_n'], 0)}",
+                     _h(p["local_flatness_max_um"], units, _step(data))))
     flow.table(rows, col_x=(0.0, 0.17, 0.31, 0.41, 0.52, 0.60, 0.70, 0.80, 0.91),
                col_labels=("pad", "face", "gap", "least film", "at x mm", "margin", "quick", "load N", "local form"),
                wrap_chars=(18, 14, None, None, None, None, None, None, None),
@@ -361,8 +367,8 @@ def _pages_motions(pages, result, data, budget, units):
         if m[key] is None or m[key] != m[key]:
             rows.append((label, "free (no pad holds it)", "", "", ""))
         elif unit == "um":
-            rows.append((label, _h(m[key], units), _h(q[key], units), _h(d[dkey], units),
-                         "not given" if lim is None else _h(lim, units)))
+            rows.append((label, _h(m[key], units, _step(data)), _h(q[key], units, _step(data)), _h(d[dkey], units, _step(data)),
+                         "not given" if lim is None else _h(lim, units, _step(data))))
         else:
             rows.append((label, f"{_n(m[key])} arcsec", f"{_n(q[key])} arcsec", f"{_n(d[dkey])} arcsec",
                          "not given" if lim is None else f"{_n(lim)} arcsec"))

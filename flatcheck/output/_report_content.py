@@ -169,6 +169,11 @@ class ReportContent:
     certificate: object | None = None  # flatcheck.records.CertificateData: the certificate's pages (report --db)
 
     @property
+    def height_step_um(self) -> float:
+        """The height step the measurement resolves: heights without an uncertainty print to it."""
+        return self.evaluation.height_step_um
+
+    @property
     def heightmap(self) -> HeightMap:
         """The evaluated surface (positions mm, heights µm)."""
         return self.evaluation.heightmap
@@ -475,20 +480,25 @@ def uncertainty_text(content: ReportContent, units: str = "um") -> str:
     unc = content.uncertainty
     if unc is None:
         return content.uncertainty_missing
+    from ..units import format_with_uncertainty
+
     mz = unc.minimum_zone
     corrected = getattr(mz, "corrected_interval_um", None)
     lo, hi = corrected if corrected is not None else mz.interval_um
     basis = unc.basis
     basis = _in_units(basis, units)  # the basis may quote a scatter in µm or a reading in um/m
+
+    def v(x):  # ends of the interval and the mean: to the decimal place of U (JCGM 100:2008, 7.2.6)
+        return format_with_uncertainty(x, mz.expanded_um, units)[0]
+
     if corrected is None:
         return (f"Monte Carlo propagation (JCGM 101:2008), {mz.trials} trials, seed {mz.seed}; {basis}. "
                 f"U is twice the standard deviation of the simulated flatness (k = 2 equivalent); "
-                f"95 % interval of the minimum zone {_h(lo, units)} to {_h(hi, units)} "
-                f"(simulated mean {_h(mz.mean_um, units)}).")
+                f"95 % interval of the minimum zone {v(lo)} to {v(hi)} (simulated mean {v(mz.mean_um)}).")
     return (f"Monte Carlo propagation of the whole uncertainty budget (JCGM 101:2008), {mz.trials} trials, seed "
             f"{mz.seed}; {basis}. U is at least twice the standard deviation of the simulated flatness and reaches "
-            f"both ends of the 95 % interval of the minimum zone, {_h(lo, units)} to {_h(hi, units)}, which is "
-            f"corrected for the noise bias (simulated mean {_h(mz.mean_um, units)}; see the uncertainty budget page).")
+            f"both ends of the 95 % interval of the minimum zone, {v(lo)} to {v(hi)}, which is "
+            f"corrected for the noise bias (simulated mean {v(mz.mean_um)}; see the uncertainty budget page).")
 
 
 def _line_rms(survey, reduction) -> dict:
@@ -569,10 +579,11 @@ def _inches(v_mm: float) -> str:
     return format_length(v_mm, "in", unit=False)
 
 
-def _h(v_um, units):
+def _h(v_um, units, step_um: float | None = None):
+    """A height with its unit, to the step the measurement resolves (:func:`flatcheck.units.height_decimals`)."""
     from ..units import format_height
 
-    return format_height(v_um, units)
+    return format_height(v_um, units, step_um=step_um)
 
 
 def _identity_rows(hm, survey, reduction, units: str = "um"):

@@ -21,9 +21,9 @@ def _lapping_text(c, units):
     p = c.lapping
     rm = p.removal
     unit = "min" if p.lap.time_unit == "min" else "passes"
-    text = _support_first(c, units) + [(f"Target {_h(rm.target_um, units)} ({_in_units(c.lapping_target, units)}). Flatness now "
-             f"{_h(rm.flatness_before_um, units)}; after the plan {_h(p.predicted_flatness_um, units)} predicted "
-             f"(best this lap can do: {_h(p.dwell_flatness_um, units)}). {len(p.passes)} passes, total "
+    text = _support_first(c, units) + [(f"Target {_h(rm.target_um, units, c.height_step_um)} ({_in_units(c.lapping_target, units)}). Flatness now "
+             f"{_h(rm.flatness_before_um, units, c.height_step_um)}; after the plan {_h(p.predicted_flatness_um, units, c.height_step_um)} predicted "
+             f"(best this lap can do: {_h(p.dwell_flatness_um, units, c.height_step_um)}). {len(p.passes)} passes, total "
              f"{p.total_time:.1f} {unit}: see the passes page. Lap: {_in_units(p.lap.describe(), units)}.", "")]
     rate = _in_units(f"{p.lap.rate_um:g} µm per {p.lap.time_unit}", units)
     if c.lap_rate_assumed:
@@ -42,8 +42,8 @@ def _lapping_foot(c, units):
     if p.passes and shortfall is not None:  # why the plan misses its target, and what to change
         text.append((shortfall.text(units), "b"))
     elif p.passes and p.predicted_flatness_um > rm.target_um:
-        text.append((f"The plan misses the target {_h(rm.target_um, units)} (predicted "
-                     f"{_h(p.predicted_flatness_um, units)}): survey again after the plan and plan again.", "b"))
+        text.append((f"The plan misses the target {_h(rm.target_um, units, c.height_step_um)} (predicted "
+                     f"{_h(p.predicted_flatness_um, units, c.height_step_um)}): survey again after the plan and plan again.", "b"))
     text.append(("Lap wet or with extraction; see the cautions.", "s"))
     return text
 
@@ -142,7 +142,7 @@ def _page_lapping(fig, c, units, chart=None):
     box = plot.plan_box(c.heightmap)
     maps, bottom = _lapping_maps(fig, c, units)
     plot.removal_map(maps[0], p.xs_mm, p.ys_mm, p.wanted_um, units=units, box_mm=box,
-                     title=f"least removal (deepest {_h(rm.max_depth_um, units)})")
+                     title=f"least removal (deepest {_h(rm.max_depth_um, units, c.height_step_um)})")
     plot.dwell_map(maps[1], p.xs_mm, p.ys_mm, p.plan_dwell, dwell_unit=p.lap.time_unit, units=units, box_mm=box,
                    chart=p.chart, title="dwell, cells of the chart" + (" (rate assumed)" if c.lap_rate_assumed else ""))
     foot = _lapping_foot(c, units)
@@ -187,7 +187,7 @@ def _pass_rows(c, units):
             t += " (uneven)"
         rows.append((f"{q.order}", q.zone, f"{_num(q.centre_x_mm, units)}, {_num(q.centre_y_mm, units)}",
                      f"{_num(x0, units)} to {_num(x1, units)}, {_num(y0, units)} to {_num(y1, units)}",
-                     _h(q.depth_um, units), t))
+                     _h(q.depth_um, units, c.height_step_um), t))
     return rows
 
 

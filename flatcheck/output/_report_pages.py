@@ -103,10 +103,10 @@ def _page_summary(fig, c, units):
             continue
         unc = u.get(p.reference)
         # with its U: U to two significant digits and the flatness to the same decimal place (JCGM 100:2008, 7.2.6)
-        f_txt, u_txt = (_h(p.fltt_um, units), "" if p.reference not in u else "not evaluated") if unc is None else \
+        f_txt, u_txt = (_h(p.fltt_um, units, c.height_step_um), "" if p.reference not in u else "not evaluated") if unc is None else \
             format_with_uncertainty(p.fltt_um, unc, units)
-        rows.append((_REFERENCE_NAMES.get(p.reference, p.reference), f_txt, _h(p.fltp_um, units),
-                     _h(p.fltv_um, units), _h(p.fltq_um, units), u_txt))
+        rows.append((_REFERENCE_NAMES.get(p.reference, p.reference), f_txt, _h(p.fltp_um, units, c.height_step_um),
+                     _h(p.fltv_um, units, c.height_step_um), _h(p.fltq_um, units, c.height_step_um), u_txt))
     y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.25, 0.41, 0.55, 0.69, 0.83),
                         col_labels=("reference plane", "flatness FLTt", "peak FLTp", "valley FLTv", "RMS FLTq", "U"),
                         title="Flatness about each reference plane", bold_cols=(1,), fontsize=8)
@@ -115,7 +115,7 @@ def _page_summary(fig, c, units):
     if c.local is not None:
         lf = c.local
         text.append((f"Local flatness (minimum zone inside a {_window_text(c.window, units)} window moved over the "
-                     f"surface): largest {_h(lf.worst_um, units)}, window centred at x = {_pos(lf.worst_x_mm, units)}, "
+                     f"surface): largest {_h(lf.worst_um, units, c.height_step_um)}, window centred at x = {_pos(lf.worst_x_mm, units)}, "
                      f"y = {_pos(lf.worst_y_mm, units)}.", "s"))
     elif c.local_missing and not any("window" in n for n in c.notes):  # said once: the notes may say it already
         text.append((_in_units(c.local_missing, units), "s"))
@@ -128,7 +128,7 @@ def _page_summary(fig, c, units):
     if c.bearing is not None:
         b = c.bearing
         y = plot.flow_table(ax, y, [("verdict", b.verdict), ("largest local flatness under a pad",
-                                                            f"{_h(b.local_flatness_max_um, units)} (limit {_h(b.limit_um, units)})")],
+                                                            f"{_h(b.local_flatness_max_um, units, c.height_step_um)} (limit {_h(b.limit_um, units, c.height_step_um)})")],
                             col_x=(0.0, 0.45), title="Air bearing", bold_cols=(1,))
     if c.lapping is not None:
         lines = [("Lapping", "h")] + _support_first(c, units, style="") + [(lapping_summary(c, units), "")]
@@ -240,16 +240,16 @@ def _page_local(fig, c, units):
         plot.local_flatness_profile(ax, xs if xs.size > 1 else ys, grid.ravel(), along="x" if xs.size > 1 else "y",
                                     units=units, title=title)
     plot.mark_window(ax, lf.worst_x_mm, lf.worst_y_mm, shape=win.shape, length_mm=win.length_mm,
-                     width_mm=win.width_mm, label=f"worst {_h(lf.worst_um, units)}", units=units,
+                     width_mm=win.width_mm, label=f"worst {_h(lf.worst_um, units, c.height_step_um)}", units=units,
                      stations_xy_mm=np.column_stack([hm.x_mm, hm.y_mm]),
                      profile=not (xs.size >= 2 and ys.size >= 2), along="x" if xs.size > 1 else "y")
     tax = fig.add_axes([0.06, _BOTTOM, 0.88, bottom - 0.02 - _BOTTOM])
     rows = [
         ("window", f"{_window_text(win, units)} ({'circle' if win.shape == 'circle' else 'rectangle'})"),
-        ("largest local flatness", _h(lf.worst_um, units)),
+        ("largest local flatness", _h(lf.worst_um, units, c.height_step_um)),
         ("at the window centred at", f"x = {_pos(lf.worst_x_mm, units)}, y = {_pos(lf.worst_y_mm, units)}"),
         ("window positions", f"{np.size(lf.flatness_um)}, centres {_pos(_step(xs, ys), units)} apart"),
-        ("smallest local flatness", _h(float(np.min(lf.flatness_um)), units)),
+        ("smallest local flatness", _h(float(np.min(lf.flatness_um)), units, c.height_step_um)),
         ("stations per window", f"{int(np.min(lf.stations_in_window))} to {int(np.max(lf.stations_in_window))}"),
         ("heights between stations", lf.interpolation),
     ]
@@ -284,11 +284,15 @@ def _page_profiles(fig, c, units, chunk):
 
 
 def _page_grades(fig, c, units):
+    from ..units import format_with_uncertainty
     from . import _plots as plot
 
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.86])
-    rows = [("minimum-zone flatness F", _h(c.mz.flatness_um, units)),
-            ("expanded uncertainty U", "not evaluated" if c.u_mz_um is None else _h(c.u_mz_um, units))]
+    if c.u_mz_um is None:
+        f_txt, u_txt = _h(c.mz.flatness_um, units, c.height_step_um), "not evaluated"
+    else:  # U to two significant digits and F to its decimal place (JCGM 100:2008, 7.2.6)
+        f_txt, u_txt = format_with_uncertainty(c.mz.flatness_um, c.u_mz_um, units)
+    rows = [("minimum-zone flatness F", f_txt), ("expanded uncertainty U", u_txt)]
     y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45), title="Result decided", bold_cols=(1,))
     rows = [(g.grade, _tolerance(g.tolerance_um, units), g.verdict, _in_units(g.note or "", units)) for g in c.grades]
     y = plot.flow_table(ax, y, rows, col_x=(0.0, 0.1, 0.27, 0.47), col_labels=("grade", "tolerance", "verdict", "note"),
@@ -309,8 +313,8 @@ def _page_bearing(fig, c, units):
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.36])
     rows = []
     for ch in b.checks:
-        val = _h(ch.value, units) if ch.unit == "um" else f"{ch.value:.2f} arcsec"
-        lim = _h(ch.limit, units) if ch.unit == "um" else f"{ch.limit:.2f} arcsec"
+        val = _h(ch.value, units, c.height_step_um) if ch.unit == "um" else f"{ch.value:.2f} arcsec"
+        lim = _h(ch.limit, units, c.height_step_um) if ch.unit == "um" else f"{ch.limit:.2f} arcsec"
         u = getattr(ch, "expanded_uncertainty", None)
         if u is not None and ch.unit == "um":  # U to two significant digits, the value to the same place
             from ..units import format_with_uncertainty
@@ -321,7 +325,7 @@ def _page_bearing(fig, c, units):
     y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45, 0.62, 0.8), col_labels=("check", "value", "limit", "status"),
                         title=f"Verdict: {b.verdict}", bold_cols=(3,), wrap_chars=(60, None, None, None))
     pads = ", ".join(f"{p.pad.shape} {_size_text(p.pad.length_mm, p.pad.width_mm, units)}, "
-                     f"gap {_h(p.pad.gap_um, units)}" for p in b.carriage.active_pads)
+                     f"gap {_h(p.pad.gap_um, units, c.height_step_um)}" for p in b.carriage.active_pads)
     lines = [f"Pads: {pads}.",
              "Both curves are drawn about their own straight line (minimum zone), so their shapes compare: the "
              "carriage follows the surface averaged over its pads."]
@@ -343,12 +347,12 @@ def lapping_summary(c, units: str = "um") -> str:
     p = c.lapping
     rm = p.removal
     if not p.passes:
-        return (f"The surface is already within the target {_h(rm.target_um, units)} "
-                f"({_in_units(c.lapping_target, units)}): its flatness is {_h(rm.flatness_before_um, units)}, "
+        return (f"The surface is already within the target {_h(rm.target_um, units, c.height_step_um)} "
+                f"({_in_units(c.lapping_target, units)}): its flatness is {_h(rm.flatness_before_um, units, c.height_step_um)}, "
                 "so no lapping is needed.")
     unit = "min" if p.lap.time_unit == "min" else "passes"
-    return (f"Target {_h(rm.target_um, units)}: {len(p.passes)} passes, {p.total_time:.1f} {unit} in all, "
-            f"{_h(p.predicted_flatness_um, units)} predicted; see the lapping pages.")
+    return (f"Target {_h(rm.target_um, units, c.height_step_um)}: {len(p.passes)} passes, {p.total_time:.1f} {unit} in all, "
+            f"{_h(p.predicted_flatness_um, units, c.height_step_um)} predicted; see the lapping pages.")
 
 
 def _page_sources(fig, c, units):

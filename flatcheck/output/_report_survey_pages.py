@@ -21,9 +21,9 @@ def _layout_rows(c, units):
         closure = "" if ln.closure_um is None else _closure(ln.closure_um, units) + (
             f" at {ln.closure_station}" if ln.closure_station else "")
         rows.append((ln.name, _pos(ln.s_mm[-1], units), f"{len(ln.s_mm) - 1}",
-                     "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units),
-                     "" if ln.run_spread_um is None else _h(ln.run_spread_um, units),
-                     closure, _h(ln.straightness_um, units)))
+                     "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units, c.height_step_um),
+                     "" if ln.run_spread_um is None else _h(ln.run_spread_um, units, c.height_step_um),
+                     closure, _h(ln.straightness_um, units, c.height_step_um)))
     return rows
 
 
@@ -225,7 +225,7 @@ def _page_uncertainty(fig, c, units):
         elif e.unit == "relative":
             value = f"{e.value * 100:.3g} %"
         elif e.unit in ("µm", "um"):
-            value = _h(e.value, units)
+            value = _h(e.value, units, c.height_step_um)
         else:
             value = f"{e.value:.3g} {e.unit}"
         contrib = format_with_uncertainty(e.standard_uncertainty_um, b.combined_um or 1.0, units)[0]

@@ -20,7 +20,7 @@ Limits table (lab-editable TOML)
     read_limits, parse_limits, LimitsFile, LimitTable, GradeLimit, text_sha256
 Certificates
     certificate_data, CertificateData, InstrumentEntry, StationHeight, Reading,
-    StateResult, check_prefix, certified_result, evaluation_note
+    StateResult, check_prefix, certified_result, evaluation_note, survey_height_step_um
 Stating results
     round_to_uncertainty
 """
@@ -35,6 +35,7 @@ from ._certificate import (
     certified_result,
     check_prefix,
     evaluation_note,
+    survey_height_step_um,
 )
 from ._due import DEFAULT_WITHIN_DAYS, DueItem, DueList, FlaggedSurvey, add_interval, due_list, due_status
 from ._entry import STATES, BudgetRow, SurveyEntry, budget_rows, survey_entry
@@ -73,7 +74,7 @@ __all__ = [
     "read_limits", "parse_limits", "LimitsFile", "LimitTable", "GradeLimit", "text_sha256",
     # certificates
     "certificate_data", "CertificateData", "InstrumentEntry", "StationHeight", "Reading", "StateResult",
-    "check_prefix", "certified_result", "evaluation_note",
+    "check_prefix", "certified_result", "evaluation_note", "survey_height_step_um",
     # stating results
     "round_to_uncertainty",
 ]

@@ -138,6 +138,8 @@ class CertificateData:
     approved_by : str
         "" leaves a line to sign.
     notes : tuple of str
+    height_step_um : float or None
+        The height step the survey resolves: station heights print to it (None: 1 nm).
     """
 
     number: str
@@ -175,6 +177,7 @@ class CertificateData:
     temperature_c: float | None
     approved_by: str
     notes: tuple
+    height_step_um: float | None = None
 
 
 def check_prefix(prefix: str) -> str:
@@ -311,7 +314,32 @@ def certificate_data(register, survey_id: int, *, prefix: str | None = None, iss
         as_found=as_found, as_left=as_left, verdicts=tuple(verdicts), limits_sources=sources, next_due_on=next_due,
         interval=s.interval_text, measured_on=row.measured_on, measured_by=row.operator,
         temperature_c=detail.temperature_c, approved_by=approved_by, notes=tuple(notes),
+        height_step_um=_height_step(doc, row.kind, detail.raw_text, row.source_name),
     )
+
+
+def survey_height_step_um(register, survey_id: int) -> float | None:
+    """The height step a registered survey resolves (µm; :meth:`flatcheck.MeasuredSurface.height_step_um`):
+    what its heights are printed to. None when the register cannot tell (a height map: 1 nm)."""
+    detail = register.survey_detail(survey_id)
+    return _height_step(json.loads(detail.report_json), detail.row.kind, detail.raw_text, detail.row.source_name)
+
+
+def _height_step(doc: dict, kind: str, raw_text: str, source: str) -> float | None:
+    """The height step of a registered survey: from its stored evaluation, or (registers made before the
+    evaluation stored it) from the survey file kept in the register; None when neither tells."""
+    step = doc.get("height_step_um")
+    if step is not None or kind != "survey" or not raw_text:
+        return step
+    from ..errors import FlatcheckError
+    from ..evaluation import MeasuredSurface
+    from ..io import parse_survey
+
+    try:
+        survey = parse_survey(raw_text, source=source or "<register>")
+    except FlatcheckError:
+        return None
+    return MeasuredSurface(source, None, survey).height_step_um()
 
 
 def certified_result(c: CertificateData) -> StateResult:

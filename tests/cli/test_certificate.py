@@ -7,6 +7,7 @@ The PDF is read back with pypdfium2 (the ``pdf_tools`` fixture).
 """
 
 import hashlib
+import math
 import json
 import re
 import shutil
@@ -34,7 +35,7 @@ grades = ["00", "0", "1"]
 "1" = {{ constant = 10.0, linear = 0.01 }}
 '''
 # A station-table row as the page prints it: name, x and y (mm to 0.1), height (µm to 0.001).
-ROW = re.compile(r"^(\S+) (-?\d+\.\d) (-?\d+\.\d) (-?\d+\.\d{3})$")
+ROW = re.compile(r"^(\S+) (-?\d+\.\d) (-?\d+\.\d) (-?\d+\.\d+)$")
 
 
 def _sha(path):
@@ -113,7 +114,12 @@ def test_certificate_number_and_station_heights_are_text_in_the_pdf(cli, tmp_pat
     # outside reference: the pinned `flatcheck reduce --json` nodes, to the digits the page prints
     code, out, _ = cli("reduce", survey, "--json")
     assert code == 0
-    nodes = json.loads(out)["nodes"]
+    reduced = json.loads(out)
+    nodes = reduced["nodes"]
+    # heights print to the step the survey resolves: the sample's autocollimator reads to 0.05 arcsec (the
+    # default display step) over 100 mm, 100 mm x tan(0.05") = 0.0242 µm (hand calculation), so to 0.01 µm
+    assert reduced["height_step_um"] == pytest.approx(100e3 * math.tan(math.radians(0.05 / 3600.0)), rel=1e-9)
+    digits = 2
     station_pages = [p for p in pages if "Certificate: station heights" in p]
     assert station_pages
     printed = {}
@@ -124,7 +130,7 @@ def test_certificate_number_and_station_heights_are_text_in_the_pdf(cli, tmp_pat
                 printed[m.group(1)] = m.groups()[1:]
     assert len(printed) == len(nodes) == 45
     for n in nodes:
-        assert printed[n["name"]] == (_printed(n["x_mm"], 1), _printed(n["y_mm"], 1), _printed(n["height_um"])), n
+        assert printed[n["name"]] == (_printed(n["x_mm"], 1), _printed(n["y_mm"], 1), _printed(n["height_um"], digits)), n
     assert len({h for _, _, h in printed.values()}) > 10  # real heights, not a column of zeros
 
     # the raw readings are the appendix at the end, which closes the certificate

@@ -244,6 +244,10 @@ def test_grid_height_map_is_printed_whole_and_matches_the_nodes(cli, monkeypatch
     assert "…" not in out
     code, js, _ = cli("reduce", GRID, "--json")
     doc = json.loads(js)
+    # the differential levels read to 0.1 µm/m (the default display step) over 75 mm steps: 0.0075 µm
+    # (hand calculation), nearest to the decade 0.01 µm, so heights print to 2 decimals
+    assert doc["height_step_um"] == pytest.approx(0.1e-6 * 75e3, rel=1e-12)
+    assert "heights to 0.01 µm" in out
     x = np.array([n["x_mm"] for n in doc["nodes"]])
     y = np.array([n["y_mm"] for n in doc["nodes"]])
     z = np.array([n["height_um"] for n in doc["nodes"]])
@@ -259,7 +263,7 @@ def test_grid_height_map_is_printed_whole_and_matches_the_nodes(cli, monkeypatch
     for yy, vals in rows.items():
         on_row = np.isclose(y, yy)
         order = np.argsort(x[on_row])
-        assert vals == pytest.approx(r[on_row][order], abs=0.0006)  # printed to 3 decimals
+        assert vals == pytest.approx(r[on_row][order], abs=0.0051)  # printed to 2 decimals
 
 
 def test_map_too_wide_for_the_terminal_is_said_not_truncated(cli, monkeypatch):
@@ -355,7 +359,7 @@ def test_scatter_text_without_a_value(sigma):
 
     res = {"redundancy": 0} if sigma == "missing" else {"redundancy": 0, "sigma0_um": sigma, "sigma0_reading": sigma}
     assert _scatter_text(res, "um", "um") == "no redundancy: no scatter estimate"
-    assert _scatter_text({"redundancy": 3, "sigma0_um": 0.5, "sigma0_reading": 1.0}, "um", "arcsec") == "0.500 µm (1 arcsec)"
+    assert _scatter_text({"redundancy": 3, "sigma0_um": 0.5, "sigma0_reading": 1.0}, "um", "arcsec") == "0.50 µm (1 arcsec)"  # a standard deviation: two significant digits
 
 
 def test_a_zero_never_prints_with_a_minus_sign(cli, tmp_path, monkeypatch):
