@@ -233,3 +233,41 @@ def test_auto_window_that_does_not_fit_is_explained_in_the_evaluation():
     ev = evaluate_surface(load_input(guide), window="auto")
     assert ev.local is None
     assert any("--window 250x120" in n for n in ev.notes)
+
+
+def _step_of(text: str, tmp_path) -> float:
+    from flatcheck import open_surface
+
+    p = tmp_path / "s.toml"
+    p.write_text(text, encoding="utf-8")
+    return open_surface(p).height_step_um()
+
+
+def test_height_step_is_the_resolution_over_the_shortest_foot_spacing(tmp_path):
+    # heights print to the step one reading resolves: rise = foot spacing x tan(resolution) (the rise formula
+    # of every slope instrument; hand calculations below). Shortest foot spacing of the sample: 100 mm.
+    text = SAMPLE.read_text(encoding="utf-8")
+    rise = lambda arcsec, mm: mm * 1e3 * math.tan(math.radians(arcsec / 3600.0))  # noqa: E731
+    # no resolution stated: the built-in autocollimator default 0.05 arcsec
+    assert _step_of(text, tmp_path) == pytest.approx(rise(0.05, 100.0), rel=1e-12)
+    # stated in the survey's [uncertainty] table, in the reading unit
+    stated = text + "\n[uncertainty]\nresolution = 0.01\n"
+    assert _step_of(stated, tmp_path) == pytest.approx(rise(0.01, 100.0), rel=1e-12)
+    # an autocollimator that shows the beam's deviation reads twice the mirror's tilt: half the step
+    beam = stated.replace('reports = "mirror-tilt"', 'reports = "beam-deviation"')
+    assert _step_of(beam, tmp_path) == pytest.approx(rise(0.01, 100.0) / 2.0, rel=1e-12)
+
+
+def test_height_step_of_a_height_map_is_a_nanometre_and_evaluation_carries_it(tmp_path):
+    from flatcheck.form import HeightMap
+    from flatcheck.io import write_heightmap_csv
+
+    x, y = np.meshgrid(np.arange(4.0) * 50.0, np.arange(3.0) * 50.0)
+    p = tmp_path / "m.csv"
+    write_heightmap_csv(p, HeightMap(x.ravel(), y.ravel(), 1e-3 * (x * y).ravel()))
+    from flatcheck import open_surface
+
+    loaded = open_surface(p)
+    assert loaded.height_step_um() == 0.001
+    ev = evaluate_surface(loaded, window=None)
+    assert ev.height_step_um == 0.001 and ev.to_dict(nodes=False)["height_step_um"] == 0.001

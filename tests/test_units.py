@@ -83,3 +83,44 @@ def test_format_length_in_each_system():
     assert format_length(254.0, "um") == "254 mm"
     assert format_length(254.0, "in") == "10.00 in"
     assert format_length(254.0, "in", unit=False) == "10.00"
+
+
+@pytest.mark.parametrize(
+    "step_um, units, decimals",
+    [
+        # an autocollimator read to 0.05 arcsec over 100 mm: 100 mm x tan(0.05") = 0.0242 µm (hand calculation),
+        # nearest decade 0.01 µm; in µin 0.954 µin, nearest decade 1 µin
+        (100e3 * math.tan(math.radians(0.05 / 3600)), "um", 2),
+        (100e3 * math.tan(math.radians(0.05 / 3600)), "in", 0),
+        # 0.01 arcsec over 100 mm = 0.00485 µm: log10 = -2.31, nearer -2 than -3, so still 0.01 µm;
+        # 0.01 arcsec over 50 mm = 0.00242 µm: log10 = -2.62, so 0.001 µm
+        (100e3 * math.tan(math.radians(0.01 / 3600)), "um", 2),
+        (50e3 * math.tan(math.radians(0.01 / 3600)), "um", 3),
+        # an indicator read to 0.1 µm: 0.1 µm; a level to 1 µm/m over 500 mm = 0.5 µm (log10 = -0.30): 1 µm
+        (0.1, "um", 1),
+        (0.5, "um", 0),
+        # the bounds: never finer than 1 nm or 0.1 µin, never coarser than 1 µm or 1 µin
+        (1e-6, "um", 3),
+        (1e-6, "in", 1),
+        (50.0, "um", 0),
+        (None, "um", 3),
+        (float("nan"), "in", 1),
+    ],
+)
+def test_height_decimals_nearest_decade_of_the_step(step_um, units, decimals):
+    from flatcheck.units import height_decimals
+
+    assert height_decimals(step_um, units) == decimals
+
+
+def test_format_height_to_the_step_and_limits_as_stated():
+    from flatcheck.units import format_height, format_limit
+
+    step = 100e3 * math.tan(math.radians(0.05 / 3600))  # 0.0242 µm, as above
+    assert format_height(2.48624, "um", step_um=step) == "2.49 µm"
+    assert format_height(-0.004, "um", step_um=step, unit=False) == "-0.00"  # sign kept; views drop it on a zero
+    # 2.54 µm = 100 µin exactly (1 µin = 0.0254 µm, international inch, 1959)
+    assert format_height(2.54, "in", step_um=step) == "100 µin"
+    # a limit is stated, not measured: DIN 876 grade 00 at 1000 mm is 4 µm (t = 2 (1 + 1000/1000), from memory)
+    assert format_limit(4.0, "um") == "4 µm" and format_limit(1.5, "um") == "1.5 µm"
+    assert format_limit(2.54, "in") == "100 µin"

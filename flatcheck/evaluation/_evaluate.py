@@ -135,7 +135,7 @@ def _basis_line(budget) -> str:
             continue
         text = f"{e.name} {e.standard_uncertainty_um:.2g} µm" + (" (default)" if e.default else "")
         if e.name == "reading" and budget.reading_scatter_um is not None:
-            text += f" (scatter of the residuals sigma0 {budget.reading_scatter_um:.3f} µm, {budget.reading_dof} dof)"
+            text += f" (scatter of the residuals sigma0 {budget.reading_scatter_um:.2g} µm, {budget.reading_dof} dof)"
         parts.append(text)
     return "sources (contribution to u): " + ", ".join(parts) if parts else "no source contributes"
 

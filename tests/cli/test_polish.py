@@ -224,3 +224,30 @@ def test_item8_limits_and_closures_at_the_precision_of_their_source(cli):
         row = next(r for r in out.splitlines() if r.startswith("│ " + ln["name"] + " "))
         closure = [c.strip() for c in row.split("│") if c.strip()][1]
         assert closure == f"{ln['closure_um']:.2f}".replace("-0.00", "0.00")
+
+
+def test_item8_heights_print_to_the_step_the_instrument_resolves(cli):
+    # The P3 autocollimator reads to 0.05 arcsec (default display step) over 100 mm: 100 mm x tan(0.05") =
+    # 0.024 µm (hand calculation). Heights without a U print to 0.01 µm, not to the nm.
+    code, out, err = cli("reduce", P3)
+    assert code == 0, err
+    code, js, _ = cli("reduce", P3, "--json")
+    doc = json.loads(js)
+    assert "heights to 0.01 µm: one reading resolves 0.024 µm" in out
+    tables = {}
+    for ln in out.splitlines():
+        cells = [c.strip() for c in ln.split("│") if c.strip()]
+        if cells:
+            tables.setdefault(cells[0], cells)
+    # the flatness table: every reference plane's FLTt, FLTp, FLTv and FLTq to two decimals, equal to the JSON
+    for ref in doc["flatness"]["references"]:
+        row = tables[ref["reference"]]
+        assert row[1:5] == [f"{ref[k]:.2f}" for k in ("fltt_um", "fltp_um", "fltv_um", "fltq_um")]
+    # station heights: the node SW, about the least-squares plane, to two decimals
+    sw = next(n for n in doc["nodes"] if n["name"] == "SW")
+    assert tables["SW"][3] == f"{sw['height_um']:.2f}"
+    # a target limit is stated as published (DIN 876 grade 00 at 1000 mm: 2 (1 + 1000/1000) = 4 µm, from memory),
+    # the guard band U to two significant digits, the flatness to the step
+    code, out, err = cli("lap", P3, "--target-grade", "din-876:00", "--trials", "2000", "--seed", "1")
+    assert code == 0, err
+    assert "limit 4 µm" in out and f"its flatness is {doc['flatness']['minimum_zone_um']:.2f} µm" in out
