@@ -72,9 +72,9 @@ LIMITS: dict[str, Limit] = {
     "temperature_c": Limit(-50.0, 100.0, "°C",
                            "surveys are made in rooms, near 20 °C (ISO 1 reference temperature); outside "
                            "-50 to +100 °C the value is a typing mistake"),
-    "gap_um": Limit(0.0, 1000.0, "µm",
-                    "air-bearing gaps are a few micrometres to a few tens; 1 mm is no longer an air film",
-                    low_open=True),
+    "gap_um": Limit(0.1, 1000.0, "µm",
+                    "air-bearing gaps are a few micrometres to a few tens; under 0.1 µm no air film flows and "
+                    "1 mm is no longer an air film"),
     "window_mm": Limit(1.0, _SIZE_MM, "mm",
                        "a local-flatness window smaller than 1 mm is smaller than any instrument's foot and would "
                        "take billions of window positions"),
@@ -86,6 +86,14 @@ LIMITS: dict[str, Limit] = {
                        low_open=True),
     "minutes": Limit(0.0, 1440.0, "min",
                      "one dwell or lapping-log row longer than a day (1440 min) is a typing mistake"),
+    "session_min": Limit(0.1, 1440.0, "min",
+                         "a lapping session lasts minutes to hours; under 6 s (0.1 min) or over a day (1440 min) is a "
+                         "typing mistake, and would make a calibrated rate of no meaning"),
+    "interval_months": Limit(1.0, 1200.0, "months",
+                             "a calibration interval is months to a few years; over 100 years is a typing mistake"),
+    "days": Limit(0.0, 36_525.0, "days",
+                  "a calibration interval or a look-ahead is days to a few years; over 100 years (36525 days) is a "
+                  "typing mistake and beyond any calendar date arithmetic"),
     "trials": Limit(1.0, 1.0e6, "",
                     "JCGM 101 finds 10^6 trials enough for a 95 % coverage interval (from memory, clause 7.2); more "
                     "add nothing a certificate can show and every trial costs memory and time"),
@@ -94,6 +102,70 @@ LIMITS: dict[str, Limit] = {
                     "levels is no rounding and takes minutes to plan"),
     "uncertainty_um": Limit(0.0, 1.0e4, "µm",
                             "an uncertainty of a flatness survey larger than 10 mm means nothing was measured"),
+    "tolerance_um": Limit(0.001, 1.0e4, "µm",
+                          "a flatness or motion tolerance under 1 nm is finer than any measurement can prove, and "
+                          "one larger than 10 mm is no tolerance of a flat surface or a guided motion"),
+    "angle_arcsec": Limit(0.001, 3600.0, "arcsec",
+                          "a pitch or roll budget of a guided motion is a few arcseconds; under 0.001 arcsec no "
+                          "instrument can prove it and more than a degree (3600 arcsec) is a unit mistake"),
+    "step_mm": Limit(0.01, _SIZE_MM, "mm",
+                     "a carriage travel step under 0.01 mm would take millions of carriage positions"),
+    "fraction": Limit(0.0, 1.0, "", "a fraction of a limit or of the longest pass lies between 0 and 1"),
+    "seed": Limit(0.0, float(2**63), "",
+                  "a Monte Carlo seed is a whole number of 0 or more; 63 bits (up to about 9.2e18, as flatcheck's "
+                  "own seeds) are enough to repeat any run, and the seed is printed on every result and stored"),
+    "pressure_kpa": Limit(1.0, 10_000.0, "kPa",
+                          "air bearings are fed at a few hundred kPa and work in air near 101 kPa; under 1 kPa no "
+                          "film forms and over 10 MPa (100 bar) is no shop air supply"),
+    "permeability_m2": Limit(1.0e-20, 1.0e-9, "m²",
+                             "porous bearing materials (graphite, sintered bronze, ceramics) lie near 1e-16 to "
+                             "1e-13 m²; outside 1e-20 to 1e-9 m² the value is a unit slip (mm², darcy)"),
+    "layer_mm": Limit(0.1, 100.0, "mm",
+                      "a porous bearing layer is a few millimetres thick; under 0.1 mm or over 100 mm is a typing "
+                      "or unit mistake"),
+    "orifice_mm": Limit(0.01, 10.0, "mm",
+                        "a bearing's orifice bore is a few tenths of a millimetre; under 0.01 mm or over 10 mm is "
+                        "a typing or unit mistake"),
+    "discharge_coefficient": Limit(0.1, 1.0, "",
+                                   "an orifice's discharge coefficient is near 0.6 to 0.9 and never above 1"),
+    "pocket_mm": Limit(0.0, 1000.0, "mm",
+                       "a feed pocket lies inside a pad (0 for none); over 1 m is a unit mistake"),
+    "pocket_depth_um": Limit(0.0, 1000.0, "µm",
+                             "a feed pocket is some micrometres deep (0 for none); 1 mm is no longer a pocket"),
+    "load_n": Limit(-1.0e6, 1.0e6, "N",
+                    "an air-bearing pad or carriage carries newtons to a few tonnes; more than 1 MN (100 t) is a "
+                    "unit mistake"),
+    "count": Limit(1.0, 10_000.0, "",
+                   "a count of orifices, strokes or pixels steps a person can set up is at most a few thousand; "
+                   "more takes unbounded memory or time"),
+    "rate_um": Limit(1.0e-6, 1000.0, "µm",
+                     "lapping removes some micrometres a minute or a pass; below a picometre the plan would take "
+                     "longer than anyone laps, and 1 mm is grinding, not lapping"),
+    "stroke_mm": Limit(0.0, 10_000.0, "mm",
+                       "a lap's working stroke about each spot is some tens of millimetres (0 for none); over 10 m "
+                       "is a unit mistake, and the lap's footprint grid grows with the stroke"),
+    "smoothing": Limit(0.0, 100.0, "",
+                       "a regularisation weight relative to the removal's own scale: 0 for none, about 0.01 by "
+                       "default; over 100 the dwell map ignores the surface"),
+    "wavelength_nm": Limit(200.0, 2000.0, "nm",
+                           "fringes are seen in visible or near-infrared light (about 400 to 1100 nm); outside "
+                           "200 to 2000 nm the value is a unit mistake"),
+    "pixel_mm": Limit(1.0e-4, 100.0, "mm",
+                      "one pixel of a photograph of a part is some micrometres to a millimetre on the part; under "
+                      "0.1 µm or over 100 mm is a unit mistake, and tiny pixels overflow the arithmetic"),
+    "flat_nm": Limit(0.0, 10_000.0, "nm",
+                     "an optical flat is flat to some tens of nanometres; a certificate value over 10 µm is no "
+                     "optical flat"),
+    "tilt_urad": Limit(-1.0e6, 1.0e6, "µrad",
+                       "a squareness, twist or tilt reading of a guideway is some seconds of arc (a few µrad); more "
+                       "than a radian (about 57 degrees) is a unit mistake"),
+    "fringes": Limit(0.0, 1000.0, "fringes",
+                     "a reading under an optical flat counts a few fringes, tens at most; more than 1000 fringes "
+                     "(about 0.3 mm of form) is not read with an optical flat"),
+    "direction_deg": Limit(-360.0, 360.0, "degrees", "a direction on the part is an angle from x within one turn"),
+    "flatness_limit_um": Limit(0.0, 1.0e4, "µm",
+                               "a flatness limit of a grade is some micrometres to a few hundred; more than 10 mm "
+                               "is no limit of a flat surface, most likely a unit mistake"),
 }
 
 

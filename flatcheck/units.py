@@ -346,6 +346,10 @@ def round_to_uncertainty(value: float, uncertainty: float, *, digits: int = 2) -
     return round(float(value), decimals), u_r, decimals
 
 
+#: The most decimals a height is printed with: 6 in µm is a picometre, finer than any flatness measurement.
+MAX_DECIMALS = 6
+
+
 def format_with_uncertainty(value_um: float, u_um: float, units: str = "um", *, unit: bool = True) -> tuple[str, str]:
     """A height and its uncertainty as displayed: the uncertainty to two significant digits, the value to
     the same decimal place (:func:`round_to_uncertainty`), in µm or µin.
@@ -370,6 +374,8 @@ def format_with_uncertainty(value_um: float, u_um: float, units: str = "um", *, 
     """
     v, u = um_to(value_um, units), um_to(u_um, units)
     _, _, dec = round_to_uncertainty(v, u)
+    # never more decimals than a picometre (in µm; 1e-6 µin): a vanishing U (1e-300) would print hundreds of zeros
+    dec = min(dec, MAX_DECIMALS)
     fmt = f"{{:.{max(dec, 0)}f}}"
     if dec < 0:
         vt, ut = fmt.format(round(v, dec)), fmt.format(round(u, dec))

@@ -292,7 +292,7 @@ def station_positions(surface: HeightMap, carriage: Carriage) -> tuple[np.ndarra
         raise InputValueError(
             f"{n + 1:.3g} carriage positions ({span:g} mm of travel in steps of {step:.3g} mm); "
             f"at most {MAX_POSITIONS} are evaluated",
-            where="pad size / travel step",
+            where="pad size / travel step" if carriage.step_mm is None else "step_mm",
             fix=(
                 f"the step follows the pad length ({min(p.pad.length_mm for p in pads):.3g} mm): check the pad size, "
                 "which is in mm"

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from enum import Enum
+from contextlib import contextmanager
 from pathlib import Path
 
 import typer
@@ -16,6 +17,9 @@ from typing import TYPE_CHECKING
 from ._app import app
 from .common import (
     Interp,
+    check_option_ranges,
+    check_output,
+    refuse_unused,
     SAFETY_LINES,
     auto_trials_option,
     default_auto_trials,
@@ -109,6 +113,17 @@ def _check_options(positive: dict, *, travel=(None, None)) -> None:
             where="--travel-start-mm/--travel-end-mm",
             fix="swap or correct the travel limits",
         )
+
+
+@contextmanager
+def _option_named(core_where: str, option: str):
+    """Errors the core places at ``core_where`` (a parameter in its words) placed at the option as typed."""
+    try:
+        yield
+    except FlatcheckError as exc:
+        if exc.where != core_where:
+            raise
+        raise type(exc)(exc.message, where=option, fix=exc.fix) from None
 
 
 def _origin(field: str | None, carriage, bearing: Path | None, step_mm, travel_start_mm, travel_end_mm):
@@ -318,6 +333,29 @@ def bearing_cmd(
         travel=(travel_start_mm, travel_end_mm),
     )
     _check_mesh(film_mesh)
+    if no_uncertainty:
+        refuse_unused({"--trials": trials, "--seed": seed, "--u-height-um": u_height_um},
+                      why="with --no-uncertainty", fix="drop --no-uncertainty, or drop the option")
+    check_option_ranges([  # docs/limits.md, named as typed, before any file is read
+        ("--gap-fraction", gap_fraction, "fraction", "the gap fraction"),
+        ("--marginal-from", marginal_from, "fraction", "the marginal fraction"),
+        ("--step-mm", step_mm, "step_mm", "the travel step"),
+        ("--sample-pitch-mm", sample_pitch_mm, "length_mm", "the sampling pitch"),
+        ("--budget-straightness-um", budget_straightness_um, "tolerance_um", "the straightness budget"),
+        ("--budget-pitch-arcsec", budget_pitch_arcsec, "angle_arcsec", "the pitch budget"),
+        ("--budget-roll-arcsec", budget_roll_arcsec, "angle_arcsec", "the roll budget"),
+        ("--supply-kpa", supply_kpa, "pressure_kpa", "the supply pressure"),
+        ("--ambient-kpa", ambient_kpa, "pressure_kpa", "the ambient pressure"),
+        ("--permeability-m2", permeability_m2, "permeability_m2", "the permeability"),
+        ("--layer-mm", layer_mm, "layer_mm", "the porous layer's thickness"),
+        ("--load-n", load_n, "load_n", "the load per pad"),
+        ("--orifice-mm", orifice_mm, "orifice_mm", "the orifice diameter"),
+        ("--cd", cd, "discharge_coefficient", "the discharge coefficient"),
+        ("--orifices", orifices, "count", "the number of orifices"),
+        ("--pocket-mm", pocket_mm, "pocket_mm", "the pocket diameter"),
+        ("--pocket-depth-um", pocket_depth_um, "pocket_depth_um", "the pocket depth"),
+    ])
+    check_output(plot_out, "--plot")
     from ..limits import check_range
 
     for opt, v, limit_kind in (("--y-mm", y_mm, "position_mm"), ("--travel-start-mm", travel_start_mm, "position_mm"),
@@ -357,7 +395,8 @@ def bearing_cmd(
         ) from None
     errors, u_note = _survey_errors(loaded, no_uncertainty=no_uncertainty, trials=trials, seed=seed,
                                     u_height_um=u_height_um, uncertainty_defaults=uncertainty_defaults)
-    with progress_bar("bearing positions", n, enabled=n * len(carriage.active_pads) > 200) as advance:
+    with progress_bar("bearing positions", n, enabled=n * len(carriage.active_pads) > 200) as advance, \
+            _option_named("sampling pitch", "--sample-pitch-mm"):
         result = evaluate_bearing(
             surface,
             carriage,

@@ -29,6 +29,8 @@ __all__ = [
     "load_input",
     "refuse_overwriting_inputs",
     "window_option",
+    "check_option_ranges",
+    "refuse_unused",
     "units_option",
     "trials_option",
     "seed_option",
@@ -253,7 +255,8 @@ def load_input(path: Path, *, method: str = "least-squares"):
 
 
 def check_output(path: Path | None, option: str) -> None:
-    """Refuse, before any work, an output path whose folder is missing or which is a folder."""
+    """Refuse, before any work, an output path whose folder is missing, which is a folder, a device, a named
+    pipe or a socket, or a file made read-only."""
     if path is None:
         return
     folder = path.parent if str(path.parent) else Path(".")
@@ -263,6 +266,13 @@ def check_output(path: Path | None, option: str) -> None:
         )
     if path.is_dir():
         raise OutputError(f"cannot write {path}: it is a folder", where=option, fix="give a file name")
+    if path.exists() and not path.is_file():
+        raise OutputError(f"cannot write {path}: it is not a regular file (a device, named pipe or socket)",
+                          where=option, fix="give the path of a file")
+    if path.is_file() and not os.stat(path).st_mode & 0o222:
+        # the file was made read-only on purpose (a kept result): the atomic move would replace it all the same
+        raise OutputError(f"cannot write {path}: the file is read-only", where=option,
+                          fix="choose another path, or make the file writable first if it may be replaced")
 
 
 def _same_file(a: Path, b: Path) -> bool:
@@ -270,7 +280,7 @@ def _same_file(a: Path, b: Path) -> bool:
     try:
         if a.resolve() == b.resolve():
             return True
-    except OSError:  # a resolve loop: compare as written
+    except (OSError, RuntimeError):  # a loop of symbolic links (Python 3.11 raises RuntimeError): compare as written
         if os.path.abspath(a) == os.path.abspath(b):
             return True
     if a.exists() and b.exists():
@@ -323,6 +333,32 @@ def refuse_overwriting_inputs(outputs: dict[str, Path | None], inputs: list[Path
                     fix=f"choose another path for {option}",
                 )
         seen.append((option, out))
+
+
+def check_option_ranges(options) -> None:
+    """Refuse, before any work, an option outside its range of docs/limits.md, named as it was typed.
+
+    Parameters
+    ----------
+    options : iterable of (str, value, str, str)
+        ``(option, value, kind, what)``: the option as typed (``"--supply-kpa"``), its value (None when not
+        given: skipped), the key of :data:`flatcheck.limits.LIMITS`, and what the value is, in words.
+    """
+    from ..limits import check_range
+
+    for option, value, kind, what in options:
+        if value is not None:
+            check_range(value, kind, where=option, name=what)
+
+
+def refuse_unused(options: dict, *, why: str, fix: str) -> None:
+    """Refuse the first option given (value not None) that would have no effect, so that nobody believes it
+    was applied: ``options`` maps the option as typed to its value; ``why`` says what it lacks."""
+    for option, value in options.items():
+        if value is not None:
+            from ..errors import InputValueError
+
+            raise InputValueError(f"this option has no effect {why}", where=option, fix=fix)
 
 
 def window_option():
@@ -386,7 +422,17 @@ def seed_option():
     """The ``--seed`` option of the Monte Carlo uncertainty."""
     import typer
 
-    return typer.Option(None, "--seed", help="Seed of the Monte Carlo run, for reproducible results.")
+    return typer.Option(None, "--seed", help="Seed of the Monte Carlo run, for reproducible results.",
+                        callback=_check_seed)
+
+
+def _check_seed(value):
+    """--seed a whole number from 0 to 2^64 - 1 (docs/limits.md), refused before any work; kept exact."""
+    if value is not None:
+        from ..limits import check_count
+
+        check_count(value, "seed", where="--seed", name="the seed")
+    return value
 
 
 def u_height_option():

@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING
 
 from ._app import app
 from .common import (
+    check_option_ranges,
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
     auto_trials_option,
@@ -362,6 +363,11 @@ def compare_cmd(
     check_option(match_tol_mm, "--match-tol-mm", what="a distance in mm")
     if lap_size_mm is not None:
         parse_lap_size(lap_size_mm)
+    check_option_ranges([  # docs/limits.md, named as typed
+        ("--dwell-min", dwell_min, "session_min", "the session's lapping time"),
+        ("--lap-diameter-mm", lap_diameter_mm, "lap_size_mm", "the lap diameter"),
+        ("--match-tol-mm", match_tol_mm, "length_mm", "the matching tolerance"),
+    ])
     mode = parse_guard_band(guard_band)
     if trials is not None:
         from ..limits import check_range

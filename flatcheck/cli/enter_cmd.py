@@ -202,7 +202,12 @@ def enter_cmd(
             fix=f"give the survey file (TOML, from flatcheck plan) first, and the log with --from: "
             f"flatcheck enter plate.toml --from {shlex.quote(str(survey))}",
         )
-    session = _Session(survey, reading_sd)
+    try:
+        session = _Session(survey, reading_sd)
+    except InputValueError as exc:  # the core names its parameter; here it is the option as typed
+        if exc.where != "reading_sd":
+            raise
+        raise InputValueError(exc.message, where="--reading-sd", fix=exc.fix) from None
     if session.closure_note():
         _warn(session.closure_note())
     same = [] if reading_sd is None else ["--reading-sd", f"{reading_sd:g}"]  # the resume command repeats it

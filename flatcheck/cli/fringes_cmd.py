@@ -11,7 +11,8 @@ from rich.markup import escape
 
 from ..errors import FlatcheckError, InputValueError
 from ._app import app
-from .common import Units, emit_json, progress_bar, refuse_overwriting_inputs, stdout_console, units_option
+from .common import (Units, check_option_ranges, check_output, emit_json, progress_bar, refuse_overwriting_inputs,
+                     stdout_console, units_option)
 
 
 class Edge(str, Enum):
@@ -63,7 +64,16 @@ def fringes_cmd(
     """Flatness of a pad face or lapped flat under an optical flat, in nm and in fringes."""
     from ..io._fringe_toml import is_fringe_toml
 
+    check_option_ranges([  # docs/limits.md, named as typed, before any file is read
+        ("--wavelength-nm", wavelength_nm, "wavelength_nm", "the wavelength"),
+        ("--pixel-mm", pixel_mm, "pixel_mm", "the pixel size"),
+        ("--part-width-mm", part_width_mm, "length_mm", "the part's width"),
+        ("--flat-nm", flat_nm, "flat_nm", "the flat's flatness"),
+        ("--gap-um", gap_um, "gap_um", "the film gap"),
+        ("--step-px", step_px, "count", "the sampling step"),
+    ])
     refuse_overwriting_inputs({"--map-out": map_out}, [input, mask])
+    check_output(map_out, "--map-out")
     win = _parse_window(window)
     if input.suffix.lower() == ".toml" or is_fringe_toml(input):
         for name, given in (("--pixel-mm", pixel_mm), ("--part-width-mm", part_width_mm),
@@ -111,6 +121,10 @@ def _parse_window(text: str | None):
     if not ok:
         raise InputValueError(f"window {text!r} is not a size", where="--window",
                               fix="write LxW in mm (e.g. 20x20) or dD for a circle (e.g. d20), or none")
+    from ..limits import check_range
+
+    for side in (win[1],) if win[0] == "circle" else win[1]:  # a microscopic window takes billions of positions
+        check_range(side, "window_mm", where="--window", name=f"window {text!r}: a side of")
     return win
 
 
@@ -152,16 +166,21 @@ def _photo(path, wavelength_nm, light, pixel_mm, part_width_mm, contact_edge, ma
     pic = read_picture(path)
     part = None
     if mask_path is not None:
-        m = read_picture(mask_path)
+        m = read_picture(mask_path, option="--mask")
         if (m.width, m.height) != (pic.width, pic.height):
             raise InputValueError(
                 f"the mask is {m.width} x {m.height} pixels, the photograph {pic.width} x {pic.height}",
-                where=str(mask_path), fix="draw the mask on a copy of the photograph (white on the part, black elsewhere)",
+                where=f"--mask {mask_path}", fix="draw the mask on a copy of the photograph (white on the part, black elsewhere)",
             )
         part = m.intensity > 0.5
     for name, v in (("--pixel-mm", pixel_mm), ("--part-width-mm", part_width_mm)):
         if v is not None and not (math.isfinite(v) and v > 0):
             raise InputValueError(f"{name} {v:g} is not a positive size", where=name, fix=f"give {name} in mm")
+    if part_width_mm is not None:  # the pixel it makes, within docs/limits.md (tiny pixels overflow the arithmetic)
+        from ..limits import check_range
+
+        check_range(part_width_mm / pic.width, "pixel_mm", where="--part-width-mm",
+                    name=f"a pixel ({part_width_mm:g} mm over {pic.width} pixels)")
     with progress_bar("Fringes", 2, enabled=pic.width * pic.height > 4_000_000) as advance:
         try:
             fm = analyze_fringe_photo(

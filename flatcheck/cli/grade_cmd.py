@@ -9,6 +9,7 @@ result is a reject: with ``--grade`` or a given tolerance, when that one verdict
 from __future__ import annotations
 
 import math
+import sys
 
 from enum import Enum
 from pathlib import Path
@@ -18,6 +19,8 @@ import typer
 from ..errors import ExitStatus, InputValueError
 from ._app import app
 from .common import (
+    check_option_ranges,
+    refuse_unused,
     Rule,
     auto_trials_option,
     default_auto_trials,
@@ -62,9 +65,12 @@ def _one_of(um: float | None, uin: float | None, name: str) -> float | None:
         if bad:
             need = "a positive number" if name == "tolerance" else "a number 0 or above"
             raise InputValueError(f"{name} {v:g} is not {need}", where=opt, fix=f"give {opt} as {need}")
-    if uin is not None:
-        return float(uin) * UM_PER_UIN  # 1 µin = 0.0254 µm exactly
-    return None if um is None else float(um)
+    from ..limits import check_range
+
+    kind, what = ("tolerance_um", "the tolerance") if name == "tolerance" else ("uncertainty_um", "the uncertainty")
+    if uin is not None:  # the range in µm, named by the option as typed
+        return check_range(float(uin) * UM_PER_UIN, kind, where=f"--{name}-uin", name=f"{what} (in µm)")
+    return None if um is None else check_range(float(um), kind, where=f"--{name}-um", name=what)
 
 
 def _check_positive(options: dict) -> None:
@@ -125,6 +131,13 @@ def grade_cmd(
         raise InputValueError(
             "both --uncertainty and --no-uncertainty given", where="--no-uncertainty", fix="give only one"
         )
+    if no_uncertainty:
+        refuse_unused({"--trials": trials, "--seed": seed, "--u-height-um": u_height_um},
+                      why="with --no-uncertainty", fix="drop --no-uncertainty, or drop the option")
+    elif unc is not None:
+        stated = "--uncertainty-um" if uncertainty_um is not None else "--uncertainty-uin"
+        refuse_unused({"--trials": trials, "--seed": seed, "--u-height-um": u_height_um},
+                      why=f"with a stated uncertainty ({stated})", fix=f"drop {stated}, or drop the option")
     _check_positive({"--length-mm": length_mm, "--width-mm": width_mm,
                      "--repeat-radius-mm": repeat_foot_radius_mm, "--repeat-tolerance-um": repeat_tolerance_um})
     from ..limits import check_range
@@ -132,9 +145,10 @@ def grade_cmd(
     for opt, v in (("--length-mm", length_mm), ("--width-mm", width_mm)):  # docs/limits.md, before any work
         if v is not None:
             check_range(v, "length_mm", where=opt, name="the plate's size")
-    for opt, v in (("--uncertainty-um", unc), ("--u-height-um", u_height_um)):
-        if v is not None:
-            check_range(v, "uncertainty_um", where=opt, name="the uncertainty")
+    if u_height_um is not None:
+        check_range(u_height_um, "uncertainty_um", where="--u-height-um", name="the uncertainty")
+    check_option_ranges([("--repeat-radius-mm", repeat_foot_radius_mm, "length_mm", "the gage's foot radius"),
+                         ("--repeat-tolerance-um", repeat_tolerance_um, "tolerance_um", "the repeat-reading tolerance")])
     if trials is not None:
         check_range(trials, "trials", where="--trials", name="the number of trials")
     loaded = load_input(input)
@@ -188,6 +202,8 @@ def grade_cmd(
     units_value = units.value
     if units_value == "in":
         _add_uin(report)
+    for w in report.get("warnings", ()):  # one line each on standard error, like errors
+        sys.stderr.write(f"flatcheck: warning: {' '.join(str(w).split())}\n")
     if json_out:
         emit_json(report)
     else:

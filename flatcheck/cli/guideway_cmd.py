@@ -9,6 +9,7 @@ import typer
 from ..errors import InputValueError
 from ._app import app
 from .common import (
+    check_option_ranges,
     Interp,
     Units,
     check_output,
@@ -240,6 +241,17 @@ def guideway_cmd(
 
     _check_options({"--gap-um": gap_um, "--supply-kpa": supply_kpa, "--permeability-m2": permeability_m2,
                     "--layer-mm": layer_mm, "--orifice-mm": orifice_mm, "--step-mm": step_mm})
+    check_option_ranges([  # docs/limits.md, named as typed, before any file is read
+        ("--gap-um", gap_um, "gap_um", "the air gap"),
+        ("--load-n", load_n, "load_n", "the load on the carriage"),
+        ("--supply-kpa", supply_kpa, "pressure_kpa", "the supply pressure"),
+        ("--permeability-m2", permeability_m2, "permeability_m2", "the permeability"),
+        ("--layer-mm", layer_mm, "layer_mm", "the porous layer's thickness"),
+        ("--orifice-mm", orifice_mm, "orifice_mm", "the orifice diameter"),
+        ("--travel-start-mm", travel_start_mm, "position_mm", "the first carriage position"),
+        ("--travel-end-mm", travel_end_mm, "position_mm", "the last carriage position"),
+        ("--step-mm", step_mm, "step_mm", "the travel step"),
+    ])
     if film_mesh is not None and not 4 <= film_mesh <= 512:
         raise InputValueError(f"{film_mesh} mesh cells a side: give 4 to 512", where="--film-mesh", fix="give e.g. 32")
     if plot_prefix is not None and png_dir is not None:

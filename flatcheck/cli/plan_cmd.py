@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import enum
 import sys
+import math
 from pathlib import Path
 
 import typer
@@ -11,7 +12,7 @@ import typer
 from ..errors import InputValueError, LayoutError, OutputError
 DEFAULT_MARGIN_MM = 30.0  # the core's value (a test keeps them equal); importing it would load numpy when the CLI starts
 from ._app import app
-from .common import emit_json, stdout_console
+from .common import check_output, emit_json, stdout_console
 
 
 class Pattern(str, enum.Enum):
@@ -49,6 +50,11 @@ _OPTION_OF = {
 DEFAULT_MARGIN_IN = 1.25
 
 
+#: The range (docs/limits.md) of each size option, and what it is in words.
+_SIZE_LIMITS = {"length": ("length_mm", "the length"), "width": ("length_mm", "the width"),
+                "foot-spacing": ("foot_spacing_mm", "the foot spacing"), "margin": ("position_mm", "the margin")}
+
+
 def _size_mm(name: str, v_mm, v_in, *, required: bool = True):
     """One size given as ``--<name>-mm`` or ``--<name>-in``: (value in mm or None, unit it was given in)."""
     from ..units import MM_PER_INCH
@@ -57,6 +63,15 @@ def _size_mm(name: str, v_mm, v_in, *, required: bool = True):
         raise InputValueError(
             f"both --{name}-mm and --{name}-in are given", where=f"--{name}-in", fix="give the size once, in mm or in inches"
         )
+    from ..limits import LIMITS, check_range
+
+    kind, what = _SIZE_LIMITS[name]
+    # the upper end of docs/limits.md (1e300 would make the layout's messages print hundreds of digits); the
+    # layout itself refuses small, zero, negative and non-finite sizes in the unit they were typed in
+    if v_in is not None and math.isfinite(v_in) and abs(v_in) * MM_PER_INCH > LIMITS[kind].high:
+        check_range(float(v_in) * MM_PER_INCH, kind, where=f"--{name}-in", name=f"{what} (in mm)")
+    if v_mm is not None and math.isfinite(v_mm) and abs(v_mm) > LIMITS[kind].high:
+        check_range(v_mm, kind, where=f"--{name}-mm", name=what)
     if v_in is not None:
         return float(v_in) * MM_PER_INCH, "in"  # 1 in = 25.4 mm exactly
     if v_mm is None and required:
@@ -189,6 +204,7 @@ def plan_cmd(
         if output.exists() and not force and not output.is_dir():
             raise OutputError(f"{output} exists", where="--output", fix="choose another name or add --force to overwrite it")
         _check_output_path(output)
+        check_output(output, "--output")  # a device, a named pipe or a read-only file
     try:
         if pattern is Pattern.union_jack:
             if diagonals:
@@ -258,7 +274,9 @@ def plan_cmd(
 
         def fixed(v_mm):
             return f"{v_mm:.2f}"
-    con.print(f"[bold]{survey.pattern} survey[/bold] of {s.description} {size(s.length_mm, 6)} x {size(s.width_mm, 6)} {lu}, "
+    from rich.markup import escape
+
+    con.print(f"[bold]{survey.pattern} survey[/bold] of {escape(s.description)} {size(s.length_mm, 6)} x {size(s.width_mm, 6)} {lu}, "
               f"{inst.kind} reading {inst.unit}")
     con.print(_diagram(survey), markup=False, highlight=False)
     ext = summary.extent_mm

@@ -10,6 +10,8 @@ from ._app import app
 from .common import (
     ScanProgress,
     Method,
+    check_output,
+    refuse_unused,
     emit_json,
     load_input,
     progress_bar,
@@ -27,6 +29,7 @@ from .common import (
 
 @app.command("reduce")
 def reduce_cmd(
+    ctx: typer.Context,
     input: Path = typer.Argument(..., help="Survey file (.toml) or height-map CSV (x_mm,y_mm,height_um)."),
     method: Method = typer.Option(
         Method.least_squares, "--method", help="least-squares network adjustment (any layout) or classic moody (Union Jack)."
@@ -49,13 +52,20 @@ def reduce_cmd(
     from ..units import um_to
     from ..io import write_heightmap_csv
 
+    if not uncertainty:
+        source = ctx.get_parameter_source("trials")  # (the default value cannot tell "not given")
+        given_trials = source is not None and source.name not in ("DEFAULT", "DEFAULT_MAP")
+        refuse_unused({"--trials": trials if given_trials else None, "--seed": seed, "--u-height-um": u_height_um},
+                      why="without --uncertainty", fix="add --uncertainty, or drop the option")
     refuse_overwriting_inputs({"--map-out": map_out}, [input, uncertainty_defaults])
+    check_output(map_out, "--map-out")
+    lab = load_lab_defaults(uncertainty_defaults)  # a named file is read (and a broken one refused) even unused
     loaded = load_input(input, method=method.value)
     mc = None
     if uncertainty:
         with progress_bar("Monte Carlo", trials, enabled=True) as advance:
             mc = dict(trials=trials, seed=seed, u_height_um=u_height_um, progress=advance,
-                      lab_defaults=load_lab_defaults(uncertainty_defaults))
+                      lab_defaults=lab)
             ev = evaluate_surface(loaded, window=window, monte_carlo=mc)
     else:
         scan = ScanProgress("local flatness")  # a bar on long scans (a fine window over a dense map)

@@ -21,6 +21,7 @@ from rich.text import Text
 from ..errors import FlatcheckError, InputFormatError, InputValueError
 from ._app import app
 from .common import (
+    check_option_ranges,
     Method,
     check_output,
     default_auto_trials,
@@ -59,7 +60,13 @@ def _open(db: Path | None, *, write: bool, create: bool | None = None):
     """Open the register: for reading, or for writing (created on first use unless ``create=False``)."""
     from ..records import Register, register_path
 
-    return Register.open(register_path(db), create=write if create is None else create, readonly=not write)
+    path = register_path(db)
+    if path.exists() and not path.is_dir() and not path.is_file():  # opening a named pipe would wait for ever
+        from ..errors import InputFormatError
+
+        raise InputFormatError(f"{path} is not a regular file (a device, named pipe or socket), so not a register",
+                             where="--db", fix="give the register's file with --db (or FLATCHECK_DB)")
+    return Register.open(path, create=write if create is None else create, readonly=not write)
 
 
 def _date_option(name: str, help: str):
@@ -117,9 +124,11 @@ def _limit_threads() -> None:
 
 def _read_raw(path: Path) -> str | None:
     """The file's text for its content hash, or None when it cannot be read (the worker names the error)."""
-    try:
-        return path.read_bytes().decode("utf-8-sig")
-    except (OSError, UnicodeDecodeError):
+    from ..io import read_text
+
+    try:  # bounded, regular files only: a FIFO or /dev/zero named as a survey must not hang the register
+        return read_text(path)
+    except FlatcheckError:
         return None
 
 
@@ -134,7 +143,9 @@ def evaluate_file(path: str, options: dict):
     try:
         p = Path(path)
         loaded = load_input(p, method=options["method"])
-        raw = p.read_bytes().decode("utf-8-sig")
+        from ..io import read_text
+
+        raw = read_text(p)
         meta = None
         if loaded.survey is None:
             from ..io._csv_meta import read_csv_meta
@@ -208,6 +219,8 @@ def add_cmd(
     """Add surveys to the register: many files at once, reduced on all cores; a refused file is named and skipped."""
     from ..records import DuplicateSurveyError, register_path, text_sha256
 
+    check_option_ranges([("--seed", seed, "seed", "the seed"), ("--trials", trials, "trials", "the number of trials"),
+                         ("--jobs", jobs, "count", "the number of worker processes")])
     db_path = register_path(db)
     files = _expand(list(paths))
     refuse_overwriting_inputs({"--db": db_path}, files)
@@ -507,6 +520,7 @@ def due_cmd(
 
     on = _check_date(on, "--on")
     with _open(db, write=False) as reg:
+        check_option_ranges([("--within-days", within_days, "days", "the days ahead")])
         d = due_list(reg, on=on, within_days=within_days, include_ok=show_all)
     if json_out:
         emit_json({
@@ -578,6 +592,11 @@ def surface_cmd(
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     """Add a surface or change its record (with no options: show it)."""
+    check_option_ranges([  # docs/limits.md, named as typed, before the register is opened
+        ("--length-mm", length_mm, "length_mm", "the length"), ("--width-mm", width_mm, "length_mm", "the width"),
+        ("--interval-months", interval_months, "interval_months", "the calibration interval"),
+        ("--interval-days", interval_days, "days", "the calibration interval"),
+    ])
     fields = dict(kind=kind, description=description, length_mm=length_mm, width_mm=width_mm, material=material,
                   standard=standard, grade=grade, location=location, owner=owner, interval_months=interval_months,
                   interval_days=interval_days)
@@ -645,6 +664,7 @@ def instrument_cmd(
     if (certificate or traceability) and calibrated is None:
         raise InputValueError("--certificate and --traceability belong to a calibration", where="--certificate",
                               fix="give --calibrated (and --due) with them")
+    check_option_ranges([("--interval-months", interval_months, "interval_months", "the calibration interval")])
     changing = any(v is not None for v in (kind, model, serial, interval_months, calibrated))
     if calibrated is not None and due is None and interval_months is None and not register_path(db).exists():
         raise InputValueError("no due date for the calibration", where="--calibrated",

@@ -13,6 +13,7 @@ import typer
 
 from ._app import app
 from .common import (
+    refuse_unused,
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
     Method,
@@ -89,6 +90,9 @@ def report_cmd(
     from ..lapping import parse_guard_band
 
     parse_guard_band(guard_band)  # a bad --guard-band is refused before any work
+    if no_uncertainty and db is None:
+        refuse_unused({"--trials": trials, "--seed": seed, "--u-height-um": u_height_um},
+                      why="with --no-uncertainty", fix="drop --no-uncertainty, or drop the option")
     check_outputs(output, png, standard)
     refuse_overwriting_inputs({"-o": output}, [input, bearing, uncertainty_defaults, db])
     refuse_pictures_over_inputs(png, [input, bearing])

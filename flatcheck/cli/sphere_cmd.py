@@ -10,7 +10,7 @@ from rich.markup import escape
 
 from ..errors import FlatcheckError, InputValueError
 from ._app import app
-from .common import Units, emit_json, refuse_overwriting_inputs, stdout_console, units_option
+from .common import Units, check_option_ranges, emit_json, refuse_overwriting_inputs, stdout_console, units_option
 
 
 class Kind(str, Enum):
@@ -45,6 +45,10 @@ def sphere_cmd(
         surrounds_center,
     )
 
+    check_option_ranges([("--u-um", u_um, "uncertainty_um", "the uncertainty")])  # docs/limits.md
+    if u_um is not None and kind != Kind.ball:  # only a ball is graded: a U would be silently unused
+        raise InputValueError("--u-um has no effect without --kind ball (only a ball is graded)", where="--u-um",
+                              fix="add --kind ball, or drop --u-um")
     refuse_overwriting_inputs({}, [input, mate])
     if mate is not None and kind is None:
         raise InputValueError("--mate needs --kind", where="--mate",

@@ -10,6 +10,51 @@ from ._tolerance import Tolerance, get_standard, plate_size, reference_length_mm
 __all__ = ["grade_surface"]
 
 
+#: A size given with --length-mm/--width-mm further than this fraction from the file's stated size is warned
+#: about: the tolerance would be that of another plate (common practice, no single source: sizes are stated
+#: to the nearest few millimetres, so 10 % is no rounding).
+SIZE_MISMATCH_FRACTION = 0.10
+
+
+def size_warnings(hm, size) -> list[str]:
+    """Warnings when the plate size given as options does not fit the surface measured.
+
+    Parameters
+    ----------
+    hm : HeightMap
+        The surface; its stated ``length_mm``/``width_mm`` (mm) when the file gives them, and its points.
+    size : PlateSize
+        The size used for grading (mm); only a size from the options (``source == "option"``) is checked.
+
+    Returns
+    -------
+    list of str
+        One sentence per mismatch: the given size far from the file's stated size (sides compared longer with
+        longer), or smaller than the measured points' extent, or far larger than it without a stated size.
+    """
+    if size.source != "option":
+        return []
+    given = sorted((size.length_mm, size.width_mm), reverse=True)
+    xmin, xmax, ymin, ymax = hm.extent_mm
+    extent = sorted((xmax - xmin, ymax - ymin), reverse=True)
+    out = []
+    if hm.length_mm is not None and hm.width_mm is not None:
+        stated = sorted((float(hm.length_mm), float(hm.width_mm)), reverse=True)
+        if any(abs(g - s) > SIZE_MISMATCH_FRACTION * s for g, s in zip(given, stated)):
+            out.append(f"--length-mm/--width-mm give a {size.length_mm:g} x {size.width_mm:g} mm plate, but the "
+                       f"file states {hm.length_mm:g} x {hm.width_mm:g} mm: the tolerances are those of the size "
+                       "given; check the options (or leave them out to use the file's size)")
+            return out
+    if any(g < e * (1 - 1e-6) for g, e in zip(given, extent)):
+        out.append(f"--length-mm/--width-mm give a {size.length_mm:g} x {size.width_mm:g} mm plate, smaller than the "
+                   f"measured points span ({extent[0]:g} x {extent[1]:g} mm): check the options")
+    elif hm.length_mm is None and any(g > 2.0 * e + 100.0 for g, e in zip(given, extent)):
+        out.append(f"--length-mm/--width-mm give a {size.length_mm:g} x {size.width_mm:g} mm plate, far larger than "
+                   f"the measured points span ({extent[0]:g} x {extent[1]:g} mm): the tolerances are those of the "
+                   "size given; check the options")
+    return out
+
+
 def grade_surface(
     hm,
     *,
@@ -117,6 +162,7 @@ def grade_surface(
         notes.append(f"a published table gives for this size (um) {listed}; use --basis table to grade by it")
     if size.source == "point-extent":
         notes.append("plate size taken from the extent of the measured points; tolerances may be too small")
+    warnings = size_warnings(hm, size)
 
     best = None
     if tolerance_um is None and grade is None:
@@ -159,6 +205,7 @@ def grade_surface(
         "length_mm": size.length_mm,
         "width_mm": size.width_mm,
         "size_source": size.source,
+        "warnings": warnings,
         "length_used_mm": None if length_used != length_used else length_used,  # NaN -> null
         "length_basis": tols[0].length_basis if std is not None else None,
         "basis": tols[0].basis,

@@ -45,6 +45,10 @@ def atomic_path(path, *, suffix: str | None = None):
         )
     if path.is_dir():
         raise OutputError(f"cannot write {path}: it is a folder", fix="give a file name")
+    if path.exists() and not path.is_file():
+        # a device (/dev/null), a named pipe or a socket: replacing it would remove it from its folder
+        raise OutputError(f"cannot write {path}: it is not a regular file (a device, named pipe or socket)",
+                          fix="give the path of a file")
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix or path.suffix, dir=folder)
     except OSError as exc:

@@ -30,7 +30,7 @@ from pathlib import Path
 
 from ..errors import FlatcheckError, InputFormatError, InputValueError
 from ._guideway_toml import _Lines, _shown, _Table, _where
-from ._text import read_text
+from ._text import read_text, toml_loads
 
 __all__ = ["CarriageFile", "read_carriage_toml", "parse_carriage_toml", "wrap_carriage"]
 
@@ -94,7 +94,7 @@ def parse_carriage_toml(text: str, *, source: str = "<carriage>") -> CarriageFil
     from ..bearing import Pad, PlacedPad, parse_pad_size
 
     try:
-        doc = tomllib.loads(text)
+        doc = toml_loads(text, where=str(source))  # no deep nesting, no integer too large for a float
     except tomllib.TOMLDecodeError as exc:
         raise InputFormatError(f"not a valid TOML file ({exc})", where=str(source), fix="check the TOML syntax") from None
     lines = _Lines(text)

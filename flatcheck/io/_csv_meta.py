@@ -109,7 +109,9 @@ def _length(value: str, key: str, where: str) -> float:
     if not math.isfinite(v) or v <= 0:
         raise InputValueError(f"{key} {value!r} is not a positive size", where=where,
                               fix=f"write the size of the whole surface, e.g. {key} = 1000")
-    return v * MM_PER_INCH if key.endswith("_in") else v
+    from ..limits import check_range
+
+    return check_range(v * MM_PER_INCH if key.endswith("_in") else v, "length_mm", where=where, name=key)
 
 
 def parse_csv_meta(lines, *, source: str = "<csv>", first_line: int = 1) -> CsvMeta:

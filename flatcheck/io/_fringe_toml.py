@@ -61,11 +61,14 @@ _DIRECTIONS = {"x": 0.0, "y": 90.0, "diagonal": 45.0, "antidiagonal": 135.0}
 
 def is_fringe_toml(path) -> bool:
     """True when the file's text names ``format = "flatcheck-fringes"`` in its first 64 kB."""
-    try:
-        with open(path, "rb") as fh:
-            head = fh.read(1 << 16)
-    except OSError:
+    from ._text import open_regular
+
+    try:  # a FIFO or a device is not looked into (it may never end): the reader refuses it with its name
+        fh, _size = open_regular(path)
+    except (InputFormatError, OSError):
         return False
+    with fh:
+        head = fh.read(1 << 16)
     return re.search(rb'^\s*format\s*=\s*["\']flatcheck-fringes["\']', head, re.M) is not None
 
 
@@ -120,12 +123,23 @@ def read_fringe_readings(path):
     return parse_fringe_readings(text, path=path)
 
 
+#: The range (flatcheck.limits, docs/limits.md) each number of a fringe file is checked against, by key.
+_KINDS = {"length_mm": "length_mm", "width_mm": "length_mm", "diameter_mm": "length_mm", "spacing_mm": "length_mm",
+          "bend_mm": "position_mm", "flatness_nm": "flat_nm", "flatness_fringes": "fringes", "bend_fringes": "fringes",
+          "rings": "fringes", "u_fringes": "fringes", "irregularity_fringes": "fringes", "fringes_across": "fringes",
+          "along": "direction_deg"}
+
+
 def _number(v, where, name, *, positive=False, allow_zero=True):
+    from ..limits import LIMITS, check_range
+
     if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
         raise InputValueError(f"{name} = {v!r} is not a number", where=where, fix="write a plain number")
     v = float(v)
     if positive and (v < 0 or (v == 0 and not allow_zero)):
         raise InputValueError(f"{name} = {v:g} must be {'positive' if not allow_zero else 'zero or more'}", where=where)
+    if _KINDS.get(name) in LIMITS:
+        check_range(v, _KINDS[name], where=where, name=name)
     return v
 
 

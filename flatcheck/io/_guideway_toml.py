@@ -134,6 +134,34 @@ def _shown(v) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
+#: The range (flatcheck.limits, docs/limits.md) each number of a body or carriage file is checked against, by key.
+_KINDS = {
+    "length_mm": "length_mm", "x_mm": "position_mm", "across_mm": "position_mm", "along_mm": "position_mm",
+    "y_mm": "position_mm", "z_mm": "position_mm", "travel_start_mm": "position_mm", "travel_end_mm": "position_mm",
+    "load_along_mm": "position_mm", "load_across_mm": "position_mm", "step_mm": "length_mm",
+    "value_um": "height_um", "u_um": "uncertainty_um", "gap_um": "gap_um", "min_film_um": "gap_um",
+    "load_n": "load_n", "supply_kpa": "pressure_kpa", "ambient_kpa": "pressure_kpa",
+    "permeability_m2": "permeability_m2", "layer_mm": "layer_mm", "orifice_mm": "orifice_mm",
+    "cd": "discharge_coefficient", "pocket_mm": "pocket_mm", "pocket_depth_um": "pocket_depth_um",
+    "straightness_um": "tolerance_um", "vertical_straightness_um": "tolerance_um",
+    "horizontal_straightness_um": "tolerance_um", "pitch_arcsec": "angle_arcsec", "yaw_arcsec": "angle_arcsec",
+    "roll_arcsec": "angle_arcsec",
+}
+
+
+def _check_kind(key: str, values, where: str, kind: str | None = None) -> None:
+    """Refuse the first of ``values`` outside the range of its key (docs/limits.md), naming the key."""
+    from ..limits import LIMITS, check_range
+
+    kind = kind or _KINDS.get(key)
+    if kind not in LIMITS:
+        return
+    for i, v in enumerate(values):
+        lim = LIMITS[kind]
+        if not (lim.low <= v <= lim.high) or (lim.low_open and v == lim.low):
+            check_range(v, kind, where=where, name=key if len(values) == 1 else f"entry {i + 1} of {key}")
+
+
 class _Table:
     """One table of the file with what is needed to name its fields in messages."""
 
@@ -192,6 +220,7 @@ class _Table:
         v = float(v)
         if positive and v <= 0:
             raise InputValueError(f"{key} must be positive, got {v:g}", where=self.where(key), fix=f"give {key} > 0")
+        _check_kind(key, [v], self.where(key))
         return v
 
     def numbers(self, key, *, required_fix=None, default=None):
@@ -209,6 +238,7 @@ class _Table:
                 what = f"entry {i + 1} of {key}" if isinstance(v, list) else key
                 raise InputValueError(f"{what} must be a number, got {_shown(e)}", where=self.where(key),
                                       fix="give finite numbers (no quotes)")
+        _check_kind(key, [float(e) for e in vals], self.where(key))
         return np.array(vals, dtype=float)
 
     def face_names(self, key, count, faces: dict, *, kinds: str):
@@ -246,7 +276,9 @@ class _Table:
                 )
             return default
         key = f"{prefix}_{given[0]}"
-        return self.numbers(key) * _ANGLE_UNITS[given[0]], key
+        urad = self.numbers(key) * _ANGLE_UNITS[given[0]]
+        _check_kind(f"{key} (in µrad)", [float(v) for v in urad], self.where(key), "tilt_urad")
+        return urad, key
 
 
 def count_set(count):
@@ -368,7 +400,11 @@ def parse_guideway_toml(text: str, *, source: str = "<guideway>", folder=None, o
                 f"face {name!r}: no such survey file {str(path)!r}", where=t.where("survey"),
                 fix="give the path of the face's survey relative to the body file",
             )
-        loaded = opener(path)
+        try:
+            loaded = opener(path)
+        except FlatcheckError as exc:  # the survey's own message, after where the body names it
+            inner = exc.where or str(path)
+            raise type(exc)(exc.message, where=f"{t.where('survey')}, face {name!r}: {inner}", fix=exc.fix) from None
         hm = loaded.heightmap
         centre = t.number("centre_mm", 0.0)
         xmin, xmax, _, _ = hm.extent_mm

@@ -190,6 +190,13 @@ def read_heightmap_csv(path, *, label: str | None = None) -> HeightMap:
 def _find_header(path, fh):
     """Line number of the header and the byte offset of the body; checks the header."""
     head = fh.read(_SNIFF_BYTES)
+    from ._text import wide_encoding
+
+    wide = wide_encoding(head)
+    if wide:
+        raise InputFormatError(f"the file is {wide} text, not UTF-8", where=str(path),
+                               fix="save it as UTF-8 (most editors offer the encoding under 'Save as'); give a CSV "
+                               "height map (x_mm,y_mm,height_um)")
     if b"\x00" in head:
         raise InputFormatError("the file is binary, not text", where=str(path),
                                fix="give a CSV height map (x_mm,y_mm,height_um)")

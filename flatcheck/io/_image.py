@@ -58,7 +58,7 @@ class GreyPicture:
         return int(self.intensity.shape[0])
 
 
-def read_picture(path, *, max_pixels: int = MAX_PICTURE_PIXELS) -> GreyPicture:
+def read_picture(path, *, max_pixels: int = MAX_PICTURE_PIXELS, option: str | None = None) -> GreyPicture:
     """Read a PNG, JPEG or TIFF photograph as a grey picture.
 
     Parameters
@@ -67,6 +67,8 @@ def read_picture(path, *, max_pixels: int = MAX_PICTURE_PIXELS) -> GreyPicture:
         The file.
     max_pixels : int
         Largest number of pixels accepted.
+    option : str, optional
+        The command-line option that named the file (``"--mask"``), put before the file in messages.
 
     Returns
     -------
@@ -84,25 +86,27 @@ def read_picture(path, *, max_pixels: int = MAX_PICTURE_PIXELS) -> GreyPicture:
 
     from PIL import Image, ImageOps, UnidentifiedImageError
 
+    from ._text import open_regular
+
     path = Path(path)
-    if not path.exists():
-        raise InputFormatError("no such file", where=str(path), fix="check the path")
-    if path.is_dir():
-        raise InputFormatError("this is a folder, not a file", where=str(path), fix="give a picture file")
-    if path.stat().st_size == 0:
-        raise InputFormatError("the file is empty", where=str(path), fix="give a PNG, JPEG or TIFF photograph")
+    label = f"{option} {path}" if option else str(path)
+    try:  # a regular file only (a FIFO or a device would never end), bounded in size, readable
+        fh, _size = open_regular(path, wanted="a PNG, JPEG or TIFF photograph")
+    except InputFormatError as exc:
+        raise InputFormatError(exc.message, where=f"{option} {exc.where}" if option else exc.where,
+                               fix=exc.fix) from None
     wanted = "give the photograph as PNG, JPEG or TIFF"
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error", Image.DecompressionBombWarning)
-            with Image.open(path) as im:
+            with fh, Image.open(fh) as im:
                 if im.format not in PICTURE_FORMATS:
-                    raise InputFormatError(f"a {im.format} picture, not PNG, JPEG or TIFF", where=str(path), fix=wanted)
+                    raise InputFormatError(f"a {im.format} picture, not PNG, JPEG or TIFF", where=label, fix=wanted)
                 w, h = im.size
                 if w * h > max_pixels:
                     raise InputValueError(
                         f"the picture is {w} x {h} pixels, more than {max_pixels // 1_000_000} megapixels",
-                        where=str(path),
+                        where=label,
                         fix="crop the photograph to the part or scale it down",
                     )
                 fmt = im.format
@@ -114,22 +118,22 @@ def read_picture(path, *, max_pixels: int = MAX_PICTURE_PIXELS) -> GreyPicture:
     except (InputFormatError, InputValueError):
         raise
     except UnidentifiedImageError:
-        raise InputFormatError("not a picture Pillow can read", where=str(path), fix=wanted) from None
+        raise InputFormatError("not a picture Pillow can read", where=label, fix=wanted) from None
     except (Image.DecompressionBombError, Image.DecompressionBombWarning):
         raise InputValueError(
-            "the picture is too large to decode safely", where=str(path), fix="crop the photograph to the part"
+            "the picture is too large to decode safely", where=label, fix="crop the photograph to the part"
         ) from None
     except (OSError, SyntaxError, ValueError) as exc:
         raise InputFormatError(f"the picture is damaged or cut short ({' '.join(str(exc).split())})",
-                               where=str(path), fix="export the photograph again") from None
-    return _to_grey(arr, mode, fmt, path)
+                               where=label, fix="export the photograph again") from None
+    return _to_grey(arr, mode, fmt, label)
 
 
-def _to_grey(arr: np.ndarray, mode: str, fmt: str, path: Path) -> GreyPicture:
+def _to_grey(arr: np.ndarray, mode: str, fmt: str, label: str) -> GreyPicture:
     if arr.dtype.kind == "f":
         raise InputFormatError(
             "a floating-point picture has no full scale to judge saturation by",
-            where=str(path),
+            where=label,
             fix="save the photograph as an 8- or 16-bit picture",
         )
     if arr.dtype == np.uint8:
@@ -137,7 +141,7 @@ def _to_grey(arr: np.ndarray, mode: str, fmt: str, path: Path) -> GreyPicture:
     elif arr.dtype.kind in "ui" and arr.max(initial=0) <= 65535 and arr.min(initial=0) >= 0:
         bits, full = 16, 65535
     else:
-        raise InputFormatError(f"pixels of kind {arr.dtype} ({mode})", where=str(path), fix="save as an 8- or 16-bit picture")
+        raise InputFormatError(f"pixels of kind {arr.dtype} ({mode})", where=label, fix="save as an 8- or 16-bit picture")
     a = arr.astype(float)
     if a.ndim == 3:
         channels = a[..., :3] if a.shape[2] >= 3 else a[..., :1]

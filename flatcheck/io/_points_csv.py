@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputFormatError, InputValueError
+from ..limits import check_range
 
 __all__ = ["POINTS_HEADER", "read_points_csv", "format_points_csv"]
 
@@ -83,12 +84,14 @@ def read_points_csv(path) -> np.ndarray:
         row = []
         for name, f in zip(POINTS_HEADER, fields):
             try:
+                if "_" in f:  # Python reads "1_000" as 1000; a point file holds plain decimal numbers only
+                    raise ValueError(f)
                 v = float(f)
             except ValueError:
                 raise InputValueError(f"{name} {f!r} is not a number", where=f"{path}, line {no}", fix="write a plain decimal number") from None
             if not np.isfinite(v):
                 raise InputValueError(f"{name} is {f}", where=f"{path}, line {no}", fix="remove the point or give a measured value")
-            row.append(v)
+            row.append(check_range(v, "position_mm", where=f"{path}, line {no}, {name}", name=name))
         rows.append(row)
         if len(rows) > MAX_POINTS:
             raise InputValueError(f"more than {MAX_POINTS} points", where=str(path), fix="thin the points out first")

@@ -14,11 +14,15 @@ from pathlib import Path
 
 from ..errors import InputFormatError, InputValueError
 
-__all__ = ["read_text", "parse_toml", "toml_loads", "MAX_TEXT_BYTES", "MAX_TOML_DEPTH"]
+__all__ = ["read_text", "parse_toml", "toml_loads", "open_regular", "wide_encoding", "MAX_TEXT_BYTES", "MAX_TOML_DEPTH"]
 
 #: Largest input file read (bytes): 256 MiB holds a height map of about eight million points at 32 bytes a
 #: row, beyond the largest surface flatcheck evaluates (docs/limits.md); a larger file is refused unread.
 MAX_TEXT_BYTES = 256 * 1024 * 1024
+
+#: Longest line of a TOML file (characters): a survey's longest line holds one line's readings, some kilobytes;
+#: a longer line is refused before parsing (the TOML parser reads long strings a character at a time).
+MAX_TOML_LINE = 1 << 20
 
 #: Deepest nesting of arrays and tables accepted in a TOML file. flatcheck's files nest three deep
 #: ([[carriage.pad]] inside a document); 32 leaves room for any layout and keeps the parser's recursion bounded.
@@ -67,6 +71,10 @@ def read_text(path, *, wanted: str = "a TOML survey or a CSV height map") -> str
             "evaluates (docs/limits.md)", where=str(path), fix=f"give {wanted}, or thin the data first")
     if not data.strip():
         raise InputFormatError("the file is empty", where=str(path), fix=f"give {wanted}")
+    wide = wide_encoding(data)
+    if wide:
+        raise InputFormatError(f"the file is {wide} text, not UTF-8", where=str(path),
+                               fix=f"save it as UTF-8 (most editors offer the encoding under 'Save as'); give {wanted}")
     if b"\x00" in data[:65536]:
         raise InputFormatError(
             "the file is binary, not text", where=str(path), fix=f"give {wanted}"
@@ -78,6 +86,30 @@ def read_text(path, *, wanted: str = "a TOML survey or a CSV height map") -> str
         raise InputFormatError(
             "the file is not valid UTF-8 text", where=f"{path}, line {line}", fix="save it as UTF-8"
         ) from None
+
+
+def wide_encoding(data: bytes) -> str | None:
+    """``"UTF-16"`` or ``"UTF-32"`` when ``data`` looks like text in that encoding (a byte-order mark, or a zero
+    byte beside every character of plain text), else None; such a file is refused with its encoding named
+    rather than as "binary"."""
+    if data.startswith((b"\xff\xfe\x00\x00", b"\x00\x00\xfe\xff")):
+        return "UTF-32"
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return "UTF-16"
+    head = data[:4096]
+    if len(head) >= 8 and b"\x00" in head:
+        n = len(head) // 4 * 4
+        if all(head[i + 1:i + 4] == b"\x00\x00\x00" and 0 < head[i] < 127 for i in range(0, min(n, 64), 4)) or \
+                all(head[i:i + 3] == b"\x00\x00\x00" and 0 < head[i + 3] < 127 for i in range(0, min(n, 64), 4)):
+            return "UTF-32"
+        odd, even = head[1::2], head[0::2]
+
+        def plain(b: bytes) -> bool:  # mostly printable ASCII or line ends: the other half of UTF-16 text
+            return sum(1 for c in b if 32 <= c < 127 or c in (9, 10, 13)) > 0.9 * len(b)
+
+        if (odd.count(0) > 0.9 * len(odd) and plain(even)) or (even.count(0) > 0.9 * len(even) and plain(odd)):
+            return "UTF-16"
+    return None
 
 
 def toml_loads(text: str, *, where: str):
@@ -94,6 +126,13 @@ def toml_loads(text: str, *, where: str):
     """
     import tomllib
 
+    if len(text) > MAX_TOML_LINE:  # tomllib reads a long string a character at a time: 50 MB take many seconds
+        for no, line in enumerate(text.split("\n"), start=1):
+            if len(line) > MAX_TOML_LINE:
+                raise InputFormatError(
+                    f"line {no} is {len(line)} characters long, more than any line of a flatcheck file "
+                    f"({MAX_TOML_LINE} at most, docs/limits.md)", where=f"{where}, line {no}",
+                    fix="break the line up, or check that this is the file meant")
     deep = InputFormatError(f"arrays or tables are nested more than {MAX_TOML_DEPTH} levels deep", where=where,
                             fix="flatcheck's files nest at most three levels; see docs/survey-format.md")
     try:

@@ -51,13 +51,16 @@ def read_uncertainty_defaults(path) -> LabDefaults:
         table and key).
     """
     path = Path(path)
-    return parse_uncertainty_defaults(read_text(path), source=str(path))
+    text = read_text(path, wanted='a lab uncertainty-defaults file (TOML, format = "flatcheck-uncertainty-defaults")')
+    return parse_uncertainty_defaults(text, source=str(path))
 
 
 def parse_uncertainty_defaults(text: str, *, source: str = "<defaults>") -> LabDefaults:
     """Parse the text of a lab defaults file; ``source`` names it in messages and in every basis."""
-    try:
-        data = tomllib.loads(text)
+    from ._text import toml_loads
+
+    try:  # toml_loads: no nesting deeper than any flatcheck file, no integer too large for a float
+        data = toml_loads(text, where=source)
     except tomllib.TOMLDecodeError as exc:
         raise InputFormatError(f"not valid TOML: {exc}", where=source, fix="check quotes, brackets and '='") from None
     if data.get("format") != DEFAULTS_FORMAT:

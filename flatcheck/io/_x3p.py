@@ -37,6 +37,7 @@ References
 
 from __future__ import annotations
 
+import io
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -223,20 +224,23 @@ def read_x3p_contents(path) -> X3pContents:
 
     from .. import HeightMap
 
+    from ._text import open_regular
+
     path = Path(path)
-    if not path.exists():
-        raise InputFormatError("no such file", where=str(path), fix="check the path")
-    if path.is_dir():
-        raise InputFormatError("this is a folder, not a file", where=str(path), fix="give an .x3p file")
+    # a regular file only (a FIFO or a device would never end), of bounded size; x3pio reads the open file
+    fh, _size = open_regular(path, wanted="an ISO 25178-72 .x3p file")
+    with fh:
+        data = fh.read()
+    _refuse_bombs(data, path)
     try:
-        f = x3pio.read(path)
+        f = x3pio.read(io.BytesIO(data))
     except x3pio.X3pChecksumError:
         raise InputFormatError(
             "a checksum stored in the X3P file does not match its content: the file was changed or damaged "
             "after it was written", where=str(path), fix="get a fresh copy of the file from where it was made"
         ) from None
     except x3pio.X3pFormatError as exc:
-        raise InputFormatError(f"not a readable X3P file ({' '.join(str(exc).split())})", where=str(path),
+        raise InputFormatError(f"not a readable X3P file ({_short(str(exc))})", where=str(path),
                                fix="give an ISO 25178-72 .x3p file") from None
     except OSError as exc:
         raise InputFormatError(f"cannot read the file ({exc.strerror})", where=str(path),
@@ -272,6 +276,49 @@ def read_x3p_contents(path) -> X3pContents:
     label = meta.description or meta.ident or path.stem
     hm = HeightMap(x_mm, y_mm, z_um, length_mm=meta.length_mm, width_mm=meta.width_mm, label=label)
     return X3pContents(hm, meta, feature, shape, missing)
+
+
+#: Largest ``main.xml`` unpacked (bytes): an X3P description is some kilobytes; a larger one is a damaged or hostile
+#: file (a few megabytes of zip can unpack to gigabytes). The whole content is bounded by MAX_TEXT_BYTES.
+MAX_X3P_XML_BYTES = 16 * 1024 * 1024
+
+
+def _refuse_bombs(data: bytes, path) -> None:
+    """Refuse a zip whose members would unpack to more than flatcheck reads (docs/limits.md), before unpacking.
+
+    A file that is not a zip is left to x3pio, which says so. The sizes are those the zip's directory
+    declares; Python's zip reader does not unpack a member beyond its declared size.
+    """
+    import zipfile
+
+    from ._text import MAX_TEXT_BYTES
+
+    try:
+        with zipfile.ZipFile(io.BytesIO(data)) as z:
+            members = z.infolist()
+    except (zipfile.BadZipFile, OSError, ValueError, EOFError):
+        return
+    mib = 1024 * 1024
+    total = sum(m.file_size for m in members)
+    xml = sum(m.file_size for m in members if m.filename.lower().endswith(".xml"))
+    if xml > MAX_X3P_XML_BYTES:
+        raise InputFormatError(
+            f"the X3P file's description (main.xml) would unpack to {xml / mib:.0f} MiB, more than any X3P description "
+            f"({MAX_X3P_XML_BYTES // mib} MiB at most, docs/limits.md): the file is damaged or not an X3P file",
+            where=str(path), fix="get a fresh copy of the file from where it was made")
+    if total > MAX_TEXT_BYTES:
+        raise InputFormatError(
+            f"the X3P file would unpack to {total / mib:.0f} MiB, more than any surface flatcheck evaluates "
+            f"({MAX_TEXT_BYTES // mib} MiB at most, docs/limits.md)", where=str(path),
+            fix="give a smaller surface, or thin the data first")
+
+
+def _short(text: str) -> str:
+    """A message from the X3P reader on one line, numbers of many digits and very long text cut short."""
+    import re
+
+    text = re.sub(r"\d{20,}", lambda m: f"<a number of {len(m.group())} digits>", " ".join(text.split()))
+    return text if len(text) <= 300 else text[:297] + "..."
 
 
 def read_x3p(path):

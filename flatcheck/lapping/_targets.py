@@ -121,7 +121,12 @@ def check_option(value, option: str, *, minimum: float = 0.0, strict: bool = Tru
     """
     if value is None:
         return
-    ok = math.isfinite(value) and (value > minimum if strict else value >= minimum)
+    try:
+        v = float(value)
+    except OverflowError:  # a whole number of hundreds of digits
+        raise InputValueError(f"{len(str(abs(int(value))))} digits are too many", where=option,
+                              fix=f"give {what}") from None
+    ok = math.isfinite(v) and (v > minimum if strict else v >= minimum)
     if not ok:
         rel = ">" if strict else ">="
         raise InputValueError(f"{value:g} is not allowed", where=option, fix=f"give {what} {rel} {minimum:g}")
@@ -199,6 +204,18 @@ def check_lap_options(
     check_option(min_pass_fraction, "--min-pass-fraction", strict=False, what="a fraction (at most 1)")
     if min_pass_fraction is not None and min_pass_fraction > 1:
         raise InputValueError(f"{min_pass_fraction:g} is not allowed", where="--min-pass-fraction", fix="give a fraction from 0 to 1")
+    # the ranges of docs/limits.md, so that no value reaches the planner that overflows it or says nothing
+    for value, kind, option, what in (
+        (rate_um_per_min, "rate_um", "--rate-um-per-min", "the removal rate per minute"),
+        (rate_um_per_pass, "rate_um", "--rate-um-per-pass", "the removal per pass"),
+        (strokes_per_pass, "count", "--strokes-per-pass", "the number of strokes"),
+        (stroke_mm, "stroke_mm", "--stroke-mm", "the stroke length"),
+        (smoothing, "smoothing", "--smoothing", "the regularisation weight"),
+        (smoothness, "smoothing", "--smoothness", "the gradient penalty"),
+        (min_pass_fraction, "fraction", "--min-pass-fraction", "the shortest pass's fraction"),
+    ):
+        if value is not None:
+            check_range(value, kind, where=option, name=what)
 
 
 def check_lap_on_surface(hm, lap: LapModel, *, lap_option: str, cell_mm: float | None = None,

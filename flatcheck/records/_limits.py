@@ -43,6 +43,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..errors import InputFormatError, InputValueError
+from ..limits import check_range
 from ..units import MM_PER_INCH, UM_PER_UIN
 
 __all__ = [
@@ -292,6 +293,11 @@ def _number(v, where: str, *, positive: bool = False) -> float:
     return x
 
 
+def _in_range(value: float, unit: str, where: str, name: str) -> None:
+    """Refuse a limit (or a coefficient or step of one) beyond the range of a flatness limit (docs/limits.md)."""
+    check_range(value * _UNITS_UM[unit], "flatness_limit_um", where=where, name=f"{name} (in µm)")
+
+
 def _text(v, where: str, *, required: bool = True) -> str:
     if v is None and not required:
         return ""
@@ -333,6 +339,7 @@ def _table(t: dict, k: int, src: str) -> LimitTable:
     round_to = None
     if "round_to" in t:
         round_to = _number(t["round_to"], f"{label} round_to", positive=True)
+        _in_range(round_to, unit, f"{label} round_to", "round_to")
     formulas = []
     fdata = t.get("formula", {})
     if not isinstance(fdata, dict):
@@ -348,7 +355,10 @@ def _table(t: dict, k: int, src: str) -> LimitTable:
         _check_keys(coef, _FORMULA_KEYS, w)
         if "constant" not in coef:
             raise InputFormatError("the key 'constant' is missing", where=w, fix="give constant = ... (0 if none)")
-        formulas.append(GradeFormula(g, *(_number(coef.get(c, 0.0), f"{w} {c}") for c in _FORMULA_KEYS)))
+        values = [_number(coef.get(c, 0.0), f"{w} {c}") for c in _FORMULA_KEYS]
+        for c, v in zip(_FORMULA_KEYS, values):
+            _in_range(abs(v), unit, f"{w} {c}", c)
+        formulas.append(GradeFormula(g, *values))
     sizes = []
     sdata = t.get("size", [])
     if not isinstance(sdata, list):
@@ -363,6 +373,8 @@ def _table(t: dict, k: int, src: str) -> LimitTable:
             raise InputValueError("size must be [length, width]", where=f"{w} size",
                                   fix=f"write e.g. size = [1000, 630] in {length_unit}")
         a, b = (_number(v, f"{w} size", positive=True) * _LENGTH_MM[length_unit] for v in sz)
+        for side in (a, b):
+            check_range(side, "length_mm", where=f"{w} size", name="a side (in mm)")
         lim = row.get("limits")
         if not isinstance(lim, dict) or not lim:
             raise InputValueError("limits must name at least one grade", where=f"{w} limits",
@@ -373,6 +385,7 @@ def _table(t: dict, k: int, src: str) -> LimitTable:
                 raise InputValueError(f"grade {g!r} is not in grades", where=f"{w} limits",
                                       fix="add it to grades or correct its name")
             pairs.append((g, _number(v, f"{w} limits {g!r}", positive=True)))
+            _in_range(pairs[-1][1], unit, f"{w} limits {g!r}", f"the limit of grade {g!r}")
         sizes.append(SizeRow(a, b, tuple(pairs)))
     length = _choice(t.get("length", "longer-side"), _LENGTHS, f"{label} length")
     if not formulas and not sizes:
@@ -405,8 +418,10 @@ def parse_limits(text: str, *, source: str = "<limits>") -> LimitsFile:
         A value of the wrong kind, a grade not in ``grades``, a table with no limits,
         two tables for one standard.
     """
-    try:
-        data = tomllib.loads(text.lstrip("\ufeff"))
+    from ..io._text import toml_loads
+
+    try:  # toml_loads: no nesting deeper than any flatcheck file, no integer too large for a float
+        data = toml_loads(text.lstrip("\ufeff"), where=source)
     except tomllib.TOMLDecodeError as exc:
         raise InputFormatError(f"not valid TOML ({exc})", where=source, fix="correct the TOML syntax") from None
     if data.get("format") != LIMITS_FORMAT:
@@ -438,15 +453,8 @@ def read_limits(path) -> LimitsFile:
     InputFormatError
         A missing, empty, binary or non-UTF-8 file, or any error of :func:`parse_limits`.
     """
+    from ..io import read_text
+
     path = Path(path)
-    if not path.is_file():
-        raise InputFormatError("no such file" if not path.exists() else "this is a folder, not a file",
-                               where=str(path), fix="give the limits TOML file")
-    data = path.read_bytes()
-    if not data.strip():
-        raise InputFormatError("the file is empty", where=str(path), fix="give the limits TOML file")
-    try:
-        text = data.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise InputFormatError("the file is not UTF-8 text", where=str(path), fix="save it as UTF-8") from None
+    text = read_text(path, wanted="the lab's limits table (TOML, format = \"flatcheck-limits\")")
     return parse_limits(text, source=str(path))

@@ -39,6 +39,7 @@ Schema (version 1)
 from __future__ import annotations
 
 import contextlib
+import os
 import sqlite3
 from pathlib import Path
 
@@ -98,7 +99,7 @@ class Register:
             A new register cannot be created there.
         """
         path = Path(path)
-        if not path.exists():
+        if not path.exists() and not _link_loop(path):  # a loop of links is refused by check_header, by name
             if not create:
                 raise RegisterError(
                     "no register here yet", where=str(path),
@@ -740,6 +741,17 @@ class Register:
         return {"surfaces": q("SELECT COUNT(*) FROM surfaces").fetchone()[0],
                 "instruments": q("SELECT COUNT(*) FROM instruments").fetchone()[0],
                 "surveys": q("SELECT COUNT(*) FROM surveys").fetchone()[0]}
+
+def _link_loop(path: Path) -> bool:
+    """True when ``path`` is a symbolic link that leads back to itself (no file can be found or made there)."""
+    import errno
+
+    try:
+        os.stat(path)
+    except OSError as exc:
+        return exc.errno == errno.ELOOP
+    return False
+
 
 def _row(r) -> SurveyRow:
     return SurveyRow(*r[:-1], None if r[-1] is None else bool(r[-1]))

@@ -23,6 +23,7 @@ from __future__ import annotations
 import contextlib
 import os
 import sqlite3
+import stat
 import tempfile
 from datetime import UTC, datetime
 from pathlib import Path
@@ -235,6 +236,12 @@ def check_header(path: Path) -> tuple[int, int]:
         raise RegisterError("this is a folder, not a register file", where=where,
                             fix="give a file name for --db (e.g. lab/flatcheck-register.sqlite)")
     try:
+        mode = os.stat(path).st_mode
+        if not stat.S_ISREG(mode):  # a FIFO or a device would block or never end: refused unread
+            kind = ("a named pipe (FIFO)" if stat.S_ISFIFO(mode) else "a device"
+                    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode) else "not a regular file")
+            raise RegisterError(f"this is {kind}, not a register file", where=where,
+                                fix="give the register's file with --db (or FLATCHECK_DB)")
         with open(path, "rb") as fh:
             head = fh.read(100)
     except OSError as exc:
