@@ -135,6 +135,9 @@ LIMITS: dict[str, Limit] = {
     "load_n": Limit(-1.0e6, 1.0e6, "N",
                     "an air-bearing pad or carriage carries newtons to a few tonnes; more than 1 MN (100 t) is a "
                     "unit mistake"),
+    "baud": Limit(50.0, 4_000_000.0, "bit/s",
+                  "serial instruments talk at 50 to some hundred thousand bit/s (300-115200 common); the fastest "
+                  "USB serial adapters reach 4 Mbit/s"),
     "count": Limit(1.0, 10_000.0, "",
                    "a count of orifices, strokes or pixels steps a person can set up is at most a few thousand; "
                    "more takes unbounded memory or time"),

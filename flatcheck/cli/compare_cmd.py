@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING
 
 from ._app import app
 from .common import (
+    refuse_unused,
     check_option_ranges,
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
@@ -406,6 +407,11 @@ def compare_cmd(
                                 uncertainty_defaults=uncertainty_defaults, what="the after survey")
         tgt = guard_banded(limit, limit_source, kind, mode, u, u_src)
         target, source = tgt.aim_um, limit_source
+    if tgt is None or not needs_budget_u(kind, mode):  # no budget is evaluated: the option would be ignored
+        refuse_unused({"--trials": trials, "--seed": seed, "--u-height-um": u_height_um},
+                      why="unless a target's guard band comes from the after survey's uncertainty budget",
+                      fix="drop the option, or give a target (--target-grade or --target-gap-um, or --guard-band "
+                          "budget)")
     if tgt is not None and tgt.proven:
         # a limit to prove: the after survey decided by ISO 14253-1 with its U; the sessions aim at limit - U, so
         # "met within the uncertainty" (a gain inside U) does not apply: the guard band already holds U

@@ -196,6 +196,10 @@ def enter_cmd(
         raise InputValueError("--unit applies to a log or a serial port", where="--unit",
                               fix="type readings in the survey's unit, or omit --unit")
     refuse_overwriting_inputs({"SURVEY": survey}, [from_log])
+    if port is not None:  # before the survey is opened (docs/limits.md)
+        from ..limits import check_count
+
+        check_count(baud, "baud", where="--baud", name="the serial speed")
     if survey.suffix.lower() in (".csv", ".txt", ".log", ".dat") and survey.exists():
         raise InputFormatError(
             "this looks like an instrument log or a table, not a planned survey file", where=str(survey),

@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 from ._app import app
 from .common import (
+    refuse_unused,
     load_lab_defaults,
     GAP_FRACTION_HELP,
     TARGET_GAP_HELP,
@@ -398,6 +399,11 @@ def lap_cmd(
     if needs_budget_u(kind, mode):  # the expected U of the survey after lapping: this survey's budget
         u, u_src = budget_u(loaded, trials=trials, seed=seed, u_height_um=u_height_um,
                             uncertainty_defaults=uncertainty_defaults, what="this survey")
+    else:  # no budget is evaluated: a Monte Carlo option would be silently ignored
+        refuse_unused({"--trials": trials, "--seed": seed, "--u-height-um": u_height_um},
+                      why="unless the guard band comes from the survey's uncertainty budget",
+                      fix="drop the option, or aim by the budget (--target-grade or --target-gap-um, or "
+                          "--guard-band budget)")
     tgt = guard_banded(limit, limit_source, kind, mode, u, u_src)
     step = loaded.height_step_um(lab=load_lab_defaults(uncertainty_defaults))  # printed heights' step
     target, source = tgt.aim_um, target_source_text(tgt, units.value)

@@ -228,6 +228,12 @@ COMBINATIONS = [
     (("enter", "planned.toml", "--unit", "um"), ("--unit",)),
     (("enter", "planned.toml", "--idle-timeout", "5"), ("--idle-timeout",)),
     (("demo", "--out", "demo-folder"), ("--out", "--force")),
+    # Monte Carlo options where no budget is evaluated: a given target takes no guard band, compare has no target
+    ((*LAP, "--trials", "1000"), ("--trials", "budget")),
+    ((*LAP, "--seed", "1"), ("--seed", "budget")),
+    ((*CMP, "--seed", "1"), ("--seed", "budget")),
+    (("enter", "planned.toml", "--port", "/dev/ttyS99", "--baud", "0"), ("--baud", "at least 50")),
+    (("enter", "planned.toml", "--port", "/dev/ttyS99", "--baud", "9999999"), ("--baud", "4e+06")),
 ]
 
 
