@@ -84,3 +84,34 @@ def cli(capsys):
         return code, out, err
 
     return _run
+
+
+#: Longest a single refusal may take in the sweeps of bad input (seconds): each is found before any real work.
+SWEEP_TIME_LIMIT_S = 20.0
+
+
+@pytest.fixture
+def cli_limited(cli):
+    """Run the command line in-process under :data:`SWEEP_TIME_LIMIT_S`: ``(exit_code, stdout, stderr)``, or
+    None when it gave no answer in time (a hang; the thread is left blocked as a daemon and the caller reports it)."""
+    import threading
+
+    def _run(*argv):
+        box = {}
+
+        def run():
+            try:
+                box["result"] = cli(*argv)
+            except BaseException as exc:  # noqa: BLE001 - raised in the caller's thread below
+                box["error"] = exc
+
+        t = threading.Thread(target=run, daemon=True)
+        t.start()
+        t.join(SWEEP_TIME_LIMIT_S)
+        if t.is_alive():
+            return None
+        if "error" in box:
+            raise box["error"]
+        return box["result"]
+
+    return _run

@@ -22,7 +22,6 @@ import re
 import shutil
 import sqlite3
 import struct
-import threading
 import time
 import zipfile
 import zlib
@@ -759,25 +758,6 @@ def _digest(root: Path) -> dict:
     return out
 
 
-def _run_with_limit(cli, argv):
-    box = {}
-
-    def run():
-        try:
-            box["result"] = cli(*argv)
-        except BaseException as exc:  # noqa: BLE001 - reported below
-            box["error"] = exc
-
-    t = threading.Thread(target=run, daemon=True)
-    t.start()
-    t.join(TIME_LIMIT_S)
-    if t.is_alive():
-        return None  # a hang: reported by the caller (the thread stays blocked, as a daemon)
-    if "error" in box:
-        raise box["error"]
-    return box["result"]
-
-
 @pytest.fixture(scope="module")
 def made(tmp_path_factory):
     """A good X3P file and a good register (one survey of KY-P3), made once by the command line itself."""
@@ -799,7 +779,7 @@ def test_the_sweep_is_several_hundred_files(tmp_path, made):
     assert len({c[0] for c in cases}) == len(cases)  # every case has its own name
 
 
-def test_every_bad_file_is_one_line_exit_2_and_changes_nothing(cli, tmp_path, made, monkeypatch):
+def test_every_bad_file_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, tmp_path, made, monkeypatch):
     monkeypatch.chdir(tmp_path)
     monkeypatch.delenv("FLATCHECK_DB", raising=False)
     monkeypatch.delenv("FLATCHECK_UNCERTAINTY_DEFAULTS", raising=False)
@@ -810,7 +790,7 @@ def test_every_bad_file_is_one_line_exit_2_and_changes_nothing(cli, tmp_path, ma
     failures, slow, timings = [], [], []
     for case_id, argv, words in cases:
         t0 = time.perf_counter()
-        result = _run_with_limit(cli, argv)
+        result = cli_limited(*argv)
         dt = time.perf_counter() - t0
         timings.append((dt, case_id))
         if result is None:

@@ -17,7 +17,6 @@ import hashlib
 import os
 import re
 import shutil
-import threading
 from pathlib import Path
 
 import pytest
@@ -199,24 +198,6 @@ def _digest(paths) -> dict:
     return out
 
 
-def _run_with_limit(cli, argv):
-    box = {}
-
-    def run():
-        try:
-            box["result"] = cli(*argv)
-        except BaseException as exc:  # noqa: BLE001 - reported below
-            box["error"] = exc
-
-    t = threading.Thread(target=run, daemon=True)
-    t.start()
-    t.join(TIME_LIMIT_S)
-    assert not t.is_alive(), f"{argv}: no answer within {TIME_LIMIT_S} s (a hang)"
-    if "error" in box:
-        raise box["error"]
-    return box["result"]
-
-
 @pytest.fixture(scope="module")
 def sweep_dir(tmp_path_factory):
     return tmp_path_factory.mktemp("hostile")
@@ -230,7 +211,7 @@ def test_the_sweep_is_several_hundred_inputs(sweep_dir):
     assert len({c[0] for c in cases}) == len(cases)  # every case has its own name
 
 
-def test_every_bad_input_is_one_line_exit_2_and_changes_nothing(cli, sweep_dir, monkeypatch):
+def test_every_bad_input_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, sweep_dir, monkeypatch):
     work = sweep_dir / "run"
     work.mkdir()
     monkeypatch.chdir(work)
@@ -241,7 +222,9 @@ def test_every_bad_input_is_one_line_exit_2_and_changes_nothing(cli, sweep_dir, 
     before = _digest(watched)
     failures = []
     for case_id, argv, words in cases:
-        code, out, err = _run_with_limit(cli, argv)
+        result = cli_limited(*argv)
+        assert result is not None, f"{argv}: no answer within {TIME_LIMIT_S} s (a hang)"
+        code, out, err = result
         problems = []
         if code != 2:
             problems.append(f"exit {code}")

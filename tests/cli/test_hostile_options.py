@@ -17,7 +17,6 @@ from __future__ import annotations
 import hashlib
 import os
 import shutil
-import threading
 import time
 from pathlib import Path
 
@@ -305,31 +304,13 @@ def _digest(folder: Path) -> dict:
     return out
 
 
-def _run_with_limit(cli, argv):
-    box = {}
-
-    def run():
-        try:
-            box["result"] = cli(*argv)
-        except BaseException as exc:  # noqa: BLE001 - reported below
-            box["error"] = exc
-
-    t = threading.Thread(target=run, daemon=True)
-    t.start()
-    t.join(TIME_LIMIT_S)
-    assert not t.is_alive(), f"{argv}: no answer within {TIME_LIMIT_S} s (a hang)"
-    if "error" in box:
-        raise box["error"]
-    return box["result"]
-
-
 def test_the_sweep_is_several_hundred_options():
     cases = _cases()
     assert len(cases) >= 600
     assert len({c[0] for c in cases}) == len(cases)  # every case has its own name
 
 
-def test_every_bad_option_is_one_line_exit_2_and_changes_nothing(cli, tmp_path, monkeypatch):
+def test_every_bad_option_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, tmp_path, monkeypatch):
     work = tmp_path / "work"
     work.mkdir()
     monkeypatch.chdir(work)
@@ -350,7 +331,9 @@ def test_every_bad_option_is_one_line_exit_2_and_changes_nothing(cli, tmp_path, 
     for case_id, argv, words in _cases():
         _readonly(work)
         start = time.perf_counter()
-        code, out, err = _run_with_limit(cli, argv)
+        result = cli_limited(*argv)
+        assert result is not None, f"{argv}: no answer within {TIME_LIMIT_S} s (a hang)"
+        code, out, err = result
         slowest = max(slowest, (time.perf_counter() - start, case_id), key=lambda s: s[0])
         problems = []
         if code != 2:
