@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import re
 import sys
 from pathlib import Path
@@ -65,8 +66,13 @@ def check_outputs(output: Path, png: Path | None = None, standard: str | None = 
     if not folder.is_dir():
         raise OutputError(f"cannot write {output}: folder {folder} does not exist", where="-o",
                           fix="create the folder or choose another path")
+    if output.is_dir():
+        raise OutputError(f"cannot write {output}: it is a folder", where="-o", fix="give the report's file name")
     if png is not None and png.exists() and not png.is_dir():  # a missing folder is made, as demo --out makes its own
         raise OutputError(f"{png} exists and is not a folder", where="--png", fix="choose a folder for the pictures")
+    if png is not None and os.path.abspath(png) == os.path.abspath(output):  # the folder would be made in its place
+        raise OutputError(f"{png} is the path of the report itself (-o)", where="--png",
+                          fix="give the pictures a folder of their own (e.g. --png pictures)")
     if standard is not None:
         from ..conformance import get_standard
 

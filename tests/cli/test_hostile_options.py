@@ -224,6 +224,8 @@ COMBINATIONS = [
     (("report", P3, "-o", "r.pdf", "--lap-diameter-mm", "150"), ("target",)),
     (("report", P3, "-o", P3 + ".pdf", "--gap-um", "nan", "--pad", "80x40"), ("--gap-um",)),
     (("report", P3, "-o", "report.txt"), ("-o", ".pdf")),
+    (("report", P3, "-o", "r.pdf", "--no-uncertainty", "--png", "r.pdf"), ("--png", "report itself")),
+    (("report", P3, "-o", "adir", "--no-uncertainty"), ("-o", ".pdf")),
     (("enter", "planned.toml", "--unit", "um"), ("--unit",)),
     (("enter", "planned.toml", "--idle-timeout", "5"), ("--idle-timeout",)),
     (("demo", "--out", "demo-folder"), ("--out", "--force")),
