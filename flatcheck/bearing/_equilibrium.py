@@ -37,6 +37,11 @@ def _check_load(mesh, feed, load_n):
 CAPACITY_FRACTION = 0.98
 
 
+#: Smallest load solved, as a fraction of the closed-film load: below it a pad lifts to gaps of hundreds of
+#: micrometres, no longer a thin film (a convention of this tool, like CAPACITY_FRACTION).
+MIN_LOAD_FRACTION = 1e-3
+
+
 def _capacity_n(area_mm2, feed):
     """Closed-film load (gauge supply pressure times area, N) and the largest load solved (N)."""
     cap = (feed.supply_pa - feed.ambient_pa) * area_mm2 * _MM2_TO_M2
@@ -46,6 +51,13 @@ def _capacity_n(area_mm2, feed):
 def _check_load_area(area_mm2, feed, load_n):
     load = _positive(load_n, "pad load (N)", "give the load carried by the pad in newtons")
     cap, limit = _capacity_n(area_mm2, feed)
+    if load < MIN_LOAD_FRACTION * cap:
+        raise InputValueError(
+            f"a load of {load:.4g} N is too small for this pad: under {100 * MIN_LOAD_FRACTION:g} % of its closed-film "
+            f"load ({cap:.4g} N, supply pressure times area) it would lift far beyond an air film, where the film "
+            "model does not hold",
+            fix="give the load the pad carries (its share of the weight and preload, in newtons)",
+        )
     if load >= limit:
         raise InputValueError(
             f"a load of {load:.4g} N is beyond this pad's capacity: at most {limit:.4g} N "

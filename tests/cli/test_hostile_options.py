@@ -224,6 +224,7 @@ COMBINATIONS = [
     (("report", P3, "-o", "r.pdf", "--lap-diameter-mm", "150"), ("target",)),
     (("report", P3, "-o", P3 + ".pdf", "--gap-um", "nan", "--pad", "80x40"), ("--gap-um",)),
     (("report", P3, "-o", "report.txt"), ("-o", ".pdf")),
+    ((*FILM, "--load-n", "1e-300"), ("--load-n", "too small")),
     (("report", P3, "-o", "r.pdf", "--no-uncertainty", "--png", "r.pdf"), ("--png", "report itself")),
     (("report", P3, "-o", "adir", "--no-uncertainty"), ("-o", ".pdf")),
     (("enter", "planned.toml", "--unit", "um"), ("--unit",)),
