@@ -302,7 +302,14 @@ def guideway_cmd(
             carriage = dataclasses.replace(carriage, load_n=load_n)
         n = len(carriage_stations(geometry, carriage)[0])
         with progress_bar("carriage along the travel", n, enabled=n > 1) as advance:
-            result = solve_carriage(geometry, carriage, method=interp.value, progress=advance)
+            try:
+                result = solve_carriage(geometry, carriage, method=interp.value, progress=advance)
+            except InputValueError as exc:  # a film the options changed: name them beside the file's [film]
+                given = [("--" + k.replace("_", "-")) for k, v in film_opts.items() if v is not None]
+                given += ["--gap-um"] if gap_um is not None else []
+                if not given or not str(exc.where or "").endswith("[film]"):
+                    raise
+                raise InputValueError(exc.message, where=f"{exc.where} with {', '.join(given)}", fix=exc.fix) from None
         verdict = judge(result)
     advice = lapping_advice(geometry)
     safety = cautions_for(body.material or "granite", large=True, air=result is not None)

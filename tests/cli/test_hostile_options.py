@@ -225,6 +225,7 @@ COMBINATIONS = [
     (("report", P3, "-o", P3 + ".pdf", "--gap-um", "nan", "--pad", "80x40"), ("--gap-um",)),
     (("report", P3, "-o", "report.txt"), ("-o", ".pdf")),
     ((*FILM, "--load-n", "1e-300"), ("--load-n", "too small")),
+    (("guideway", BODY, "--carriage", CAR, "--permeability-m2", "1e-9"), ("[film] with --permeability-m2",)),
     (("report", P3, "-o", "r.pdf", "--no-uncertainty", "--png", "r.pdf"), ("--png", "report itself")),
     (("report", P3, "-o", "adir", "--no-uncertainty"), ("-o", ".pdf")),
     (("enter", "planned.toml", "--unit", "um"), ("--unit",)),
