@@ -46,8 +46,11 @@ def test_contour_map_in_microinches_and_inches():
     mz = minimum_zone(hm.x_mm, hm.y_mm, hm.height_um)
     fig = plot.new_figure((5, 4))
     ax = plot.contour_map(fig.add_subplot(), hm, reference=mz, units="in")
-    # 1 µin = 0.0254 µm exactly (international inch, 1959): 0.75 µm = 29.53 µin
-    assert _annotations(ax)["high"] == f"high +{0.75 / 0.0254:.2f} µin"
+    # 1 µin = 0.0254 µm exactly (international inch, 1959): 0.75 µm = 29.53 µin, to 0.1 µin without a stated
+    # instrument (a height map), to 1 µin for a 0.024 µm step (0.95 µin: the nearest decade is 1 µin)
+    assert _annotations(ax)["high"] == f"high +{0.75 / 0.0254:.1f} µin"
+    ax = plot.contour_map(fig.add_subplot(), hm, reference=mz, units="in", step_um=0.024)
+    assert _annotations(ax)["high"] == f"high +{0.75 / 0.0254:.0f} µin"
     assert ax.get_xlabel().endswith("(in)")
 
 
@@ -58,10 +61,10 @@ def test_contour_map_high_point_is_numpys_argmax(rng):
     fig = plot.new_figure((5, 4))
     ax = plot.contour_map(fig.add_subplot(), hm)
     ann = _annotations(ax)
-    # reference: numpy's max/min of the heights, formatted to 2 decimals (values between 1 and 100)
+    # reference: numpy's max/min of the heights, to 1 nm (a height map states no instrument resolution)
     zmax, zmin = float(z.max()), float(z.min())
-    assert ann["high"] == f"high {zmax:+.{3 if abs(zmax) < 1 else 2}f} µm"
-    assert ann["low"] == f"low {zmin:+.{3 if abs(zmin) < 1 else 2}f} µm"
+    assert ann["high"] == f"high {zmax:+.3f} µm"
+    assert ann["low"] == f"low {zmin:+.3f} µm"
     # the high marker sits on the highest station
     markers = [ln for ln in ax.lines if ln.get_marker() == "^"]
     assert markers and markers[0].get_xdata()[0] == pytest.approx(x.ravel()[np.argmax(z)])
@@ -94,7 +97,7 @@ def test_line_profiles_draw_deviation_from_reference_line():
     h = s**2 / 1000
     p = plot.LineProfile("AB", s, h, straightness_um=250.0, ref_offset_um=0.0, ref_slope_um_per_mm=1.0)
     fig = plot.new_figure((6, 4))
-    (ax,) = plot.line_profiles(fig, [p])
+    (ax,) = plot.line_profiles(fig, [p], step_um=0.1)  # an indicator read to 0.1 µm: 1 decimal
     drawn = ax.lines[-1].get_ydata()
     np.testing.assert_allclose(drawn, -s * (1000 - s) / 1000, atol=1e-9)
     assert "straightness 250.0 µm" in ax.get_title(loc="left")
@@ -306,7 +309,8 @@ def test_compare_change_map_draws_before_after_change_and_least_removal(size_mm)
     L, W = size_mm
     x, y, before, after, dip = _lapped_pair(L, W)
     pr = compare_surveys(HeightMap(x, y, before), HeightMap(x, y, after))
-    axes = plot.compare_change_map(None, x, y, before, after, pr.removed_um, length_mm=L, width_mm=W)
+    # two surveys resolving 0.024 µm (0.05 arcsec over 100 mm): labels to 0.01 µm, as the summary prints the change
+    axes = plot.compare_change_map(None, x, y, before, after, pr.removed_um, length_mm=L, width_mm=W, step_um=0.024)
     fig = axes[0].figure
     assert [a.get_title(loc="left").split(" ")[0] for a in axes] == ["before", "after", "change", "least"]
     # reference: each survey about its own least-squares plane by numpy lstsq, then after - before
@@ -444,7 +448,7 @@ def test_compare_change_map_labels_one_spot_with_one_depth_when_referred():
     dip = 2.0 * np.exp(-((x - 400) ** 2 + (y - 300) ** 2) / (2 * 120.0**2))
     before = 0.001 * x
     after = before - dip
-    axes = plot.compare_change_map(None, x, y, before, after, dip, change_um=-dip)
+    axes = plot.compare_change_map(None, x, y, before, after, dip, change_um=-dip, step_um=0.024)
     texts = {t.get_gid(): t.get_text() for ax in axes for t in ax.texts if t.get_gid() in ("lowest", "deepest")}
     # the removal is the dip itself; referred to the least removal's plane the change is -dip: same spot, same
     # depth, told as a lowering and as a removal

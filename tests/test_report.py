@@ -442,7 +442,8 @@ def test_heights_in_microinches_and_lengths_in_inches_with_units_in(samples):
     assert f"{630 / 25.4:.2f} x {400 / 25.4:.2f} in" in text
     fig, _, _ = _draw_page(content, units, titles.index("Air bearing: fitness and carriage motion"))
     text = " ".join(t for t, _ in _drawn_texts(fig))
-    assert f"gap {8 / 0.0254:.1f} µin" in text
+    # a gap is stated, not measured: as a limit is, to 0.1 µin at most and without trailing zeros
+    assert f"gap {round(8 / 0.0254, 1):g} µin" in text
 
 
 def test_carriage_path_and_surface_share_one_datum(samples):

@@ -425,7 +425,7 @@ def bearing_cmd(
         from ..output import _plots as plot
 
         fig = plot.new_figure((11.0, 7.0))
-        plot.bearing_motion(fig, result, units=units.value)
+        plot.bearing_motion(fig, result, units=units.value, step_um=loaded.height_step_um())
         plot.save_png(fig, plot_out, dpi=120, caption=(
             label, f"{input.name} · pictured by flatcheck · air-bearing carriage over its travel: path, surface, "
             "pitch and local flatness under the pads"))

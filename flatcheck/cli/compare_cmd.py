@@ -431,7 +431,8 @@ def compare_cmd(
         # with one depth (issue 15, item 14)
         axes = plot.compare_change_map(None, pr.x_mm, pr.y_mm, hb.height_um, ha.height_um[idx], pr.removed_um,
                                        units=units.value, length_mm=hb.length_mm, width_mm=hb.width_mm,
-                                       change_um=pr.change_referred_um)
+                                       change_um=pr.change_referred_um,
+                                       step_um=max(lb.height_step_um(), la.height_step_um()))
         plot.save_png(axes[0].figure, plot_out, dpi=120, caption=_plot_caption(lb, la, before, after))
     if json_out:
         doc = progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value)

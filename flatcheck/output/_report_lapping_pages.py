@@ -40,7 +40,7 @@ def _lapping_foot(c, units):
     text = []
     shortfall = getattr(p, "shortfall", None)
     if p.passes and shortfall is not None:  # why the plan misses its target, and what to change
-        text.append((shortfall.text(units), "b"))
+        text.append((shortfall.text(units, c.height_step_um), "b"))
     elif p.passes and p.predicted_flatness_um > rm.target_um:
         text.append((f"The plan misses the target {_h(rm.target_um, units, c.height_step_um)} (predicted "
                      f"{_h(p.predicted_flatness_um, units, c.height_step_um)}): survey again after the plan and plan again.", "b"))

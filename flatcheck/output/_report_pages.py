@@ -34,14 +34,12 @@ _PLAN_RECT_LEFT = 0.11  # room for a two-line y label of a stretched plan view
 _TEXT_FS = 8.0  # tables and notes on drawing pages
 
 
-def _closure(v_um, units) -> str:
-    """A closure error at the precision a flatness instrument gives (issue 15, item 8): 0.01 µm (an
-    autocollimator's 0.1 arcsec over a 100 mm base is 0.05 µm), or whole µin; never nanometres."""
-    from ..units import height_unit_label, um_to
+def _closure(v_um, units, step_um=None) -> str:
+    """A closure error to the step the survey resolves, as every height without U (never "-0.00")."""
+    from ..units import format_height
 
-    x = um_to(v_um, units)
-    text = f"{x:.0f}" if units == "in" else f"{x:.2f}"
-    return f"{text.lstrip('-') if float(text) == 0 else text} {height_unit_label(units)}"
+    text = format_height(v_um, units, step_um=step_um)
+    return text[1:] if text.startswith("-") and not text.strip("-0. µmin") else text
 
 
 def _tolerance(v_um, units) -> str:
@@ -150,7 +148,7 @@ def _page_map(fig, c, units):
     fh = fig.get_figheight()
     (ax,), bottom = plot.plan_panels(fig, 1, 1, ratio, (_PLAN_RECT_LEFT, _BOTTOM, 0.94, _TOP), max_height_in=4.6)
     # one reference for every height shown, as in the terminal and in --map-out: the least-squares plane
-    plot.contour_map(ax, hm, reference=c.ls, reference_name="least-squares plane", units=units,
+    plot.contour_map(ax, hm, reference=c.ls, reference_name="least-squares plane", units=units, step_um=c.height_step_um,
                      title=f"heights about the {HEIGHT_REFERENCE} (open circles: stations)")
     low = _BOTTOM + (note_in + 0.15) / fh if note else _BOTTOM
     top3 = bottom - 0.035  # the 3-D view's title sits below the map's x label
@@ -278,7 +276,7 @@ def _page_profiles(fig, c, units, chunk):
         for ln in chunk
     ]
     # top at 0.86: room above for the caption of the picture written alone (--png), within the page's body
-    axes = plot.line_profiles(fig, profs, units=units, rect=(0.1, 0.08, 0.94, 0.86))
+    axes = plot.line_profiles(fig, profs, units=units, rect=(0.1, 0.08, 0.94, 0.86), step_um=c.height_step_um)
     first = c.lines.index(chunk[0]) + 1
     return [(f"line-profiles-{first}-{first + len(chunk) - 1}", axes)]
 
@@ -309,12 +307,14 @@ def _page_bearing(fig, c, units):
     from . import _plots as plot
 
     b = c.bearing
-    axes = plot.bearing_motion(fig, b, units=units, rect=(0.1, 0.50, 0.88, 0.90))
+    from ..units import format_limit
+
+    axes = plot.bearing_motion(fig, b, units=units, rect=(0.1, 0.50, 0.88, 0.90), step_um=c.height_step_um)
     ax = fig.add_axes([0.06, 0.06, 0.88, 0.36])
     rows = []
     for ch in b.checks:
         val = _h(ch.value, units, c.height_step_um) if ch.unit == "um" else f"{ch.value:.2f} arcsec"
-        lim = _h(ch.limit, units, c.height_step_um) if ch.unit == "um" else f"{ch.limit:.2f} arcsec"
+        lim = format_limit(ch.limit, units) if ch.unit == "um" else f"{ch.limit:.2f} arcsec"
         u = getattr(ch, "expanded_uncertainty", None)
         if u is not None and ch.unit == "um":  # U to two significant digits, the value to the same place
             from ..units import format_with_uncertainty
@@ -322,10 +322,10 @@ def _page_bearing(fig, c, units):
             v_txt, u_txt = format_with_uncertainty(ch.value, u, units)
             val = f"{v_txt}, U {u_txt}"
         rows.append((_in_units(ch.name, units), val, lim, ch.status))
-    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.45, 0.62, 0.8), col_labels=("check", "value", "limit", "status"),
+    y = plot.flow_table(ax, 1.0, rows, col_x=(0.0, 0.42, 0.66, 0.82), col_labels=("check", "value", "limit", "status"),
                         title=f"Verdict: {b.verdict}", bold_cols=(3,), wrap_chars=(60, None, None, None))
     pads = ", ".join(f"{p.pad.shape} {_size_text(p.pad.length_mm, p.pad.width_mm, units)}, "
-                     f"gap {_h(p.pad.gap_um, units, c.height_step_um)}" for p in b.carriage.active_pads)
+                     f"gap {format_limit(p.pad.gap_um, units)}" for p in b.carriage.active_pads)
     lines = [f"Pads: {pads}.",
              "Both curves are drawn about their own straight line (minimum zone), so their shapes compare: the "
              "carriage follows the surface averaged over its pads."]

@@ -18,7 +18,7 @@ from ._report_pages import _BOTTOM, _PLAN_RECT_LEFT, _TEXT_FS, _TOP, _closure, _
 def _layout_rows(c, units):
     rows = []
     for ln in c.lines:
-        closure = "" if ln.closure_um is None else _closure(ln.closure_um, units) + (
+        closure = "" if ln.closure_um is None else _closure(ln.closure_um, units, c.height_step_um) + (
             f" at {ln.closure_station}" if ln.closure_station else "")
         rows.append((ln.name, _pos(ln.s_mm[-1], units), f"{len(ln.s_mm) - 1}",
                      "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units, c.height_step_um),
@@ -78,9 +78,9 @@ def _page_layout(fig, c, units, histogram=None):
     sv = c.survey
     index = {s.name: i for i, s in enumerate(sv.stations)}
     lines = [(ln.name, np.array([index[s] for s in ln.stations])) for ln in sv.lines]
-    notes = {ln.name: f"closure {_closure(ln.closure_um, units)}" for ln in c.lines if ln.closure_um is not None}
+    notes = {ln.name: f"closure {_closure(ln.closure_um, units, c.height_step_um)}" for ln in c.lines if ln.closure_um is not None}
     ax, bottom = _layout_plan_bottom(c, fig)
-    plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, length_mm=sv.surface.length_mm,
+    plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, step_um=c.height_step_um, length_mm=sv.surface.length_mm,
                        width_mm=sv.surface.width_mm, line_notes=notes, units=units,
                        station_names=[st.name for st in sv.stations],
                        title="lines walked (arrow: towards the line's last station)")

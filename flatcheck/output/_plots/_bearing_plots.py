@@ -95,7 +95,7 @@ def carriage_path(
     return list(axes)
 
 
-def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92)):
+def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92), step_um: float | None = None):
     """The carriage path, rail profile, pitch and local flatness of an air-bearing result.
 
     Parameters
@@ -107,12 +107,17 @@ def bearing_motion(fig, result, *, units: str = "um", rect=(0.1, 0.1, 0.9, 0.92)
         Display units (µm or µin).
     rect : (left, bottom, right, top)
         Part of the figure the panels fill (figure fractions).
+    step_um : float, optional
+        The height step the survey resolves: the title's straightness figures are printed to it
+        (:func:`flatcheck.units.height_decimals`; None: 1 nm).
     """
+    from ...units import height_decimals
+
     m = result.motion
     st = list(result.stations)
     local = np.array([s.local_flatness_um for s in st]) if len(st) == len(m.x_mm) else None
     hs, u = _height_scale(units)
-    dec = 3 if units == "um" else 1
+    dec = height_decimals(step_um, units)
     axes = carriage_path(
         fig, m.x_mm, _about_straightness_line(m.x_mm, m.raw_profile_um), _about_straightness_line(m.x_mm, m.path_um),
         pitch=m.pitch_path_arcsec if getattr(m, "pitch_determined", True) else None, pitch_unit="arcsec", local_um=local, local_limit_um=result.limit_um, units=units,

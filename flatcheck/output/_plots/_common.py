@@ -43,12 +43,15 @@ def _pos_scale(units: str) -> tuple[float, str]:
     raise InputValueError(f"unknown display units {units!r}", fix="use 'um' or 'in'")
 
 
-def _fmt(v: float, unit: str) -> str:
-    """A height with a sensible number of decimals for its size."""
-    a = abs(v)
-    dec = 3 if a < 1 else 2 if a < 100 else 1 if a < 1000 else 0
-    v = round(v, dec) + 0.0  # no "-0.000"
-    return f"{v:+.{dec}f} {unit}" if v else f"{0:.{dec}f} {unit}"
+def _fmt_step(v_um: float, units: str, step_um: float | None, *, signed: bool = False) -> str:
+    """A height (µm) with its unit, to the step the measurement resolves (:func:`flatcheck.units.format_height`);
+    ``signed`` puts a + before a rise; never "-0.00"."""
+    from ...units import format_height
+
+    text = format_height(v_um, units, step_um=step_um)
+    if text.startswith("-") and not text.strip("-0. µmin"):
+        text = text[1:]
+    return "+" + text if signed and not text.startswith("-") and text.strip("0. µmin") else text
 
 
 def _fmt_abs(v: float, unit: str) -> str:

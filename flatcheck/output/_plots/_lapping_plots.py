@@ -8,7 +8,7 @@ from matplotlib.patches import Rectangle
 from ...errors import InputValueError
 from ._maps import field_map
 from ._common import (
-    A4_PORTRAIT_IN, FIELD_CMAP, HEIGHT_CMAP, _INK, _colorbar_beside, _fmt, _fmt_abs, _height_scale, _levels, _plan_aspect,
+    A4_PORTRAIT_IN, FIELD_CMAP, HEIGHT_CMAP, _INK, _colorbar_beside, _fmt_step, _height_scale, _levels, _plan_aspect,
     _plan_limits, _pos_scale, new_figure, plan_panels, plan_ratio,
 )
 
@@ -201,6 +201,7 @@ def compare_change_map(
     own_planes: bool = True,
     rect=(0.09, 0.06, 0.95, 0.93),
     change_um=None,
+    step_um: float | None = None,
 ):
     """The change map of ``flatcheck compare``: before, after, change and the least removal, on the matched nodes.
 
@@ -336,7 +337,8 @@ def compare_change_map(
         ha = "left" if fx < 0.3 else "right" if fx > 0.7 else "center"
         va = "bottom" if fy < 0.5 else "top"
         ax.plot([x[i] * ps], [y[i] * ps], "v", ms=7, mfc="white", mec=_INK, mew=1.1, zorder=6)
-        label = f"{text} {_fmt_abs(v[i] * hs, hu)}" if tag == "deepest" and referred else f"{text} {_fmt(v[i] * hs, hu)}"
+        # to the step the coarser survey resolves (step_um), as the summary prints the change
+        label = f"{text} {_fmt_step(v[i], units, step_um, signed=not (tag == 'deepest' and referred))}"
         ax.annotate(label, (x[i] * ps, y[i] * ps),
                     xytext=(6 if ha == "left" else -6 if ha == "right" else 0, 8 if va == "bottom" else -8),
                     textcoords="offset points", ha=ha, va=va, fontsize=7, fontweight="bold", color=_INK,

@@ -8,7 +8,7 @@ from matplotlib.ticker import MaxNLocator
 
 from ...errors import InputValueError
 from ._common import (
-    FIELD_CMAP, HEIGHT_CMAP, _ACCENT, _INK, _MAX_PLAN_RATIO, _colorbar_beside, _fmt, _height_scale, _levels,
+    FIELD_CMAP, HEIGHT_CMAP, _ACCENT, _INK, _MAX_PLAN_RATIO, _colorbar_beside, _fmt_step, _height_scale, _levels,
     _plan_aspect, _plan_limits, _pos_scale, plan_box,
 )
 
@@ -46,8 +46,10 @@ def contour_map(
     station_names: bool | None = None,
     title: str | None = None,
     colorbar: bool = True,
+    step_um: float | None = None,
 ):
-    """Filled contour map of a surface with stations and its high and low points.
+    """Filled contour map of a surface with stations and its high and low points (labelled to ``step_um``, the
+    height step the measurement resolves; None: 1 nm).
 
     Parameters
     ----------
@@ -104,7 +106,7 @@ def contour_map(
     ih, il = int(np.argmax(dev_um)), int(np.argmin(dev_um))
     xmin, xmax, ymin, ymax = hm.extent_mm
     for i, tag, marker in ((ih, "high", "^"), (il, "low", "v")):
-        x, y, v = hm.x_mm[i] * ps, hm.y_mm[i] * ps, dev_um[i] * hs
+        x, y = hm.x_mm[i] * ps, hm.y_mm[i] * ps
         # put the label on the side facing the middle of the surface so it is never clipped
         fx = (hm.x_mm[i] - xmin) / max(xmax - xmin, 1e-9)
         fy = (hm.y_mm[i] - ymin) / max(ymax - ymin, 1e-9)
@@ -114,7 +116,7 @@ def contour_map(
         dy = 9 if va == "bottom" else -9
         ax.plot([x], [y], marker, ms=8, mfc="white", mec=_INK, mew=1.2, zorder=6)
         ann = ax.annotate(
-            f"{tag} {_fmt(v, hu)}",
+            f"{tag} {_fmt_step(dev_um[i], units, step_um, signed=True)}",
             (x, y),
             xytext=(dx, dy),
             textcoords="offset points",

@@ -9,7 +9,7 @@ from matplotlib.patches import Rectangle
 
 from ...errors import InputValueError
 from ._common import (
-    _ACCENT, _INK, _fmt, _fmt_abs, _height_scale, _plan_aspect, _pos_scale,
+    _ACCENT, _INK, _fmt_abs, _fmt_step, _height_scale, _plan_aspect, _pos_scale,
 )
 
 
@@ -53,7 +53,7 @@ class LineProfile:
 
 
 def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: str | None = None,
-                  rect=(0.09, 0.08, 0.97, 0.95)):
+                  rect=(0.09, 0.08, 0.97, 0.95), step_um: float | None = None):
     """One small panel per measured line: deviation from its reference line and its straightness.
 
     Each panel draws the stations, the zone of the straightness (two parallel
@@ -68,6 +68,9 @@ def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: st
         Part of the figure the panels fill (figure fractions).
     profiles : sequence of LineProfile
         The lines, drawn in order.
+    step_um : float, optional
+        The height step the survey resolves: each straightness is printed to it (with an uncertainty, to
+        the uncertainty's two significant digits instead).
     units : {"um", "in"}
         Display units.
     ncols : int
@@ -100,8 +103,14 @@ def line_profiles(fig, profiles, *, units: str = "um", ncols: int = 2, title: st
         ax.axhline(d.max(), color=_INK, lw=0.6, ls="--")
         ax.plot(s, d, "-", color=_INK, lw=1.0)
         ax.plot(s, d, "o", ms=3, mfc="white", mec=_INK, mew=0.7)
-        unc = "" if p.uncertainty_um is None else f" ± {_fmt_abs(p.uncertainty_um * hs, hu)}"
-        ax.set_title(f"{p.name}: straightness {_fmt_abs(p.straightness_um * hs, hu)}{unc}", fontsize=8, loc="left")
+        if p.uncertainty_um is None:
+            text = _fmt_step(p.straightness_um, units, step_um)
+        else:  # U to two significant digits, the value to its place (JCGM 100:2008, 7.2.6)
+            from ...units import format_with_uncertainty
+
+            v_txt, u_txt = format_with_uncertainty(p.straightness_um, p.uncertainty_um, units)
+            text = f"{v_txt} ± {u_txt}"
+        ax.set_title(f"{p.name}: straightness {text}", fontsize=8, loc="left")
         ax.set_ylim(lo - 0.12 * span, hi + 0.12 * span)
         ax.tick_params(labelsize=7)
         ax.grid(True, lw=0.3, color="0.75")
@@ -128,6 +137,7 @@ def survey_layout(
     units: str = "um",
     title: str | None = None,
     station_names=None,
+    step_um: float | None = None,
 ):
     """The survey's lines on the surface, with closure errors written where they close.
 
@@ -200,7 +210,7 @@ def survey_layout(
         # several closures at one station (the two centre lines of a Union Jack): fan the labels out
         offsets = [(14, -22), (14, 14), (-90, -22), (-90, 14)]
         ax.annotate(
-            f"{label}\nclosure {_fmt(c_um * hs, hu)}",
+            f"{label}\nclosure {_fmt_step(c_um, units, step_um, signed=True)}",
             (x * ps, y * ps),
             xytext=offsets[k % len(offsets)],
             textcoords="offset points",
