@@ -57,6 +57,7 @@ def faces_figure(geometry, *, carriage=None, width_in: float = 11.0, fig=None, r
     -------
     matplotlib.figure.Figure
     """
+    from ..units import format_height
     from ._plots import HEIGHT_CMAP, new_figure
 
     faces = geometry.faces
@@ -98,7 +99,9 @@ def faces_figure(geometry, *, carriage=None, width_in: float = 11.0, fig=None, r
                         bbox=dict(fc="white", ec="none", alpha=0.7, pad=0.5))
         across = "y" if body.face(fg.name).axis == "z" else "z"
         ax.set_ylabel(f"{across} (mm)", fontsize=8)
-        flat = f"flatness {fg.flatness_um:.2f} µm" if np.isfinite(fg.flatness_um) else "one line"
+        # to the step the body's faces resolve, as the summary prints it (flatcheck.units.height_decimals)
+        flat = (f"flatness {format_height(fg.flatness_um, 'um', step_um=geometry.body.height_step_um)}"
+                if np.isfinite(fg.flatness_um) else "one line")
         ax.set_title(f"{fg.name} ({fg.normal}): form about its least-squares plane, {flat}; heights outward",
                      fontsize=9, loc="left")
         ax.tick_params(labelsize=7)
