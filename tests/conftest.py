@@ -115,3 +115,27 @@ def cli_limited(cli):
         return box["result"]
 
     return _run
+
+
+def _refusal_problems(code, out, err, words) -> list:
+    """What is wrong with a refusal of bad input (empty when it is right): exit 2, one ``flatcheck: error:``
+    line on stderr containing ``words`` (case-insensitive), no traceback or internal error, no leaked warning."""
+    problems = []
+    if code != 2:
+        problems.append(f"exit {code}")
+    if len(err.splitlines()) != 1 or not err.startswith("flatcheck: error: ") or not err.endswith("\n"):
+        problems.append(f"stderr is not one error line: {err[:300]!r}")
+    if "Traceback" in err or "Traceback" in out or "internal error" in err:
+        problems.append("internal error")
+    if "Warning" in err:
+        problems.append("a warning leaked")
+    missing = [w for w in words if w.lower() not in err.lower()]
+    if missing:
+        problems.append(f"does not say {missing}: {err.strip()[:300]!r}")
+    return problems
+
+
+@pytest.fixture
+def refusal_problems():
+    """The check every sweep of bad input applies to each refusal (:func:`_refusal_problems`)."""
+    return _refusal_problems

@@ -779,7 +779,7 @@ def test_the_sweep_is_several_hundred_files(tmp_path, made):
     assert len({c[0] for c in cases}) == len(cases)  # every case has its own name
 
 
-def test_every_bad_file_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, tmp_path, made, monkeypatch):
+def test_every_bad_file_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, refusal_problems, tmp_path, made, monkeypatch):
     monkeypatch.chdir(tmp_path)
     monkeypatch.delenv("FLATCHECK_DB", raising=False)
     monkeypatch.delenv("FLATCHECK_UNCERTAINTY_DEFAULTS", raising=False)
@@ -799,20 +799,7 @@ def test_every_bad_file_is_one_line_exit_2_and_changes_nothing(cli, cli_limited,
         code, out, err = result
         if dt > 5:
             slow.append(f"{case_id}: {dt:.1f} s")
-        problems = []
-        if code != 2:
-            problems.append(f"exit {code}")
-        lines = err.splitlines()
-        if len(lines) != 1 or not err.startswith("flatcheck: error: ") or not err.endswith("\n"):
-            problems.append(f"stderr is not one error line: {err[:300]!r}")
-        if "Traceback" in err or "Traceback" in out or "internal error" in err:
-            problems.append("internal error")
-        if "Warning" in err:
-            problems.append("a warning leaked")
-        low = err.lower()
-        missing = [w for w in words if w.lower() not in low]
-        if missing:
-            problems.append(f"does not say {missing}: {err.strip()[:300]!r}")
+        problems = refusal_problems(code, out, err, words)
         if problems:
             failures.append(f"{case_id}: {'; '.join(problems)}")
     after = {**_digest(SAMPLES), **_digest(tmp_path)}

@@ -211,7 +211,7 @@ def test_the_sweep_is_several_hundred_inputs(sweep_dir):
     assert len({c[0] for c in cases}) == len(cases)  # every case has its own name
 
 
-def test_every_bad_input_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, sweep_dir, monkeypatch):
+def test_every_bad_input_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, refusal_problems, sweep_dir, monkeypatch):
     work = sweep_dir / "run"
     work.mkdir()
     monkeypatch.chdir(work)
@@ -225,20 +225,7 @@ def test_every_bad_input_is_one_line_exit_2_and_changes_nothing(cli, cli_limited
         result = cli_limited(*argv)
         assert result is not None, f"{argv}: no answer within {TIME_LIMIT_S} s (a hang)"
         code, out, err = result
-        problems = []
-        if code != 2:
-            problems.append(f"exit {code}")
-        lines = err.splitlines()
-        if len(lines) != 1 or not err.startswith("flatcheck: error: ") or not err.endswith("\n"):
-            problems.append(f"stderr is not one error line: {err[:300]!r}")
-        if "Traceback" in err or "Traceback" in out or "internal error" in err:
-            problems.append("internal error")
-        if "Warning" in err:
-            problems.append("a warning leaked")
-        low = err.lower()
-        missing = [w for w in words if w.lower() not in low]
-        if missing:
-            problems.append(f"does not say {missing}: {err.strip()[:300]!r}")
+        problems = refusal_problems(code, out, err, words)
         if problems:
             failures.append(f"{case_id}: {'; '.join(problems)}")
     after = _digest(watched)

@@ -314,7 +314,7 @@ def test_the_sweep_is_several_hundred_options():
     assert len({c[0] for c in cases}) == len(cases)  # every case has its own name
 
 
-def test_every_bad_option_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, tmp_path, monkeypatch):
+def test_every_bad_option_is_one_line_exit_2_and_changes_nothing(cli, cli_limited, refusal_problems, tmp_path, monkeypatch):
     work = tmp_path / "work"
     work.mkdir()
     monkeypatch.chdir(work)
@@ -339,19 +339,7 @@ def test_every_bad_option_is_one_line_exit_2_and_changes_nothing(cli, cli_limite
         assert result is not None, f"{argv}: no answer within {TIME_LIMIT_S} s (a hang)"
         code, out, err = result
         slowest = max(slowest, (time.perf_counter() - start, case_id), key=lambda s: s[0])
-        problems = []
-        if code != 2:
-            problems.append(f"exit {code}")
-        lines = err.splitlines()
-        if len(lines) != 1 or not err.startswith("flatcheck: error: ") or not err.endswith("\n"):
-            problems.append(f"stderr is not one error line: {err[:300]!r}")
-        if "Traceback" in err or "Traceback" in out or "internal error" in err:
-            problems.append("internal error")
-        if "Warning" in err:
-            problems.append("a warning leaked")
-        missing = [w for w in words if w.lower() not in err.lower()]
-        if missing:
-            problems.append(f"does not say {missing}: {err.strip()[:300]!r}")
+        problems = refusal_problems(code, out, err, words)
         if (work / P3).read_bytes() != p3_text:  # the input most cases name: said at the case that changed it
             problems.append(f"{P3} changed")
             (work / P3).write_bytes(p3_text)
