@@ -61,7 +61,7 @@ _SIZE_REASON = ("no surface plate, guideway or machine bed is longer than 100 m;
 
 #: Every numeric input flatcheck takes, by kind. Keys are referred to by the readers and the command line.
 LIMITS: dict[str, Limit] = {
-    "length_mm": Limit(0.0, _SIZE_MM, "mm", _SIZE_REASON, low_open=True),
+    "length_mm": Limit(0.1, _SIZE_MM, "mm", _SIZE_REASON + "; under 0.1 mm there is no surface to survey (a slip)"),
     "position_mm": Limit(-_SIZE_MM, _SIZE_MM, "mm", _SIZE_REASON),
     "foot_spacing_mm": Limit(1.0, 10_000.0, "mm",
                              "an instrument's foot spacing (base length) is between a few millimetres and a few "
@@ -81,9 +81,10 @@ LIMITS: dict[str, Limit] = {
     "lap_size_mm": Limit(1.0, _SIZE_MM, "mm",
                          "a lap smaller than 1 mm is not a lap; the dwell grid is made from the lap's size, so a "
                          "microscopic lap would take billions of grid cells"),
-    "target_um": Limit(0.0, 1.0e6, "µm",
-                       "a flatness of exactly zero cannot be reached by lapping or proven by any measurement",
-                       low_open=True),
+    "target_um": Limit(0.001, 1.0e6, "µm",
+                       "a flatness of exactly zero cannot be reached by lapping or proven by any measurement, and "
+                       "no surface is lapped to, or measured flat within, less than a nanometre (a smaller target "
+                       "is a slip: a wrong unit or a misplaced decimal point)"),
     "minutes": Limit(0.0, 1440.0, "min",
                      "one dwell or lapping-log row longer than a day (1440 min) is a typing mistake"),
     "session_min": Limit(0.1, 1440.0, "min",

@@ -43,10 +43,12 @@ def test_not_a_number_infinite_or_huge_integers_are_refused_not_raised_raw(value
         assert f"{len(str(abs(value)))} digits" in str(exc.value)
 
 
-def test_open_lower_bound_refuses_exactly_zero():
-    with pytest.raises(InputValueError, match="out of range"):
-        check_range(0.0, "target_um", where="--target-um")
-    assert check_range(1e-9, "target_um", where="--target-um") == 1e-9
+def test_lower_bound_refuses_zero_and_a_slip_below_a_nanometre():
+    # a target flatness: nothing is lapped to, or measured flat within, less than 1 nm (docs/limits.md)
+    for v in (0.0, 1e-300, 9.99e-4):
+        with pytest.raises(InputValueError, match="out of range"):
+            check_range(v, "target_um", where="--target-um")
+    assert check_range(1e-3, "target_um", where="--target-um") == 1e-3
 
 
 def test_counts_are_whole_numbers():

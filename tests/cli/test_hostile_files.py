@@ -313,7 +313,7 @@ def _fringe_cases(tmp):
                                  ("diameter_mm",)),
         "bend_mm without spacing": (_set(_set(base, R, "bend_fringes", None), R, "bend_mm", "1.0"), ("spacing_mm",)),
         "spacing 1e-300": (_set(_set(_set(base, R, "bend_fringes", None), R, "bend_mm", "1.0"), R, "spacing_mm",
-                                "1e-300"), ("bend",)),
+                                "1e-300"), ("spacing_mm", "at least 0.1")),
         "format": (_set(base, None, "format", '"flatcheck-survey"'), ("format",)),
         "version": (_set(base, None, "version", "2"), ("version",)),
         "version huge": (_set(base, None, "version", BIG_INT), ("version",)),
