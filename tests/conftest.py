@@ -139,3 +139,20 @@ def _refusal_problems(code, out, err, words) -> list:
 def refusal_problems():
     """The check every sweep of bad input applies to each refusal (:func:`_refusal_problems`)."""
     return _refusal_problems
+
+
+@pytest.fixture
+def one_line_error():
+    """Assert that a command refused bad input as it must (:func:`_refusal_problems`: exit 2, one
+    ``flatcheck: error:`` line, no traceback or leaked warning), and that the line holds each of ``words``
+    exactly as written; ``quiet=True`` also asserts that nothing went to standard output. Returns the line."""
+
+    def check(code, err, *words, out="", quiet=False):
+        problems = _refusal_problems(code, out, err, ())
+        assert not problems, problems
+        assert not quiet or out == "", out[:300]
+        for w in words:
+            assert w in err, (w, err)
+        return err.strip()
+
+    return check

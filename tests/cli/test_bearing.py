@@ -25,13 +25,6 @@ def sine_csv(tmp_path):
     return write_surface(tmp_path / "sine.csv", lambda X, Y: np.sin(2 * np.pi * X / 200.0))
 
 
-def one_line_error(code, out, err):
-    assert code == 2
-    assert out == ""
-    assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
-    assert "Traceback" not in err
-
-
 def test_pinned_json_keys(cli, sine_csv):
     code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--json")
     assert code == 0
@@ -138,15 +131,15 @@ def test_pad_face_option(cli, tmp_path, sine_csv):
         (["--pad", "100x60", "--gap-um", "8", "--bearing", "missing.toml"], "no such file"),
     ],
 )
-def test_bad_options_one_line(cli, sine_csv, args, match):
+def test_bad_options_one_line(cli, sine_csv, args, match, one_line_error):
     code, out, err = cli("bearing", sine_csv, *args)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert __import__("re").search(match, err)
 
 
-def test_missing_input(cli, tmp_path):
+def test_missing_input(cli, tmp_path, one_line_error):
     code, out, err = cli("bearing", tmp_path / "nothing.csv", "--pad", "100x60", "--gap-um", "8")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
 
 
 def test_plot_of_the_carriage_path(cli, sine_csv, tmp_path):
@@ -177,9 +170,9 @@ def test_plot_of_the_carriage_path(cli, sine_csv, tmp_path):
         (["--travel-start-mm", "400", "--travel-end-mm", "100"], "--travel-start-mm/--travel-end-mm"),
     ],
 )
-def test_bad_numbers_name_their_option(cli, sine_csv, args, where):
+def test_bad_numbers_name_their_option(cli, sine_csv, args, where, one_line_error):
     code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", *args)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {where}: ")
 
 
@@ -191,9 +184,9 @@ def test_bad_numbers_name_their_option(cli, sine_csv, args, where):
         (["--pad", "100x60", "--gap-um", "8", "--sample-pitch-mm", "1e-4"], "sampling pitch"),
     ],
 )
-def test_absurdly_fine_sampling_is_refused_not_a_crash(cli, sine_csv, args, match):
+def test_absurdly_fine_sampling_is_refused_not_a_crash(cli, sine_csv, args, match, one_line_error):
     code, out, err = cli("bearing", sine_csv, *args)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert match in err
 
 
@@ -240,29 +233,29 @@ def _bearing_file(tmp_path, carriage):
         ('face = "top"\n[[carriage.pad]]\nface = "side"\n', [], "slide.toml, [carriage], field 'face'"),
     ],
 )
-def test_carriage_errors_name_the_file_field_or_option(cli, sine_csv, tmp_path, carriage, options, where):
+def test_carriage_errors_name_the_file_field_or_option(cli, sine_csv, tmp_path, carriage, options, where, one_line_error):
     # these errors used to come without any "where" (a step too large, a reversed travel, no pad on the face)
     toml = _bearing_file(tmp_path, carriage)
     code, out, err = cli("bearing", sine_csv, "--bearing", toml, *options)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {where.replace('slide.toml', str(toml))}:")
 
 
-def test_step_option_without_file_is_named(cli, sine_csv):
+def test_step_option_without_file_is_named(cli, sine_csv, one_line_error):
     code, out, err = cli("bearing", sine_csv, "--pad", "100x60", "--gap-um", "8", "--step-mm", "50")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith("flatcheck: error: --step-mm: a travel step of 50 mm")
 
 
-def test_pad_size_too_large_to_be_a_number(cli, sine_csv):
+def test_pad_size_too_large_to_be_a_number(cli, sine_csv, one_line_error):
     code, out, err = cli("bearing", sine_csv, "--pad", "1e400x80", "--gap-um", "8")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert "--pad" in err and "not a finite number" in err
 
 
-def test_plot_may_not_overwrite_an_input(cli, sine_csv):
+def test_plot_may_not_overwrite_an_input(cli, sine_csv, one_line_error):
     before = sine_csv.read_bytes()
     code, out, err = cli("bearing", sine_csv, "--pad", "60x40", "--gap-um", "8", "--plot", sine_csv)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert "--plot" in err and "input" in err
     assert sine_csv.read_bytes() == before

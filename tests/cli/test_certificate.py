@@ -42,15 +42,6 @@ def _sha(path):
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
-def _one_line_error(code, err, *words):
-    assert code == 2
-    assert "Traceback" not in err
-    lines = err.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("flatcheck: error: ")
-    for w in words:
-        assert w in lines[0]
-
-
 def _printed(v: float, digits: int = 3) -> str:
     """A number to the digits the page prints, without a '-0.000'."""
     text = f"{v:.{digits}f}"
@@ -188,18 +179,18 @@ def test_as_found_and_as_left_on_one_certificate(cli, tmp_path, register, pdf_to
     assert "register survey 2 (as left)" in front
 
 
-def test_an_unregistered_survey_is_a_one_line_error(cli, tmp_path, register):
+def test_an_unregistered_survey_is_aone_line_error(cli, tmp_path, register, one_line_error):
     db, _ = register
     other = tmp_path / P3[1]
     shutil.copy(SAMPLES / P3[1], other)
     before = _sha(db)
     pdf = tmp_path / "cert.pdf"
     code, out, err = cli("report", other, "--db", db, "-o", pdf)
-    _one_line_error(code, err, str(other), "not in the register", "flatcheck register add")
+    one_line_error(code, err, str(other), "not in the register", "flatcheck register add")
     assert not pdf.exists() and _sha(db) == before
 
 
-def test_a_damaged_register_is_refused_unchanged(cli, tmp_path, register):
+def test_a_damaged_register_is_refused_unchanged(cli, tmp_path, register, one_line_error):
     db, survey = register
     data = bytearray(db.read_bytes())
     data[4096:4096 + 16] = b"\xff" * 16  # the b-tree header of page 2 (SQLite's default page size is 4096)
@@ -207,7 +198,7 @@ def test_a_damaged_register_is_refused_unchanged(cli, tmp_path, register):
     before = _sha(db)
     pdf = tmp_path / "cert.pdf"
     code, out, err = cli("report", survey, "--db", db, "-o", pdf, "--trials", "300")
-    _one_line_error(code, err, "damaged", str(db))
+    one_line_error(code, err, "damaged", str(db))
     assert _sha(db) == before and not pdf.exists()
 
 
@@ -216,19 +207,19 @@ def test_a_damaged_register_is_refused_unchanged(cli, tmp_path, register):
     (("--method", "moody"), ("--method", "least-squares")),  # the register reduced it by least squares
     ((), ("--prefix", "no certificate-number prefix")),  # a first certificate needs the lab's prefix
 ])
-def test_options_that_would_contradict_the_register_are_refused(cli, tmp_path, register, args, words):
+def test_options_that_would_contradict_the_register_are_refused(cli, tmp_path, register, args, words, one_line_error):
     db, survey = register
     before = _sha(db)
     code, out, err = cli("report", survey, "--db", db, "-o", tmp_path / "c.pdf", "--trials", "300", *args)
-    _one_line_error(code, err, *words)
+    one_line_error(code, err, *words)
     assert _sha(db) == before
 
 
-def test_prefix_without_register_and_report_without_db_as_before(cli, tmp_path, pdf_tools):
+def test_prefix_without_register_and_report_without_db_as_before(cli, tmp_path, pdf_tools, one_line_error):
     f = tmp_path / P3[0]
     shutil.copy(SAMPLES / P3[0], f)
     code, out, err = cli("report", f, "-o", tmp_path / "a.pdf", "--prefix", "KY")
-    _one_line_error(code, err, "--prefix", "--db")
+    one_line_error(code, err, "--prefix", "--db")
     pdf = tmp_path / "b.pdf"
     code, out, err = cli("report", f, "-o", pdf, "--trials", "300", "--json")
     assert code == 0 and err == ""

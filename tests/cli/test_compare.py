@@ -61,20 +61,13 @@ def test_dwell_minutes_and_sessions(cli, pair):
     assert doc["sessions_to_target"] >= 1
 
 
-def one_line_error(code, out, err):
-    assert code == 2
-    assert out == ""
-    assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
-    assert "Traceback" not in err
-
-
-def test_unmatched_surveys_stop_naming_the_node(cli, tmp_path, pair):
+def test_unmatched_surveys_stop_naming_the_node(cli, tmp_path, pair, one_line_error):
     before, after, log, x, y, removed = pair
     x2 = x.copy()
     x2[30] += 3.0
     other = write_csv(tmp_path / "other.csv", x2, y, np.zeros(x.size))
     code, out, err = cli("compare", before, other)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert f"point 31 at ({x[30]:g}, {y[30]:g}) mm" in err
     code, out, err = cli("compare", before, other, "--match-tol-mm", "5")
     assert code == 0
@@ -91,20 +84,24 @@ def test_unmatched_surveys_stop_naming_the_node(cli, tmp_path, pair):
         ("--match-tol-mm", "0"),
     ],
 )
-def test_bad_options_one_line(cli, pair, extra):
+def test_bad_options_one_line(cli, pair, extra, one_line_error):
     before, after, log, *_ = pair
     args = [str(log) if a == "LOG" else a for a in extra]
-    one_line_error(*cli("compare", before, after, *args))
+    code, out, err = cli("compare", before, after, *args)
+    one_line_error(code, err, out=out, quiet=True)
 
 
-def test_bad_log_one_line(cli, pair, tmp_path):
+def test_bad_log_one_line(cli, pair, tmp_path, one_line_error):
     before, after, *_ = pair
     bad = tmp_path / "badlog.csv"
     bad.write_text("x,y,t\n1,2,3\n", encoding="utf-8")
-    one_line_error(*cli("compare", before, after, "--log", bad, "--lap-diameter-mm", "100"))
+    code, out, err = cli("compare", before, after, "--log", bad, "--lap-diameter-mm", "100")
+    one_line_error(code, err, out=out, quiet=True)
     bad.write_text("x_mm,y_mm,minutes\n1,2,-3\n", encoding="utf-8")
-    one_line_error(*cli("compare", before, after, "--log", bad, "--lap-diameter-mm", "100"))
-    one_line_error(*cli("compare", before, tmp_path / "missing.csv"))
+    code, out, err = cli("compare", before, after, "--log", bad, "--lap-diameter-mm", "100")
+    one_line_error(code, err, out=out, quiet=True)
+    code, out, err = cli("compare", before, tmp_path / "missing.csv")
+    one_line_error(code, err, out=out, quiet=True)
 
 
 # ---------------------------------------------------------------- regressions found by trying the command as a new user
@@ -124,16 +121,16 @@ def _survey_file(path, ident, length_mm=600.0, width_mm=400.0, bump_um=1.0):
     return path
 
 
-def test_surveys_of_different_surfaces_refused(cli, tmp_path):
+def test_surveys_of_different_surfaces_refused(cli, tmp_path, one_line_error):
     a = _survey_file(tmp_path / "a.toml", "P-1")
     b = _survey_file(tmp_path / "b.toml", "P-2", bump_um=0.5)
     code, out, err = cli("compare", a, b)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert "different surfaces" in err and "'P-1'" in err and "'P-2'" in err and str(a) in err and str(b) in err
     # same identity but another stated size: also another surface (the stations could match by chance)
     c = _survey_file(tmp_path / "c.toml", "P-1", length_mm=600.0, width_mm=430.0)
     code, out, err = cli("compare", a, c)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert "600 x 400 mm before, 600 x 430 mm after" in err
     # the same surface after lapping passes
     d = _survey_file(tmp_path / "d.toml", "P-1", bump_um=0.5)
@@ -143,12 +140,12 @@ def test_surveys_of_different_surfaces_refused(cli, tmp_path):
     assert json.loads(out)["removed_volume_mm3"] > 0
 
 
-def test_unmatched_names_both_files(cli, pair, tmp_path):
+def test_unmatched_names_both_files(cli, pair, tmp_path, one_line_error):
     before, after, *_ = pair
     x, y = _grid(pitch=40.0)
     other = write_csv(tmp_path / "other.csv", x, y, np.zeros(x.size))
     code, out, err = cli("compare", before, other)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert f"{before} -> {other}:" in err
 
 
@@ -162,27 +159,27 @@ def test_unmatched_names_both_files(cli, pair, tmp_path):
         (("--dwell-min", "5", "--lap-size-mm", "-100x50"), "--lap-size-mm"),
     ],
 )
-def test_bad_option_names_the_option(cli, pair, extra, option):
+def test_bad_option_names_the_option(cli, pair, extra, option, one_line_error):
     before, after, *_ = pair
     code, out, err = cli("compare", before, after, *extra)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {option}:")
 
 
-def test_log_errors_name_the_log(cli, pair, tmp_path):
+def test_log_errors_name_the_log(cli, pair, tmp_path, one_line_error):
     before, after, *_ = pair
     log = tmp_path / "far.csv"
     log.write_text("x_mm,y_mm,minutes\n5000,3000,5\n", encoding="utf-8")  # 5 m away from a 600 x 400 mm surface
     code, out, err = cli("compare", before, after, "--log", log, "--lap-diameter-mm", "100")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {log}:") and "under the lap" in err
     log.write_text("x_mm,y_mm,minutes\n200,250,0\n", encoding="utf-8")
     code, out, err = cli("compare", before, after, "--log", log, "--lap-diameter-mm", "100")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {log}:") and "zero" in err
     log.write_text("", encoding="utf-8")
     code, out, err = cli("compare", before, after, "--log", log, "--lap-diameter-mm", "100")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert "x_mm,y_mm,minutes" in err and "survey" not in err  # the fix asks for a log, not a survey
 
 
@@ -288,7 +285,7 @@ def test_json_lap_has_no_placeholder_rate(cli, pair):
     assert json.loads(cli("compare", before, after, "--json")[1])["lap"] is None
 
 
-def test_target_from_the_air_bearing_gap(cli, pair):
+def test_target_from_the_air_bearing_gap(cli, pair, one_line_error):
     # as in lap: the bearing limit is a fraction of the gap (common practice, no single source; default 1/4), so
     # an 8 µm gap gives the same estimate as --target-um 2, and 0.1 x 10 µm the same as --target-um 1
     before, after, *_ = pair
@@ -300,7 +297,7 @@ def test_target_from_the_air_bearing_gap(cli, pair):
         assert a["remaining_volume_mm3"] == pytest.approx(b["remaining_volume_mm3"], rel=1e-12)
         assert "air-bearing limit" in a["target_source"]
     code, out, err = cli("compare", before, after, "--target-um", "1", "--gap-fraction", "0.3")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith("flatcheck: error: --gap-fraction:")
 
 
@@ -313,7 +310,7 @@ def test_microinch_output_has_sensible_decimals(cli, pair):
     assert re.findall(r"\d\.\d\d+ µin", out) == [] and "Target 19.7 µin" in out  # 0.5 / 0.0254 = 19.69 µin
 
 
-def test_plot_writes_the_change_map(cli, tmp_path, pair):
+def test_plot_writes_the_change_map(cli, tmp_path, pair, one_line_error):
     before, after, log, *_ = pair
     png = tmp_path / "change.png"
     code, out, err = cli("compare", before, after, "--plot", png)
@@ -327,7 +324,7 @@ def test_plot_writes_the_change_map(cli, tmp_path, pair):
         text = victim.read_text(encoding="utf-8")
         extra = ("--log", log, "--lap-diameter-mm", "100") if victim == log else ()
         code, out, err = cli("compare", before, after, *extra, "--plot", victim)
-        one_line_error(code, out, err)
+        one_line_error(code, err, out=out, quiet=True)
         assert err.startswith("flatcheck: error: --plot:") and victim.read_text(encoding="utf-8") == text
     code, out, err = cli("compare", before, after, "--plot", tmp_path / "missing" / "c.png")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)

@@ -15,13 +15,6 @@ import flatcheck
 OLD = 'readings = []   # fill in, in the order taken\norder = "forward"'
 
 
-def _one_line_error(code, out, err):
-    assert code == 2
-    assert "Traceback" not in err and "Traceback" not in out
-    assert len(err.strip().splitlines()) == 1
-    assert err.startswith("flatcheck: error:")
-
-
 def _bowl(x, y):
     """An invented surface: a shallow bowl with a twist, a few µm on a 1000 x 630 mm plate."""
     return 3e-6 * (x - 500.0) ** 2 + 2e-6 * (y - 315.0) ** 2 + 4e-7 * (x - 500.0) * (y - 315.0)
@@ -124,7 +117,7 @@ def test_a_log_with_the_same_readings_gives_the_same_heights(cli, planned, tmp_p
     assert all(a[k] == pytest.approx(b[k], abs=1e-9) for k in a)
 
 
-def test_a_log_with_a_missing_reading_is_refused_with_the_gap(cli, planned, tmp_path):
+def test_a_log_with_a_missing_reading_is_refused_with_the_gap(cli, planned, tmp_path, one_line_error):
     flat = [v for r in _readings(planned) for v in r]
     rows = ["time,tilt"]
     t = 0
@@ -137,7 +130,7 @@ def test_a_log_with_a_missing_reading_is_refused_with_the_gap(cli, planned, tmp_
     log.write_text("\n".join(rows) + "\n")
     before = planned.read_text()
     code, out, err = cli("enter", planned, "--from", log)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "51 readings but the survey needs 52" in err and "readings 30 and 31 (lines 31 and 32)" in err
     assert planned.read_text() == before  # nothing written
 
@@ -167,34 +160,34 @@ def test_a_planted_slip_is_named_during_piped_entry(cli, monkeypatch, planned_bo
 # bad input, tried as a new user would
 
 
-def test_not_a_planned_survey(cli, monkeypatch, tmp_path):
+def test_not_a_planned_survey(cli, monkeypatch, tmp_path, one_line_error):
     csv = tmp_path / "map.csv"
     csv.write_text("x_mm,y_mm,height_um\n0,0,1\n")
     monkeypatch.setattr(sys, "stdin", io.StringIO("1.0\n"))
     code, out, err = cli("enter", csv)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "map.csv" in err
     other = tmp_path / "bearing.toml"
     other.write_text('[pad]\nsize = "100x100"\n')
     code, out, err = cli("enter", other)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "not a flatcheck survey file" in err
     code, out, err = cli("enter", tmp_path / "missing.toml")
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "no such file" in err
 
 
-def test_bad_piped_lines(cli, monkeypatch, planned):
+def test_bad_piped_lines(cli, monkeypatch, planned, one_line_error):
     flat = [v for r in _readings(planned) for v in r]
     code, out, err = _pipe(cli, monkeypatch, planned, ["1.5", "2,5", "abc"])
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "standard input, line 3" in err and "'abc' is not a reading" in err and "2 readings in are saved" in err
     assert "readings = [1.5, 2.5]" in planned.read_text()  # a decimal comma typed is read as one
     code, out, err = _pipe(cli, monkeypatch, planned, ["99999"])
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "mm/m" in err and "standard input, line 1" in err
     code, out, err = _pipe(cli, monkeypatch, planned, flat[2:] + [1.0])
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "the input has more" in err
     assert flatcheck.read_survey(planned).has_readings  # complete and saved all the same
 
@@ -210,16 +203,16 @@ def test_bad_piped_lines(cli, monkeypatch, planned):
         (("--reading-sd", "-1"), "not a positive number"),
     ],
 )
-def test_option_errors(cli, monkeypatch, planned, extra, needle):
+def test_option_errors(cli, monkeypatch, planned, extra, needle, one_line_error):
     monkeypatch.setattr(sys, "stdin", io.StringIO(""))
     code, out, err = cli("enter", planned, *extra)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert needle in err
 
 
-def test_the_survey_cannot_be_its_own_log(cli, planned):
+def test_the_survey_cannot_be_its_own_log(cli, planned, one_line_error):
     code, out, err = cli("enter", planned, "--from", planned)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "input file" in err
 
 

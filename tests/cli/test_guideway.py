@@ -13,14 +13,6 @@ CARRIAGE = SAMPLE / "carriage.toml"
 FAST = ("--film-mesh", "8", "--travel-start-mm", "600", "--travel-end-mm", "640")
 
 
-def _one_line_error(code, err):
-    assert code == 2
-    assert "Traceback" not in err
-    lines = [ln for ln in err.splitlines() if ln.strip()]
-    assert len(lines) == 1 and lines[0].startswith("flatcheck: error: ")
-    return lines[0]
-
-
 @pytest.fixture(scope="module")
 def sample_json():
     from flatcheck.cli.main import run
@@ -105,19 +97,19 @@ def test_summary_and_pictures(cli, tmp_path):
         (("guideway", BODY, "--carriage", CARRIAGE, "--travel-start-mm", "0"), ["travel", "within"]),
     ],
 )
-def test_bad_input_one_line(cli, args, words):
+def test_bad_input_one_line(cli, args, words, one_line_error):
     code, out, err = cli(*args)
-    line = _one_line_error(code, err)
+    line = one_line_error(code, err)
     for w in words:
         assert w in line, line
 
 
-def test_pad_on_an_unknown_face(cli, tmp_path):
+def test_pad_on_an_unknown_face(cli, tmp_path, one_line_error):
     text = CARRIAGE.read_text().replace('face = "underside"', 'face = "bottom"', 1)
     bad = tmp_path / "c.toml"
     bad.write_text(text)
     code, out, err = cli("guideway", BODY, "--carriage", bad, *FAST)
-    line = _one_line_error(code, err)
+    line = one_line_error(code, err)
     assert "'bottom'" in line and re.search(r"faces: 'top', 'underside'", line)
 
 
@@ -180,13 +172,13 @@ def test_two_rail_body_in_inches(cli, tmp_path):
     assert "µm" not in out.split("Rails")[1].split("\n")[0]
 
 
-def test_pad_stiffness_weight_is_refused(cli, tmp_path):
+def test_pad_stiffness_weight_is_refused(cli, tmp_path, one_line_error):
     text = CARRIAGE.read_text()
     head, sep, tail = text.partition("[[carriage.pad]]\n")
     bad = tmp_path / "c.toml"
     bad.write_text(head + sep + "stiffness = 2.0\n" + tail)
     code, out, err = cli("guideway", BODY, "--carriage", bad, *FAST)
-    line = _one_line_error(code, err)
+    line = one_line_error(code, err)
     assert "stiffness" in line and "c.toml" in line and "remove stiffness" in line
 
 
@@ -241,10 +233,10 @@ def test_report_of_a_body_alone_draws_user_text_literally(cli, tmp_path, pdf_too
     _ink_free_margins(render(pdf, dpi=40))
 
 
-def test_report_may_not_overwrite_an_input(cli, tmp_path):
+def test_report_may_not_overwrite_an_input(cli, tmp_path, one_line_error):
     body = _two_rail_body(tmp_path)
     before = (tmp_path / "rail-a.csv").read_bytes()
     code, out, err = cli("guideway", body, "--report", tmp_path / "rail-a.csv")
-    line = _one_line_error(code, err)
+    line = one_line_error(code, err)
     assert "--report" in line
     assert (tmp_path / "rail-a.csv").read_bytes() == before

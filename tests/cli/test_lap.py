@@ -27,13 +27,6 @@ def hill_csv(tmp_path):
     return write_surface(tmp_path / "hill.csv", _hill)
 
 
-def one_line_error(code, out, err):
-    assert code == 2
-    assert out == ""
-    assert err.count("\n") == 1 and err.startswith("flatcheck: error:")
-    assert "Traceback" not in err
-
-
 def test_pinned_json_contract(cli, hill_csv):
     code, out, err = cli("lap", hill_csv, "--target-um", "0.8", "--json")
     assert code == 0
@@ -121,16 +114,20 @@ def test_target_from_grade(cli, hill_csv):
         ("--target-um", "1", "--levels", "0"),
     ],
 )
-def test_bad_options_one_line(cli, hill_csv, args):
-    one_line_error(*cli("lap", hill_csv, *args))
+def test_bad_options_one_line(cli, hill_csv, args, one_line_error):
+    code, out, err = cli("lap", hill_csv, *args)
+    one_line_error(code, err, out=out, quiet=True)
 
 
-def test_bad_files_one_line(cli, tmp_path, hill_csv):
-    one_line_error(*cli("lap", tmp_path / "missing.csv", "--target-um", "1"))
+def test_bad_files_one_line(cli, tmp_path, hill_csv, one_line_error):
+    code, out, err = cli("lap", tmp_path / "missing.csv", "--target-um", "1")
+    one_line_error(code, err, out=out, quiet=True)
     bad = tmp_path / "bad.csv"
     bad.write_text("x_mm,y_mm,height_um\n0,0,1\n1,0,abc\n", encoding="utf-8")
-    one_line_error(*cli("lap", bad, "--target-um", "1"))
-    one_line_error(*cli("lap", hill_csv, "--target-um", "1", "--plan-out", tmp_path / "nofolder" / "p.txt"))
+    code, out, err = cli("lap", bad, "--target-um", "1")
+    one_line_error(code, err, out=out, quiet=True)
+    code, out, err = cli("lap", hill_csv, "--target-um", "1", "--plan-out", tmp_path / "nofolder" / "p.txt")
+    one_line_error(code, err, out=out, quiet=True)
 
 
 # ---------------------------------------------------------------- regressions found by trying the command as a new user
@@ -156,16 +153,16 @@ def test_bad_files_one_line(cli, tmp_path, hill_csv):
         (("--lap-size-mm", "1300x900"), "--lap-size-mm"),
     ],
 )
-def test_bad_option_names_the_option(cli, hill_csv, args, option):
+def test_bad_option_names_the_option(cli, hill_csv, args, option, one_line_error):
     code, out, err = cli("lap", hill_csv, "--target-um", "1", *args)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {option}:")
 
 
-def test_bad_grade_names_target_grade(cli, hill_csv):
+def test_bad_grade_names_target_grade(cli, hill_csv, one_line_error):
     # the tolerance tables said "--grade", an option lap does not have
     code, out, err = cli("lap", hill_csv, "--target-grade", "din-876:7")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith("flatcheck: error: --target-grade:") and "00, 0, 1, 2, 3" in err
 
 
@@ -175,13 +172,13 @@ def test_lap_of_usable_size_is_accepted(cli, hill_csv):
     assert code == 0, err
 
 
-def test_no_output_written_when_another_output_is_bad(cli, hill_csv, tmp_path):
+def test_no_output_written_when_another_output_is_bad(cli, hill_csv, tmp_path, one_line_error):
     # the removal map used to be written before the plan file's missing folder was found
     rem = tmp_path / "removal.csv"
     code, out, err = cli(
         "lap", hill_csv, "--target-um", "0.8", "--removal-csv", rem, "--plan-out", tmp_path / "nofolder" / "p.txt"
     )
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert "--plan-out" in err and not rem.exists()
 
 
@@ -253,9 +250,9 @@ def test_sample_pad_plan_is_tidier(cli):
         assert key in doc
 
 
-def test_bad_min_pass_fraction_names_option(cli, hill_csv):
+def test_bad_min_pass_fraction_names_option(cli, hill_csv, one_line_error):
     code, out, err = cli("lap", hill_csv, "--target-um", "1", "--min-pass-fraction", "1.5")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith("flatcheck: error: --min-pass-fraction:")
 
 
@@ -304,10 +301,10 @@ def test_rounding_loss_is_not_blamed_on_the_lap(cli, tmp_path):
 
 
 @pytest.mark.parametrize("target", [("--target-um", "1.5"), ("--target-grade", "din-876:0"), ()])
-def test_gap_fraction_without_a_gap_target_is_refused(cli, target):
+def test_gap_fraction_without_a_gap_target_is_refused(cli, target, one_line_error):
     # --gap-fraction was silently ignored beside --target-um
     code, out, err = cli("lap", SAMPLES / "plate-KY-P3-2024-03-11.toml", *target, "--gap-fraction", "0.3")
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith("flatcheck: error: --gap-fraction:") and "--target-gap-um" in err
     if target:
         assert f"not with {target[0]}" in err
@@ -322,9 +319,9 @@ def test_gap_fraction_without_a_gap_target_is_refused(cli, target):
         (("--cell-mm", "2"), "--cell-mm"),
     ],
 )
-def test_too_many_chart_cells_names_cell_mm_and_the_size_that_fits(cli, args, option):
+def test_too_many_chart_cells_names_cell_mm_and_the_size_that_fits(cli, args, option, one_line_error):
     code, out, err = cli("lap", SAMPLES / "plate-KY-P3-2024-03-11.toml", "--target-um", "1.5", *args)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert err.startswith(f"flatcheck: error: {option}:")
     need = float(err.split("give --cell-mm ")[1].split()[0])
     # the size offered fits: ceil(1000 / c) x ceil(630 / c) <= 26 x 99 cells (the plate is 1000 x 630 mm)
@@ -394,15 +391,15 @@ def test_microinch_output_has_sensible_decimals(cli, tmp_path):
     assert depths and all(re.fullmatch(r"\d+\.\d", d) for d in depths)
 
 
-def test_outputs_never_replace_the_input(cli, hill_csv, tmp_path):
+def test_outputs_never_replace_the_input(cli, hill_csv, tmp_path, one_line_error):
     text = hill_csv.read_text(encoding="utf-8")
     for option in ("--plan-out", "--removal-csv"):
         code, out, err = cli("lap", hill_csv, "--target-um", "0.8", option, tmp_path / ".." / tmp_path.name / hill_csv.name)
-        one_line_error(code, out, err)
+        one_line_error(code, err, out=out, quiet=True)
         assert err.startswith(f"flatcheck: error: {option}:") and hill_csv.read_text(encoding="utf-8") == text
     same = tmp_path / "out.txt"
     code, out, err = cli("lap", hill_csv, "--target-um", "0.8", "--plan-out", same, "--removal-csv", same)
-    one_line_error(code, out, err)
+    one_line_error(code, err, out=out, quiet=True)
     assert not same.exists()
 
 

@@ -10,13 +10,6 @@ import pytest
 from flatcheck.io import read_survey
 
 
-def _one_line_error(code, out, err):
-    assert code == 2
-    assert "Traceback" not in err and "Traceback" not in out
-    assert len(err.strip().splitlines()) == 1
-    assert err.startswith("flatcheck: error:")
-
-
 def test_plan_union_jack_writes_blank(cli, tmp_path):
     out_file = tmp_path / "blank.toml"
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", out_file)
@@ -31,11 +24,11 @@ def test_plan_union_jack_writes_blank(cli, tmp_path):
     assert "SW > SW-NE.1" in out  # the reading sequence
 
 
-def test_plan_refuses_overwrite(cli, tmp_path):
+def test_plan_refuses_overwrite(cli, tmp_path, one_line_error):
     p = tmp_path / "exists.toml"
     p.write_text("keep me")
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", p)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "--force" in err and p.read_text() == "keep me"
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", p, "--force")
     assert code == 0 and read_survey(p).pattern == "union-jack"
@@ -67,9 +60,9 @@ def test_plan_json(cli):
         (("--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", "/no/such/dir/x.toml"), "does not exist"),
     ],
 )
-def test_plan_bad_input(cli, args, needle):
+def test_plan_bad_input(cli, args, needle, one_line_error):
     code, out, err = cli("plan", *args)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert needle in err
 
 
@@ -89,41 +82,41 @@ def test_plan_bad_input(cli, args, needle):
          "--diagonals", "square"),
     ],
 )
-def test_plan_errors_name_the_option(cli, args, option, needle):
+def test_plan_errors_name_the_option(cli, args, option, needle, one_line_error):
     code, out, err = cli("plan", *args)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert err.startswith(f"flatcheck: error: {option}:") and needle in err
 
 
-def test_plan_refuses_absurd_foot_spacing_quickly(cli):
+def test_plan_refuses_absurd_foot_spacing_quickly(cli, one_line_error):
     # 0.01 mm (a slip for 100 mm) once built ~670 000 readings and printed 9 MB over 30 s.
     # 1000 x 630 mm less 30 mm margins: 94 000 x 57 000 steps of 0.01 mm -> far above the cap.
     import time
 
     t0 = time.perf_counter()
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 0.01)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "--foot-spacing-mm" in err and "readings per pass" in err
     assert time.perf_counter() - t0 < 5.0
 
 
-def test_plan_output_checked_before_work(cli, tmp_path):
+def test_plan_output_checked_before_work(cli, tmp_path, one_line_error):
     # a folder given as the output file, and a missing folder: one-line errors naming --output
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", tmp_path)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "--output" in err and "folder" in err
     code, out, err = cli(
         "plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 100, "-o", tmp_path / "no" / "x.toml"
     )
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert "does not exist" in err
 
 
-def test_plan_failure_keeps_existing_file(cli, tmp_path):
+def test_plan_failure_keeps_existing_file(cli, tmp_path, one_line_error):
     p = tmp_path / "exists.toml"
     p.write_text("keep me")
     code, out, err = cli("plan", "--length-mm", 1000, "--width-mm", 630, "--foot-spacing-mm", 0, "-o", p, "--force")
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert p.read_text() == "keep me"
 
 
@@ -193,9 +186,9 @@ def test_plan_in_inches_writes_an_inch_blank_file(cli, tmp_path):
         (("--length-in", 48, "--length-mm", 1000, "--width-in", 36, "--foot-spacing-in", 4), "--length-in", "once"),
     ],
 )
-def test_plan_inch_errors_speak_inches(cli, args, option, needle):
+def test_plan_inch_errors_speak_inches(cli, args, option, needle, one_line_error):
     code, out, err = cli("plan", *args)
-    _one_line_error(code, out, err)
+    one_line_error(code, err, out=out)
     assert err.startswith(f"flatcheck: error: {option}:") and needle in err
     assert not re.search(r"\d mm|is in mm", err), err  # no size stated in mm, no "check it is in mm"
 

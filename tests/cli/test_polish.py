@@ -17,10 +17,6 @@ P3 = SAMPLES / "plate-KY-P3-2024-03-11.toml"
 G1 = SAMPLES / "guideway-KY-G1.toml"
 
 
-def _one_line_error(code, err):
-    assert code == 2 and err.startswith("flatcheck: error: ") and err.count("\n") == 1 and "Traceback" not in err
-
-
 @pytest.fixture
 def tilted_csv(tmp_path):
     """A 5 x 4 height map: a tilt of 2 µm/m along x and -1 µm/m along y with a 0.5 µm bump (invented)."""
@@ -117,7 +113,7 @@ def test_item10_grade_prints_no_provenance_beside_a_limit(cli):
     assert out.count("not checked against the standard's own text") == 1 and "--tolerance-um" in out
 
 
-def test_item11_report_takes_the_gap_target_and_makes_the_picture_folder(cli, tmp_path):
+def test_item11_report_takes_the_gap_target_and_makes_the_picture_folder(cli, tmp_path, one_line_error):
     pics = tmp_path / "new" / "pictures"
     code, out, err = cli("report", P3, "-o", tmp_path / "r.pdf", "--no-uncertainty", "--window", "none",
                          "--target-gap-um", "8", "--lap-diameter-mm", "150", "--png", pics, "--json")
@@ -131,7 +127,7 @@ def test_item11_report_takes_the_gap_target_and_makes_the_picture_folder(cli, tm
     blocker = tmp_path / "blocker"
     blocker.write_text("mine", encoding="utf-8")
     code, out, err = cli("report", P3, "-o", tmp_path / "r2.pdf", "--no-uncertainty", "--png", blocker)
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert blocker.read_text(encoding="utf-8") == "mine"
 
 
@@ -186,9 +182,9 @@ def test_item14_compare_plot_labels_one_spot_with_one_depth_and_carries_its_capt
     assert (img[: img.shape[0] // 12] < 0.5).mean() > 0.002  # the caption's text above the views
 
 
-def test_item17_no_command_prints_an_error_line(cli):
+def test_item17_no_command_prints_an_error_line(cli, one_line_error):
     code, out, err = cli()
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert "Usage:" in out
 
 
@@ -198,13 +194,13 @@ def test_item18_asme_diagonal_is_said_to_change_nothing(cli):
     assert "defined on the plate's diagonal anyway" in out
 
 
-def test_item26_demo_refuses_to_replace_a_persons_file_without_force(cli, tmp_path):
+def test_item26_demo_refuses_to_replace_a_persons_file_without_force(cli, tmp_path, one_line_error):
     folder = tmp_path / "demo"
     folder.mkdir()
     mine = folder / "flatcheck-demo-survey.toml"
     mine.write_text("my own survey", encoding="utf-8")
     code, out, err = cli("demo", "--out", folder)
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert "--force" in err and mine.read_text(encoding="utf-8") == "my own survey"
     assert not (folder / "flatcheck-demo-report.pdf").exists()
 

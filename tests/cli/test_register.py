@@ -19,15 +19,6 @@ def _sha(path):
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
-def _one_line_error(code, err, *words):
-    assert code == 2
-    assert "Traceback" not in err
-    lines = err.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("flatcheck: error: ")
-    for w in words:
-        assert w in lines[0]
-
-
 def _copy(tmp_path, *names):
     out = []
     for n in names:
@@ -96,7 +87,7 @@ def test_due_date_follows_from_the_interval(cli, tmp_path):
     assert json.loads(out)["items"][0]["due_date"] == "2024-05-23"
 
 
-def test_corrupted_register_is_refused_and_left_unchanged(cli, tmp_path):
+def test_corrupted_register_is_refused_and_left_unchanged(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     (f,) = _copy(tmp_path, P3[0])
     assert cli("register", "add", f, "--db", db, *FAST)[0] == 0
@@ -116,22 +107,22 @@ def test_corrupted_register_is_refused_and_left_unchanged(cli, tmp_path):
     for args in (("register", "history", "KY-P3"), ("register", "add", g, *FAST), ("register", "due"),
                  ("register", "surface", "KY-P3", "--interval-months", "6")):
         code, out, err = cli(*args, "--db", db)
-        _one_line_error(code, err, "damaged", str(db))
+        one_line_error(code, err, "damaged", str(db))
         assert _sha(db) == before
 
 
-def test_truncated_register_is_refused_unchanged(cli, tmp_path):
+def test_truncated_register_is_refused_unchanged(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     (f,) = _copy(tmp_path, P3[0])
     assert cli("register", "add", f, "--db", db, *FAST)[0] == 0
     db.write_bytes(db.read_bytes()[:20000])
     before = _sha(db)
     code, out, err = cli("register", "history", "KY-P3", "--db", db)
-    _one_line_error(code, err, "damaged")
+    one_line_error(code, err, "damaged")
     assert _sha(db) == before
 
 
-def test_foreign_sqlite_file_is_refused_unchanged(cli, tmp_path):
+def test_foreign_sqlite_file_is_refused_unchanged(cli, tmp_path, one_line_error):
     db = tmp_path / "inventory.sqlite"
     con = sqlite3.connect(db)
     con.execute("CREATE TABLE tools (id INTEGER PRIMARY KEY, name TEXT)")
@@ -140,7 +131,7 @@ def test_foreign_sqlite_file_is_refused_unchanged(cli, tmp_path):
     before = _sha(db)
     (f,) = _copy(tmp_path, P3[0])
     code, out, err = cli("register", "add", f, "--db", db, *FAST)
-    _one_line_error(code, err, "not a flatcheck register")
+    one_line_error(code, err, "not a flatcheck register")
     assert _sha(db) == before
 
 
@@ -148,19 +139,19 @@ def test_foreign_sqlite_file_is_refused_unchanged(cli, tmp_path):
     (b"some notes\n", ("not an SQLite database",)),
     (b"", ("empty",)),
 ])
-def test_other_files_as_db_are_refused_unchanged(cli, tmp_path, content, words):
+def test_other_files_as_db_are_refused_unchanged(cli, tmp_path, content, words, one_line_error):
     db = tmp_path / "notes.txt"
     db.write_bytes(content)
     (f,) = _copy(tmp_path, P3[0])
     code, out, err = cli("register", "add", f, "--db", db, *FAST)
-    _one_line_error(code, err, *words)
+    one_line_error(code, err, *words)
     assert db.read_bytes() == content
 
 
-def test_no_register_yet_for_reading(cli, tmp_path):
+def test_no_register_yet_for_reading(cli, tmp_path, one_line_error):
     db = tmp_path / "none.sqlite"
     code, out, err = cli("register", "history", "KY-P3", "--db", db)
-    _one_line_error(code, err, "no register here yet")
+    one_line_error(code, err, "no register here yet")
     assert not db.exists()
 
 
@@ -172,19 +163,19 @@ def test_register_place_from_the_environment(cli, tmp_path, monkeypatch):
     assert code == 0 and db.exists() and str(db) in out
 
 
-def test_same_survey_twice_is_refused(cli, tmp_path):
+def test_same_survey_twice_is_refused(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     (f,) = _copy(tmp_path, P3[0])
     assert cli("register", "add", f, "--db", db, *FAST)[0] == 0
     before = cli("register", "history", "KY-P3", "--db", db, "--json")[1]
     code, out, err = cli("register", "add", f, "--db", db, *FAST)
-    _one_line_error(code, err, "already in the register as survey 1", f.name)
+    one_line_error(code, err, "already in the register as survey 1", f.name)
     assert cli("register", "history", "KY-P3", "--db", db, "--json")[1] == before
     # a copy under another name, with Windows line ends, is the same survey
     g = tmp_path / "copy.toml"
     g.write_bytes(f.read_bytes().replace(b"\n", b"\r\n"))
     code, out, err = cli("register", "add", g, "--db", db, *FAST)
-    _one_line_error(code, err, "already in the register")
+    one_line_error(code, err, "already in the register")
 
 
 def test_many_files_one_bad_exit_2_others_added(cli, tmp_path):
@@ -207,13 +198,13 @@ def test_many_files_one_bad_exit_2_others_added(cli, tmp_path):
     assert len(json.loads(out)) == 1
 
 
-def test_a_file_without_ident_or_date_is_named(cli, tmp_path):
+def test_a_file_without_ident_or_date_is_named(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     (pad,) = _copy(tmp_path, "pad-KY-B4-heights.csv")
     code, out, err = cli("register", "add", pad, "--db", db)
-    _one_line_error(code, err, "pad-KY-B4-heights.csv", "no ident", "--ident")
+    one_line_error(code, err, "pad-KY-B4-heights.csv", "no ident", "--ident")
     code, out, err = cli("register", "add", pad, "--db", db, "--ident", "KY-B4")
-    _one_line_error(code, err, "no date", "--date")
+    one_line_error(code, err, "no date", "--date")
     code, out, err = cli("register", "add", pad, "--db", db, "--ident", "KY-B4", "--date", "2024-03-15",
                          "--u-height-um", "0.02", *FAST, "--json")
     assert code == 0
@@ -235,7 +226,7 @@ def test_height_map_csv_with_identity_comments(cli, tmp_path):
     assert (s["length_mm"], s["width_mm"]) == (80.0, 80.0)
 
 
-def test_export_csv_reads_back(cli, tmp_path):
+def test_export_csv_reads_back(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     files = _copy(tmp_path, *P3)
     assert cli("register", "add", *files, "--db", db, *FAST)[0] == 0
@@ -249,7 +240,7 @@ def test_export_csv_reads_back(cli, tmp_path):
     rows = list(csv.DictReader(io.StringIO((tmp_path / "results.csv").read_text(encoding="utf-8-sig"))))
     assert [float(r["flatness_um"]) for r in rows] == [h["flatness_um"] for h in hist]  # full precision
     code, out, err = cli("register", "export", db, "--db", db)
-    _one_line_error(code, err, "input file")
+    one_line_error(code, err, "input file")
 
 
 def test_certificate_station_heights_equal_reduce_json(cli, tmp_path):
@@ -290,7 +281,7 @@ grades = ["00", "0"]
     assert json.loads(out)["number"] == "KY-2026-0001"
 
 
-def test_out_of_calibration_survey_is_flagged(cli, tmp_path):
+def test_out_of_calibration_survey_is_flagged(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     code, out, err = cli("register", "instrument", "KY-AC-114", "--db", db, "--kind", "autocollimator",
                          "--calibrated", "2023-01-10", "--interval-months", "12", "--certificate", "KY-CAL-0042")
@@ -303,10 +294,10 @@ def test_out_of_calibration_survey_is_flagged(cli, tmp_path):
     assert d["out_of_calibration_surveys"][0]["survey_id"] == 1
     assert "due for calibration on 2024-01-10" in d["out_of_calibration_surveys"][0]["reason"]
     code, out, err = cli("register", "add", f, "--db", db, "--instrument", "KY-NONE", *FAST)
-    _one_line_error(code, err, "already in the register")
+    one_line_error(code, err, "already in the register")
 
 
-def test_wear_between_two_surveys(cli, tmp_path):
+def test_wear_between_two_surveys(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     files = _copy(tmp_path, *P3[:2])
     assert cli("register", "add", *files, "--db", db, *FAST)[0] == 0
@@ -319,10 +310,10 @@ def test_wear_between_two_surveys(cli, tmp_path):
     assert w["most_worn"]["change_um"] == min(s["change_um"] for s in w["stations"])
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     code, out, err = cli("register", "wear", "KY-P3", "--db", db, "--from", "2024-04-02", "--to", "2024-03-11")
-    _one_line_error(code, err, "older")
+    one_line_error(code, err, "older")
 
 
-def test_history_plot_and_unknown_surface(cli, tmp_path):
+def test_history_plot_and_unknown_surface(cli, tmp_path, one_line_error):
     db = tmp_path / "reg.sqlite"
     files = _copy(tmp_path, *P3)
     assert cli("register", "add", *files, "--db", db, *FAST)[0] == 0
@@ -330,9 +321,9 @@ def test_history_plot_and_unknown_surface(cli, tmp_path):
     code, out, err = cli("register", "history", "KY-P3", "--db", db, "--plot", png)
     assert code == 0 and png.read_bytes()[:4] == b"\x89PNG"
     code, out, err = cli("register", "history", "KY-P9", "--db", db)
-    _one_line_error(code, err, "no surface 'KY-P9'", "KY-P3")
+    one_line_error(code, err, "no surface 'KY-P9'", "KY-P3")
     code, out, err = cli("register", "history", "KY-P3", "--db", db, "--plot", db)
-    _one_line_error(code, err, "input file")
+    one_line_error(code, err, "input file")
 
 
 def test_user_text_is_printed_literally(cli, tmp_path):

@@ -20,12 +20,6 @@ def plate_csv(tmp_path):
     return path
 
 
-def _one_line_error(code, err):
-    assert code == 2
-    assert err.startswith("flatcheck: error: ") and err.count("\n") == 1
-    assert "Traceback" not in err
-
-
 def test_report_writes_pdf_and_pictures(cli, plate_csv, tmp_path, pdf_tools):
     pics = tmp_path / "pics"
     pics.mkdir()
@@ -67,16 +61,16 @@ def test_report_human_summary(cli, plate_csv, tmp_path):
         ("-o", "r.pdf", "--target-um", "1", "--lap-size-mm", "80by40"),
     ],
 )
-def test_bad_options_are_one_line_errors(cli, plate_csv, tmp_path, monkeypatch, args):
+def test_bad_options_are_one_line_errors(cli, plate_csv, tmp_path, monkeypatch, args, one_line_error):
     monkeypatch.chdir(tmp_path)
     code, out, err = cli("report", plate_csv, *args)
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert not (tmp_path / "r.pdf").exists()
 
 
-def test_missing_input_is_a_one_line_error(cli, tmp_path):
+def test_missing_input_is_aone_line_error(cli, tmp_path, one_line_error):
     code, out, err = cli("report", tmp_path / "nothing.csv", "-o", tmp_path / "r.pdf")
-    _one_line_error(code, err)
+    one_line_error(code, err)
 
 
 SAMPLE = Path(__file__).resolve().parents[2] / "flatcheck" / "data" / "plate-KY-P3-2024-03-11.toml"
@@ -139,9 +133,9 @@ def test_lapping_page_takes_the_users_lap_and_rate(cli, plate_csv, tmp_path, pdf
     assert "Removal rate as given by the user: 0.5 µm per min" in text["g.pdf"]
 
 
-def test_lap_options_without_a_target_are_a_one_line_error(cli, plate_csv, tmp_path):
+def test_lap_options_without_a_target_are_aone_line_error(cli, plate_csv, tmp_path, one_line_error):
     code, out, err = cli("report", plate_csv, "-o", tmp_path / "r.pdf", "--rate-um-per-min", "0.5")
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert not (tmp_path / "r.pdf").exists()
 
 
@@ -159,9 +153,9 @@ def test_lap_options_without_a_target_are_a_one_line_error(cli, plate_csv, tmp_p
         (("--stroke-mm", "-1"), "--stroke-mm"),
     ],
 )
-def test_lap_options_are_checked_as_lap_checks_them(cli, tmp_path, args, option):
+def test_lap_options_are_checked_as_lap_checks_them(cli, tmp_path, args, option, one_line_error):
     code, out, err = cli("report", SAMPLE, "-o", tmp_path / "r.pdf", "--target-um", "1", "--no-uncertainty", *args)
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert err.startswith(f"flatcheck: error: {option}:")
     assert not (tmp_path / "r.pdf").exists()
 
@@ -246,12 +240,12 @@ def test_status_line_shows_only_on_a_terminal(monkeypatch):
         assert ("lapping plan: least removal" in buf.getvalue()) is tty
 
 
-def test_report_never_writes_over_its_input(cli, plate_csv, tmp_path):
+def test_report_never_writes_over_its_input(cli, plate_csv, tmp_path, one_line_error):
     # a height map is read whatever its name, so `report map.pdf -o map.pdf` would have replaced the input
     src = tmp_path / "map.pdf"
     src.write_bytes(plate_csv.read_bytes())
     code, out, err = cli("report", src, "-o", src, "--no-uncertainty")
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert err.startswith("flatcheck: error: -o:") and src.read_bytes() == plate_csv.read_bytes()
     # nor can a picture replace an input that happens to carry a picture's name in the --png folder
     pics = tmp_path / "pics"
@@ -259,7 +253,7 @@ def test_report_never_writes_over_its_input(cli, plate_csv, tmp_path):
     src = pics / "02-surface-map.png"
     src.write_bytes(plate_csv.read_bytes())
     code, out, err = cli("report", src, "-o", tmp_path / "r.pdf", "--png", pics, "--no-uncertainty")
-    _one_line_error(code, err)
+    one_line_error(code, err)
     assert err.startswith("flatcheck: error: --png:") and src.read_bytes() == plate_csv.read_bytes()
 
 
