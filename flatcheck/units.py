@@ -246,8 +246,8 @@ def format_height(v_um: float, units: str, *, unit: bool = True, step_um: float 
 
     ``step_um`` is the height step the measurement resolves
     (:meth:`flatcheck.evaluation.MeasuredSurface.height_step_um`); see :func:`height_decimals`.
-    Without it, µm to the nm and µin to 0.1 µin. ``unit=False`` gives the number alone (table
-    columns that name the unit in their header).
+    Without it, µm to the nm and µin to 0.1 µin. A height that rounds to zero has no sign. ``unit=False``
+    gives the number alone (table columns that name the unit in their header).
 
     Examples
     --------
@@ -256,6 +256,8 @@ def format_height(v_um: float, units: str, *, unit: bool = True, step_um: float 
     """
     v = um_to(v_um, units)
     text = f"{v:.{height_decimals(step_um, units)}f}"
+    if text.startswith("-") and float(text) == 0.0:  # a tiny negative height rounds to zero: no sign on it
+        text = text[1:]
     return f"{text} {height_unit_label(units)}" if unit else text
 
 

@@ -118,7 +118,8 @@ def test_format_height_to_the_step_and_limits_as_stated():
 
     step = 100e3 * math.tan(math.radians(0.05 / 3600))  # 0.0242 µm, as above
     assert format_height(2.48624, "um", step_um=step) == "2.49 µm"
-    assert format_height(-0.004, "um", step_um=step, unit=False) == "-0.00"  # sign kept; views drop it on a zero
+    assert format_height(-0.004, "um", step_um=step, unit=False) == "0.00"  # no sign on a height that rounds to 0
+    assert format_height(-0.006, "um", step_um=step, unit=False) == "-0.01"
     # 2.54 µm = 100 µin exactly (1 µin = 0.0254 µm, international inch, 1959)
     assert format_height(2.54, "in", step_um=step) == "100 µin"
     # a limit is stated, not measured: DIN 876 grade 00 at 1000 mm is 4 µm (t = 2 (1 + 1000/1000), from memory)

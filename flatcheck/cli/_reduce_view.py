@@ -24,9 +24,7 @@ def _fmt(v, units, step_um=None):
     (:func:`flatcheck.units.height_decimals`); '-' when there is none."""
     if not _finite(v):
         return "-"
-    text = format_height(v, units, unit=False, step_um=step_um)
-    # a tiny negative number rounds to "-0.000": no sign on a zero
-    return text[1:] if text.startswith("-") and float(text) == 0 else text
+    return format_height(v, units, unit=False, step_um=step_um)
 
 
 def _window_text(lf: dict, units: str) -> str:

@@ -40,7 +40,6 @@ angles in arcsec: the key names say so.
 from __future__ import annotations
 
 import math
-import re
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path

@@ -30,7 +30,7 @@ import tomllib
 from pathlib import Path
 
 from ..errors import InputFormatError, InputValueError, LayoutError, UnitError
-from ..survey import UNION_JACK_LINES, plan_grid, plan_lines, plan_union_jack
+from ..survey import plan_grid, plan_lines, plan_union_jack
 from ..survey import INSTRUMENT_KINDS, PATTERNS, Instrument, Run, Surface, Survey, check_plausible_readings
 from ..units import MM_PER_INCH, angle_unit, length_unit
 from ._atomic import write_text_atomic

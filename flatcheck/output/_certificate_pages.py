@@ -206,8 +206,7 @@ def _height_number(v_um, units: str, step_um: float | None = None) -> str:
     """A station height without its unit, as printed in the table, to the step the survey resolves; never "-0.00"."""
     from ..units import format_height
 
-    text = format_height(v_um, units, unit=False, step_um=step_um)
-    return text[1:] if text.startswith("-") and not text.strip("-0.") else text
+    return format_height(v_um, units, unit=False, step_um=step_um)
 
 
 def _position(v_mm, units: str) -> str:

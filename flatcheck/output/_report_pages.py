@@ -34,14 +34,6 @@ _PLAN_RECT_LEFT = 0.11  # room for a two-line y label of a stretched plan view
 _TEXT_FS = 8.0  # tables and notes on drawing pages
 
 
-def _closure(v_um, units, step_um=None) -> str:
-    """A closure error to the step the survey resolves, as every height without U (never "-0.00")."""
-    from ..units import format_height
-
-    text = format_height(v_um, units, step_um=step_um)
-    return text[1:] if text.startswith("-") and not text.strip("-0. µmin") else text
-
-
 def _tolerance(v_um, units) -> str:
     """A limit at the precision its source gives it: one decimal for 0.1 µm steps, else 0.01 µm; whole µin."""
     from ..units import height_unit_label, um_to

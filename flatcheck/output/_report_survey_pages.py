@@ -12,13 +12,13 @@ from __future__ import annotations
 import numpy as np
 
 from ._report_content import _h, _in_units
-from ._report_pages import _BOTTOM, _PLAN_RECT_LEFT, _TEXT_FS, _TOP, _closure, _num, _pos
+from ._report_pages import _BOTTOM, _PLAN_RECT_LEFT, _TEXT_FS, _TOP, _num, _pos
 
 
 def _layout_rows(c, units):
     rows = []
     for ln in c.lines:
-        closure = "" if ln.closure_um is None else _closure(ln.closure_um, units, c.height_step_um) + (
+        closure = "" if ln.closure_um is None else _h(ln.closure_um, units, c.height_step_um) + (
             f" at {ln.closure_station}" if ln.closure_station else "")
         rows.append((ln.name, _pos(ln.s_mm[-1], units), f"{len(ln.s_mm) - 1}",
                      "" if ln.rms_residual_um is None else _h(ln.rms_residual_um, units, c.height_step_um),
@@ -78,7 +78,7 @@ def _page_layout(fig, c, units, histogram=None):
     sv = c.survey
     index = {s.name: i for i, s in enumerate(sv.stations)}
     lines = [(ln.name, np.array([index[s] for s in ln.stations])) for ln in sv.lines]
-    notes = {ln.name: f"closure {_closure(ln.closure_um, units, c.height_step_um)}" for ln in c.lines if ln.closure_um is not None}
+    notes = {ln.name: f"closure {_h(ln.closure_um, units, c.height_step_um)}" for ln in c.lines if ln.closure_um is not None}
     ax, bottom = _layout_plan_bottom(c, fig)
     plot.survey_layout(ax, np.column_stack([sv.x_mm, sv.y_mm]), lines, step_um=c.height_step_um, length_mm=sv.surface.length_mm,
                        width_mm=sv.surface.width_mm, line_notes=notes, units=units,

@@ -49,8 +49,6 @@ def _fmt_step(v_um: float, units: str, step_um: float | None, *, signed: bool = 
     from ...units import format_height
 
     text = format_height(v_um, units, step_um=step_um)
-    if text.startswith("-") and not text.strip("-0. µmin"):
-        text = text[1:]
     return "+" + text if signed and not text.startswith("-") and text.strip("0. µmin") else text
 
 
