@@ -421,11 +421,12 @@ def bearing_cmd(
                          kind_given=kind is not None, from_file=bearing is not None)
         film, result = _film(surface, carriage, result, feed, load_n, not film_fixed, film_mesh, interp.value)
     label = surface.label or input.name
+    step = loaded.height_step_um(load_lab_defaults(uncertainty_defaults))  # printed heights' step
     if plot_out is not None:
         from ..output import _plots as plot
 
         fig = plot.new_figure((11.0, 7.0))
-        plot.bearing_motion(fig, result, units=units.value, step_um=loaded.height_step_um())
+        plot.bearing_motion(fig, result, units=units.value, step_um=step)
         plot.save_png(fig, plot_out, dpi=120, caption=(
             label, f"{input.name} · pictured by flatcheck · air-bearing carriage over its travel: path, surface, "
             "pitch and local flatness under the pads"))
@@ -435,7 +436,7 @@ def bearing_cmd(
             _add_film_json(data, film)
         emit_json(data)
     else:
-        render_summary(result, label=label, units=units.value, step_um=loaded.height_step_um())
+        render_summary(result, label=label, units=units.value, step_um=step)
         if film is not None:
             _render_film(film, units=units.value)
         if plot_out is not None:

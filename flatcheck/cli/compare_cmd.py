@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING
 
 from ._app import app
 from .common import (
+    load_lab_defaults,
     refuse_unused,
     check_option_ranges,
     GAP_FRACTION_HELP,
@@ -378,6 +379,9 @@ def compare_cmd(
     check_output(plot_out, "--plot")
     lb = load_input(before)
     la = load_input(after)
+    # printed heights: a change is known no finer than the coarser of the two surveys resolves
+    lab = load_lab_defaults(uncertainty_defaults)
+    step = max(lb.height_step_um(lab), la.height_step_um(lab))
     _check_same_surface(lb, la)
     hb, ha = lb.heightmap, la.heightmap
     try:
@@ -432,7 +436,7 @@ def compare_cmd(
         axes = plot.compare_change_map(None, pr.x_mm, pr.y_mm, hb.height_um, ha.height_um[idx], pr.removed_um,
                                        units=units.value, length_mm=hb.length_mm, width_mm=hb.width_mm,
                                        change_um=pr.change_referred_um,
-                                       step_um=max(lb.height_step_um(), la.height_step_um()))
+                                       step_um=step)
         plot.save_png(axes[0].figure, plot_out, dpi=120, caption=_plot_caption(lb, la, before, after))
     if json_out:
         doc = progress_json(pr, before=before, after=after, lap=lap, target_source=source, units=units.value)
@@ -443,8 +447,6 @@ def compare_cmd(
                        target_decision_rule=None if decision is None else decision.statement)
         emit_json(doc)
     else:
-        # a change is known no finer than the coarser of the two surveys resolves
-        step = max(lb.height_step_um(), la.height_step_um())
         render_summary(pr, lap=lap, target_source=source, units=units.value, names=hb.names, target=tgt,
                        decision=decision, step_um=step)
         if plot_out is not None:

@@ -153,6 +153,7 @@ def grade_cmd(
         check_range(trials, "trials", where="--trials", name="the number of trials")
     loaded = load_input(input)
     hm = loaded.heightmap
+    lab = load_lab_defaults(uncertainty_defaults)
     mc_note = None
     # By default U comes from the flatness engine whenever the input carries what it needs (a survey's
     # readings, or a height map with --u-height-um), so that the ISO 14253-1 rule can decide.
@@ -164,7 +165,7 @@ def grade_cmd(
                 trials = default_auto_trials(hm.x_mm.size)
             with progress_bar("Monte Carlo", trials) as advance:
                 mc = survey_uncertainty(loaded, trials=trials, seed=seed, u_height_um=u_height_um, progress=advance,
-                                        lab_defaults=load_lab_defaults(uncertainty_defaults))
+                                        lab_defaults=lab)
         except InputValueError as exc:
             if monte_carlo:
                 raise
@@ -186,7 +187,7 @@ def grade_cmd(
         asme_form=asme_form.value,
         repeat_foot_radius_mm=repeat_foot_radius_mm,
         repeat_tolerance_um=repeat_tolerance_um,
-        height_step_um=loaded.height_step_um(lab=load_lab_defaults(uncertainty_defaults)),
+        height_step_um=loaded.height_step_um(lab=lab),
     )
     report["input"] = str(input)
     if length_basis is not None and length_basis.value == "diagonal" and standard and standard.lower().startswith("asme"):
