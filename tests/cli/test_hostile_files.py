@@ -725,25 +725,14 @@ def _cases(tmp: Path, good_x3p: Path, good_db: Path) -> list:
     db = tmp / "limits-register.sqlite"
     shutil.copy(good_db, db)
     cases = []
-    for family in (_bearing_cases, _guideway_cases, _fringe_cases, _photo_cases, _sphere_cases, _encoding_cases):
-        sub = tmp / family.__name__.strip("_")
+    families = [(f.__name__.strip("_"), f, ()) for f in (_bearing_cases, _guideway_cases, _fringe_cases, _photo_cases,
+                                                          _sphere_cases, _encoding_cases)]
+    families += [("x3p", _x3p_cases, (good_x3p,)), ("defaults", _defaults_cases, ()), ("limits", _limits_cases, (db,)),
+                 ("register", _register_cases, (good_db,)), ("special", _special_cases, (db,))]
+    for name, family, extra in families:  # each family in a folder of its own
+        sub = tmp / name
         sub.mkdir()
-        cases += family(sub)
-    sub = tmp / "x3p"
-    sub.mkdir()
-    cases += _x3p_cases(sub, good_x3p)
-    sub = tmp / "defaults"
-    sub.mkdir()
-    cases += _defaults_cases(sub)
-    sub = tmp / "limits"
-    sub.mkdir()
-    cases += _limits_cases(sub, db)
-    sub = tmp / "register"
-    sub.mkdir()
-    cases += _register_cases(sub, good_db)
-    sub = tmp / "special"
-    sub.mkdir()
-    cases += _special_cases(sub, db)
+        cases += family(sub, *extra)
     return [(i, tuple(str(a) for a in argv), words) for i, argv, words in cases]
 
 
